@@ -1,0 +1,3 @@
+from robustff.cli import main
+
+raise SystemExit(main())

@@ -1,0 +1,241 @@
+"""The study description (a *case*) as frozen dataclasses, and its file entry points.
+
+A case file is TOML; the schema is documented in ``docs/case-format.md``. Loading and validation
+live in :mod:`robustff.case_loader`, writing in :mod:`robustff.case_writer`; this module holds the
+types every other layer uses and re-exports :func:`load_case`, :func:`parse_case` and
+:func:`save_case`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from robustff.models import SensorModel, TransferModel
+
+__all__ = [
+    "TIME_UNITS",
+    "EVENT_KINDS",
+    "DISTRIBUTION_KINDS",
+    "FeedbackSpec",
+    "FeedforwardSpec",
+    "Event",
+    "Signal",
+    "Signals",
+    "SimulationSpec",
+    "Distribution",
+    "UncertainParameter",
+    "Correlation",
+    "StudySpec",
+    "Case",
+]
+
+TIME_UNITS: tuple[str, ...] = ("s", "min", "h")
+EVENT_KINDS: tuple[str, ...] = (
+    "disturbance-step",
+    "disturbance-ramp",
+    "disturbance-noise",
+    "setpoint-step",
+)
+DISTRIBUTION_KINDS: tuple[str, ...] = ("uniform", "relative", "normal", "triangular", "lognormal")
+FEEDFORWARD_STRUCTURES: tuple[str, ...] = ("none", "static", "lead-lag", "lead-lag-delay")
+
+
+@dataclass(frozen=True)
+class FeedbackSpec:
+    """How the feedback controller is designed.
+
+    Parameters
+    ----------
+    form : {"pi", "pid"}
+    tuning : {"simc", "imc", "manual"}
+    closed_loop_time : float or None
+        Desired closed-loop time constant tau_c, time units; ``None`` means the process dead time.
+    kc, ti, td : float or None
+        Manual settings (ideal/parallel form): gain (output units per CV unit), integral time and
+        derivative time (time units). Used only with ``tuning = "manual"``.
+    output_low, output_high : float
+        Controller output limits, output units (e.g. % valve).
+    output_bias : float
+        Controller output at the initial steady state, output units.
+    """
+
+    form: str = "pi"
+    tuning: str = "simc"
+    closed_loop_time: float | None = None
+    kc: float | None = None
+    ti: float | None = None
+    td: float | None = None
+    output_low: float = 0.0
+    output_high: float = 100.0
+    output_bias: float = 50.0
+
+
+@dataclass(frozen=True)
+class FeedforwardSpec:
+    """How the feedforward compensator is designed.
+
+    Parameters
+    ----------
+    structure : {"none", "static", "lead-lag", "lead-lag-delay"}
+    gain_factor : float
+        Multiplies the designed feedforward gain (1.0 = full model-based gain, < 1 = detuned).
+    lead, lag, delay : float or None
+        Optional explicit lead time, lag time and added delay (time units) that replace the
+        model-based design values (written by ``robustff tune``).
+    """
+
+    structure: str = "none"
+    gain_factor: float = 1.0
+    lead: float | None = None
+    lag: float | None = None
+    delay: float | None = None
+
+
+@dataclass(frozen=True)
+class Event:
+    """Something that happens during the simulated window.
+
+    Parameters
+    ----------
+    kind : str
+        One of :data:`EVENT_KINDS`.
+    at : float
+        Start time, time units.
+    size : float
+        Step size (disturbance or setpoint units); for a ramp the total change reached after
+        ``duration``; for filtered noise the standard deviation of the filtered signal.
+    duration : float
+        Ramp duration, time units (ramps only).
+    time_constant : float
+        Filter time constant of the noise, time units (noise only).
+    """
+
+    kind: str
+    at: float
+    size: float
+    duration: float = 0.0
+    time_constant: float = 0.0
+
+
+@dataclass(frozen=True)
+class Signal:
+    """A signal's display name and engineering unit."""
+
+    name: str
+    unit: str = ""
+
+    def label(self) -> str:
+        """``"name [unit]"`` or just the name."""
+        return f"{self.name} [{self.unit}]" if self.unit else self.name
+
+
+@dataclass(frozen=True)
+class Signals:
+    """Names and units of the controlled variable, controller output and measured disturbance."""
+
+    controlled: Signal = Signal("controlled variable")
+    output: Signal = Signal("controller output", "%")
+    disturbance: Signal = Signal("measured disturbance")
+
+
+@dataclass(frozen=True)
+class SimulationSpec:
+    """Simulated window and controller sample time, both in time units."""
+
+    duration: float
+    step: float
+
+    @property
+    def n_steps(self) -> int:
+        """Number of controller samples in the window."""
+        return int(round(self.duration / self.step))
+
+
+@dataclass(frozen=True)
+class Distribution:
+    """One uncertain parameter's distribution.
+
+    Parameters
+    ----------
+    kind : str
+        One of :data:`DISTRIBUTION_KINDS`.
+    params : tuple of float
+        ``uniform``: (low, high); ``relative``: (r,) meaning nominal * (1 +- r);
+        ``normal``: (mean, std); ``triangular``: (low, mode, high);
+        ``lognormal``: (median, factor) with factor = exp(sigma of log).
+    clip : tuple of float or None
+        Optional (low, high) bounds applied after sampling (``normal`` and ``lognormal``).
+    """
+
+    kind: str
+    params: tuple[float, ...]
+    clip: tuple[float, float] | None = None
+
+
+@dataclass(frozen=True)
+class UncertainParameter:
+    """An uncertain plant parameter, keyed like ``"process.gain"``."""
+
+    key: str
+    distribution: Distribution
+
+    @property
+    def block(self) -> str:
+        return self.key.split(".", 1)[0]
+
+    @property
+    def parameter(self) -> str:
+        return self.key.split(".", 1)[1]
+
+
+@dataclass(frozen=True)
+class Correlation:
+    """Rank correlation between two uncertain parameters (Spearman, -1 < rho < 1)."""
+
+    first: str
+    second: str
+    rank_correlation: float
+
+
+@dataclass(frozen=True)
+class StudySpec:
+    """Monte Carlo settings: sample count, seed and sampling plan ("random", "lhs", "sobol")."""
+
+    samples: int = 2000
+    seed: int = 1
+    sampling: str = "lhs"
+
+
+@dataclass(frozen=True)
+class Case:
+    """One study: nominal models, controller and feedforward design rules, events, uncertainty."""
+
+    title: str
+    time_unit: str
+    process: TransferModel
+    disturbance: TransferModel
+    feedback: FeedbackSpec
+    feedforward: FeedforwardSpec
+    simulation: SimulationSpec
+    events: tuple[Event, ...]
+    sensor: SensorModel = SensorModel()
+    signals: Signals = Signals()
+    uncertainty: tuple[UncertainParameter, ...] = ()
+    correlations: tuple[Correlation, ...] = ()
+    study: StudySpec = StudySpec()
+    source_path: Path | None = field(default=None, compare=False)
+
+    @property
+    def name(self) -> str:
+        """Short name for output folders: the file stem, else a slug of the title."""
+        if self.source_path is not None:
+            return self.source_path.stem
+        slug = "".join(c if c.isalnum() else "-" for c in self.title.lower()).strip("-")
+        return "-".join(part for part in slug.split("-") if part) or "case"
+
+    def nominal_value(self, key: str) -> float:
+        """Nominal value of a plant parameter such as ``"process.gain"``."""
+        block, parameter = key.split(".", 1)
+        owner = {"process": self.process, "disturbance": self.disturbance, "sensor": self.sensor}[block]
+        return float(getattr(owner, parameter))

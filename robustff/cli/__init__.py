@@ -1,0 +1,74 @@
+"""The ``robustff`` command line: a thin shell over the engine API.
+
+Each sub-command lives in its own module in this package and exposes ``register(subparsers)``,
+which adds its parser and sets ``func`` to a callable taking the parsed arguments and returning
+the exit status. User errors (:class:`robustff.errors.RobustffError`) are printed as one line per
+problem on stderr with exit status 2; no traceback is shown.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+from collections.abc import Sequence
+
+from robustff.errors import RobustffError
+
+__all__ = ["main", "COMMAND_MODULES", "EXIT_OK", "EXIT_USAGE", "EXIT_INTERRUPTED"]
+
+EXIT_OK = 0
+EXIT_USAGE = 2
+EXIT_INTERRUPTED = 130
+
+#: Sub-command modules, in the order they appear in ``robustff --help``.
+COMMAND_MODULES: tuple[str, ...] = (
+    "robustff.cli.check_command",
+    "robustff.cli.run_command",
+    "robustff.cli.tune_command",
+    "robustff.cli.fit_command",
+    "robustff.cli.studio_command",
+)
+
+
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose usage errors exit with status 2 and one clear line."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        self.exit(EXIT_USAGE, f"robustff: error: {message} (see 'robustff {self.prog.split()[-1]} --help')\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The top-level parser with every available sub-command."""
+    parser = _Parser(prog="robustff", description="Robustness studies of feedforward control.")
+    from robustff import __version__
+
+    parser.add_argument("--version", action="version", version=f"robustff {__version__}")
+    subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for module_name in COMMAND_MODULES:
+        try:
+            module = importlib.import_module(module_name)
+        except ModuleNotFoundError as exc:
+            if exc.name == module_name:
+                continue  # command not part of this build
+            raise
+        module.register(subparsers)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; returns the exit status."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help(sys.stderr)
+        return EXIT_USAGE
+    try:
+        return int(args.func(args))
+    except RobustffError as exc:
+        for line in str(exc).splitlines() or [type(exc).__name__]:
+            print(f"robustff: error: {line}", file=sys.stderr)
+        return EXIT_USAGE
+    except KeyboardInterrupt:
+        print("robustff: interrupted", file=sys.stderr)
+        return EXIT_INTERRUPTED

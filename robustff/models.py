@@ -1,0 +1,242 @@
+"""Nominal plant models and batches of perturbed plants.
+
+Three model kinds describe a path from an input to the controlled variable (CV):
+
+* ``"fopdt"``: first order plus dead time, ``K exp(-theta s) / (tau s + 1)``;
+* ``"sopdt"``: second order plus dead time, ``K exp(-theta s) / ((tau s + 1)(tau2 s + 1))``;
+* ``"ipdt"``: integrating plus dead time, ``K exp(-theta s) / s`` (``K`` is the CV slope per unit
+  input, in CV units per input unit per time unit).
+
+All times are in the case's time unit. A time constant of zero means "no lag".
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+import numpy as np
+
+__all__ = [
+    "MODEL_KINDS",
+    "MODEL_PARAMETERS",
+    "SENSOR_PARAMETERS",
+    "KIND_CODES",
+    "TransferModel",
+    "SensorModel",
+    "PlantBatch",
+]
+
+MODEL_KINDS: tuple[str, ...] = ("fopdt", "sopdt", "ipdt")
+
+#: Parameters each model kind has, in the order they are stored.
+MODEL_PARAMETERS: dict[str, tuple[str, ...]] = {
+    "fopdt": ("gain", "time_constant", "dead_time"),
+    "sopdt": ("gain", "time_constant", "time_constant_2", "dead_time"),
+    "ipdt": ("gain", "dead_time"),
+}
+
+SENSOR_PARAMETERS: tuple[str, ...] = ("time_constant", "noise_std")
+
+#: Integer codes used by the compiled simulator.
+KIND_CODES: dict[str, int] = {"fopdt": 0, "sopdt": 1, "ipdt": 2}
+
+
+@dataclass(frozen=True)
+class TransferModel:
+    """A path model: FOPDT, SOPDT or IPDT.
+
+    Parameters
+    ----------
+    kind : {"fopdt", "sopdt", "ipdt"}
+        Model structure.
+    gain : float
+        Steady-state gain (CV units per input unit); for ``"ipdt"`` the slope gain
+        (CV units per input unit per time unit). May be negative.
+    time_constant : float
+        First lag, time units (>= 0). Unused for ``"ipdt"``.
+    time_constant_2 : float
+        Second lag, time units (>= 0). Used only by ``"sopdt"``.
+    dead_time : float
+        Pure delay, time units (>= 0).
+    """
+
+    kind: str
+    gain: float
+    time_constant: float = 0.0
+    time_constant_2: float = 0.0
+    dead_time: float = 0.0
+
+    @property
+    def integrating(self) -> bool:
+        """True for an integrating (non-self-regulating) path."""
+        return self.kind == "ipdt"
+
+    @property
+    def total_lag(self) -> float:
+        """Sum of the lags, time units (zero for ``"ipdt"``)."""
+        if self.kind == "ipdt":
+            return 0.0
+        if self.kind == "sopdt":
+            return self.time_constant + self.time_constant_2
+        return self.time_constant
+
+    def parameters(self) -> dict[str, float]:
+        """The parameters this kind has, by name."""
+        return {name: float(getattr(self, name)) for name in MODEL_PARAMETERS[self.kind]}
+
+    def with_parameter(self, name: str, value: float) -> TransferModel:
+        """A copy with one parameter changed."""
+        return replace(self, **{name: float(value)})
+
+    def describe(self, time_unit: str = "") -> str:
+        """A one-line description such as ``2.0 e^(-3 s)/(10 s + 1)`` with the time unit."""
+        unit = f" {time_unit}" if time_unit else ""
+        lag_text = {
+            "fopdt": f"tau = {self.time_constant:g}{unit}",
+            "sopdt": f"tau = {self.time_constant:g}{unit}, tau2 = {self.time_constant_2:g}{unit}",
+            "ipdt": "integrating",
+        }[self.kind]
+        return f"{self.kind.upper()}: K = {self.gain:g}, {lag_text}, dead time = {self.dead_time:g}{unit}"
+
+    def to_control(self, pade_order: int | None = None) -> Any:
+        """The model as a python-control transfer function.
+
+        Parameters
+        ----------
+        pade_order : int, optional
+            When given, the dead time is replaced by a Pade approximation of this order;
+            otherwise the delay-free part is returned (use :meth:`frequency_response` for the
+            exact delay).
+
+        Notes
+        -----
+        python-control is imported here, not at module import, to keep batch runs fast.
+        """
+        import control
+
+        s = control.tf("s")
+        if self.kind == "ipdt":
+            rational = self.gain / s
+        elif self.kind == "sopdt":
+            rational = self.gain / ((self.time_constant * s + 1) * (self.time_constant_2 * s + 1))
+        else:
+            rational = self.gain / (self.time_constant * s + 1)
+        if pade_order is None or self.dead_time == 0.0:
+            return rational
+        num, den = control.pade(self.dead_time, pade_order)
+        return rational * control.tf(num, den)
+
+    def frequency_response(self, omega: np.ndarray) -> np.ndarray:
+        """Complex frequency response with the exact dead time.
+
+        Parameters
+        ----------
+        omega : ndarray, shape (F,)
+            Angular frequencies, rad per time unit.
+
+        Returns
+        -------
+        ndarray, shape (F,), complex
+        """
+        jw = 1j * np.asarray(omega, dtype=float)
+        delay = np.exp(-jw * self.dead_time)
+        if self.kind == "ipdt":
+            return self.gain * delay / jw
+        den = self.time_constant * jw + 1
+        if self.kind == "sopdt":
+            den = den * (self.time_constant_2 * jw + 1)
+        return self.gain * delay / den
+
+
+@dataclass(frozen=True)
+class SensorModel:
+    """The transmitter of the measured disturbance.
+
+    Parameters
+    ----------
+    time_constant : float
+        First-order lag of the transmitter, time units (>= 0).
+    noise_std : float
+        Standard deviation of white measurement noise added at each controller sample,
+        disturbance units (>= 0).
+    """
+
+    time_constant: float = 0.0
+    noise_std: float = 0.0
+
+
+def _column(value: float, n: int) -> np.ndarray:
+    return np.full(n, float(value), dtype=np.float64)
+
+
+@dataclass
+class PlantBatch:
+    """Parameters of ``n`` perturbed plants, one entry per sample (arrays of shape (n,)).
+
+    The model kinds are shared by all samples; the numbers differ. Build one with
+    :meth:`from_nominal` and overwrite the uncertain parameters with :meth:`set_parameter`.
+    Keys follow the case file: ``"process.gain"``, ``"disturbance.dead_time"``,
+    ``"sensor.time_constant"`` ...
+    """
+
+    process_kind: str
+    disturbance_kind: str
+    values: dict[str, np.ndarray] = field(default_factory=dict)
+
+    @property
+    def size(self) -> int:
+        """Number of samples."""
+        return int(next(iter(self.values.values())).shape[0])
+
+    @classmethod
+    def from_nominal(
+        cls, process: TransferModel, disturbance: TransferModel, sensor: SensorModel, n: int
+    ) -> PlantBatch:
+        """``n`` copies of the nominal plant."""
+        values: dict[str, np.ndarray] = {}
+        for block, model in (("process", process), ("disturbance", disturbance)):
+            for name in ("gain", "time_constant", "time_constant_2", "dead_time"):
+                values[f"{block}.{name}"] = _column(getattr(model, name), n)
+            if model.kind == "fopdt":
+                values[f"{block}.time_constant_2"][:] = 0.0
+            if model.kind == "ipdt":
+                values[f"{block}.time_constant"][:] = 0.0
+                values[f"{block}.time_constant_2"][:] = 0.0
+        values["sensor.time_constant"] = _column(sensor.time_constant, n)
+        values["sensor.noise_std"] = _column(sensor.noise_std, n)
+        return cls(process.kind, disturbance.kind, values)
+
+    def set_parameter(self, key: str, column: np.ndarray) -> None:
+        """Overwrite one parameter for all samples.
+
+        Raises
+        ------
+        KeyError
+            If ``key`` is not a plant parameter.
+        """
+        if key not in self.values:
+            raise KeyError(key)
+        column = np.asarray(column, dtype=np.float64)
+        if column.shape != (self.size,):
+            raise ValueError(f"{key}: expected shape ({self.size},), got {column.shape}")
+        self.values[key] = column
+
+    def subset(self, index: np.ndarray | slice) -> PlantBatch:
+        """The plants selected by ``index``."""
+        return PlantBatch(
+            self.process_kind,
+            self.disturbance_kind,
+            {key: np.ascontiguousarray(col[index]) for key, col in self.values.items()},
+        )
+
+    def model(self, block: str, i: int) -> TransferModel:
+        """Sample ``i`` of ``block`` ("process" or "disturbance") as a :class:`TransferModel`."""
+        kind = self.process_kind if block == "process" else self.disturbance_kind
+        return TransferModel(
+            kind,
+            float(self.values[f"{block}.gain"][i]),
+            float(self.values[f"{block}.time_constant"][i]),
+            float(self.values[f"{block}.time_constant_2"][i]),
+            float(self.values[f"{block}.dead_time"][i]),
+        )
