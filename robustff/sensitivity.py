@@ -1,0 +1,228 @@
+"""Which uncertain parameter drives the result: rank correlations and Sobol indices.
+
+Pure functions on arrays (samples along axis 0); ``scipy.stats`` is imported inside the functions
+because its import is slow (about 0.7 s) and the ``run`` path does not always need it.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from robustff.errors import DataError
+
+__all__ = ["SensitivityRow", "spearman_with_interval", "rank_sensitivity", "sobol_first_total"]
+
+# Standard error of Fisher's z of a Spearman coefficient: 1.06 / sqrt(n - 3).
+# Source: Fieller, Hartley and Pearson, "Tests for rank correlation coefficients. I",
+# Biometrika 44 (1957) 470-481 [from memory].
+_SPEARMAN_SE_FACTOR = 1.06
+
+
+def _json_float(x: float) -> float | None:
+    return float(x) if math.isfinite(x) else None
+
+
+@dataclass(frozen=True)
+class SensitivityRow:
+    """Influence of one uncertain parameter (one bar of a tornado chart).
+
+    Attributes
+    ----------
+    name : str
+        Parameter name as in the case (e.g. ``"process.gain"``).
+    rho, low, high : float
+        Spearman rank correlation with the response and its confidence interval (NaN when the
+        parameter or the response does not vary, or too few samples).
+    n : int
+        Samples used for ``rho`` (finite response and parameter).
+    rho_harm, harm_low, harm_high : float
+        Spearman correlation with the harm indicator (1 = feedforward worse) and its interval;
+        NaN when no indicator was given or it does not vary.
+    n_harm : int
+        Samples used for ``rho_harm`` (finite parameter; unstable responses are kept because
+        the indicator is defined for them).
+    """
+
+    name: str
+    rho: float
+    low: float
+    high: float
+    n: int
+    rho_harm: float = float("nan")
+    harm_low: float = float("nan")
+    harm_high: float = float("nan")
+    n_harm: int = 0
+
+    def to_dict(self) -> dict:
+        """JSON-friendly dict; intervals as ``[low, high]`` lists, NaN as None."""
+        return {
+            "name": self.name,
+            "rho": _json_float(self.rho),
+            "ci95": [_json_float(self.low), _json_float(self.high)],
+            "n": self.n,
+            "rho_harm": _json_float(self.rho_harm),
+            "harm_ci95": [_json_float(self.harm_low), _json_float(self.harm_high)],
+            "n_harm": self.n_harm,
+        }
+
+
+def spearman_with_interval(
+    x: np.ndarray, y: np.ndarray, confidence: float = 0.95
+) -> tuple[float, float, float]:
+    """Spearman rank correlation with a Fisher-z confidence interval.
+
+    Parameters
+    ----------
+    x, y : ndarray, shape (n,)
+        Paired finite values (ties get average ranks).
+    confidence : float
+        Confidence level of the interval.
+
+    Returns
+    -------
+    rho, low, high : float
+        NaN when either input is constant or ``n < 3``; the interval is NaN for ``n <= 3``.
+        ``atanh(rho) +- z * 1.06 / sqrt(n - 3)`` back-transformed with ``tanh``.
+    """
+    from scipy.special import ndtri
+    from scipy.stats import rankdata
+
+    n = x.size
+    nan = float("nan")
+    if n < 3:
+        return nan, nan, nan
+    rx, ry = rankdata(x), rankdata(y)
+    rx, ry = rx - rx.mean(), ry - ry.mean()
+    denom = math.sqrt(float(np.dot(rx, rx)) * float(np.dot(ry, ry)))
+    if denom == 0.0:
+        return nan, nan, nan
+    rho = float(np.clip(np.dot(rx, ry) / denom, -1.0, 1.0))
+    if n <= 3:
+        return rho, nan, nan
+    z = math.atanh(float(np.clip(rho, -1 + 1e-15, 1 - 1e-15)))
+    half = float(ndtri(0.5 + confidence / 2)) * _SPEARMAN_SE_FACTOR / math.sqrt(n - 3)
+    return rho, math.tanh(z - half), math.tanh(z + half)
+
+
+def _check_inputs(
+    parameters: np.ndarray, names: Sequence[str], response: np.ndarray, harm: np.ndarray | None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+    par = np.asarray(parameters, dtype=float)
+    resp = np.asarray(response, dtype=float)
+    if par.ndim != 2 or resp.ndim != 1 or par.shape[0] != resp.size:
+        raise DataError(
+            "sensitivity needs parameters (samples, parameters) and one response per sample, "
+            f"got {par.shape} and {resp.shape}"
+        )
+    if len(names) != par.shape[1]:
+        raise DataError(f"{len(names)} parameter names given for {par.shape[1]} parameter columns")
+    flag = None
+    if harm is not None:
+        flag = np.asarray(harm)
+        if flag.shape != resp.shape:
+            raise DataError(f"harm indicator has shape {flag.shape}, response {resp.shape}")
+        flag = flag.astype(bool).astype(float)
+    return par, resp, flag
+
+
+def rank_sensitivity(
+    parameters: np.ndarray,
+    names: Sequence[str],
+    response: np.ndarray,
+    harm: np.ndarray | None = None,
+    confidence: float = 0.95,
+) -> list[SensitivityRow]:
+    """Rank correlation of each uncertain parameter with a response and with harm.
+
+    Parameters
+    ----------
+    parameters : ndarray, shape (n, p)
+        Sampled parameter values, one row per sample.
+    names : sequence of str, length p
+        Parameter names.
+    response : ndarray, shape (n,)
+        Response per sample, e.g. the IAE ratio fbff/fb; NaN/inf rows are dropped for ``rho``.
+    harm : ndarray of bool, shape (n,), optional
+        True where feedforward was worse (including samples unstable only with feedforward).
+    confidence : float
+        Confidence level of the Fisher-z intervals.
+
+    Returns
+    -------
+    list of SensitivityRow
+        Sorted by ``|rho|`` descending (parameters with undefined ``rho`` last), ties by
+        ``|rho_harm|``.
+    """
+    par, resp, flag = _check_inputs(parameters, names, response, harm)
+    rows = []
+    for j, name in enumerate(names):
+        col = par[:, j]
+        ok = np.isfinite(col) & np.isfinite(resp)
+        rho, low, high = spearman_with_interval(col[ok], resp[ok], confidence)
+        extra: dict = {}
+        if flag is not None:
+            okh = np.isfinite(col)
+            rh, lh, hh = spearman_with_interval(col[okh], flag[okh], confidence)
+            extra = {"rho_harm": rh, "harm_low": lh, "harm_high": hh, "n_harm": int(okh.sum())}
+        rows.append(SensitivityRow(name, rho, low, high, int(ok.sum()), **extra))
+
+    def key(row: SensitivityRow) -> tuple[float, float]:
+        a = abs(row.rho) if math.isfinite(row.rho) else -1.0
+        b = abs(row.rho_harm) if math.isfinite(row.rho_harm) else -1.0
+        return (-a, -b)
+
+    return sorted(rows, key=key)
+
+
+def sobol_first_total(
+    func: Callable[[np.ndarray], np.ndarray],
+    dists: Sequence,
+    n: int,
+    seed: int | np.random.SeedSequence | None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """First-order and total Sobol indices through ``scipy.stats.sobol_indices``.
+
+    Parameters
+    ----------
+    func : callable
+        ``func(x)`` with ``x`` of shape (d, m) (one column per model evaluation) returning
+        shape (m,) or (s, m). Values must be finite.
+    dists : sequence of scipy.stats frozen distributions, length d
+        Independent input distributions (each needs ``ppf``).
+    n : int
+        Base sample size; rounded up to a power of two (a scipy requirement). The model is
+        evaluated ``n * (d + 2)`` times (Saltelli et al. 2010 scheme).
+    seed : int, SeedSequence or None
+        Seed of the quasi-random generator.
+
+    Returns
+    -------
+    first, total : ndarray, shape (d,) for a scalar output, else (s, d)
+    """
+    from scipy.stats import sobol_indices
+
+    if n < 2:
+        raise DataError(f"Sobol analysis needs a base sample size of at least 2, got {n}")
+    if not dists:
+        raise DataError("Sobol analysis needs at least one input distribution")
+    n_pow2 = 1 << (int(n) - 1).bit_length()
+    scalar = [False]
+
+    def wrapped(x: np.ndarray) -> np.ndarray:
+        y = np.asarray(func(x), dtype=float)
+        scalar[0] = y.ndim == 1
+        return np.atleast_2d(y)
+
+    rng = np.random.default_rng(seed)
+    res = sobol_indices(func=wrapped, n=n_pow2, dists=list(dists), rng=rng)
+    # scipy squeezes a single output to shape (d,); make it (s, d) before choosing the shape
+    d = len(dists)
+    first = np.asarray(res.first_order).reshape(-1, d)
+    total = np.asarray(res.total_order).reshape(-1, d)
+    if scalar[0]:
+        return first[0], total[0]
+    return first, total
