@@ -1,0 +1,120 @@
+"""Turn a case's events and design into the arrays the simulation kernel needs."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from robustff.case import Case
+from robustff.tuning import LoopDesign
+
+__all__ = ["Scenario", "event_profiles", "disturbance_direction", "divergence_limit"]
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """Everything about a simulated window that is the same for all samples.
+
+    Parameters
+    ----------
+    step : float
+        Controller sample time, time units.
+    disturbance_profile : ndarray, shape (T,)
+        Deterministic disturbance (steps and ramps) at each sample, disturbance units.
+    setpoint_profile : ndarray, shape (T,)
+        Setpoint deviation at each sample, CV units.
+    noise_events : ndarray, shape (E, 3)
+        Filtered-noise events: start sample, stationary standard deviation, filter time constant.
+    event_start : float
+        Start of the first event, time units (``t0`` of the metrics).
+    direction : float
+        Sign of the error that counts as an opposite-side excursion (see :mod:`robustff.metrics`).
+    setpoint_step : float or None
+        Size of the first event when it is a setpoint step, CV units.
+    settling_band : float
+        CV units; see :mod:`robustff.metrics`.
+    divergence_limit : float
+        |CV| beyond which a sample is declared unstable, CV units.
+    """
+
+    step: float
+    disturbance_profile: np.ndarray
+    setpoint_profile: np.ndarray
+    noise_events: np.ndarray
+    event_start: float
+    direction: float
+    setpoint_step: float | None
+    settling_band: float
+    divergence_limit: float
+
+    @property
+    def n_steps(self) -> int:
+        return int(self.disturbance_profile.shape[0])
+
+    @property
+    def times(self) -> np.ndarray:
+        """Sample instants, shape (T,), time units."""
+        return np.arange(self.n_steps) * self.step
+
+
+def event_profiles(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Disturbance and setpoint profiles and the noise-event table of a case.
+
+    Event times are placed on the controller sample nearest to them.
+
+    Returns
+    -------
+    disturbance : ndarray, shape (T,)
+    setpoint : ndarray, shape (T,)
+    noise_events : ndarray, shape (E, 3)
+    """
+    h = case.simulation.step
+    n = case.simulation.n_steps
+    t = np.arange(n) * h
+    disturbance = np.zeros(n)
+    setpoint = np.zeros(n)
+    noise = []
+    for event in case.events:
+        start = round(event.at / h) * h
+        if event.kind == "disturbance-step":
+            disturbance += np.where(t >= start - 1e-9 * h, event.size, 0.0)
+        elif event.kind == "setpoint-step":
+            setpoint += np.where(t >= start - 1e-9 * h, event.size, 0.0)
+        elif event.kind == "disturbance-ramp":
+            fraction = np.clip((t - start) / max(event.duration, h), 0.0, 1.0)
+            disturbance += event.size * fraction
+        elif event.kind == "disturbance-noise":
+            noise.append((round(event.at / h), abs(event.size), event.time_constant))
+    return disturbance, setpoint, np.array(noise, dtype=np.float64).reshape(-1, 3)
+
+
+def disturbance_direction(case: Case) -> tuple[float, float | None, float]:
+    """Direction convention, setpoint step and start time of the first event.
+
+    Returns
+    -------
+    direction : float
+        For a setpoint step: ``-sign(step)`` (the CV passing the new setpoint makes ``e`` take
+        that sign). For a disturbance: the sign of nominal ``Kd x size`` (the uncompensated
+        disturbance pushes the CV that way, so the error of an opposite excursion has that sign).
+    setpoint_step : float or None
+    event_start : float
+    """
+    first = min(case.events, key=lambda event: event.at)
+    if first.kind == "setpoint-step":
+        return -float(np.sign(first.size) or 1.0), first.size, first.at
+    push = np.sign(case.disturbance.gain * (first.size if first.kind != "disturbance-noise" else 1.0))
+    return float(push or 1.0), None, first.at
+
+
+def divergence_limit(case: Case, design: LoopDesign) -> float:
+    """A CV deviation far beyond anything a working loop produces, CV units."""
+    _, setpoint, _ = event_profiles(case)
+    d_size = sum(abs(e.size) for e in case.events if e.kind != "setpoint-step")
+    span = design.feedback.output_high - design.feedback.output_low
+    scale = abs(case.disturbance.gain) * d_size + float(np.max(np.abs(setpoint), initial=0.0))
+    scale += abs(case.process.gain) * span
+    if case.process.integrating or case.disturbance.integrating:
+        scale *= case.simulation.duration
+    return 1e4 * max(scale, 1e-12)

@@ -1,0 +1,335 @@
+"""Feedback tuning and feedforward design from the NOMINAL models.
+
+Feedback rules (ideal/parallel PID form ``u = Kc (e + 1/Ti int e dt - Td dy_f/dt)``):
+
+* SIMC (Skogestad, "Simple analytic rules for model reduction and PID controller tuning",
+  J. Process Control 13 (2003) 291-309):
+
+  - FOPDT, PI: ``Kc = tau / (K (tau_c + theta))``, ``Ti = min(tau, 4 (tau_c + theta))``;
+  - SOPDT, PID (series form ``Kc' (1 + 1/(Ti' s)) (1 + Td' s)``): ``Kc'``, ``Ti'`` as for FOPDT
+    with ``tau = tau1`` and ``Td' = tau2``, converted to the ideal form
+    (``Kc = Kc' (1 + Td'/Ti')``, ``Ti = Ti' + Td'``, ``Td = Ti' Td' / (Ti' + Td')``);
+    SOPDT with a PI is first reduced by the half rule (``tau1 + tau2/2``, ``theta + tau2/2``);
+  - IPDT, PI: ``Kc = 1 / (K (tau_c + theta))``, ``Ti = 4 (tau_c + theta)``.
+
+* IMC:
+
+  - FOPDT, PI: ``Kc = tau / (K (tau_c + theta))``, ``Ti = tau`` (IMC with a first-order Taylor
+    delay approximation, often called lambda tuning);
+  - FOPDT, PID: first-order Pade delay, ``Kc = (tau + theta/2) / (K (tau_c + theta/2))``,
+    ``Ti = tau + theta/2``, ``Td = tau theta / (2 tau + theta)`` (Rivera, Morari and Skogestad,
+    Ind. Eng. Chem. Process Des. Dev. 25 (1986); derived in tests);
+  - SOPDT, PID: series ``Kc' = tau1 / (K (tau_c + theta))``, ``Ti' = tau1``, ``Td' = tau2``;
+    PI via the half rule then the FOPDT PI rule;
+  - IPDT, PI: ``Kc = (2 tau_c + theta) / (K (tau_c + theta)^2)``, ``Ti = 2 tau_c + theta``.
+
+Where a rule yields no derivative action (FOPDT or IPDT under SIMC, IPDT under IMC) and a PID was
+asked for, the derivative time is zero and the design says so.
+
+The derivative acts on the measurement through a first-order filter of time constant
+``0.1 Td`` (common practice, no source). Anti-windup is by back-calculation with tracking time
+``Tt = Ti`` (PI) or ``sqrt(Ti Td)`` (PID) (Astrom and Hagglund, Advanced PID Control, 2006).
+
+Feedforward: the ideal compensator ``Gff = -Gd / Gp`` reduced to ``Kff (lead s + 1) / (lag s + 1)
+exp(-delay s)``. See :func:`design_feedforward`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+from robustff.case import Case, FeedbackSpec, FeedforwardSpec
+from robustff.errors import DesignError
+from robustff.models import TransferModel
+
+__all__ = [
+    "FeedbackSettings",
+    "FeedforwardSettings",
+    "LoopDesign",
+    "tune_feedback",
+    "design_feedforward",
+    "design_loop",
+    "series_to_ideal",
+    "DERIVATIVE_FILTER_FRACTION",
+]
+
+DERIVATIVE_FILTER_FRACTION = 0.1
+
+
+@dataclass(frozen=True)
+class FeedbackSettings:
+    """A designed PI/PID controller (ideal form, derivative on measurement).
+
+    Parameters
+    ----------
+    form : {"pi", "pid"}
+    kc : float
+        Controller gain, output units per CV unit (negative for a negative process gain).
+    ti : float
+        Integral time, time units.
+    td : float
+        Derivative time, time units (0 for PI).
+    filter_time : float
+        Time constant of the derivative filter, time units.
+    tracking_time : float
+        Back-calculation anti-windup tracking time, time units.
+    output_low, output_high, output_bias : float
+        Output limits and initial steady-state output, output units.
+    closed_loop_time : float
+        tau_c used by the rule, time units (NaN for manual tuning).
+    rule : str
+        Which rule produced the settings.
+    """
+
+    form: str
+    kc: float
+    ti: float
+    td: float
+    filter_time: float
+    tracking_time: float
+    output_low: float
+    output_high: float
+    output_bias: float
+    closed_loop_time: float
+    rule: str
+
+    def to_dict(self) -> dict[str, float | str]:
+        return dict(self.__dict__)
+
+
+@dataclass(frozen=True)
+class FeedforwardSettings:
+    """A designed feedforward compensator ``gain (lead s + 1)/(lag s + 1) exp(-delay s)``.
+
+    Parameters
+    ----------
+    structure : str
+        "none", "static", "lead-lag" or "lead-lag-delay".
+    gain : float
+        Compensator gain including ``gain_factor``, output units per disturbance unit.
+    lead, lag, delay : float
+        Time units. ``lag`` is > 0 whenever ``lead`` > 0.
+    gain_factor : float
+        The detuning factor that was applied.
+    """
+
+    structure: str
+    gain: float
+    lead: float
+    lag: float
+    delay: float
+    gain_factor: float
+
+    @property
+    def active(self) -> bool:
+        return self.structure != "none" and self.gain != 0.0
+
+    def to_dict(self) -> dict[str, float | str]:
+        return dict(self.__dict__)
+
+
+@dataclass(frozen=True)
+class LoopDesign:
+    """Feedback and feedforward designs plus notes for the engineer (realizability etc.)."""
+
+    feedback: FeedbackSettings
+    feedforward: FeedforwardSettings
+    notes: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict[str, object]:
+        return {
+            "feedback": self.feedback.to_dict(),
+            "feedforward": self.feedforward.to_dict(),
+            "notes": list(self.notes),
+        }
+
+    def summary_lines(self, case: Case) -> list[str]:
+        """Human-readable lines describing the design, with units from the case."""
+        unit = case.time_unit
+        fb, ff = self.feedback, self.feedforward
+        lines = [
+            f"Feedback ({fb.rule}): {fb.form.upper()} Kc = {fb.kc:.4g} "
+            f"{case.signals.output.unit or 'output'}/{case.signals.controlled.unit or 'CV'}, "
+            f"Ti = {fb.ti:.4g} {unit}, Td = {fb.td:.4g} {unit}"
+            + ("" if math.isnan(fb.closed_loop_time) else f", tau_c = {fb.closed_loop_time:.4g} {unit}"),
+            f"  output limits {fb.output_low:g} .. {fb.output_high:g}, bias {fb.output_bias:g}; "
+            f"anti-windup: back-calculation, Tt = {fb.tracking_time:.4g} {unit}",
+        ]
+        if ff.structure == "none":
+            lines.append("Feedforward: none")
+        else:
+            lines.append(
+                f"Feedforward ({ff.structure}): gain = {ff.gain:.4g} "
+                f"(gain factor {ff.gain_factor:g}), lead = {ff.lead:.4g} {unit}, "
+                f"lag = {ff.lag:.4g} {unit}, delay = {ff.delay:.4g} {unit}"
+            )
+        lines.extend(f"  note: {note}" for note in self.notes)
+        return lines
+
+
+def series_to_ideal(kc: float, ti: float, td: float) -> tuple[float, float, float]:
+    """Convert series (interacting) PID settings to the ideal (parallel) form.
+
+    Parameters
+    ----------
+    kc, ti, td : float
+        Series gain, integral time and derivative time (time units).
+
+    Returns
+    -------
+    tuple of float
+        ``(Kc (1 + Td/Ti), Ti + Td, Ti Td / (Ti + Td))``.
+    """
+    factor = 1.0 + td / ti
+    return kc * factor, ti + td, ti * td / (ti + td)
+
+
+def _half_rule(model: TransferModel) -> TransferModel:
+    """SOPDT -> FOPDT by Skogestad's half rule (half of tau2 to the lag, half to the delay)."""
+    half = 0.5 * model.time_constant_2
+    return TransferModel("fopdt", model.gain, model.time_constant + half, 0.0, model.dead_time + half)
+
+
+def _simc(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float, str]:
+    k, theta = model.gain, model.dead_time
+    if model.kind == "ipdt":
+        return 1.0 / (k * (tau_c + theta)), 4.0 * (tau_c + theta), 0.0, ""
+    if model.kind == "sopdt" and form == "pid":
+        tau1 = model.time_constant
+        kc, ti = tau1 / (k * (tau_c + theta)), min(tau1, 4.0 * (tau_c + theta))
+        kc_i, ti_i, td_i = series_to_ideal(kc, ti, model.time_constant_2)
+        return kc_i, ti_i, td_i, ""
+    if model.kind == "sopdt":
+        model = _half_rule(model)
+        theta = model.dead_time
+    tau = model.time_constant
+    return tau / (k * (tau_c + theta)), min(tau, 4.0 * (tau_c + theta)), 0.0, ""
+
+
+def _imc(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float]:
+    k, theta = model.gain, model.dead_time
+    if model.kind == "ipdt":
+        return (2.0 * tau_c + theta) / (k * (tau_c + theta) ** 2), 2.0 * tau_c + theta, 0.0
+    if model.kind == "sopdt" and form == "pid":
+        tau1 = model.time_constant
+        return series_to_ideal(tau1 / (k * (tau_c + theta)), tau1, model.time_constant_2)
+    if model.kind == "sopdt":
+        model = _half_rule(model)
+        theta = model.dead_time
+    tau = model.time_constant
+    if form == "pid":
+        kc = (tau + theta / 2.0) / (k * (tau_c + theta / 2.0))
+        return kc, tau + theta / 2.0, tau * theta / (2.0 * tau + theta)
+    return tau / (k * (tau_c + theta)), tau, 0.0
+
+
+def tune_feedback(process: TransferModel, spec: FeedbackSpec, step: float) -> tuple[FeedbackSettings, list[str]]:
+    """Design the feedback controller from the nominal process model.
+
+    Parameters
+    ----------
+    process : TransferModel
+        Nominal process model (controller output -> CV).
+    spec : FeedbackSpec
+        Form, rule, tau_c and limits from the case.
+    step : float
+        Controller sample time, time units (used as tau_c floor when the model has no dead time).
+
+    Returns
+    -------
+    settings : FeedbackSettings
+    notes : list of str
+    """
+    notes: list[str] = []
+    tau_c = spec.closed_loop_time
+    if tau_c is None:
+        tau_c = process.dead_time
+        if tau_c <= 0.0:
+            tau_c = step
+            notes.append(f"process has no dead time: tau_c set to the sample time {step:g}")
+    if spec.tuning == "manual":
+        if spec.kc is None or spec.ti is None:
+            raise DesignError("feedback: manual tuning needs kc and ti")
+        kc, ti, td, rule = spec.kc, spec.ti, spec.td or 0.0, "manual"
+        tau_c = math.nan
+    else:
+        if process.kind != "ipdt" and process.time_constant <= 0.0:
+            raise DesignError("feedback: tuning rules need a process time constant > 0")
+        if spec.tuning == "simc":
+            kc, ti, td, _ = _simc(process, spec.form, tau_c)
+        else:
+            kc, ti, td = _imc(process, spec.form, tau_c)
+        rule = f"{spec.tuning.upper()}"
+        if spec.form == "pid" and td == 0.0:
+            notes.append(f"{rule} gives no derivative action for a {process.kind.upper()} model: Td = 0")
+    if spec.form == "pi":
+        td = 0.0
+    tracking = ti if td == 0.0 else math.sqrt(ti * td)
+    settings = FeedbackSettings(
+        spec.form, kc, ti, td, DERIVATIVE_FILTER_FRACTION * td, tracking,
+        spec.output_low, spec.output_high, spec.output_bias, tau_c, rule,
+    )
+    return settings, notes
+
+
+def design_feedforward(
+    process: TransferModel, disturbance: TransferModel, spec: FeedforwardSpec, step: float
+) -> tuple[FeedforwardSettings, list[str]]:
+    """Reduce the ideal compensator ``-Gd/Gp`` to the chosen structure.
+
+    Rules
+    -----
+    * Both paths self-regulating: gain ``-Kd/Kp``; lead = sum of process lags, lag = sum of
+      disturbance lags (matching the first moment of the ideal compensator); delay =
+      ``theta_d - theta_p`` when positive. A disturbance path without lag gets
+      ``lag = max(0.1 lead, step)`` so that the compensator stays proper.
+    * Both integrating: the ideal compensator is static, ``-Kd/Kp`` with the same delay rule.
+    * Mixed kinds are not realizable in this structure (the ideal compensator would be a pure
+      differentiator or an integrator): a :class:`DesignError` unless the structure is "none".
+
+    Explicit ``lead``, ``lag`` and ``delay`` in the spec replace the designed values.
+    """
+    notes: list[str] = []
+    structure = spec.structure
+    if structure == "none":
+        return FeedforwardSettings("none", 0.0, 0.0, 0.0, 0.0, spec.gain_factor), notes
+    if process.integrating != disturbance.integrating:
+        raise DesignError(
+            "feedforward: an integrating and a self-regulating path cannot be compensated by a "
+            "static/lead-lag feedforward (the ideal compensator is a differentiator or an integrator); "
+            "model both paths as integrating, or use structure = \"none\""
+        )
+    gain = -disturbance.gain / process.gain * spec.gain_factor
+    lead = lag = delay = 0.0
+    if structure in ("lead-lag", "lead-lag-delay") and not process.integrating:
+        lead, lag = process.total_lag, disturbance.total_lag
+        if lag <= 0.0 and lead > 0.0:
+            lag = max(0.1 * lead, step)
+            notes.append(f"disturbance path has no lag: compensator lag set to {lag:g} to keep it proper")
+    shortfall = process.dead_time - disturbance.dead_time
+    if structure == "lead-lag-delay":
+        if shortfall > 0.0:
+            notes.append(
+                f"the disturbance dead time is shorter than the process dead time by {shortfall:g}: "
+                "the ideal delay is negative, not realizable; delay dropped"
+            )
+        else:
+            delay = -shortfall
+    lead = spec.lead if spec.lead is not None else lead
+    lag = spec.lag if spec.lag is not None else lag
+    delay = spec.delay if spec.delay is not None else delay
+    if lead > 0.0 and lag <= 0.0:
+        raise DesignError("feedforward: a lead needs a lag > 0 (the compensator must be proper)")
+    return FeedforwardSettings(structure, gain, lead, lag, delay, spec.gain_factor), notes
+
+
+def design_loop(case: Case) -> LoopDesign:
+    """Feedback and feedforward designs for a case, from its nominal models."""
+    feedback, notes = tune_feedback(case.process, case.feedback, case.simulation.step)
+    feedforward, ff_notes = design_feedforward(
+        case.process, case.disturbance, case.feedforward, case.simulation.step
+    )
+    if case.sensor.time_constant > 0.0 and feedforward.active:
+        ff_notes.append("the transmitter lag is not compensated by the design (it is simulated)")
+    return LoopDesign(feedback, feedforward, tuple(notes + ff_notes))
