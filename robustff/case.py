@@ -239,3 +239,11 @@ class Case:
         block, parameter = key.split(".", 1)
         owner = {"process": self.process, "disturbance": self.disturbance, "sensor": self.sensor}[block]
         return float(getattr(owner, parameter))
+
+
+# File entry points. Imported at the end of the module, not the top: the loader and the writer
+# import the dataclasses above, so importing them first would be a circular import.
+from robustff.case_loader import load_case, parse_case  # noqa: E402
+from robustff.case_writer import case_to_toml, save_case  # noqa: E402
+
+__all__ += ["load_case", "parse_case", "save_case", "case_to_toml"]

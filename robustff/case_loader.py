@@ -1,0 +1,374 @@
+"""Read and validate case files (TOML) into :class:`robustff.case.Case`.
+
+Every problem in a file is collected, then one :class:`~robustff.errors.CaseError` is raised with
+one line per problem, ``"FILE: key.path: what is wrong (got VALUE)"``. The schema is described in
+``docs/case-format.md``; the uncertainty section is read by :mod:`robustff.case_loader_uncertainty`.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from pathlib import Path
+from typing import Any
+
+from robustff._case_fields import REQUIRED, Problems, Table, as_table, join
+from robustff.case import (
+    EVENT_KINDS,
+    FEEDFORWARD_STRUCTURES,
+    TIME_UNITS,
+    Case,
+    Event,
+    FeedbackSpec,
+    FeedforwardSpec,
+    Signal,
+    Signals,
+    SimulationSpec,
+    StudySpec,
+)
+from robustff.case_loader_uncertainty import read_uncertainty
+from robustff.errors import CaseError
+from robustff.models import MODEL_KINDS, MODEL_PARAMETERS, SensorModel, TransferModel
+
+__all__ = ["parse_case", "load_case", "MAX_STEPS", "SAMPLING_PLANS", "TOP_LEVEL_KEYS"]
+
+#: Largest number of controller samples in one simulated window (memory and run time guard).
+MAX_STEPS = 200_000
+SAMPLING_PLANS: tuple[str, ...] = ("random", "lhs", "sobol")
+MIN_SAMPLES, MAX_SAMPLES = 10, 10_000_000
+TOP_LEVEL_KEYS: tuple[str, ...] = (
+    "title", "time_unit", "process", "disturbance", "feedback", "feedforward", "sensor",
+    "event", "signals", "simulation", "uncertainty", "study",
+)
+_REQUIRED_TABLES = ("process", "disturbance", "simulation")
+
+
+def load_case(path: str | Path) -> Case:
+    """Read and validate a case file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The TOML file.
+
+    Returns
+    -------
+    Case
+        With ``source_path`` set to ``path``.
+
+    Raises
+    ------
+    CaseError
+        If the file cannot be read or has any problem (all problems are listed).
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise CaseError(f"{path}: no such case file") from None
+    except UnicodeDecodeError as exc:
+        raise CaseError(f"{path}: not a text file in UTF-8 ({exc.reason})") from None
+    except OSError as exc:
+        raise CaseError(f"{path}: cannot read the case file ({exc.strerror or exc})") from None
+    case = parse_case(text, source=str(path))
+    return _with_source(case, path)
+
+
+def _with_source(case: Case, path: Path) -> Case:
+    from dataclasses import replace
+
+    return replace(case, source_path=path)
+
+
+def parse_case(text: str, source: str = "<text>") -> Case:
+    """Validate case text and build the :class:`Case`.
+
+    Parameters
+    ----------
+    text : str
+        TOML text.
+    source : str
+        Name used at the start of every problem line (usually the file path).
+
+    Raises
+    ------
+    CaseError
+        With one line per problem found.
+    """
+    try:
+        raw = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise CaseError(f"{source}: not readable as TOML: {exc}") from None
+    except (ValueError, RecursionError) as exc:  # e.g. arrays nested thousands deep
+        raise CaseError(f"{source}: not readable as TOML: {type(exc).__name__}") from None
+    problems = Problems(source)
+    case = _build_case(problems, raw)
+    if problems.lines or case is None:
+        raise CaseError(problems.lines or [f"{source}: the case could not be read"])
+    return case
+
+
+def _build_case(problems: Problems, raw: dict[str, Any]) -> Case | None:
+    top = Table(problems, "", raw)
+    top.check_keys(TOP_LEVEL_KEYS, "at the top level")
+    title = top.text("title")
+    if title is not None and not title.strip():
+        problems.add("title", "must not be empty", title)
+    time_unit = top.text("time_unit", choices=TIME_UNITS)
+    for name in _REQUIRED_TABLES:
+        if name not in raw:
+            problems.add(name, f"missing table [{name}]")
+    process = _read_model(problems, raw, "process")
+    disturbance = _read_model(problems, raw, "disturbance")
+    feedback = _read_feedback(problems, raw.get("feedback", {}))
+    feedforward = _read_feedforward(problems, raw.get("feedforward", {}))
+    sensor = _read_sensor(problems, raw.get("sensor", {}))
+    signals = _read_signals(problems, raw.get("signals", {}))
+    simulation = _read_simulation(problems, raw)
+    events = _read_events(problems, raw, simulation)
+    study = _read_study(problems, raw.get("study", {}))
+    models = {"process": process, "disturbance": disturbance, "sensor": sensor}
+    uncertainty, correlations = read_uncertainty(problems, raw.get("uncertainty", {}), models)
+    parts = (title, time_unit, process, disturbance, feedback, feedforward, sensor, signals,
+             simulation, events, study, uncertainty, correlations)
+    if problems.lines or any(part is None for part in parts):
+        return None
+    return Case(
+        title=title, time_unit=time_unit, process=process, disturbance=disturbance,  # type: ignore[arg-type]
+        feedback=feedback, feedforward=feedforward, simulation=simulation,  # type: ignore[arg-type]
+        events=events, sensor=sensor, signals=signals, uncertainty=uncertainty,  # type: ignore[arg-type]
+        correlations=correlations, study=study,  # type: ignore[arg-type]
+    )
+
+
+def _section(problems: Problems, path: str, value: object) -> Table | None:
+    table = as_table(problems, path, value, f"[{path}]")
+    return None if table is None else Table(problems, path, table)
+
+
+def _read_model(problems: Problems, raw: dict[str, Any], block: str) -> TransferModel | None:
+    if block not in raw:
+        return None
+    table = _section(problems, block, raw[block])
+    if table is None:
+        return None
+    before = len(problems)
+    kind = table.text("model", choices=MODEL_KINDS)
+    if kind is None:
+        return None
+    names = MODEL_PARAMETERS[kind]
+    table.check_keys(("model", *names), f"for model = {kind!r}")
+    values: dict[str, float | None] = {}
+    for name in names:
+        if name == "gain":
+            values[name] = table.number(name, nonzero=block == "process")
+        else:
+            values[name] = table.number(name, minimum=0.0, what=f"a number >= 0, {_UNIT}")
+    if len(problems) > before:
+        return None
+    return TransferModel(kind, **values)  # type: ignore[arg-type]
+
+
+_UNIT = "in the case's time unit"
+_MANUAL = "with tuning = 'manual'"
+
+
+def _read_feedback(problems: Problems, value: object) -> FeedbackSpec | None:
+    table = _section(problems, "feedback", value)
+    if table is None:
+        return None
+    before = len(problems)
+    default = FeedbackSpec()
+    table.check_keys(tuple(default.__dataclass_fields__))
+    form = table.text("form", default.form, ("pi", "pid"))
+    tuning = table.text("tuning", default.tuning, ("simc", "imc", "manual"))
+    manual = tuning == "manual"
+    need = REQUIRED if manual else None
+    spec = FeedbackSpec(
+        form=form or "pi",
+        tuning=tuning or "simc",
+        closed_loop_time=table.number("closed_loop_time", None, positive=True),
+        kc=table.number("kc", need, nonzero=True, what=f"the controller gain, {_MANUAL}"),
+        ti=table.number("ti", need, positive=True, what=f"the integral time, {_MANUAL}"),
+        td=table.number("td", need if form == "pid" else None, minimum=0.0,
+                        what="the derivative time, with form = 'pid' and tuning = 'manual'"),
+        output_low=table.number("output_low", default.output_low),  # type: ignore[arg-type]
+        output_high=table.number("output_high", default.output_high),  # type: ignore[arg-type]
+        output_bias=table.number("output_bias", default.output_bias),  # type: ignore[arg-type]
+    )
+    if tuning is not None and not manual:
+        for key in ("kc", "ti", "td"):
+            table.forbid(key, f"used only with tuning = 'manual' (tuning is {tuning!r})")
+    if manual:
+        table.forbid("closed_loop_time", "not used with tuning = 'manual'; remove it")
+    if form == "pi":
+        table.forbid("td", "a PI controller has no derivative time; use form = 'pid' or remove td")
+    _check_output_range(problems, table, spec)
+    return spec if len(problems) == before else None
+
+
+def _check_output_range(problems: Problems, table: Table, spec: FeedbackSpec) -> None:
+    low, high, bias = spec.output_low, spec.output_high, spec.output_bias
+    if low is None or high is None:
+        return
+    if low >= high:
+        problems.add("feedback.output_low", f"must be below output_high ({high:g})", low)
+    elif bias is not None and not low <= bias <= high:
+        problems.add("feedback.output_bias", f"must lie within output_low .. output_high "
+                     f"({low:g} .. {high:g})", bias)
+
+
+def _read_feedforward(problems: Problems, value: object) -> FeedforwardSpec | None:
+    table = _section(problems, "feedforward", value)
+    if table is None:
+        return None
+    before = len(problems)
+    default = FeedforwardSpec()
+    table.check_keys(tuple(default.__dataclass_fields__))
+    structure = table.text("structure", default.structure, FEEDFORWARD_STRUCTURES)
+    spec = FeedforwardSpec(
+        structure=structure or "none",
+        gain_factor=table.number("gain_factor", default.gain_factor, minimum=0.0),  # type: ignore[arg-type]
+        lead=table.number("lead", None, minimum=0.0),
+        lag=table.number("lag", None, minimum=0.0),
+        delay=table.number("delay", None, minimum=0.0),
+    )
+    if structure is not None and structure not in ("lead-lag", "lead-lag-delay"):
+        for key in ("lead", "lag"):
+            table.forbid(key, f"used only with structure 'lead-lag' or 'lead-lag-delay' "
+                              f"(structure is {structure!r})")
+    if structure is not None and structure != "lead-lag-delay":
+        table.forbid("delay", "used only with structure 'lead-lag-delay' "
+                              f"(structure is {structure!r})")
+    return spec if len(problems) == before else None
+
+
+def _read_sensor(problems: Problems, value: object) -> SensorModel | None:
+    table = _section(problems, "sensor", value)
+    if table is None:
+        return None
+    before = len(problems)
+    table.check_keys(("time_constant", "noise_std"))
+    time_constant = table.number("time_constant", 0.0, minimum=0.0)
+    noise_std = table.number("noise_std", 0.0, minimum=0.0)
+    if len(problems) > before:
+        return None
+    return SensorModel(time_constant, noise_std)  # type: ignore[arg-type]
+
+
+def _read_signals(problems: Problems, value: object) -> Signals | None:
+    table = _section(problems, "signals", value)
+    if table is None:
+        return None
+    before = len(problems)
+    default = Signals()
+    names = tuple(default.__dataclass_fields__)
+    table.check_keys(names)
+    signals: dict[str, Signal] = {}
+    for name in names:
+        fallback: Signal = getattr(default, name)
+        sub = _section(problems, f"signals.{name}", table.raw.get(name, {}))
+        if sub is None:
+            continue
+        sub.check_keys(("name", "unit"))
+        label = sub.text("name", fallback.name)
+        unit = sub.text("unit", fallback.unit)
+        if label is not None and not label.strip():
+            problems.add(f"signals.{name}.name", "must not be empty", label)
+        if label is not None and unit is not None:
+            signals[name] = Signal(label, unit)
+    return Signals(**signals) if len(problems) == before else None
+
+
+def _read_simulation(problems: Problems, raw: dict[str, Any]) -> SimulationSpec | None:
+    if "simulation" not in raw:
+        return None
+    table = _section(problems, "simulation", raw["simulation"])
+    if table is None:
+        return None
+    before = len(problems)
+    table.check_keys(("duration", "step"))
+    duration = table.number("duration", positive=True, what=f"the simulated window, {_UNIT}")
+    step = table.number("step", positive=True, what=f"the controller sample time, {_UNIT}")
+    if duration is not None and step is not None:
+        if duration <= step:
+            problems.add("simulation.duration", f"must be longer than the step ({step:g})",
+                         duration)
+        elif duration / step > MAX_STEPS:
+            problems.add(
+                "simulation.step",
+                f"gives {duration / step:,.0f} samples in the window; at most {MAX_STEPS:,} are "
+                "allowed (use a longer step or a shorter duration)",
+                step,
+            )
+    if len(problems) > before or duration is None or step is None:
+        return None
+    return SimulationSpec(duration, step)
+
+
+def _read_events(
+    problems: Problems, raw: dict[str, Any], simulation: SimulationSpec | None
+) -> tuple[Event, ...] | None:
+    value = raw.get("event")
+    if value is None:
+        problems.add("event", "missing: at least one [[event]] is required (what happens in the "
+                     "window, e.g. kind = \"disturbance-step\")")
+        return None
+    if isinstance(value, dict):
+        problems.add("event", "must be written [[event]] (with double brackets), one per event",
+                     value)
+        return None
+    if not isinstance(value, list) or not value:
+        problems.add("event", "must be one or more [[event]] tables", value)
+        return None
+    before = len(problems)
+    events = [_read_event(problems, index, item, simulation) for index, item in enumerate(value)]
+    if len(problems) > before:
+        return None
+    return tuple(event for event in events if event is not None)
+
+
+def _read_event(
+    problems: Problems, index: int, value: object, simulation: SimulationSpec | None
+) -> Event | None:
+    path = f"event[{index + 1}]"
+    table = _section(problems, path, value)
+    if table is None:
+        return None
+    before = len(problems)
+    kind = table.text("kind", choices=EVENT_KINDS)
+    allowed = ["kind", "at", "size"]
+    if kind == "disturbance-ramp":
+        allowed.append("duration")
+    if kind == "disturbance-noise":
+        allowed.append("time_constant")
+    table.check_keys(allowed, f"for kind = {kind!r}" if kind else "")
+    at = table.number("at", minimum=0.0, what=f"the start time, {_UNIT}")
+    size = table.number("size", positive=kind == "disturbance-noise")
+    duration = time_constant = 0.0
+    if kind == "disturbance-ramp":
+        duration = table.number("duration", positive=True, what=f"the ramp time, {_UNIT}")  # type: ignore[assignment]
+    if kind == "disturbance-noise":
+        time_constant = table.number(  # type: ignore[assignment]
+            "time_constant", positive=True, what=f"the noise filter time constant, {_UNIT}"
+        )
+    if at is not None and simulation is not None and at >= simulation.duration:
+        problems.add(join(path, "at"), f"must lie inside the simulated window 0 .. "
+                     f"{simulation.duration:g}", at)
+    if len(problems) > before or kind is None or at is None or size is None:
+        return None
+    return Event(kind, at, size, duration, time_constant)
+
+
+def _read_study(problems: Problems, value: object) -> StudySpec | None:
+    table = _section(problems, "study", value)
+    if table is None:
+        return None
+    before = len(problems)
+    default = StudySpec()
+    table.check_keys(("samples", "seed", "sampling"))
+    samples = table.integer("samples", default.samples, MIN_SAMPLES, MAX_SAMPLES)
+    seed = table.integer("seed", default.seed, 0, 2**63 - 1)
+    sampling = table.text("sampling", default.sampling, SAMPLING_PLANS)
+    if len(problems) > before:
+        return None
+    return StudySpec(samples, seed, sampling)  # type: ignore[arg-type]

@@ -1,0 +1,344 @@
+"""Write a :class:`robustff.case.Case` back to TOML, keeping the user's comments where possible.
+
+Without an original text the case is written in the canonical form of ``docs/case-format.md``.
+With one, the original document is parsed with tomlkit and only the values that changed are
+rewritten, so comments, key order and number formatting survive; keys that hold their default
+value and were absent from the original stay absent. The result is always read back and
+compared with the case; if that fails the canonical form is written instead (with a warning).
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from dataclasses import asdict, fields
+from pathlib import Path
+from typing import Any
+
+import tomlkit
+from tomlkit.exceptions import TOMLKitError
+from tomlkit.items import AoT, InlineTable, Item, Table
+
+from robustff.case import (
+    DISTRIBUTION_KINDS,
+    Case,
+    Distribution,
+    FeedbackSpec,
+    FeedforwardSpec,
+    Signals,
+    StudySpec,
+)
+from robustff.errors import CaseError
+from robustff.models import MODEL_PARAMETERS, SensorModel
+
+__all__ = ["case_to_toml", "save_case"]
+
+_HEADER = "robustff case file (format: docs/case-format.md); every time is in time_unit"
+
+
+def case_to_toml(case: Case, original_text: str | None = None) -> str:
+    """The case as TOML text.
+
+    Parameters
+    ----------
+    case : Case
+    original_text : str, optional
+        The text the case was loaded from; its comments and layout are kept where possible.
+
+    Returns
+    -------
+    str
+        Text that :func:`robustff.case_loader.parse_case` reads back to an equal case
+        (for a valid case).
+    """
+    return _render(case, original_text)[0]
+
+
+def save_case(case: Case, path: str | Path, original_text: str | None = None) -> list[str]:
+    """Write a case file atomically (temporary file in the same folder, fsync, rename).
+
+    Parameters
+    ----------
+    case : Case
+    path : str or Path
+        Destination; replaced in one step, so a reader never sees a half-written file.
+    original_text : str, optional
+        The previous text of the file, whose comments are kept where possible.
+
+    Returns
+    -------
+    list of str
+        Warnings for the user (for example when comments could not be kept).
+
+    Raises
+    ------
+    CaseError
+        If the case is not valid (it would not load again) or the file cannot be written.
+    """
+    from robustff.case_loader import parse_case
+
+    path = Path(path)
+    text, warnings = _render(case, original_text)
+    reread = parse_case(text, source=str(path))  # refuses to write a case that would not load
+    if reread != case:
+        raise CaseError(f"{path}: the case holds values that a case file cannot express "
+                        "(e.g. a ramp duration on a step event); nothing was written")
+    _atomic_write(path, text)
+    return warnings
+
+
+def _atomic_write(path: Path, text: str) -> None:
+    folder = path.parent if str(path.parent) else Path(".")
+    try:
+        handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    except OSError as exc:
+        raise CaseError(f"{path}: cannot write in {folder} ({exc.strerror or exc})") from None
+    try:
+        with os.fdopen(handle, "w", encoding="utf-8", newline="\n") as stream:
+            stream.write(text)
+            stream.flush()
+            os.fsync(stream.fileno())
+        os.replace(temporary, path)
+    except OSError as exc:
+        Path(temporary).unlink(missing_ok=True)
+        raise CaseError(f"{path}: cannot write the case file ({exc.strerror or exc})") from None
+
+
+def _render(case: Case, original_text: str | None) -> tuple[str, list[str]]:
+    """Text and warnings; merged into ``original_text`` when that works."""
+    fresh = tomlkit.dumps(_fresh_document(case))
+    if original_text is None:
+        return fresh, []
+    try:
+        document = tomlkit.parse(original_text)
+        _merge_document(document, _plain(case))
+        merged = tomlkit.dumps(document)
+    except (TOMLKitError, ValueError, TypeError, KeyError):
+        return fresh, ["the original file could not be updated in place; comments will be dropped"]
+    if _reads_back(merged, case):
+        return merged, []
+    return fresh, ["the original layout could not be kept; comments will be dropped"]
+
+
+def _reads_back(text: str, case: Case) -> bool:
+    from robustff.case_loader import parse_case
+
+    try:
+        return parse_case(text) == case
+    except CaseError:
+        return False
+
+
+# --- the case as plain data -------------------------------------------------------------------
+
+
+def _plain(case: Case) -> dict[str, Any]:
+    """Nested dicts/lists in canonical key order (``None`` fields left out)."""
+    return {
+        "title": case.title,
+        "time_unit": case.time_unit,
+        "process": _model(case.process),
+        "disturbance": _model(case.disturbance),
+        "feedback": _dataclass(case.feedback),
+        "feedforward": _dataclass(case.feedforward),
+        "sensor": _dataclass(case.sensor),
+        "signals": {name: _dataclass(signal) for name, signal in _items(case.signals)},
+        "simulation": _dataclass(case.simulation),
+        "event": [_event(event) for event in case.events],
+        "uncertainty": _uncertainty(case),
+        "study": _dataclass(case.study),
+    }
+
+
+def _items(instance: Any) -> list[tuple[str, Any]]:
+    return [(f.name, getattr(instance, f.name)) for f in fields(instance)]
+
+
+def _dataclass(instance: Any) -> dict[str, Any]:
+    return {name: value for name, value in _items(instance) if value is not None}
+
+
+def _model(model: Any) -> dict[str, Any]:
+    return {"model": model.kind} | {
+        name: float(getattr(model, name)) for name in MODEL_PARAMETERS[model.kind]
+    }
+
+
+def _event(event: Any) -> dict[str, Any]:
+    result = {"kind": event.kind, "at": event.at, "size": event.size}
+    if event.kind == "disturbance-ramp":
+        result["duration"] = event.duration
+    if event.kind == "disturbance-noise":
+        result["time_constant"] = event.time_constant
+    return result
+
+
+def _distribution(distribution: Distribution) -> dict[str, Any]:
+    params = list(distribution.params)
+    result: dict[str, Any] = {
+        distribution.kind: params[0] if distribution.kind == "relative" else params
+    }
+    if distribution.clip is not None:
+        result["clip"] = list(distribution.clip)
+    return result
+
+
+def _uncertainty(case: Case) -> dict[str, Any]:
+    result: dict[str, Any] = {p.key: _distribution(p.distribution) for p in case.uncertainty}
+    if case.correlations:
+        result["correlation"] = [asdict(c) for c in case.correlations]
+    return result
+
+
+def _defaults() -> dict[str, Any]:
+    """Values a file may leave out (the loader fills them in)."""
+    return {
+        "feedback": _dataclass(FeedbackSpec()),
+        "feedforward": _dataclass(FeedforwardSpec()),
+        "sensor": _dataclass(SensorModel()),
+        "signals": {name: _dataclass(signal) for name, signal in _items(Signals())},
+        "uncertainty": {},
+        "study": _dataclass(StudySpec()),
+    }
+
+
+_DEFAULTS = _defaults()
+
+
+# --- fresh document ---------------------------------------------------------------------------
+
+
+def _fresh_document(case: Case) -> tomlkit.TOMLDocument:
+    plain = _plain(case)
+    document = tomlkit.document()
+    document.add(tomlkit.comment(_HEADER))
+    for key, value in plain.items():
+        if key == "uncertainty" and not value:
+            continue
+        document.add(key, _item(value, inline=False))
+    return document
+
+
+def _item(value: Any, inline: bool = True) -> Any:
+    """A tomlkit item: sections as tables, distributions inline, lists of dicts as [[...]]."""
+    if isinstance(value, dict) and inline:
+        inline_table = tomlkit.inline_table()
+        inline_table.update({key: _item(sub) for key, sub in value.items()})
+        return inline_table
+    if isinstance(value, dict):
+        only_tables = bool(value) and all(
+            isinstance(sub, dict) and not _is_distribution(sub) for sub in value.values()
+        )
+        table = tomlkit.table(is_super_table=only_tables)
+        for key, sub in value.items():
+            table.add(key, _item(sub, inline=_is_distribution(sub)))
+        return table
+    if _is_tables(value):
+        array = tomlkit.aot()
+        for entry in value:
+            array.append(_item(entry, inline=False))
+        return array
+    return value
+
+
+def _is_tables(value: Any) -> bool:
+    return isinstance(value, list) and bool(value) and all(isinstance(v, dict) for v in value)
+
+
+def _is_distribution(value: Any) -> bool:
+    return isinstance(value, dict) and any(key in DISTRIBUTION_KINDS for key in value)
+
+
+# --- merging into an existing document ---------------------------------------------------------
+
+
+def _merge_document(document: tomlkit.TOMLDocument, plain: dict[str, Any]) -> None:
+    uncertainty = plain.pop("uncertainty")
+    _merge_table(document, plain, _DEFAULTS, keep=("uncertainty",))
+    _merge_uncertainty(document, uncertainty)
+
+
+def _merge_table(
+    target: Any, want: dict[str, Any], defaults: dict[str, Any] | None, keep: tuple[str, ...] = ()
+) -> None:
+    """Make ``target`` (a tomlkit container) hold ``want``, touching only what differs."""
+    for key in [k for k in target if k not in want and k not in keep]:
+        del target[key]
+    for key, value in want.items():
+        sub_defaults = (defaults or {}).get(key)
+        if key not in target:
+            if defaults is not None and key in defaults and value == sub_defaults:
+                continue  # a default the original left out stays out
+            inline = isinstance(target, InlineTable) or _is_distribution(value)
+            target[key] = _item(value, inline=inline)
+            continue
+        _merge_value(target, key, value, sub_defaults if isinstance(sub_defaults, dict) else None)
+
+
+def _merge_value(target: Any, key: str, value: Any, defaults: dict[str, Any] | None) -> None:
+    current = target[key]
+    if isinstance(value, dict) and isinstance(current, Table | InlineTable):
+        _merge_table(current, value, defaults)
+    elif _is_tables(value) and isinstance(current, AoT):
+        _merge_array(current, value)
+    elif not _same(current, value):
+        target[key] = _item(value, inline=True)
+
+
+def _merge_array(current: AoT, want: list[dict[str, Any]]) -> None:
+    for index, entry in enumerate(want[: len(current)]):
+        _merge_table(current[index], entry, None)
+    while len(current) > len(want):
+        del current[len(current) - 1]
+    for entry in want[len(current):]:
+        current.append(_item(entry, inline=False))
+
+
+def _same(current: Any, value: Any) -> bool:
+    plain = current.unwrap() if isinstance(current, Item) else current
+    if isinstance(plain, bool) or isinstance(value, bool):
+        return type(plain) is type(value) and plain == value
+    if isinstance(plain, list) and isinstance(value, list):
+        pairs = zip(plain, value, strict=False)
+        return len(plain) == len(value) and all(_same(a, b) for a, b in pairs)
+    return type(plain) is type(value) and plain == value or (
+        isinstance(plain, int | float) and isinstance(value, float) and float(plain) == value
+    )
+
+
+def _merge_uncertainty(document: Any, want: dict[str, Any]) -> None:
+    """Update distributions wherever the original wrote them (quoted key or nested table)."""
+    if "uncertainty" not in document:
+        if want:
+            document["uncertainty"] = _item(want, inline=False)
+        return
+    if not want:
+        del document["uncertainty"]
+        return
+    section = document["uncertainty"]
+    if not isinstance(section, Table | InlineTable):
+        document["uncertainty"] = _item(want, inline=False)
+        return
+    placed: set[str] = set()
+    for block in [k for k in section if "." not in k and k != "correlation"]:
+        nested = section[block]
+        if not isinstance(nested, Table | InlineTable):
+            continue
+        for name in list(nested):
+            key = f"{block}.{name}"
+            if key in want:
+                _merge_value(nested, name, want[key], None)
+                placed.add(key)
+            else:
+                del nested[name]
+        if not len(nested):
+            del section[block]
+    rest = {k: v for k, v in want.items() if k not in placed}
+    for key in [k for k in section if "." in k or k == "correlation"]:
+        if key not in rest:
+            del section[key]
+    for key, value in rest.items():
+        if key in section:
+            _merge_value(section, key, value, None)
+        else:
+            section[key] = _item(value, inline=True)

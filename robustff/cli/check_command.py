@@ -1,0 +1,141 @@
+"""``robustff check``: validate a case file and show what it describes.
+
+Prints the title, signals, nominal models, events, uncertainty table, study settings and the
+controller and feedforward designed from the nominal models. A bad case raises
+:class:`~robustff.errors.CaseError`, which the command line prints (exit status 2).
+"""
+
+from __future__ import annotations
+
+import argparse
+from typing import Any
+
+from robustff import CAUTION
+from robustff.case import Case, load_case
+
+__all__ = ["register", "run_check", "check_lines", "parameter_unit"]
+
+
+def register(subparsers: Any) -> None:
+    """Add the ``check`` sub-command."""
+    parser = subparsers.add_parser(
+        "check",
+        help="validate a case file and show its models, uncertainty and designed controller",
+        description="Read a case file, report every problem in it (exit status 2), or print the "
+        "nominal models, the uncertainty table, the study settings and the controller and "
+        "feedforward designed from the nominal models (exit status 0).",
+    )
+    parser.add_argument("case", metavar="CASE.toml", help="the case file")
+    parser.set_defaults(func=run_check)
+
+
+def run_check(args: argparse.Namespace) -> int:
+    """Validate ``args.case`` and print its summary; returns the exit status."""
+    case = load_case(args.case)
+    for line in check_lines(case):
+        print(line)
+    return 0
+
+
+def check_lines(case: Case) -> list[str]:
+    """The summary printed by ``robustff check``, one string per line."""
+    lines = [f"Case: {case.title}", f"Time unit: {case.time_unit}"]
+    if case.source_path is not None:
+        lines.insert(1, f"File: {case.source_path}")
+    lines += _signal_lines(case) + _model_lines(case) + _event_lines(case)
+    lines += _uncertainty_lines(case) + _study_lines(case) + _design_lines(case)
+    lines += ["", "OK: the case is valid.", CAUTION]
+    return lines
+
+
+def _signal_lines(case: Case) -> list[str]:
+    s = case.signals
+    return [
+        "",
+        "Signals:",
+        f"  controlled variable:  {s.controlled.label()}",
+        f"  controller output:    {s.output.label()}",
+        f"  measured disturbance: {s.disturbance.label()}",
+    ]
+
+
+def parameter_unit(case: Case, key: str) -> str:
+    """Engineering unit of a plant parameter such as ``"process.gain"``."""
+    block, _, name = key.partition(".")
+    signals, time_unit = case.signals, case.time_unit
+    if name == "noise_std":
+        return signals.disturbance.unit
+    if name != "gain":
+        return time_unit
+    source = signals.output if block == "process" else signals.disturbance
+    model = case.process if block == "process" else case.disturbance
+    unit = f"{signals.controlled.unit or 'CV unit'} per {source.unit or 'input unit'}"
+    return f"{unit} per {time_unit}" if model.integrating else unit
+
+
+def _model_lines(case: Case) -> list[str]:
+    s, unit = case.signals, case.time_unit
+    sensor = case.sensor
+    return [
+        "",
+        "Nominal models:",
+        f"  process     ({s.output.name} -> {s.controlled.name}): {case.process.describe(unit)}"
+        f"; gain in {parameter_unit(case, 'process.gain')}",
+        f"  disturbance ({s.disturbance.name} -> {s.controlled.name}): "
+        f"{case.disturbance.describe(unit)}; gain in {parameter_unit(case, 'disturbance.gain')}",
+        f"  sensor of the disturbance: time constant {sensor.time_constant:g} {unit}, "
+        f"noise std {sensor.noise_std:g} {s.disturbance.unit}".rstrip(),
+    ]
+
+
+def _event_lines(case: Case) -> list[str]:
+    unit, s = case.time_unit, case.signals
+    sim = case.simulation
+    lines = ["", f"Simulation: {sim.duration:g} {unit} window, controller step {sim.step:g} {unit} "
+             f"({sim.n_steps} steps)", "Events:"]
+    for event in case.events:
+        size_unit = s.controlled.unit if event.kind == "setpoint-step" else s.disturbance.unit
+        text = f"  at {event.at:g} {unit}: {event.kind}, size {event.size:g} {size_unit}".rstrip()
+        if event.kind == "disturbance-ramp":
+            text += f" over {event.duration:g} {unit}"
+        if event.kind == "disturbance-noise":
+            text += f" (standard deviation), filter time constant {event.time_constant:g} {unit}"
+        lines.append(text)
+    return lines
+
+
+def _uncertainty_lines(case: Case) -> list[str]:
+    from robustff.uncertainty import describe_distribution
+
+    if not case.uncertainty:
+        return ["", "Uncertainty: none (every sample is the nominal plant)"]
+    rows = []
+    for parameter in case.uncertainty:
+        nominal = case.nominal_value(parameter.key)
+        unit = parameter_unit(case, parameter.key)
+        rows.append((parameter.key, describe_distribution(parameter, nominal, unit),
+                     f"{nominal:g} {unit}".rstrip()))
+    widths = [max(len(row[i]) for row in rows + [("parameter", "distribution", "nominal")])
+              for i in range(3)]
+    header = ("parameter", "distribution", "nominal")
+    lines = ["", f"Uncertainty ({len(rows)} parameters):"]
+    for row in [header, *rows]:
+        cells = (cell.ljust(width) for cell, width in zip(row, widths, strict=True))
+        lines.append(("  " + "  ".join(cells)).rstrip())
+    for correlation in case.correlations:
+        lines.append(f"  rank correlation {correlation.first} ~ {correlation.second}: "
+                     f"{correlation.rank_correlation:g}")
+    return lines
+
+
+def _study_lines(case: Case) -> list[str]:
+    study = case.study
+    return ["", f"Study: {study.samples} samples, {study.sampling} sampling, seed {study.seed}"]
+
+
+def _design_lines(case: Case) -> list[str]:
+    from robustff.tuning import design_loop
+
+    design = design_loop(case)
+    summary = ["  " + line for line in design.summary_lines(case)]
+    return ["", "Design from the nominal models:", *summary]
