@@ -1,0 +1,136 @@
+"""``robustff run``: the batch Monte Carlo study of one case."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import threading
+import time
+from pathlib import Path
+
+from robustff import CAUTION
+from robustff.errors import RobustffError
+
+__all__ = ["register", "parse_percentiles", "ProgressPrinter"]
+
+_TABLE_METRICS = ("iae", "peak_deviation", "overshoot", "settling_time", "valve_travel")
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    parser = subparsers.add_parser(
+        "run", help="run the Monte Carlo study of a case and write the result files",
+        description="Run the Monte Carlo study of CASE (feedback only vs feedback + feedforward).",
+    )
+    parser.add_argument("case", metavar="CASE.toml", help="case file")
+    parser.add_argument("--samples", type=_positive_int, help="number of perturbed plants (default: the case's)")
+    parser.add_argument("--seed", type=_non_negative_int, help="random seed (default: the case's)")
+    parser.add_argument("--jobs", type=_positive_int, help="parallel workers (default: all cores)")
+    parser.add_argument("--out", metavar="DIR", help="result folder (default: results/<case name>)")
+    parser.add_argument("--percentiles", type=parse_percentiles, default=None, metavar="P,P,...",
+                        help="percentiles to report, e.g. 5,50,95 (default: 5,10,50,90,95,99)")
+    parser.add_argument("--cluster", metavar="tcp://HOST:PORT",
+                        help="run the chunks on a Dask cluster (needs the 'cluster' extra)")
+    parser.set_defaults(func=execute)
+
+
+def _positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"expected a number >= 1, got {text!r}")
+    return value
+
+
+def _non_negative_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"expected a number >= 0, got {text!r}")
+    return value
+
+
+def parse_percentiles(text: str) -> tuple[float, ...]:
+    """``"5,50,95"`` -> ``(5.0, 50.0, 95.0)``; each strictly between 0 and 100."""
+    try:
+        values = tuple(sorted({float(part) for part in text.split(",") if part.strip()}))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected numbers separated by commas, got {text!r}") from None
+    if not values or any(not 0.0 < v < 100.0 for v in values):
+        raise argparse.ArgumentTypeError(f"percentiles must lie strictly between 0 and 100, got {text!r}")
+    return values
+
+
+class ProgressPrinter:
+    """Progress on stderr: a bar on a terminal, plain lines (every 10 %) otherwise."""
+
+    def __init__(self, stream=sys.stderr) -> None:
+        self.stream = stream
+        self.tty = stream.isatty()
+        self.started = time.perf_counter()
+        self.last_tenth = -1
+
+    def __call__(self, done: int, total: int) -> None:
+        fraction = done / total if total else 1.0
+        elapsed = time.perf_counter() - self.started
+        if self.tty:
+            filled = int(30 * fraction)
+            self.stream.write(f"\r[{'#' * filled}{'.' * (30 - filled)}] {done}/{total} samples {elapsed:5.1f} s")
+            if done >= total:
+                self.stream.write("\n")
+        elif int(10 * fraction) > self.last_tenth:
+            self.last_tenth = int(10 * fraction)
+            self.stream.write(f"progress: {done}/{total} samples ({100 * fraction:.0f} %), {elapsed:.1f} s\n")
+        self.stream.flush()
+
+
+def _print_table(summary: dict, percentiles) -> None:
+    from robustff.report import percentile_rows
+
+    rows = percentile_rows(summary, percentiles, _TABLE_METRICS)
+    header = ["metric", "arm", "unit", *[f"P{p:g}" for p in percentiles]]
+    widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
+    for row in [header, *rows]:
+        print("  ".join(str(cell).rjust(w) if i > 2 else str(cell).ljust(w)
+                        for i, (cell, w) in enumerate(zip(row, widths))))
+
+
+def execute(args: argparse.Namespace) -> int:
+    from robustff.case import load_case
+    from robustff.cli import EXIT_INTERRUPTED, EXIT_OK
+    from robustff.report import check_output_folder, risk_sentence, write_results
+    from robustff.stats import DEFAULT_PERCENTILES
+    from robustff.study import run_study
+    from robustff.summary import summarize_study
+
+    case = load_case(args.case)
+    percentiles = args.percentiles or DEFAULT_PERCENTILES
+    out = Path(args.out) if args.out else Path("results") / case.name
+    check_output_folder(out)
+    if args.cluster:
+        try:
+            import distributed  # noqa: F401
+        except ImportError:
+            raise RobustffError("--cluster needs dask.distributed: pip install 'robustff[cluster]'") from None
+    cancel = threading.Event()
+    result = run_study(case, samples=args.samples, seed=args.seed, jobs=args.jobs,
+                       cluster=args.cluster, progress=ProgressPrinter(), cancel=cancel)
+    if result.samples == 0:
+        print("robustff: interrupted before any sample finished; nothing written", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    summary = summarize_study(result, percentiles)
+    write_results(result, summary, out, percentiles)
+    print(f"{case.title}")
+    print(f"{result.samples} samples" + (" (PARTIAL)" if result.partial else "")
+          + f", seed {result.seed}, {result.elapsed:.2f} s")
+    _print_table(summary, percentiles)
+    print(risk_sentence(summary, "iae"))
+    print(risk_sentence(summary, "peak_deviation"))
+    print(f"Unstable samples: {summary['unstable']['fb']} feedback only, {summary['unstable']['fbff']} with feedforward")
+    print(summary["convergence"]["ff_worse_iae"]["message"])
+    print(f"Results written to {out}/")
+    print(CAUTION)
+    return EXIT_INTERRUPTED if result.partial else EXIT_OK

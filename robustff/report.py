@@ -1,0 +1,206 @@
+"""Exports of a study: ``summary.json``, ``percentiles.csv``, ``percentiles.md``, ``samples.csv``.
+
+All files of one run are written into a fresh temporary folder beside the destination, which then
+replaces the destination in one rename, so a folder never mixes files of two runs and an
+interrupted write leaves the previous results untouched. A destination folder that holds files
+robustff did not write is refused rather than replaced.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import os
+import shutil
+import tempfile
+from collections.abc import Callable, Sequence
+from pathlib import Path
+
+import numpy as np
+
+from robustff import CAUTION
+from robustff.errors import RobustffError
+from robustff.metrics import METRIC_NAMES
+from robustff.stats import percentile_key
+from robustff.study import StudyResult
+
+__all__ = [
+    "RESULT_FILES",
+    "percentile_rows",
+    "percentiles_markdown",
+    "risk_sentence",
+    "write_results",
+    "check_output_folder",
+    "json_safe",
+]
+
+RESULT_FILES: tuple[str, ...] = ("summary.json", "percentiles.csv", "percentiles.md", "samples.csv")
+_ARM_LABELS = {"fb": "feedback only", "fbff": "feedback + feedforward"}
+
+
+def percentile_rows(summary: dict, percentiles: Sequence[float],
+                    metrics: Sequence[str] = METRIC_NAMES) -> list[list[str]]:
+    """Table rows ``[metric, arm, unit, P.., ...]`` with values formatted to 4 significant digits."""
+    rows = []
+    for name in metrics:
+        for arm in ("fb", "fbff"):
+            stats = summary["metrics"][name][arm]
+            cells = [_number(stats.get(percentile_key(p))) for p in percentiles]
+            rows.append([name, arm, summary["units"][name], *cells])
+    return rows
+
+
+def _number(value: float | None) -> str:
+    return "n/a" if value is None else f"{value:.4g}"
+
+
+def risk_sentence(summary: dict, metric: str = "iae") -> str:
+    """One line on the probability that feedforward makes ``metric`` worse."""
+    harm = summary["ff_worse"][metric]
+    low, high = harm["ci95"]
+    if harm["probability"] is None:
+        return f"Feedforward worse ({metric.upper()}): no usable samples"
+    return (
+        f"Feedforward makes {metric.replace('_', ' ').upper() if metric == 'iae' else metric.replace('_', ' ')} "
+        f"worse in {100 * harm['probability']:.1f} % of plants "
+        f"(95 % interval {100 * low:.1f} to {100 * high:.1f} %, {harm['count']} of {harm['n']})"
+    )
+
+
+def percentiles_markdown(summary: dict, percentiles: Sequence[float]) -> str:
+    """The Markdown report: percentile table, risk lines, unstable counts and the caution."""
+    header = ["metric", "arm", "unit", *[f"P{p:g}" for p in percentiles]]
+    lines = [
+        f"# {summary['title']}",
+        "",
+        f"Samples: {summary['samples']} of {summary['requested']}"
+        + (" (PARTIAL: the run was interrupted)" if summary["partial"] else "")
+        + f"; seed {summary['seed']}; sampling {summary['sampling']}.",
+        "",
+        "| " + " | ".join(header) + " |",
+        "|" + "---|" * len(header),
+    ]
+    lines += ["| " + " | ".join(row) + " |" for row in percentile_rows(summary, percentiles)]
+    lines += [
+        "",
+        "Arms: fb = " + _ARM_LABELS["fb"] + ", fbff = " + _ARM_LABELS["fbff"] + ".",
+        "",
+        "- " + risk_sentence(summary, "iae"),
+        "- " + risk_sentence(summary, "peak_deviation"),
+        f"- Unstable samples: {summary['unstable']['fb']} feedback only, "
+        f"{summary['unstable']['fbff']} with feedforward (excluded from the percentiles).",
+        "- " + summary["convergence"]["ff_worse_iae"]["message"],
+        "",
+        CAUTION,
+        "",
+    ]
+    return "\n".join(lines)
+
+
+def json_safe(value: object) -> object:
+    """A copy with NaN and infinities replaced by None (JSON has neither)."""
+    if isinstance(value, dict):
+        return {key: json_safe(item) for key, item in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [json_safe(item) for item in value]
+    if isinstance(value, (float, np.floating)):
+        return float(value) if np.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    return value
+
+
+def _csv_text(rows: list[list]) -> str:
+    buffer = io.StringIO()
+    csv.writer(buffer, lineterminator="\n").writerows(rows)
+    return buffer.getvalue()
+
+
+def _samples_csv(result: StudyResult) -> str:
+    header = ["sample", *result.names]
+    columns = [np.arange(result.samples)[:, None], result.parameters]
+    for name in METRIC_NAMES:
+        header += [f"{name}_fb", f"{name}_fbff"]
+        columns.append(result.metrics[name])
+    header += ["unstable_fb", "unstable_fbff"]
+    columns.append(result.unstable.astype(int))
+    table = np.column_stack(columns) if result.samples else np.empty((0, len(header)))
+    buffer = io.StringIO()
+    buffer.write(",".join(header) + "\n")
+    np.savetxt(buffer, table, delimiter=",", fmt="%.10g")
+    return buffer.getvalue()
+
+
+def check_output_folder(folder: Path) -> None:
+    """Refuse a destination that exists and holds files robustff did not write.
+
+    Raises
+    ------
+    RobustffError
+    """
+    if folder.exists() and not folder.is_dir():
+        raise RobustffError(f"--out {folder}: exists and is not a folder")
+    if folder.is_dir():
+        foreign = sorted(p.name for p in folder.iterdir() if p.name not in RESULT_FILES
+                         and not p.name.startswith(("report", "plot-")))
+        if foreign:
+            raise RobustffError(
+                f"--out {folder}: the folder holds files robustff did not write "
+                f"({', '.join(foreign[:3])}); choose another folder or empty it"
+            )
+
+
+def write_results(
+    result: StudyResult,
+    summary: dict,
+    folder: str | Path,
+    percentiles: Sequence[float],
+    extra: Callable[[Path], None] | None = None,
+) -> Path:
+    """Write the result files into ``folder``, replacing an earlier run's files as a whole.
+
+    Parameters
+    ----------
+    result : StudyResult
+    summary : dict
+        From :func:`robustff.summary.summarize_study`.
+    folder : path
+    percentiles : sequence of float
+    extra : callable(Path), optional
+        Writes further files (plots, HTML report) into the temporary folder before it is moved.
+
+    Returns
+    -------
+    Path
+        The destination folder.
+    """
+    folder = Path(folder)
+    check_output_folder(folder)
+    folder.parent.mkdir(parents=True, exist_ok=True)
+    staging = Path(tempfile.mkdtemp(prefix=f".{folder.name}.", dir=folder.parent))
+    try:
+        (staging / "summary.json").write_text(json.dumps(json_safe(summary), indent=2, allow_nan=False) + "\n")
+        header = ["metric", "arm", "unit", *[f"p{p:g}" for p in percentiles]]
+        (staging / "percentiles.csv").write_text(_csv_text([header, *percentile_rows(summary, percentiles)]))
+        (staging / "percentiles.md").write_text(percentiles_markdown(summary, percentiles))
+        (staging / "samples.csv").write_text(_samples_csv(result))
+        if extra is not None:
+            extra(staging)
+        _replace_folder(staging, folder)
+    except BaseException:
+        shutil.rmtree(staging, ignore_errors=True)
+        raise
+    return folder
+
+
+def _replace_folder(staging: Path, folder: Path) -> None:
+    old = None
+    if folder.exists():
+        old = folder.with_name(f".{folder.name}.old-{os.getpid()}")
+        os.replace(folder, old)
+    os.replace(staging, folder)
+    if old is not None:
+        shutil.rmtree(old, ignore_errors=True)

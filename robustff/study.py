@@ -1,0 +1,233 @@
+"""The study runner: a case in, per-sample results of the whole Monte Carlo out.
+
+The samples are drawn once for the whole study (same case and seed, same samples), split into
+chunks of a fixed size, and the chunks are simulated in parallel with joblib (threads locally:
+the compiled kernel releases the GIL; or a Dask cluster through joblib's dask backend). Each
+chunk's noise seeds come from ``numpy.random.SeedSequence(seed).spawn`` by chunk index, so the
+results are bit-identical whatever the number of jobs. Memory per chunk is bounded by the chunk
+size; only per-sample metrics (a few numbers each) are kept for the whole study.
+
+Progress and cancellation cross to the shells as a plain callable and a ``threading.Event``.
+"""
+
+from __future__ import annotations
+
+import os
+import threading
+import time
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+
+import numpy as np
+
+from robustff.case import Case
+from robustff.engine import (
+    EnvelopeGrid,
+    Scenario,
+    build_scenario,
+    nominal_batch,
+    simulate,
+)
+from robustff.metrics import METRIC_NAMES
+from robustff.tuning import LoopDesign, design_loop
+from robustff.uncertainty import plant_batch, sample
+
+__all__ = ["StudyResult", "run_study", "CHUNK_SIZE", "ProgressCallback"]
+
+#: Samples per chunk. Fixed (not derived from the number of jobs) so results never depend on it.
+CHUNK_SIZE = 1000
+#: Number of samples whose full trajectories are kept for plots.
+KEPT_TRAJECTORIES = 5
+
+ProgressCallback = Callable[[int, int], None]
+
+
+@dataclass
+class StudyResult:
+    """Everything a study produced.
+
+    Attributes
+    ----------
+    case : Case
+    design : LoopDesign
+    scenario : Scenario
+    names : list of str
+        Uncertain parameter keys (columns of ``parameters``).
+    parameters : ndarray, shape (n, p)
+        Sampled parameter values of the samples that were simulated.
+    metrics : dict of str to ndarray (n, 2)
+        Per-sample metrics, arm 0 feedback only, arm 1 with feedforward.
+    unstable : ndarray of bool, shape (n, 2)
+    envelope : EnvelopeGrid
+    envelope_counts : ndarray of int64, shape (2, P, B)
+        CV histograms at each envelope time, both arms.
+    nominal_trajectories : ndarray, shape (4, T)
+        CV fb, CV fbff, output fb, output fbff of the nominal plant (deviations).
+    sample_trajectories : ndarray, shape (S, 4, T)
+        The same for the first few samples.
+    seed : int
+    requested : int
+        Samples asked for; fewer were simulated when ``partial``.
+    partial : bool
+        True when the run was stopped before all chunks finished.
+    elapsed : float
+        Wall time, seconds.
+    """
+
+    case: Case
+    design: LoopDesign
+    scenario: Scenario
+    names: list[str]
+    parameters: np.ndarray
+    metrics: dict[str, np.ndarray]
+    unstable: np.ndarray
+    envelope: EnvelopeGrid
+    envelope_counts: np.ndarray
+    nominal_trajectories: np.ndarray
+    sample_trajectories: np.ndarray
+    seed: int
+    requested: int
+    partial: bool
+    elapsed: float
+
+    @property
+    def samples(self) -> int:
+        """Samples actually simulated."""
+        return int(self.parameters.shape[0])
+
+
+@dataclass(frozen=True)
+class _Chunk:
+    index: int
+    start: int
+    stop: int
+
+
+def _envelope_grid(scenario: Scenario, nominal: np.ndarray) -> EnvelopeGrid:
+    """Bins wide enough for the spread: the nominal CV range widened 1.5 spans each side."""
+    cv = nominal[:2]
+    low, high = float(min(cv.min(), 0.0)), float(max(cv.max(), 0.0))
+    span = max(high - low, 1e-9)
+    return EnvelopeGrid.spanning(low - 1.5 * span, high + 1.5 * span, scenario)
+
+
+def _chunk_seeds(seed: int, chunk: _Chunk) -> np.ndarray:
+    sequence = np.random.SeedSequence(seed).spawn(chunk.index + 1)[chunk.index]
+    return sequence.generate_state(chunk.stop - chunk.start, dtype=np.uint64)
+
+
+def _run_chunk(
+    case: Case, design: LoopDesign, scenario: Scenario, grid: EnvelopeGrid,
+    names: list[str], values: np.ndarray, seeds: np.ndarray, keep: int,
+):
+    batch = plant_batch(case, names, values)
+    result = simulate(batch, design, scenario, seeds=seeds, envelope=grid,
+                      keep=np.arange(min(keep, batch.size)))
+    return result
+
+
+def _chunks(n: int, size: int) -> list[_Chunk]:
+    return [_Chunk(i, start, min(start + size, n)) for i, start in enumerate(range(0, n, size))]
+
+
+def _parallel_results(tasks: list, jobs: int, cluster: str | None) -> Iterator:
+    """Run the delayed tasks in order; local threads, or a Dask cluster when ``cluster`` is set."""
+    import joblib
+
+    if cluster is None:
+        yield from joblib.Parallel(n_jobs=jobs, prefer="threads", return_as="generator")(tasks)
+        return
+    from distributed import Client  # the "cluster" extra
+
+    with Client(cluster) as client, joblib.parallel_config(backend="dask", wait_for_workers_timeout=30):
+        del client
+        yield from joblib.Parallel(return_as="generator")(tasks)
+
+
+def run_study(
+    case: Case,
+    *,
+    samples: int | None = None,
+    seed: int | None = None,
+    jobs: int | None = None,
+    cluster: str | None = None,
+    chunk_size: int = CHUNK_SIZE,
+    progress: ProgressCallback | None = None,
+    cancel: threading.Event | None = None,
+) -> StudyResult:
+    """Run the Monte Carlo study of a case.
+
+    Parameters
+    ----------
+    case : Case
+    samples, seed : int, optional
+        Override the case's ``[study]`` values.
+    jobs : int, optional
+        Parallel workers (default: all cores).
+    cluster : str, optional
+        Address of a Dask scheduler (``tcp://HOST:PORT``); needs the ``cluster`` extra.
+    chunk_size : int
+        Samples per chunk.
+    progress : callable(done, total), optional
+        Called after each finished chunk with sample counts.
+    cancel : threading.Event, optional
+        When set, no new chunk starts and the finished ones are returned, marked partial.
+        A KeyboardInterrupt does the same.
+
+    Returns
+    -------
+    StudyResult
+    """
+    started = time.perf_counter()
+    n = case.study.samples if samples is None else int(samples)
+    seed = case.study.seed if seed is None else int(seed)
+    jobs = jobs or os.cpu_count() or 1
+    design = design_loop(case)
+    scenario = build_scenario(case, design)
+    nominal = simulate(nominal_batch(case), design, scenario, keep=np.array([0]))
+    nominal_traj = nominal.trajectories[0]
+    grid = _envelope_grid(scenario, nominal_traj)
+    values, names = sample(case, n, seed)
+    chunks = _chunks(n, chunk_size)
+    from joblib import delayed
+
+    tasks = [
+        delayed(_run_chunk)(case, design, scenario, grid, names, values[c.start:c.stop],
+                            _chunk_seeds(seed, c), KEPT_TRAJECTORIES if c.index == 0 else 0)
+        for c in chunks
+    ]
+    results, partial = [], False
+    cancel = cancel or threading.Event()
+    generator = _parallel_results(tasks, jobs, cluster)
+    try:
+        for chunk, result in zip(chunks, generator):
+            results.append(result)
+            if progress is not None:
+                progress(chunk.stop, n)
+            if cancel.is_set():
+                partial = True
+                break
+    except KeyboardInterrupt:
+        partial = True
+    finally:
+        close = getattr(generator, "close", None)
+        if close is not None:
+            close()
+    return _assemble(case, design, scenario, grid, names, values, results, nominal_traj,
+                     seed, n, partial or len(results) < len(chunks), time.perf_counter() - started)
+
+
+def _assemble(case, design, scenario, grid, names, values, results, nominal_traj, seed, n,
+              partial, elapsed) -> StudyResult:
+    done = sum(r.unstable.shape[0] for r in results)
+    metrics = {
+        name: (np.concatenate([r.metrics[name] for r in results]) if results else np.empty((0, 2)))
+        for name in METRIC_NAMES
+    }
+    unstable = np.concatenate([r.unstable for r in results]) if results else np.empty((0, 2), bool)
+    counts = sum((r.envelope_counts for r in results), np.zeros((2, grid.times.size, grid.edges.size - 1), np.int64))
+    kept = results[0].trajectories if results and results[0].trajectories is not None else np.empty((0, 4, scenario.n_steps))
+    return StudyResult(
+        case, design, scenario, names, values[:done], metrics, unstable, grid, counts,
+        nominal_traj, kept, seed, n, partial, elapsed,
+    )

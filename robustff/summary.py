@@ -1,0 +1,123 @@
+"""Statistics of a finished study, as one JSON-friendly dictionary (the ``summary.json`` content).
+
+Percentile intervals are distribution-free order-statistic intervals; the probability that
+feedforward makes a metric worse carries a Wilson score interval (see :mod:`robustff.stats`).
+"""
+
+from __future__ import annotations
+
+import platform
+from collections.abc import Sequence
+
+import numpy as np
+
+from robustff import CAUTION, __version__
+from robustff.metrics import METRIC_NAMES, METRIC_UNITS
+from robustff.sensitivity import rank_sensitivity
+from robustff.stats import (
+    DEFAULT_PERCENTILES,
+    convergence_for_percentile,
+    convergence_for_probability,
+    paired_comparison,
+    probability_worse,
+    summarize,
+)
+from robustff.study import StudyResult
+
+__all__ = ["summarize_study", "metric_unit", "HARM_METRICS", "PAIRED_METRICS"]
+
+#: Metrics for which the probability that feedforward makes things worse is reported.
+HARM_METRICS: tuple[str, ...] = ("iae", "peak_deviation")
+#: Metrics whose per-sample improvement and ratio are summarised.
+PAIRED_METRICS: tuple[str, ...] = ("iae", "ise", "peak_deviation", "valve_travel")
+
+
+def metric_unit(result: StudyResult, metric: str) -> str:
+    """Engineering unit of a metric for this case, e.g. ``degC*s``."""
+    signals = result.case.signals
+    return METRIC_UNITS[metric].format(
+        cv=signals.controlled.unit or "CV", u=signals.output.unit or "output", t=result.case.time_unit
+    )
+
+
+def _versions() -> dict[str, str]:
+    import joblib
+    import numba
+    import scipy
+
+    return {
+        "robustff": __version__, "python": platform.python_version(), "numpy": np.__version__,
+        "scipy": scipy.__version__, "numba": numba.__version__, "joblib": joblib.__version__,
+    }
+
+
+def _ratio(result: StudyResult) -> np.ndarray:
+    iae = result.metrics["iae"]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(iae[:, 0] > 0, iae[:, 1] / iae[:, 0], np.nan)
+
+
+def summarize_study(result: StudyResult, percentiles: Sequence[float] = DEFAULT_PERCENTILES) -> dict:
+    """The study's statistics.
+
+    Parameters
+    ----------
+    result : StudyResult
+    percentiles : sequence of float
+        Percentiles to report, in percent.
+
+    Returns
+    -------
+    dict
+        Keys ``case, title, samples, requested, seed, partial, units, metrics, improvement,
+        ratio, ff_worse, unstable, convergence, sensitivity, design, notes, versions, caution``.
+    """
+    metrics = {
+        name: {
+            arm: summarize(result.metrics[name][:, i], percentiles).to_dict()
+            for i, arm in enumerate(("fb", "fbff"))
+        }
+        for name in METRIC_NAMES
+    }
+    improvement, ratio = {}, {}
+    for name in PAIRED_METRICS:
+        paired = paired_comparison(result.metrics[name][:, 0], result.metrics[name][:, 1], percentiles)
+        improvement[name] = paired["improvement_summary"].to_dict()
+        ratio[name] = paired["ratio_summary"].to_dict()
+    harm = {
+        name: probability_worse(result.metrics[name][:, 0], result.metrics[name][:, 1])
+        for name in HARM_METRICS
+    }
+    iae_ratio = _ratio(result)
+    sensitivity = []
+    if result.names and result.samples > 3:
+        harmful = result.metrics["iae"][:, 1] > result.metrics["iae"][:, 0]
+        sensitivity = [row.to_dict() for row in rank_sensitivity(
+            result.parameters, result.names, iae_ratio, harmful)]
+    return {
+        "case": result.case.name,
+        "title": result.case.title,
+        "samples": result.samples,
+        "requested": result.requested,
+        "seed": result.seed,
+        "partial": result.partial,
+        "sampling": result.case.study.sampling,
+        "time_unit": result.case.time_unit,
+        "units": {name: metric_unit(result, name) for name in METRIC_NAMES},
+        "metrics": metrics,
+        "improvement": improvement,
+        "ratio": ratio,
+        "ff_worse": {name: estimate.to_dict() for name, estimate in harm.items()},
+        "unstable": {"fb": int(result.unstable[:, 0].sum()), "fbff": int(result.unstable[:, 1].sum())},
+        "convergence": {
+            "ff_worse_iae": convergence_for_probability(harm["iae"]).to_dict(),
+            "iae_fbff": convergence_for_percentile(result.metrics["iae"][:, 1]).to_dict()
+            if np.isfinite(result.metrics["iae"][:, 1]).sum() > 1 else None,
+        },
+        "sensitivity": sensitivity,
+        "design": result.design.to_dict(),
+        "settling_band": result.scenario.settling_band,
+        "elapsed_seconds": round(result.elapsed, 3),
+        "versions": _versions(),
+        "caution": CAUTION,
+    }
