@@ -215,21 +215,31 @@ def _check_physical(
         return
     low, high = support(distribution, nominal)
     name = key.partition(".")[2]
+    unbounded = kind in ("normal", "lognormal") and distribution.clip is None
+    reach = f"can give {low:g}" if not unbounded else f"a {kind} distribution without clip can give"
     if name in NON_NEGATIVE_PARAMETERS and low < 0.0:
         what = NON_NEGATIVE_PARAMETERS[name]
-        if kind == "normal" and distribution.clip is None:
-            fix = "add clip = [0, high] or use lognormal"
+        if unbounded:
+            reach, fix = "a normal distribution without clip can give negative values", (
+                "add clip = [0, high] or use lognormal")
         elif kind == "relative":
             fix = "use relative < 1"
+        elif distribution.clip is not None:
+            fix = "use a clip whose low bound is at or above 0"
         else:
             fix = "keep the range at or above 0"
-        problems.add(where, f"can give {low:g}, but {what} cannot be negative: {fix}", value)
+        problems.add(where, f"{reach}, but {what} cannot be negative: {fix}", value)
     if key == "process.gain" and (low <= 0.0 <= high or (low > 0.0) != (nominal > 0.0)):
         sign = "positive" if nominal > 0.0 else "negative"
-        extra = " (a lognormal is always positive)" if kind == "lognormal" else ""
+        if kind == "lognormal" and nominal < 0.0:
+            reach = "a lognormal distribution gives positive values only"
+        elif unbounded:
+            reach = "a normal distribution without clip reaches zero and the opposite sign"
+        else:
+            reach = f"this distribution reaches {low:g} .. {high:g}"
         problems.add(where, f"the process gain must stay {sign} like its nominal value "
-                     f"({nominal:g}); this distribution reaches {low:g} .. {high:g}{extra}, where "
-                     "the controller would act in the wrong direction or not at all", value)
+                     f"({nominal:g}), but {reach}; the controller would act in the wrong "
+                     "direction or not at all", value)
 
 
 def _written(distribution: Distribution) -> object:

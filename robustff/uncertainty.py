@@ -125,7 +125,7 @@ def uniform_scores(
     sequence; for other counts the first ``n`` points are used as they are, without scipy's
     warning about it.
     """
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(_private_copy(seed))
     total = n + skip
     if plan == "random":
         for start in range(0, skip, _SKIP_CHUNK):  # discard in chunks to bound memory
@@ -140,7 +140,22 @@ def uniform_scores(
     else:
         choices = ", ".join(SAMPLING_PLANS)
         raise CaseError(f"sampling plan {plan!r} is unknown (use one of {choices})")
-    return np.clip(np.asarray(scores, dtype=np.float64), _SCORE_EPS, 1.0 - _SCORE_EPS)
+    scores = np.asarray(scores, dtype=np.float64)
+    return np.clip(scores, _SCORE_EPS, 1.0 - _SCORE_EPS, out=scores)
+
+
+def _private_copy(seed: int | np.random.SeedSequence) -> int | np.random.SeedSequence:
+    """A copy of a seed sequence, so that the caller's object is never changed.
+
+    scipy's samplers spawn from the generator's seed sequence; without the copy, a second call
+    with the same SeedSequence object would draw different numbers.
+    """
+    if not isinstance(seed, np.random.SeedSequence):
+        return seed
+    return np.random.SeedSequence(
+        seed.entropy, spawn_key=seed.spawn_key, pool_size=seed.pool_size,
+        n_children_spawned=seed.n_children_spawned,
+    )
 
 
 def _sobol(d: int, n: int, skip: int, rng: np.random.Generator) -> np.ndarray:
@@ -206,8 +221,14 @@ def _apply_copula(
     from scipy.special import ndtr, ndtri
 
     columns, factor = copula_factor(names, correlations)
-    normal = ndtri(scores[:, columns]) @ factor.T
-    scores[:, columns] = np.clip(ndtr(normal), _SCORE_EPS, 1.0 - _SCORE_EPS)
+    independent = ndtri(scores[:, columns])
+    # Row i of L mixes the first i + 1 independent normal scores; an explicit sum over a few
+    # columns is faster than a matrix product on (n, m) arrays.
+    for i, column in enumerate(columns):
+        mixed = factor[i, 0] * independent[:, 0]
+        for j in range(1, i + 1):
+            mixed += factor[i, j] * independent[:, j]
+        scores[:, column] = np.clip(ndtr(mixed), _SCORE_EPS, 1.0 - _SCORE_EPS)
 
 
 def inverse_cdf(distribution: Distribution, nominal: float, scores: np.ndarray) -> np.ndarray:
