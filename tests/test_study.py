@@ -120,7 +120,8 @@ def test_gain_error_only_gives_closed_form_ratio_per_sample(
     # Linear loop: e_fbff(t) = r0 e_fb(t) at every sample, so every integral scales the same way.
     np.testing.assert_allclose(iae[:, 1] / iae[:, 0], np.abs(r0), rtol=1e-9, atol=1e-9)
     np.testing.assert_allclose(peak[:, 1] / peak[:, 0], np.abs(r0), rtol=1e-9, atol=1e-9)
-    np.testing.assert_allclose(ie[:, 1], r0 * ie[:, 0], rtol=1e-9, atol=1e-9 * np.abs(ie[:, 0]).max())
+    ie_scale = np.abs(ie[:, 0]).max()
+    np.testing.assert_allclose(ie[:, 1], r0 * ie[:, 0], rtol=1e-9, atol=1e-9 * ie_scale)
 
 
 def test_both_gains_uncertain_ratio_follows_r0() -> None:
