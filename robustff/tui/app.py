@@ -1,0 +1,261 @@
+"""The studio app: one screen, the case editor on the left, live results on the right.
+
+Data flows one way: panes post edit messages up, the app turns them into a new validated
+:class:`~robustff.case.Case` (:mod:`robustff.tui.editing`), autosaves it, and restarts the study
+in a thread worker; finished passes come back through ``call_from_thread`` as a
+:class:`~robustff.tui.view.StudyView` that the app hands down to the panes.
+"""
+
+from __future__ import annotations
+
+import threading
+from pathlib import Path
+
+from textual import work
+from textual.app import App, ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.widgets import Footer, Header
+
+from robustff.case import Case
+from robustff.errors import CaseError, RobustffError
+from robustff.tui import editing
+from robustff.tui.file_actions import FileActions
+from robustff.tui.messages import DistributionEdited, FieldEdited, KindChanged, RowAdded, RowRemoved
+from robustff.tui.models_pane import ModelsPane
+from robustff.tui.pictures import PicturesPane
+from robustff.tui.results_pane import CautionLine, ResultsPane
+from robustff.tui.uncertainty_pane import UncertaintyPane
+from robustff.tui.view import StudyView
+
+__all__ = ["StudioApp", "QUICK_SAMPLES"]
+
+#: Samples of the quick first pass after an edit.
+QUICK_SAMPLES = 500
+
+
+class StudioApp(FileActions, App[None]):
+    """Edit a case and watch the feedforward risk move.
+
+    Parameters
+    ----------
+    case_path : Path
+        The case file (a bundled demo case is saved elsewhere: save asks for a path).
+    case : Case, optional
+        Use this case instead of loading ``case_path`` (tests set a small sample count).
+    recovery_folder : Path, optional
+        Fallback folder of recovery files (default ``~/.cache/robustff``).
+    """
+
+    CSS_PATH = "studio.tcss"
+    TITLE = "robustff studio"
+    BINDINGS = [
+        Binding("f1", "help", "Help"),
+        Binding("question_mark", "help", "Help", show=False),
+        Binding("ctrl+s", "save", "Save"),
+        Binding("f2", "save_as", "Save as"),
+        Binding("ctrl+e", "export", "Export"),
+        Binding("ctrl+r", "reload", "Reload"),
+        Binding("f5", "rerun", "Rerun"),
+        Binding("ctrl+q", "quit", "Quit", priority=True),
+    ]
+
+    def __init__(self, case_path: Path, case: Case | None = None,
+                 recovery_folder: Path | None = None) -> None:
+        super().__init__()
+        self.init_files(case_path, case, recovery_folder)
+        self.results_version = 0
+        self.last_view: StudyView | None = None
+        self.last_result = None
+        self.last_summary: dict | None = None
+        self._generation = 0
+        self._cancel = threading.Event()
+
+    # --- layout -------------------------------------------------------------------------
+
+    def compose(self) -> ComposeResult:
+        yield Header(show_clock=False)
+        with Horizontal(id="main"):
+            with VerticalScroll(id="editor"):
+                yield ModelsPane(self.case, id="models")
+                yield UncertaintyPane(self.case, id="uncertainty")
+            with Vertical(id="right"):
+                with VerticalScroll(id="results-scroll"):
+                    yield ResultsPane(id="results")
+                    yield PicturesPane(id="pictures")
+                yield CautionLine()
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.refresh_title()
+        self.show_design()
+        self.offer_recovery()
+        self.start_run()
+
+    # --- edits ------------------------------------------------------------------------------
+
+    def on_field_edited(self, message: FieldEdited) -> None:
+        row = self.query_one(ModelsPane).row(message.field)
+        try:
+            case = editing.edit_field(self.case, message.field, message.text)
+        except CaseError as exc:
+            row.show_result(_reason(exc), message.text)
+            return
+        row.show_result(None, message.text)
+        self.accept_edit(case, rebuild=message.field == "feedback.tuning")
+
+    def on_distribution_edited(self, message: DistributionEdited) -> None:
+        pane = self.query_one(UncertaintyPane)
+        try:
+            case = editing.edit_distribution(self.case, message.key, message.kind,
+                                             message.params, message.clip)
+        except CaseError as exc:
+            pane.row(message.key).show_result(self.case, _reason(exc))
+            return
+        pane.row(message.key).show_result(case, None)
+        self.accept_edit(case)
+
+    def on_kind_changed(self, message: KindChanged) -> None:
+        pane = self.query_one(UncertaintyPane)
+        try:
+            distribution = editing.convert_distribution(self.case, message.key, message.kind)
+            case = editing.edit_distribution(
+                self.case, message.key, message.kind, editing.params_text(distribution),
+                editing.clip_text(distribution))
+        except CaseError as exc:
+            pane.row(message.key).show_result(self.case, _reason(exc))
+            return
+        pane.row(message.key).show_result(case, None)
+        self.accept_edit(case)
+
+    def on_row_added(self, message: RowAdded) -> None:
+        self._table_edit(lambda: editing.add_uncertain(self.case, message.key))
+
+    def on_row_removed(self, message: RowRemoved) -> None:
+        self._table_edit(lambda: editing.remove_uncertain(self.case, message.key))
+
+    def _table_edit(self, make) -> None:
+        try:
+            case = make()
+        except CaseError as exc:
+            self.query_one(UncertaintyPane).show_table_error(_reason(exc))
+            return
+        self.accept_edit(case, rebuild=True)
+
+    def accept_edit(self, case: Case, rebuild: bool = False) -> None:
+        """Make ``case`` current: autosave, refresh the design, restart the study."""
+        self.case = case
+        self.autosave()
+        self.refresh_title()
+        if rebuild:
+            self.rebuild_panes()
+        self.show_design()
+        self.start_run()
+
+    def rebuild_panes(self) -> None:
+        """Recompose the editor panes from the current case (rows added, reload, restore)."""
+        for pane in (self.query_one(ModelsPane), self.query_one(UncertaintyPane)):
+            pane.case = self.case
+            self.call_later(pane.recompose)
+
+    def show_design(self) -> None:
+        from robustff.tuning import design_loop
+
+        try:
+            lines = design_loop(self.case).summary_lines(self.case)
+        except (RobustffError, ArithmeticError) as exc:
+            lines = [f"✗ design: {exc}"]
+        self.query_one(ModelsPane).show_design(lines)
+
+    # --- runs ---------------------------------------------------------------------------------
+
+    def action_rerun(self) -> None:
+        self.start_run()
+
+    def start_run(self) -> None:
+        """Cancel the running study (if any) and start a new one on the current case."""
+        self._cancel.set()
+        self._cancel = threading.Event()
+        self._generation += 1
+        results = self.query_one(ResultsPane)
+        results.show_status("Running a quick pass..." if self.results_version else
+                            "Starting: the first run loads the simulator (1-3 s)...")
+        results.show_progress(0, self.case.study.samples)
+        self._study(self.case, self._generation, self._cancel)
+
+    @work(thread=True, exclusive=True, group="study", exit_on_error=False)
+    def _study(self, case: Case, generation: int, cancel: threading.Event) -> None:
+        from robustff.stats import DEFAULT_PERCENTILES
+        from robustff.study import run_study
+        from robustff.summary import summarize_study
+        from robustff.tui.view import build_view
+
+        total = case.study.samples
+        passes = [(min(QUICK_SAMPLES, total), True)]
+        if total > QUICK_SAMPLES:
+            passes.append((total, False))
+        for samples, quick in passes:
+            def progress(done: int, of: int) -> None:
+                self._from_thread(self._on_progress, generation, done, of)
+
+            try:
+                result = run_study(case, samples=samples, cancel=cancel,
+                                   progress=None if quick else progress)
+                if cancel.is_set() or result.samples == 0:
+                    return
+                summary = summarize_study(result, DEFAULT_PERCENTILES)
+                view = build_view(result, summary, quick=quick and len(passes) > 1)
+            except (RobustffError, ArithmeticError, ValueError) as exc:
+                self._from_thread(self._on_failure, generation, str(exc))
+                return
+            self._from_thread(self._on_result, generation, result, summary, view)
+
+    def _from_thread(self, callback, *args) -> None:
+        try:
+            self.call_from_thread(callback, *args)
+        except RuntimeError:
+            pass  # the app is closing
+
+    def _on_progress(self, generation: int, done: int, total: int) -> None:
+        if generation == self._generation:
+            self.query_one(ResultsPane).show_progress(done, total)
+
+    def _on_failure(self, generation: int, message: str) -> None:
+        if generation == self._generation:
+            self.query_one(ResultsPane).show_status(f"✗ run failed: {message}")
+
+    def _on_result(self, generation: int, result, summary: dict, view: StudyView) -> None:
+        if generation != self._generation:
+            return  # an older case's run finished after an edit
+        self.last_view, self.last_result, self.last_summary = view, result, summary
+        self.results_version += 1
+        pane = self.query_one(ResultsPane)
+        state = ("quick pass; refining to "
+                 f"{self.case.study.samples}..." if view.quick else "full run")
+        if view.partial:
+            state = "PARTIAL (stopped)"
+        pane.show_status(f"{view.samples} plants, {state}, {view.elapsed:.2f} s")
+        if not view.quick:
+            pane.show_progress(view.samples, view.requested)
+        pane.show_view(view)
+        self.query_one(PicturesPane).show_view(view)
+
+    def screen_text(self) -> str:
+        """The screen as plain text (for tests and the benchmark; needs a running app)."""
+        import io
+
+        from rich.console import Console
+
+        width, height = self.size
+        console = Console(width=width, height=height, file=io.StringIO(), record=True,
+                          color_system=None, legacy_windows=False, safe_box=False)
+        console.print(self.screen._compositor.render_update(
+            full=True, screen_stack=self._background_screens))
+        return console.export_text()
+
+    def on_unmount(self) -> None:
+        self._cancel.set()
+
+
+def _reason(exc: CaseError) -> str:
+    return "; ".join(editing.short_message(problem) for problem in exc.problems)

@@ -1,0 +1,104 @@
+"""Modal screens of the studio: help, yes/no style questions, and a path prompt."""
+
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.screen import ModalScreen
+from textual.widgets import Button, Input, Static
+
+__all__ = ["HelpScreen", "ChoiceScreen", "PathScreen", "HELP_TEXT"]
+
+HELP_TEXT = """\
+robustff studio: edit the case on the left, the study reruns by itself on the right.
+
+Editing
+  Tab / Shift+Tab   move between fields          Enter   apply the field (leaving it also applies)
+  Up/Down, Enter    choose in a list              del     remove an uncertain parameter
+  Numbers: '-2.6, -1.0' (commas); a blank optional field lets the tuning rule decide.
+  A refused edit keeps your text and shows the reason (✗) under the field.
+
+Runs
+  Each edit cancels the running study and starts again: a quick pass of 500 plants first,
+  then the case's sample count with a progress bar.   F5  rerun now
+
+Files
+  Ctrl+S  save the case (atomic; comments kept where possible, else you are told)
+  F2      save as...         Ctrl+E  export results (same files as 'robustff run --out')
+  Ctrl+R  reload from disk   Ctrl+Q  quit (asks first when there are unsaved edits)
+  Edits are autosaved to a recovery file; the next start offers to restore them.
+
+Reading the results
+  fb = feedback only, fb+ff = with feedforward.  ▼ better / ▲ WORSE / = same compare medians.
+  Histogram: IAE of fb+ff divided by fb for each plant; ┃ marks 1.0 (right of it ff hurts).
+  Band plot: ░ fb only, ▒ fb+ff, ▓ both; o / x medians.
+
+F1 or ? opens this help; Escape closes it.
+"""
+
+
+class HelpScreen(ModalScreen[None]):
+    """Keys and how to read the panes."""
+
+    BINDINGS = [Binding("escape,q,f1,question_mark", "close", "Close")]
+
+    def compose(self) -> ComposeResult:
+        with VerticalScroll(id="help-box"):
+            yield Static(HELP_TEXT, id="help-text")
+
+    def action_close(self) -> None:
+        self.dismiss(None)
+
+
+class ChoiceScreen(ModalScreen[str]):
+    """A question with a few answers, each on a button and a key (e.g. s = save, d = discard)."""
+
+    BINDINGS = [Binding("escape", "choose('cancel')", "Cancel")]
+
+    def __init__(self, question: str, choices: list[tuple[str, str]]) -> None:
+        super().__init__()
+        self.question = question
+        self.choices = choices  # (key, label)
+
+    def compose(self) -> ComposeResult:
+        with Vertical(classes="dialog"):
+            yield Static(self.question, classes="question")
+            with Horizontal(classes="buttons"):
+                for key, label in self.choices:
+                    yield Button(f"[{key}] {label}", id=f"choice-{key}", compact=True)
+
+    def on_key(self, event) -> None:
+        if event.key in {key for key, _ in self.choices}:
+            event.stop()
+            self.dismiss(event.key)
+
+    def on_button_pressed(self, event: Button.Pressed) -> None:
+        self.dismiss((event.button.id or "choice-cancel").removeprefix("choice-"))
+
+    def action_choose(self, key: str) -> None:
+        self.dismiss(key)
+
+
+class PathScreen(ModalScreen[str | None]):
+    """Ask for a file or folder path (Enter accepts, Escape cancels)."""
+
+    BINDINGS = [Binding("escape", "cancel", "Cancel")]
+
+    def __init__(self, title: str, default: str) -> None:
+        super().__init__()
+        self.title_text = title
+        self.default = default
+
+    def compose(self) -> ComposeResult:
+        with Vertical(classes="dialog"):
+            yield Static(self.title_text, classes="question")
+            yield Input(self.default, id="path-input")
+            yield Static("Enter: accept   Escape: cancel", classes="hint")
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        event.stop()
+        self.dismiss(event.value.strip() or None)
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)

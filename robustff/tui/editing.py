@@ -1,0 +1,262 @@
+"""Edits of a case from text typed in the studio, validated by the case loader itself.
+
+Every edit builds a new :class:`~robustff.case.Case` with :func:`dataclasses.replace` and checks
+it by a round trip through :func:`~robustff.case.case_to_toml` and
+:func:`~robustff.case.parse_case`, so the reason shown for a refused edit is the loader's own
+message (the same words ``robustff check`` prints). Nothing here imports Textual.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+from robustff.case import (
+    DISTRIBUTION_KINDS,
+    Case,
+    Distribution,
+    UncertainParameter,
+    case_to_toml,
+    parse_case,
+)
+from robustff.errors import CaseError
+from robustff.models import MODEL_PARAMETERS, SENSOR_PARAMETERS
+
+__all__ = [
+    "EDIT_SOURCE",
+    "CHOICE_FIELDS",
+    "OPTIONAL_FIELDS",
+    "validated",
+    "edit_field",
+    "field_text",
+    "edit_distribution",
+    "convert_distribution",
+    "add_uncertain",
+    "remove_uncertain",
+    "uncertain_candidates",
+    "params_text",
+    "clip_text",
+    "short_message",
+]
+
+#: Source name given to the loader for edits; stripped from messages shown inline.
+EDIT_SOURCE = "edit"
+
+#: Fields edited by choosing one of a few words.
+CHOICE_FIELDS: dict[str, tuple[str, ...]] = {
+    "feedback.form": ("pi", "pid"),
+    "feedback.tuning": ("simc", "imc", "manual"),
+    "feedforward.structure": ("none", "static", "lead-lag", "lead-lag-delay"),
+}
+
+#: Numeric fields that may be left blank (blank means "not set": the design rule decides).
+OPTIONAL_FIELDS: frozenset[str] = frozenset({
+    "feedback.closed_loop_time", "feedback.kc", "feedback.ti", "feedback.td",
+    "feedforward.lead", "feedforward.lag", "feedforward.delay",
+})
+
+_UNCERTAIN_BLOCKS = ("process", "disturbance", "sensor")
+
+
+def short_message(problem: str) -> str:
+    """A loader message without the ``edit:`` source prefix."""
+    prefix = f"{EDIT_SOURCE}: "
+    return problem[len(prefix):] if problem.startswith(prefix) else problem
+
+
+def validated(case: Case) -> Case:
+    """The case as the loader reads it back from its own TOML text.
+
+    Raises
+    ------
+    CaseError
+        With the loader's messages (source ``edit``) when the case would not load.
+    """
+    try:
+        text = case_to_toml(case)
+    except (TypeError, ValueError) as exc:  # a value the writer cannot express
+        raise CaseError(f"{EDIT_SOURCE}: {exc}") from None
+    return replace(parse_case(text, source=EDIT_SOURCE), source_path=case.source_path)
+
+
+def _number(field: str, text: str, optional: bool) -> float | None:
+    stripped = text.strip()
+    if not stripped and optional:
+        return None
+    try:
+        value = float(stripped)
+    except ValueError:
+        raise CaseError(f"{EDIT_SOURCE}: {field}: must be a number (got {text!r})") from None
+    if not math.isfinite(value):
+        raise CaseError(f"{EDIT_SOURCE}: {field}: must be a finite number (got {text!r})")
+    return value
+
+
+def field_text(case: Case, field: str) -> str:
+    """The current value of ``field`` (e.g. ``"process.gain"``) as editable text."""
+    section, name = field.split(".", 1)
+    value = getattr(getattr(case, section), name)
+    if value is None:
+        return ""
+    return value if isinstance(value, str) else f"{value:g}"
+
+
+def edit_field(case: Case, field: str, text: str) -> Case:
+    """The case with one scalar field set from text.
+
+    Parameters
+    ----------
+    case : Case
+    field : str
+        ``"section.name"``: ``process.*``, ``disturbance.*`` and ``sensor.*`` model parameters,
+        ``feedback.*``, ``feedforward.*``, ``study.samples`` / ``study.seed``.
+    text : str
+        As typed; a blank optional field means "not set".
+
+    Returns
+    -------
+    Case
+        Validated by the loader.
+
+    Raises
+    ------
+    CaseError
+        The loader's reason (or "must be a number") when the edit is refused.
+    """
+    section, name = field.split(".", 1)
+    owner = getattr(case, section)
+    if field in CHOICE_FIELDS:
+        value: object = text.strip()
+    elif section == "study":
+        number = _number(field, text, optional=False)
+        value = int(number) if number is not None and number == int(number) else number
+    else:
+        value = _number(field, text, optional=field in OPTIONAL_FIELDS)
+    changed = replace(case, **{section: replace(owner, **{name: value})})
+    if field == "feedback.tuning" and value == "manual":
+        changed = _with_manual_settings(changed)
+    return validated(changed)
+
+
+def _with_manual_settings(case: Case) -> Case:
+    """Switching to manual tuning starts from the current rule's settings (not from blanks)."""
+    fb = case.feedback
+    if fb.kc is not None and fb.ti is not None:
+        return case
+    from robustff.tuning import design_loop
+
+    try:
+        settings = design_loop(replace(case, feedback=replace(fb, tuning="simc"))).feedback
+    except (ValueError, ArithmeticError):
+        return case  # the loader will name the missing settings
+    td = settings.td if fb.form == "pid" else None
+    return replace(case, feedback=replace(fb, kc=settings.kc, ti=settings.ti, td=td))
+
+
+def _floats(path: str, text: str) -> tuple[float, ...]:
+    parts = [part for part in text.replace(";", ",").replace("..", ",").split(",") if part.strip()]
+    if not parts:
+        raise CaseError(f"{EDIT_SOURCE}: {path}: needs numbers separated by commas (got {text!r})")
+    return tuple(_number(path, part, optional=False) or 0.0 for part in parts)
+
+
+def params_text(distribution: Distribution) -> str:
+    """Editable text of a distribution's numbers, e.g. ``"-2.6, -1"``."""
+    return ", ".join(f"{value:g}" for value in distribution.params)
+
+
+def clip_text(distribution: Distribution) -> str:
+    """Editable text of the clip bounds (blank when not clipped)."""
+    return "" if distribution.clip is None else ", ".join(f"{v:g}" for v in distribution.clip)
+
+
+def _replace_parameter(case: Case, key: str, distribution: Distribution) -> Case:
+    rows = tuple(
+        UncertainParameter(key, distribution) if row.key == key else row for row in case.uncertainty
+    )
+    return validated(replace(case, uncertainty=rows))
+
+
+def edit_distribution(case: Case, key: str, kind: str, params: str, clip: str) -> Case:
+    """The case with the distribution of uncertain parameter ``key`` set from text.
+
+    Parameters
+    ----------
+    key : str
+        An uncertain parameter already in the case, e.g. ``"disturbance.gain"``.
+    kind : str
+        One of :data:`robustff.case.DISTRIBUTION_KINDS`.
+    params, clip : str
+        Numbers separated by commas (``clip`` may be blank), in the parameter's unit.
+    """
+    path = f"uncertainty.{key}.{kind}"
+    values = _floats(path, params)
+    if kind == "relative" and len(values) != 1:
+        raise CaseError(f"{EDIT_SOURCE}: {path}: must be one number r (got {params!r})")
+    bounds = _floats(f"uncertainty.{key}.clip", clip) if clip.strip() else None
+    if bounds is not None and len(bounds) != 2:
+        raise CaseError(
+            f"{EDIT_SOURCE}: uncertainty.{key}.clip: must be [low, high] (got {clip!r})")
+    clip_pair = None if bounds is None else (bounds[0], bounds[1])
+    return _replace_parameter(case, key, Distribution(kind, values, clip_pair))
+
+
+def convert_distribution(case: Case, key: str, kind: str) -> Distribution:
+    """A distribution of another kind covering about the same range as the current one.
+
+    Used when the kind is changed in the table, so the row keeps sensible numbers.
+    """
+    from robustff.uncertainty import distribution_bounds
+
+    if kind not in DISTRIBUTION_KINDS:
+        raise CaseError(f"{EDIT_SOURCE}: uncertainty.{key}: unknown distribution {kind!r}")
+    row = next(row for row in case.uncertainty if row.key == key)
+    nominal = case.nominal_value(key)
+    low, high = (_round(v) for v in distribution_bounds(row, nominal))
+    middle = nominal if low <= nominal <= high else 0.5 * (low + high)
+    if kind == "uniform":
+        return Distribution(kind, (low, high))
+    if kind == "relative":
+        scale = abs(nominal) or 1.0
+        return Distribution(kind, (_round(max(high - middle, middle - low) / scale),))
+    if kind == "triangular":
+        return Distribution(kind, (low, middle, high))
+    if kind == "normal":
+        return Distribution(kind, (middle, _round((high - low) / 6.0)), (low, high))
+    factor = math.sqrt(high / low) if low > 0 else 1.5  # lognormal needs positive values
+    spread = _round(max(factor, 1.01) ** (1 / 2.576))
+    return Distribution(kind, (middle, spread), (low, high) if low > 0 else None)
+
+
+def _round(value: float) -> float:
+    """Four significant digits: what a person would type."""
+    return float(f"{value:.4g}")
+
+
+def uncertain_candidates(case: Case) -> list[str]:
+    """Plant parameters of the case that are not yet uncertain, in model order."""
+    taken = {row.key for row in case.uncertainty}
+    keys = [f"process.{name}" for name in MODEL_PARAMETERS[case.process.kind]]
+    keys += [f"disturbance.{name}" for name in MODEL_PARAMETERS[case.disturbance.kind]]
+    keys += [f"sensor.{name}" for name in SENSOR_PARAMETERS]
+    return [key for key in keys if key not in taken]
+
+
+def add_uncertain(case: Case, key: str) -> Case:
+    """The case with ``key`` made uncertain: nominal +- 20 %, or 0 .. 1 when the nominal is 0."""
+    if key.split(".", 1)[0] not in _UNCERTAIN_BLOCKS or key in {r.key for r in case.uncertainty}:
+        raise CaseError(
+            f"{EDIT_SOURCE}: uncertainty.{key}: not a plant parameter that can be added")
+    nominal = case.nominal_value(key)
+    distribution = (Distribution("relative", (0.2,)) if nominal != 0.0
+                    else Distribution("uniform", (0.0, 1.0)))
+    row = UncertainParameter(key, distribution)
+    return validated(replace(case, uncertainty=(*case.uncertainty, row)))
+
+
+def remove_uncertain(case: Case, key: str) -> Case:
+    """The case without uncertain parameter ``key`` (and without correlations naming it)."""
+    rows = tuple(row for row in case.uncertainty if row.key != key)
+    correlations = tuple(c for c in case.correlations if key not in (c.first, c.second))
+    return validated(replace(case, uncertainty=rows, correlations=correlations))
+

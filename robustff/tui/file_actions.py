@@ -1,0 +1,194 @@
+"""Save, save-as, export, reload, quit and crash recovery for the studio app (a mixin).
+
+Kept apart from :mod:`robustff.tui.app` so the app module holds only layout, edits and runs.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+from pathlib import Path
+
+from robustff.case import Case, load_case, save_case
+from robustff.errors import RobustffError
+from robustff.tui.dialogs import ChoiceScreen, HelpScreen, PathScreen
+from robustff.tui.recovery import discard_recovery, read_recovery, recovery_path, write_recovery
+
+__all__ = ["FileActions", "is_bundled"]
+
+
+def is_bundled(path: Path) -> bool:
+    """True for a demo case inside the installed package (never overwritten by save)."""
+    package_demo = Path(__file__).resolve().parent.parent / "demo"
+    return path.resolve().parent == package_demo
+
+
+class FileActions:
+    """File handling; mixed into :class:`robustff.tui.app.StudioApp`."""
+
+    case: Case
+    saved_case: Case
+    case_path: Path
+    original_text: str | None
+
+    def init_files(self, case_path: Path, case: Case | None, recovery_folder: Path | None) -> None:
+        self.case_path = Path(case_path)
+        self.original_text = self.case_path.read_text(encoding="utf-8")
+        loaded = case if case is not None else load_case(self.case_path)
+        self.case = self.saved_case = replace(loaded, source_path=self.case_path)
+        self.recovery_folder = recovery_folder
+        self.recovery_file = recovery_path(self.case_path, recovery_folder)
+
+    @property
+    def dirty(self) -> bool:
+        """True when the case differs from the file on disk."""
+        return self.case != self.saved_case
+
+    def refresh_title(self) -> None:
+        self.sub_title = f"{self.case_path.name}{' (edited, not saved)' if self.dirty else ''}"
+
+    # --- recovery ---------------------------------------------------------------------
+
+    def autosave(self) -> None:
+        """Write the edits to the recovery file (or remove it when nothing is unsaved)."""
+        try:
+            if self.dirty:
+                write_recovery(self.recovery_file, self.case, self.original_text)
+            else:
+                discard_recovery(self.recovery_file)
+        except (RobustffError, OSError) as exc:
+            self.notify(f"autosave failed: {exc}", severity="warning")
+
+    def offer_recovery(self) -> None:
+        """Ask whether to restore edits a previous session left in the recovery file."""
+        found = read_recovery(self.recovery_file, self.case_path)
+        if found is None or found.case == self.saved_case:
+            return
+
+        def answer(choice: str | None) -> None:
+            if choice == "r":
+                self.case = found.case
+                self.refresh_title()
+                self.rebuild_panes()
+                self.show_design()
+                self.start_run()
+                self.notify("unsaved edits restored; Ctrl+S saves them")
+            elif choice == "d":
+                discard_recovery(self.recovery_file)
+
+        question = (f"Unsaved edits of {self.case_path.name} from {found.age_text()} were found "
+                    f"in {found.path}.\nRestore them?")
+        self.push_screen(ChoiceScreen(question, [("r", "restore"), ("d", "discard"),
+                                                 ("k", "keep file, not now")]), answer)
+
+    # --- save, export, reload -----------------------------------------------------------------
+
+    def action_save(self) -> None:
+        if is_bundled(self.case_path):
+            self.notify("the bundled demo case is read-only; choose where to save a copy")
+            self.action_save_as()
+            return
+        self.save_to(self.case_path)
+
+    def action_save_as(self) -> None:
+        default = str(self.case_path if not is_bundled(self.case_path)
+                      else Path.cwd() / self.case_path.name)
+
+        def chosen(text: str | None) -> None:
+            if text:
+                self.save_to(Path(text).expanduser())
+
+        self.push_screen(PathScreen("Save the case as (path of a .toml file):", default), chosen)
+
+    def save_to(self, path: Path) -> bool:
+        """Save atomically; warnings (e.g. comments dropped) are shown. True when written."""
+        same_file = path.resolve() == self.case_path.resolve()
+        try:
+            warnings = save_case(self.case, path, self.original_text if same_file else None)
+        except RobustffError as exc:
+            self.notify(f"not saved: {exc}", severity="error", timeout=8)
+            return False
+        discard_recovery(self.recovery_file)
+        self.case_path = path
+        self.original_text = path.read_text(encoding="utf-8")
+        self.case = replace(self.case, source_path=path)
+        self.saved_case = self.case
+        self.recovery_file = recovery_path(path, self.recovery_folder)
+        for warning in warnings:
+            self.notify(f"{path.name}: {warning}", severity="warning", timeout=8)
+        self.notify(f"saved {path}")
+        self.refresh_title()
+        return True
+
+    def action_export(self) -> None:
+        if self.last_result is None:
+            self.notify("no results yet; wait for the first run", severity="warning")
+            return
+        default = str(Path("results") / self.case.name)
+
+        def chosen(text: str | None) -> None:
+            if text:
+                self.export_to(Path(text).expanduser())
+
+        self.push_screen(PathScreen("Export the results to folder:", default), chosen)
+
+    def export_to(self, folder: Path) -> bool:
+        """Write the result files (as ``robustff run --out``) of the latest pass."""
+        from robustff.report import write_results
+        from robustff.stats import DEFAULT_PERCENTILES
+
+        try:
+            write_results(self.last_result, self.last_summary, folder, DEFAULT_PERCENTILES)
+        except (RobustffError, OSError) as exc:
+            self.notify(f"not exported: {exc}", severity="error", timeout=8)
+            return False
+        quick = " (quick pass only: the full run had not finished)" if self.last_view.quick else ""
+        self.notify(f"results written to {folder}/{quick}")
+        return True
+
+    def action_reload(self) -> None:
+        if not self.dirty:
+            self.reload_from_disk()
+            return
+        question = "Reloading drops the unsaved edits. Reload from disk?"
+        self.push_screen(ChoiceScreen(question, [("y", "reload"), ("n", "cancel")]),
+                         lambda choice: self.reload_from_disk() if choice == "y" else None)
+
+    def reload_from_disk(self) -> None:
+        try:
+            case = load_case(self.case_path)
+            text = self.case_path.read_text(encoding="utf-8")
+        except (RobustffError, OSError) as exc:
+            self.notify(f"not reloaded: {exc}", severity="error", timeout=8)
+            return
+        self.case = self.saved_case = replace(case, source_path=self.case_path)
+        self.original_text = text
+        discard_recovery(self.recovery_file)
+        self.refresh_title()
+        self.rebuild_panes()
+        self.show_design()
+        self.start_run()
+        self.notify(f"reloaded {self.case_path}")
+
+    # --- help, quit ---------------------------------------------------------------------------
+
+    def action_help(self) -> None:
+        self.push_screen(HelpScreen())
+
+    async def action_quit(self) -> None:
+        if not self.dirty:
+            self.exit()
+            return
+
+        def answer(choice: str | None) -> None:
+            if choice == "s" and (self.save_to(self.case_path) if not is_bundled(self.case_path)
+                                  else False):
+                self.exit()
+            elif choice == "s":
+                self.action_save_as()
+            elif choice == "d":
+                discard_recovery(self.recovery_file)
+                self.exit()
+
+        question = "The case has unsaved edits."
+        self.push_screen(ChoiceScreen(question, [("s", "save and quit"), ("d", "discard and quit"),
+                                                 ("c", "cancel")]), answer)

@@ -1,0 +1,101 @@
+"""The models and design pane: nominal process/disturbance values, feedback and feedforward."""
+
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.containers import Horizontal, Vertical
+from textual.widgets import Input, Label, Select, Static
+
+from robustff.case import Case
+from robustff.models import MODEL_PARAMETERS
+from robustff.tui.editing import CHOICE_FIELDS, field_text
+from robustff.tui.messages import FieldEdited, field_id
+
+__all__ = ["ModelsPane", "FieldRow"]
+
+_LABELS = {
+    "gain": "gain K", "time_constant": "lag tau", "time_constant_2": "lag tau2",
+    "dead_time": "dead time", "form": "form", "tuning": "tuning rule",
+    "closed_loop_time": "tau_c", "kc": "Kc (manual)", "ti": "Ti (manual)", "td": "Td (manual)",
+    "structure": "structure", "gain_factor": "gain factor",
+}
+
+
+class FieldRow(Vertical):
+    """One editable field: label, input (or choice) and an inline error line under it."""
+
+    def __init__(self, case: Case, field: str) -> None:
+        super().__init__(classes="field-row", id=f"row-{field_id(field)}")
+        self.field = field
+        self.applied = field_text(case, field)
+
+    def compose(self) -> ComposeResult:
+        name = self.field.split(".", 1)[1]
+        with Horizontal(classes="field"):
+            yield Label(_LABELS.get(name, name), classes="field-label")
+            if self.field in CHOICE_FIELDS:
+                options = [(choice, choice) for choice in CHOICE_FIELDS[self.field]]
+                yield Select(options, value=self.applied, allow_blank=False, compact=True,
+                             id=f"in-{field_id(self.field)}")
+            else:
+                yield Input(self.applied, compact=True, id=f"in-{field_id(self.field)}",
+                            placeholder="blank = rule")
+        yield Static("", classes="error", id=f"err-{field_id(self.field)}")
+
+    def _send(self, text: str) -> None:
+        if text != self.applied or self.has_class("invalid"):
+            self.post_message(FieldEdited(self.field, text))
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        event.stop()
+        self._send(event.value)
+
+    def on_input_blurred(self, event: Input.Blurred) -> None:
+        event.stop()
+        self._send(event.value)
+
+    def on_select_changed(self, event: Select.Changed) -> None:
+        event.stop()
+        if isinstance(event.value, str):
+            self._send(event.value)
+
+    def show_result(self, error: str | None, text: str) -> None:
+        """Mark the edit applied (``error`` None) or refused (the reason shown, text kept)."""
+        self.set_class(error is not None, "invalid")
+        line = self.query_one(".error", Static)
+        line.update(f"✗ {error}" if error else "")
+        line.set_class(error is not None, "shown")
+        if error is None:
+            self.applied = text
+
+
+class ModelsPane(Vertical):
+    """Nominal models and the loop design; the design summary below is refreshed by the app."""
+
+    def __init__(self, case: Case, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.case = case
+
+    def compose(self) -> ComposeResult:
+        case = self.case
+        for block, title in (("process", "Process: output -> CV"),
+                             ("disturbance", "Disturbance: measured -> CV")):
+            kind = getattr(case, block).kind.upper()
+            yield Static(f"{title} ({kind})", classes="section")
+            for name in MODEL_PARAMETERS[getattr(case, block).kind]:
+                yield FieldRow(case, f"{block}.{name}")
+        yield Static("Feedback controller", classes="section")
+        for name in ("form", "tuning", "closed_loop_time", "kc", "ti", "td"):
+            yield FieldRow(case, f"feedback.{name}")
+        yield Static("Feedforward", classes="section")
+        for name in ("structure", "gain_factor"):
+            yield FieldRow(case, f"feedforward.{name}")
+        yield Static("", id="design-summary")
+
+    def row(self, field: str) -> FieldRow:
+        """The row editing ``field``."""
+        return self.query_one(f"#row-{field_id(field)}", FieldRow)
+
+    def show_design(self, lines: list[str]) -> None:
+        """Show the design computed from the nominal models."""
+        self.query_one("#design-summary", Static).update("\n".join(lines))

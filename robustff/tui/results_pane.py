@@ -1,0 +1,87 @@
+"""The results pane: run status and progress, percentile table, risk of harm, unstable counts,
+and the caution line, which is docked so it stays visible whatever is scrolled."""
+
+from __future__ import annotations
+
+import math
+
+from rich.table import Table
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.containers import Vertical
+from textual.widgets import ProgressBar, Static
+
+from robustff import CAUTION
+from robustff.tui.view import TABLE_PERCENTILES, StudyView
+
+__all__ = ["ResultsPane", "MARKS", "percentile_table", "risk_text"]
+
+#: Verdict marks: a symbol and a word, so nothing depends on colour.
+MARKS = {"better": ("▼ better", "green"), "worse": ("▲ WORSE", "bold red"), "same": ("= same", "")}
+
+
+def _cell(value: float) -> str:
+    return "n/a" if not math.isfinite(value) else f"{value:.4g}"
+
+
+def percentile_table(view: StudyView) -> Table:
+    """fb vs fbff percentiles of IAE, peak deviation and valve travel, with a verdict column."""
+    table = Table(box=None, padding=(0, 1), show_edge=False, header_style="bold")
+    table.add_column("metric", no_wrap=True)
+    table.add_column("arm", no_wrap=True)
+    for p in TABLE_PERCENTILES:
+        table.add_column(f"P{p:g}", justify="right", no_wrap=True)
+    table.add_column("ff", no_wrap=True)
+    for row in view.rows:
+        table.add_row(Text(row.label), "fb", *map(_cell, row.fb), "")
+        mark, style = MARKS[row.verdict]
+        table.add_row(Text(f"  [{row.unit}]"), "fb+ff", *map(_cell, row.fbff), Text(mark, style))
+    return table
+
+
+def risk_text(view: StudyView) -> Text:
+    """Probability that feedforward makes IAE worse, its 95 % interval, and unstable counts."""
+    text = Text()
+    if view.harm_probability is None:
+        text.append("P(feedforward worsens IAE): no usable samples\n")
+    else:
+        low, high = view.harm_interval
+        p = 100 * view.harm_probability
+        style = "bold red" if p >= 5.0 else ""
+        text.append("P(feedforward worsens IAE) = ")
+        text.append(f"{p:.1f} %", style)
+        text.append(f"  (95 % interval {100 * low:.1f}-{100 * high:.1f} %; "
+                    f"{view.harm_count} of {view.harm_n} plants)\n")
+    warn = "  ⚠ check" if view.unstable_fb or view.unstable_fbff else ""
+    text.append(f"Unstable plants: fb {view.unstable_fb}, fb+ff {view.unstable_fbff}{warn}")
+    return text
+
+
+class ResultsPane(Vertical):
+    """Shows the latest :class:`~robustff.tui.view.StudyView` the app hands down."""
+
+    def compose(self) -> ComposeResult:
+        yield Static("Starting: the first run loads the simulator...", id="run-status")
+        yield ProgressBar(total=100, show_eta=False, id="run-progress")
+        yield Static("", id="percentiles")
+        yield Static("", id="risk")
+
+    def show_status(self, text: str) -> None:
+        """One line about the run in progress."""
+        self.query_one("#run-status", Static).update(text)
+
+    def show_progress(self, done: int, total: int) -> None:
+        """Advance the progress bar (samples)."""
+        self.query_one("#run-progress", ProgressBar).update(total=max(total, 1), progress=done)
+
+    def show_view(self, view: StudyView) -> None:
+        """Draw a finished pass."""
+        self.query_one("#percentiles", Static).update(percentile_table(view))
+        self.query_one("#risk", Static).update(risk_text(view))
+
+
+class CautionLine(Static):
+    """The model-based-estimate caution (always on screen)."""
+
+    def __init__(self) -> None:
+        super().__init__(f"⚠ {CAUTION}", id="caution")

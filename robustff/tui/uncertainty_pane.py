@@ -1,0 +1,122 @@
+"""The uncertainty table: one row per uncertain parameter, edited in place; add and remove rows."""
+
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.containers import Horizontal, Vertical
+from textual.widgets import Button, Input, Label, Select, Static
+
+from robustff.case import DISTRIBUTION_KINDS, Case, UncertainParameter
+from robustff.tui.editing import clip_text, params_text, uncertain_candidates
+from robustff.tui.messages import DistributionEdited, KindChanged, RowAdded, RowRemoved, field_id
+
+__all__ = ["UncertaintyPane", "UncertainRow"]
+
+_HINTS = {
+    "uniform": "low, high", "relative": "r (0.2 = +-20 %)", "normal": "mean, std",
+    "triangular": "low, mode, high", "lognormal": "median, factor",
+}
+
+
+class UncertainRow(Vertical):
+    """One uncertain parameter: kind, numbers, optional clip, description or inline error."""
+
+    def __init__(self, case: Case, row: UncertainParameter) -> None:
+        super().__init__(classes="urow", id=f"u-{field_id(row.key)}")
+        self.key = row.key
+        self.kind = row.distribution.kind
+        self.applied = (params_text(row.distribution), clip_text(row.distribution))
+        self.description = _describe(case, row)
+
+    def compose(self) -> ComposeResult:
+        with Horizontal(classes="uline"):
+            yield Label(self.key, classes="ukey")
+            yield Button("del", compact=True, classes="udel", tooltip=f"remove {self.key}")
+        with Horizontal(classes="uline"):
+            yield Select([(k, k) for k in DISTRIBUTION_KINDS], value=self.kind, compact=True,
+                         allow_blank=False, classes="ukind")
+            yield Input(self.applied[0], compact=True, classes="uparams",
+                        placeholder=_HINTS[self.kind])
+            yield Input(self.applied[1], compact=True, classes="uclip", placeholder="clip lo, hi")
+        yield Static(self.description, classes="udesc")
+
+    def _send(self) -> None:
+        params = self.query_one(".uparams", Input).value
+        clip = self.query_one(".uclip", Input).value
+        if (params, clip) != self.applied or self.has_class("invalid"):
+            self.post_message(DistributionEdited(self.key, self.kind, params, clip))
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        event.stop()
+        self._send()
+
+    def on_input_blurred(self, event: Input.Blurred) -> None:
+        event.stop()
+        self._send()
+
+    def on_select_changed(self, event: Select.Changed) -> None:
+        event.stop()
+        if isinstance(event.value, str) and event.value != self.kind:
+            self.post_message(KindChanged(self.key, event.value))
+
+    def on_button_pressed(self, event: Button.Pressed) -> None:
+        event.stop()
+        self.post_message(RowRemoved(self.key))
+
+    def show_result(self, case: Case, error: str | None) -> None:
+        """Show the applied distribution, or the reason an edit was refused (text kept)."""
+        self.set_class(error is not None, "invalid")
+        row = next((r for r in case.uncertainty if r.key == self.key), None)
+        if error is None and row is not None:
+            self.kind = row.distribution.kind
+            self.applied = (params_text(row.distribution), clip_text(row.distribution))
+            self.query_one(".uparams", Input).value = self.applied[0]
+            self.query_one(".uparams", Input).placeholder = _HINTS[self.kind]
+            self.query_one(".uclip", Input).value = self.applied[1]
+            with self.prevent(Select.Changed):
+                self.query_one(".ukind", Select).value = self.kind
+        text = f"✗ {error}" if error else (_describe(case, row) if row else "")
+        self.query_one(".udesc", Static).update(text)
+
+
+def _describe(case: Case, row: UncertainParameter) -> str:
+    from robustff.uncertainty import describe_distribution
+
+    return describe_distribution(row, case.nominal_value(row.key))
+
+
+class UncertaintyPane(Vertical):
+    """The table; the app recomposes it when rows are added or removed."""
+
+    def __init__(self, case: Case, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.case = case
+
+    def compose(self) -> ComposeResult:
+        yield Static(f"Uncertainty ({len(self.case.uncertainty)} parameters)", classes="section")
+        for row in self.case.uncertainty:
+            yield UncertainRow(self.case, row)
+        candidates = uncertain_candidates(self.case)
+        if candidates:
+            with Horizontal(classes="uline", id="add-line"):
+                yield Select([(k, k) for k in candidates], value=candidates[0], compact=True,
+                             allow_blank=False, id="add-key")
+                yield Button("add", compact=True, id="add-row")
+        yield Static("", classes="error", id="table-error")
+
+    def on_button_pressed(self, event: Button.Pressed) -> None:
+        if event.button.id == "add-row":
+            event.stop()
+            value = self.query_one("#add-key", Select).value
+            if isinstance(value, str):
+                self.post_message(RowAdded(value))
+
+    def row(self, key: str) -> UncertainRow:
+        """The row of uncertain parameter ``key``."""
+        return self.query_one(f"#u-{field_id(key)}", UncertainRow)
+
+    def show_table_error(self, error: str | None) -> None:
+        """An add/remove that was refused."""
+        line = self.query_one("#table-error", Static)
+        line.update(f"✗ {error}" if error else "")
+        line.set_class(error is not None, "shown")

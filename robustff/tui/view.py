@@ -1,0 +1,143 @@
+"""What the results pane shows, computed from a finished study (plain Python, no Textual).
+
+Built in the worker thread so the UI thread only formats text. Every verdict carries a word and a
+symbol, never colour alone.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["TABLE_METRICS", "TABLE_PERCENTILES", "MetricRow", "StudyView", "build_view", "verdict"]
+
+#: Metrics in the percentile table, with their short labels.
+TABLE_METRICS: dict[str, str] = {
+    "iae": "IAE",
+    "peak_deviation": "peak dev.",
+    "valve_travel": "valve travel",
+}
+#: Percentiles shown in the table (the export has the full set).
+TABLE_PERCENTILES: tuple[float, ...] = (5.0, 50.0, 95.0)
+#: Relative change of the median below which the arms are called the same.
+SAME_BAND = 0.01
+
+
+@dataclass(frozen=True)
+class MetricRow:
+    """One metric of the percentile table.
+
+    Attributes
+    ----------
+    label, unit : str
+    fb, fbff : tuple of float
+        The :data:`TABLE_PERCENTILES` of each arm (NaN when not available).
+    verdict : str
+        ``"better"``, ``"worse"`` or ``"same"`` (feedforward arm against feedback only, medians).
+    """
+
+    label: str
+    unit: str
+    fb: tuple[float, ...]
+    fbff: tuple[float, ...]
+    verdict: str
+
+
+@dataclass(frozen=True)
+class StudyView:
+    """Everything the results and picture panes draw.
+
+    Attributes
+    ----------
+    samples, requested : int
+    partial, quick : bool
+        ``quick`` marks the first short pass that precedes the full run.
+    elapsed : float
+        Seconds.
+    rows : list of MetricRow
+    harm_probability : float or None
+        Probability that feedforward makes IAE worse.
+    harm_interval : tuple of float
+        Its 95 % interval.
+    harm_count, harm_n : int
+    unstable_fb, unstable_fbff : int
+    ratio : ndarray, shape (n,)
+        Per-sample IAE ratio fbff / fb (NaN where undefined).
+    times : ndarray, shape (P,)
+        Envelope times, time units.
+    bands : ndarray, shape (2, 3, P)
+        CV P5, P50, P95 per arm (arm 0 feedback only), CV units (deviation from the start).
+    cv_label, time_unit : str
+    """
+
+    samples: int
+    requested: int
+    partial: bool
+    quick: bool
+    elapsed: float
+    rows: list[MetricRow]
+    harm_probability: float | None
+    harm_interval: tuple[float, float]
+    harm_count: int
+    harm_n: int
+    unstable_fb: int
+    unstable_fbff: int
+    ratio: np.ndarray
+    times: np.ndarray
+    bands: np.ndarray
+    cv_label: str
+    time_unit: str
+
+
+def verdict(fb: float, fbff: float) -> str:
+    """``"better"``/``"worse"``/``"same"`` for a smaller-is-better metric (medians)."""
+    if not (np.isfinite(fb) and np.isfinite(fbff)):
+        return "same"
+    if abs(fbff - fb) <= SAME_BAND * max(abs(fb), 1e-12):
+        return "same"
+    return "better" if fbff < fb else "worse"
+
+
+def _row(summary: dict, metric: str) -> MetricRow:
+    def values(arm: str) -> tuple[float, ...]:
+        stats = summary["metrics"][metric][arm]
+        return tuple(float("nan") if stats.get(f"p{p:g}") is None else float(stats[f"p{p:g}"])
+                     for p in TABLE_PERCENTILES)
+
+    fb, fbff = values("fb"), values("fbff")
+    middle = TABLE_PERCENTILES.index(50.0)
+    return MetricRow(TABLE_METRICS[metric], summary["units"][metric], fb, fbff,
+                     verdict(fb[middle], fbff[middle]))
+
+
+def build_view(result, summary: dict, quick: bool) -> StudyView:
+    """The view of a study.
+
+    Parameters
+    ----------
+    result : robustff.study.StudyResult
+    summary : dict
+        From :func:`robustff.summary.summarize_study`.
+    quick : bool
+        True for the first short pass.
+    """
+    from robustff.stats import envelope_from_histogram
+
+    iae = result.metrics["iae"]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(iae[:, 0] > 0, iae[:, 1] / iae[:, 0], np.nan)
+    bands = np.stack([
+        envelope_from_histogram(result.envelope_counts[arm], result.envelope.edges, (5, 50, 95))
+        for arm in (0, 1)
+    ])
+    harm = summary["ff_worse"]["iae"]
+    return StudyView(
+        samples=result.samples, requested=result.requested, partial=result.partial, quick=quick,
+        elapsed=result.elapsed, rows=[_row(summary, m) for m in TABLE_METRICS],
+        harm_probability=harm["probability"], harm_interval=tuple(harm["ci95"]),
+        harm_count=int(harm["count"]), harm_n=int(harm["n"]),
+        unstable_fb=summary["unstable"]["fb"], unstable_fbff=summary["unstable"]["fbff"],
+        ratio=ratio, times=np.asarray(result.envelope.times, dtype=float), bands=bands,
+        cv_label=result.case.signals.controlled.label(), time_unit=result.case.time_unit,
+    )
