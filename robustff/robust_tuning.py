@@ -1,0 +1,486 @@
+"""Feedforward settings that stay good across the uncertainty: a sample-average search.
+
+The feedback controller is the nominal design and stays fixed; only the feedforward changes.
+Every candidate is simulated on the SAME sampled plants with the SAME noise seeds (common random
+numbers), so differences between candidates are not sampling noise. The sample-average
+objective is minimised by Nelder-Mead with bounds (``scipy.optimize.minimize``, scipy >= 1.7)
+on parameters scaled to the unit box, started from the better of the nominal design and the
+rule of :mod:`robustff.feedforward_rule`. The winner and the nominal design are then simulated
+on FRESH samples (another seed): the optimum's objective on its own samples is biased low
+(it was selected on them), the fresh figure is not.
+
+Objectives (on IAE with feedforward; samples where feedback alone is unstable are left out,
+since no feedforward changes them; samples unstable only with feedforward count as +inf):
+
+* ``"p90"``: the ``percentile``-th percentile of IAE(fbff) (linear interpolation);
+* ``"cvar"``: the conditional value at risk, the mean of the worst ``ceil((1 - alpha) n)``
+  IAE(fbff) values (Rockafellar and Uryasev, "Optimization of conditional value-at-risk",
+  J. Risk 2 (2000) 21-41);
+* ``"harm"``: the probability that IAE(fbff) > IAE(fb), subject to a median improvement
+  IAE(fb) - IAE(fbff) > 0.
+
+The search minimises a *score*: the objective with +inf replaced by a finite penalty, and for
+``"harm"`` the indicator smoothed by a logistic of width 2 % of IAE(fb), plus 0.01 x the median
+IAE ratio as a tie-break, plus 1 + the shortfall when the median improvement is not positive
+(otherwise the score is flat and the search has no direction). Reported objective values are
+the unsmoothed ones.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from robustff.case import Case
+from robustff.engine import Scenario, build_scenario, simulate
+from robustff.errors import DesignError
+from robustff.feedforward_rule import feedforward_rule
+from robustff.models import PlantBatch
+from robustff.tuning import FeedforwardSettings, LoopDesign, design_loop
+from robustff.uncertainty import plant_batch, sample
+
+__all__ = [
+    "OBJECTIVES", "RobustResult", "DesignFigures", "SearchSpace", "robust_search",
+    "search_space", "objective_value", "evaluation_budget",
+]
+
+OBJECTIVES: tuple[str, ...] = ("p90", "cvar", "harm")
+#: Samples per chunk of noise seeds, as in robustff.study.
+_CHUNK = 1000
+_HARM_WIDTH = 0.02
+_HARM_TIE_WEIGHT = 0.01
+
+
+@dataclass(frozen=True)
+class SearchSpace:
+    """The searched feedforward parameters and their bounds.
+
+    Attributes
+    ----------
+    names : tuple of str
+        Subset of ``("gain_factor", "lead", "lag", "delay")`` that the structure uses.
+    low, high : ndarray, shape (d,)
+        Bounds, time units for lead/lag/delay.
+    """
+
+    names: tuple[str, ...]
+    low: np.ndarray
+    high: np.ndarray
+
+
+@dataclass(frozen=True)
+class DesignFigures:
+    """How one feedforward design does on one sample set.
+
+    Attributes
+    ----------
+    objective : float
+        The chosen objective (IAE units, or a probability for ``"harm"``); inf when too many
+        samples are unstable.
+    iae_p50, iae_p90 : float
+        Percentiles of IAE(fbff), CV units x time units (inf counted for unstable samples).
+    harm : float
+        Fraction of samples with IAE(fbff) > IAE(fb) (unstable with feedforward only: harm).
+    median_improvement : float
+        Median of IAE(fb) - IAE(fbff).
+    unstable : int
+        Samples unstable with feedforward but not without.
+    """
+
+    objective: float
+    iae_p50: float
+    iae_p90: float
+    harm: float
+    median_improvement: float
+    unstable: int
+
+    def to_dict(self) -> dict[str, float | int | None]:
+        return {k: (v if not isinstance(v, float) or math.isfinite(v) else None)
+                for k, v in self.__dict__.items()}
+
+
+@dataclass(frozen=True)
+class RobustResult:
+    """What :func:`robust_search` returns.
+
+    Attributes
+    ----------
+    objective : str
+    nominal, robust : FeedforwardSettings
+        The model-based design and the search's winner.
+    rule : FeedforwardSettings or None
+        The rule of :mod:`robustff.feedforward_rule` when it applies.
+    objective_value, objective_fresh : float
+        The winner's objective on the optimisation samples and on fresh samples.
+    figures : dict of str to dict of str to DesignFigures
+        ``figures[design][sample_set]``; design in ``nominal``, ``robust``, ``rule`` (if any),
+        sample set in ``optimisation``, ``fresh``.
+    feedback_iae : dict of str to tuple of float
+        (P50, P90) of IAE(fb) on each sample set.
+    space : SearchSpace
+    evaluations : int
+        Objective evaluations (simulations of the whole optimisation sample set).
+    samples, seed, fresh_seed : int
+    excluded : int
+        Optimisation samples left out because feedback alone is unstable.
+    message : str
+        The optimiser's termination message.
+    """
+
+    objective: str
+    nominal: FeedforwardSettings
+    robust: FeedforwardSettings
+    rule: FeedforwardSettings | None
+    objective_value: float
+    objective_fresh: float
+    figures: dict[str, dict[str, DesignFigures]]
+    feedback_iae: dict[str, tuple[float, float]]
+    space: SearchSpace
+    evaluations: int
+    samples: int
+    seed: int
+    fresh_seed: int
+    excluded: int
+    message: str
+
+
+def _max_time_constant(case: Case) -> float:
+    lags = [case.process.time_constant, case.process.time_constant_2,
+            case.disturbance.time_constant, case.disturbance.time_constant_2]
+    return max(lags)
+
+
+def search_space(case: Case, structure: str,
+                 bounds: dict[str, tuple[float, float]] | None = None) -> SearchSpace:
+    """Parameters searched for a structure and their bounds.
+
+    Defaults: gain_factor in [0, 1.5]; lead in [0, 3 tau_max] and lag in [h, 3 tau_max]
+    (``tau_max`` the largest nominal time constant of either path, ``h`` the sample time, so
+    the compensator stays proper); delay in [0, 2 theta_d]. Parameters whose range is empty are
+    not searched. ``bounds`` overrides single entries.
+    """
+    tau3 = 3.0 * _max_time_constant(case)
+    step = case.simulation.step
+    table = {"gain_factor": (0.0, 1.5)}
+    if structure in ("lead-lag", "lead-lag-delay") and tau3 > step:
+        table |= {"lead": (0.0, tau3), "lag": (step, tau3)}
+    if structure == "lead-lag-delay" and case.disturbance.dead_time > 0.0:
+        table["delay"] = (0.0, 2.0 * case.disturbance.dead_time)
+    for name, (low, high) in (bounds or {}).items():
+        if name not in table:
+            raise DesignError(f"tune: {name!r} is not searched for structure {structure!r} "
+                              f"(searched: {', '.join(table)})")
+        if not (math.isfinite(low) and math.isfinite(high) and high > low):
+            raise DesignError(f"tune: bounds of {name} must satisfy low < high, got {low}, {high}")
+        if low < 0.0:
+            raise DesignError(f"tune: bounds of {name} must be >= 0, got {low}")
+        table[name] = (low, high)
+    names = tuple(table)
+    return SearchSpace(names, np.array([table[n][0] for n in names]),
+                       np.array([table[n][1] for n in names]))
+
+
+def _settings(nominal: FeedforwardSettings, base_gain: float, space: SearchSpace,
+              x: np.ndarray) -> FeedforwardSettings:
+    values = dict(zip(space.names, (float(v) for v in x), strict=True))
+    gain_factor = values.pop("gain_factor", nominal.gain_factor)
+    settings = replace(nominal, gain=base_gain * gain_factor, gain_factor=gain_factor, **values)
+    if settings.lead > 0.0 and settings.lag <= 0.0:
+        settings = replace(settings, lag=settings.lead * 1e-3)
+    return settings
+
+
+def _point(settings: FeedforwardSettings, space: SearchSpace) -> np.ndarray:
+    x = np.array([float(getattr(settings, name)) for name in space.names])
+    return np.clip(x, space.low, space.high)
+
+
+def _percentile(values: np.ndarray, q: float) -> float:
+    """Linear-interpolation percentile that returns inf when an infinite value takes part."""
+    x = np.sort(values)
+    if x.size == 0:
+        return math.nan
+    position = q / 100.0 * (x.size - 1)
+    lo, hi = int(math.floor(position)), int(math.ceil(position))
+    if not math.isfinite(x[hi]):
+        return math.inf
+    return float(x[lo] + (x[hi] - x[lo]) * (position - lo))
+
+
+def objective_value(objective: str, iae_fb: np.ndarray, iae_fbff: np.ndarray, *,
+                    percentile: float = 90.0, cvar_alpha: float = 0.9) -> float:
+    """The (unsmoothed) objective of one design on one sample set.
+
+    Parameters
+    ----------
+    objective : {"p90", "cvar", "harm"}
+    iae_fb, iae_fbff : ndarray, shape (n,)
+        IAE without and with feedforward; ``inf`` marks a sample unstable with feedforward.
+        Samples where feedback alone is unstable must already be removed.
+    percentile : float
+        Percentile for ``"p90"``, in percent.
+    cvar_alpha : float
+        Level of the conditional value at risk, 0 < alpha < 1.
+
+    Returns
+    -------
+    float
+        IAE units for p90/cvar; the probability of harm for ``"harm"``.
+    """
+    if objective == "p90":
+        return _percentile(iae_fbff, percentile)
+    if objective == "cvar":
+        worst = max(1, math.ceil((1.0 - cvar_alpha) * iae_fbff.size - 1e-9))
+        return float(np.mean(np.sort(iae_fbff)[-worst:]))
+    if objective == "harm":
+        return float(np.mean(iae_fbff > iae_fb))
+    raise DesignError(_unknown_objective(objective))
+
+
+def _score(objective: str, iae_fb: np.ndarray, iae_fbff: np.ndarray, penalty: float,
+           percentile: float, cvar_alpha: float) -> float:
+    """The smooth, finite version of the objective that the optimiser minimises."""
+    finite = np.where(np.isfinite(iae_fbff), iae_fbff, penalty)
+    if objective != "harm":
+        return objective_value(objective, iae_fb, finite, percentile=percentile,
+                               cvar_alpha=cvar_alpha)
+    scale = _HARM_WIDTH * np.maximum(iae_fb, 1e-300)
+    smooth = float(np.mean(0.5 * (1.0 + np.tanh((finite - iae_fb) / (2.0 * scale)))))
+    ratio = float(np.median(finite / np.maximum(iae_fb, 1e-300)))
+    score = smooth + _HARM_TIE_WEIGHT * ratio
+    if ratio >= 1.0:  # median improvement not positive: the constraint is violated
+        score += 1.0 + (ratio - 1.0)
+    return score
+
+
+class _SampleSet:
+    """Plants and noise seeds of one sample set, simulated in parallel chunks."""
+
+    def __init__(self, case: Case, design: LoopDesign, scenario: Scenario, n: int, seed: int,
+                 pool: ThreadPoolExecutor, jobs: int) -> None:
+        self.values, self.names = sample(case, n, seed)
+        self.seeds = _noise_seeds(seed, n)
+        # any chunking gives the same numbers: every sample has its own seed and state
+        self.spans = _spans(n, max(64, math.ceil(n / max(jobs, 1))))
+        self.batches = [plant_batch(case, self.names, self.values[a:b]) for a, b in self.spans]
+        self.design, self.scenario, self.pool = design, scenario, pool
+        both = self._run(design.feedforward)  # the feedback arm does not depend on feedforward
+        self.keep = np.isfinite(both[:, 0])
+        self.iae_fb = both[self.keep, 0]
+        self._nominal = (design.feedforward, both[self.keep, 1])
+
+    def _run(self, settings: FeedforwardSettings) -> np.ndarray:
+        design = replace(self.design, feedforward=settings)
+        jobs = [self.pool.submit(_simulate_iae, batch, design, self.scenario, self.seeds[a:b])
+                for batch, (a, b) in zip(self.batches, self.spans, strict=True)]
+        return np.concatenate([job.result() for job in jobs]) if jobs else np.empty((0, 2))
+
+    def iae_fbff(self, settings: FeedforwardSettings) -> np.ndarray:
+        """IAE with feedforward, shape (kept samples,), inf where unstable."""
+        if settings == self._nominal[0]:
+            return self._nominal[1]
+        return self._run(settings)[self.keep, 1]
+
+    def figures(self, settings: FeedforwardSettings, objective: str, percentile: float,
+                cvar_alpha: float) -> DesignFigures:
+        fbff = self.iae_fbff(settings)
+        return DesignFigures(
+            objective_value(objective, self.iae_fb, fbff, percentile=percentile,
+                            cvar_alpha=cvar_alpha),
+            _percentile(fbff, 50.0), _percentile(fbff, 90.0), float(np.mean(fbff > self.iae_fb)),
+            float(np.median(self.iae_fb - fbff)) if fbff.size else math.nan,
+            int(np.sum(~np.isfinite(fbff))),
+        )
+
+
+def _spans(n: int, size: int = _CHUNK) -> list[tuple[int, int]]:
+    return [(a, min(a + size, n)) for a in range(0, n, size)]
+
+
+def _noise_seeds(seed: int, n: int) -> np.ndarray:
+    # Same per-chunk seeds as robustff.study (SeedSequence(seed).spawn, chunks of 1000 samples),
+    # so the nominal design's figures match those of ``robustff run`` with the same seed.
+    seeds = [np.random.SeedSequence(seed).spawn(i + 1)[i].generate_state(b - a, dtype=np.uint64)
+             for i, (a, b) in enumerate(_spans(n))]
+    return np.concatenate(seeds) if seeds else np.empty(0, dtype=np.uint64)
+
+
+def _simulate_iae(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
+                  seeds: np.ndarray) -> np.ndarray:
+    result = simulate(batch, design, scenario, seeds=seeds)
+    return np.where(result.unstable, np.inf, result.metrics["iae"])
+
+
+def evaluation_budget(dimensions: int) -> int:
+    """Objective evaluations allowed to the optimiser: 40 for one parameter, +25 per extra one."""
+    return 40 + 25 * max(dimensions - 1, 0)
+
+
+class _Objective:
+    """Cached score of a point of the unit box on the optimisation samples."""
+
+    def __init__(self, samples: _SampleSet, space: SearchSpace, nominal: FeedforwardSettings,
+                 base_gain: float, settings: tuple[str, float, float],
+                 progress: Callable[[int, int], None] | None, budget: int) -> None:
+        self.samples, self.space, self.nominal, self.base_gain = samples, space, nominal, base_gain
+        self.objective, self.percentile, self.cvar_alpha = settings
+        finite = samples.iae_fb[np.isfinite(samples.iae_fb)]
+        self.penalty = 10.0 * float(np.max(finite, initial=1.0))
+        self.cache: dict[tuple[float, ...], float] = {}
+        self.progress, self.budget = progress, budget
+
+    def settings_at(self, z: np.ndarray) -> FeedforwardSettings:
+        z = np.clip(np.asarray(z, dtype=float), 0.0, 1.0)
+        x = self.space.low + z * (self.space.high - self.space.low)
+        return _settings(self.nominal, self.base_gain, self.space, x)
+
+    def unit(self, settings: FeedforwardSettings) -> np.ndarray:
+        span = self.space.high - self.space.low
+        return (_point(settings, self.space) - self.space.low) / span
+
+    def __call__(self, z: np.ndarray) -> float:
+        key = tuple(np.round(np.clip(z, 0.0, 1.0), 12))
+        if key not in self.cache:
+            fbff = self.samples.iae_fbff(self.settings_at(np.array(key)))
+            self.cache[key] = _score(self.objective, self.samples.iae_fb, fbff, self.penalty,
+                                     self.percentile, self.cvar_alpha)
+            if self.progress is not None:
+                self.progress(len(self.cache), self.budget)
+        return self.cache[key]
+
+    def best(self) -> np.ndarray:
+        return np.array(min(self.cache, key=self.cache.__getitem__))
+
+
+def _initial_simplex(start: np.ndarray, size: float = 0.15) -> np.ndarray:
+    """Start point plus one step per coordinate, each step pointing into the unit box."""
+    d = start.size
+    simplex = np.tile(start, (d + 1, 1))
+    for i in range(d):
+        simplex[i + 1, i] += size if start[i] + size <= 1.0 else -size
+    return simplex
+
+
+def _minimise(objective: _Objective, starts: list[np.ndarray], budget: int) -> str:
+    from scipy.optimize import minimize
+
+    start = min(starts, key=objective)
+    f0 = objective(start)
+    fatol = 1e-4 * abs(f0) if math.isfinite(f0) and f0 != 0.0 else 1e-12
+    result = minimize(
+        objective, start, method="Nelder-Mead", bounds=[(0.0, 1.0)] * start.size,
+        options={"initial_simplex": _initial_simplex(start), "maxfev": budget,
+                 "xatol": 2e-3, "fatol": fatol},
+    )
+    return str(result.message)
+
+
+def _unknown_objective(objective: str) -> str:
+    return f"tune: objective {objective!r} is unknown (use one of {', '.join(OBJECTIVES)})"
+
+
+def _check_arguments(objective: str, samples: int, percentile: float, cvar_alpha: float) -> None:
+    if objective not in OBJECTIVES:
+        raise DesignError(_unknown_objective(objective))
+    if samples < 10:
+        raise DesignError(f"tune: at least 10 samples are needed, got {samples}")
+    if not 0.0 < percentile < 100.0:
+        raise DesignError(
+            f"tune: the percentile must lie strictly between 0 and 100, got {percentile}")
+    if not 0.0 < cvar_alpha < 1.0:
+        raise DesignError(f"tune: cvar_alpha must lie strictly between 0 and 1, got {cvar_alpha}")
+
+
+def robust_search(
+    case: Case,
+    *,
+    objective: str = "p90",
+    samples: int | None = None,
+    seed: int | None = None,
+    fresh_seed: int | None = None,
+    percentile: float = 90.0,
+    cvar_alpha: float = 0.9,
+    bounds: dict[str, tuple[float, float]] | None = None,
+    max_evaluations: int | None = None,
+    jobs: int | None = None,
+    progress: Callable[[int, int], None] | None = None,
+) -> RobustResult:
+    """Search the feedforward settings that minimise a risk-aware objective.
+
+    Parameters
+    ----------
+    case : Case
+        Its ``[feedforward] structure`` decides the searched parameters (see
+        :func:`search_space`); its uncertainty defines the sample sets.
+    objective : {"p90", "cvar", "harm"}
+    samples, seed : int, optional
+        Optimisation sample count and seed (default: the case's ``[study]``).
+    fresh_seed : int, optional
+        Seed of the fresh sample set used for the re-check (default ``seed + 1``).
+    percentile : float
+        Percentile of the ``"p90"`` objective, percent.
+    cvar_alpha : float
+        Level of the ``"cvar"`` objective.
+    bounds : dict, optional
+        ``{"gain_factor": (low, high), "lead": ..., "lag": ..., "delay": ...}`` overrides.
+    max_evaluations : int, optional
+        Optimiser budget (default :func:`evaluation_budget` of the number of parameters).
+    jobs : int, optional
+        Threads (default: all cores).
+    progress : callable(done, budget), optional
+        Called after each new objective evaluation.
+
+    Returns
+    -------
+    RobustResult
+    """
+    n = case.study.samples if samples is None else int(samples)
+    seed = case.study.seed if seed is None else int(seed)
+    fresh_seed = seed + 1 if fresh_seed is None else int(fresh_seed)
+    _check_arguments(objective, n, percentile, cvar_alpha)
+    design = design_loop(case)
+    nominal = design.feedforward
+    if not nominal.active:
+        raise DesignError("tune: the case has no feedforward to tune; set [feedforward] structure "
+                          "to \"static\", \"lead-lag\" or \"lead-lag-delay\" and gain_factor > 0")
+    if not case.uncertainty:
+        raise DesignError("tune: the case has no [uncertainty] section; a robust search needs one")
+    space = search_space(case, nominal.structure, bounds)
+    base_gain = -case.disturbance.gain / case.process.gain
+    rule = feedforward_rule(case)
+    budget = max_evaluations or evaluation_budget(len(space.names))
+    scenario = build_scenario(case, design)
+    jobs = jobs or os.cpu_count() or 1
+    with ThreadPoolExecutor(max_workers=jobs) as pool:
+        optimisation = _SampleSet(case, design, scenario, n, seed, pool, jobs)
+        if optimisation.iae_fb.size == 0:
+            raise DesignError("tune: feedback alone is unstable on every sample; fix the feedback "
+                              "design before tuning the feedforward")
+        target = _Objective(optimisation, space, nominal, base_gain,
+                            (objective, percentile, cvar_alpha), progress, budget)
+        starts = [target.unit(nominal)]
+        if rule is not None and space.names != ("gain_factor",):
+            starts.append(target.unit(replace(rule, structure=nominal.structure)))
+        message = _minimise(target, starts, budget)
+        robust = target.settings_at(target.best())
+        fresh = _SampleSet(case, design, scenario, n, fresh_seed, pool, jobs)
+        designs = {"nominal": nominal, "robust": robust}
+        if rule is not None:
+            designs["rule"] = rule
+        figures = {
+            name: {label: sample_set.figures(settings, objective, percentile, cvar_alpha)
+                   for label, sample_set in (("optimisation", optimisation), ("fresh", fresh))}
+            for name, settings in designs.items()
+        }
+    return RobustResult(
+        objective, nominal, robust, rule, figures["robust"]["optimisation"].objective,
+        figures["robust"]["fresh"].objective, figures,
+        {label: (_percentile(s.iae_fb, 50.0), _percentile(s.iae_fb, 90.0))
+         for label, s in (("optimisation", optimisation), ("fresh", fresh))},
+        space, len(target.cache), n, seed, fresh_seed, int(np.sum(~optimisation.keep)), message,
+    )
