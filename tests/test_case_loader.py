@@ -424,3 +424,30 @@ def test_non_finite_numbers_are_refused():
         problems = problems_of(MINIMAL.replace("gain = 2.0", f"gain = {bad}"))
         assert any("process.gain: must be a finite number" in line for line in problems)
     assert not math.isnan(parse_case(MINIMAL).process.gain)
+
+
+def test_examples_in_the_format_document_are_valid():
+    # Every TOML example of docs/case-format.md, applied in order over MINIMAL (tables replace
+    # tables, events are added, uncertainty entries accumulate), makes a valid case.
+    import pathlib
+    import re
+
+    doc = pathlib.Path(__file__).resolve().parents[1] / "docs" / "case-format.md"
+    blocks = re.findall(r"```toml\n(.*?)```", doc.read_text(encoding="utf-8"), flags=re.S)
+    assert len(blocks) >= 14
+    document = tomllib.loads(MINIMAL)
+    for block in blocks:
+        for key, value in tomllib.loads(block).items():
+            if key == "event":
+                document["event"] += value
+            elif key == "uncertainty":
+                document.setdefault("uncertainty", {}).update(value)
+            else:
+                document[key] = value
+    case = parse_case(tomlkit.dumps(document))
+    assert len(case.events) == 5 and len(case.uncertainty) == 4
+    assert case.correlations[0].second == "disturbance.time_constant"
+    for line in re.findall(r"robustff: error: heater.toml: (.*)", doc.read_text(encoding="utf-8")):
+        key = line.split(":")[0]
+        assert key in {"process.time_constant", "uncertainty.process.dead_time.normal",
+                       "event[2].at"}
