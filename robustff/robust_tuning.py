@@ -41,6 +41,7 @@ from robustff.engine import Scenario, build_scenario, simulate
 from robustff.errors import DesignError
 from robustff.feedforward_rule import feedforward_rule
 from robustff.models import PlantBatch
+from robustff.sensitivity import SensitivityRow, rank_sensitivity
 from robustff.tuning import FeedforwardSettings, LoopDesign, design_loop
 from robustff.uncertainty import plant_batch, sample
 
@@ -130,6 +131,9 @@ class RobustResult:
         Optimisation samples left out because feedback alone is unstable.
     message : str
         The optimiser's termination message.
+    sensitivity : list of SensitivityRow
+        Rank correlation of each uncertain parameter with the IAE ratio fbff/fb and with harm,
+        for the nominal design on the optimisation samples (strongest first).
     """
 
     objective: str
@@ -147,6 +151,7 @@ class RobustResult:
     fresh_seed: int
     excluded: int
     message: str
+    sensitivity: list[SensitivityRow]
 
 
 def _max_time_constant(case: Case) -> float:
@@ -467,7 +472,7 @@ def robust_search(
         if rule is not None and space.names != ("gain_factor",):
             starts.append(target.unit(replace(rule, structure=nominal.structure)))
         message = _minimise(target, starts, budget)
-        robust = target.settings_at(target.best())
+        robust = _rounded(target.settings_at(target.best()), space, base_gain)
         fresh = _SampleSet(case, design, scenario, n, fresh_seed, pool, jobs)
         designs = {"nominal": nominal, "robust": robust}
         if rule is not None:
@@ -483,4 +488,22 @@ def robust_search(
         {label: (_percentile(s.iae_fb, 50.0), _percentile(s.iae_fb, 90.0))
          for label, s in (("optimisation", optimisation), ("fresh", fresh))},
         space, len(target.cache), n, seed, fresh_seed, int(np.sum(~optimisation.keep)), message,
+        _sensitivity(optimisation, nominal),
     )
+
+
+def _rounded(settings: FeedforwardSettings, space: SearchSpace,
+             base_gain: float) -> FeedforwardSettings:
+    """The searched values to 4 significant digits (what an engineer writes in a case file)."""
+    values = {name: float(f"{getattr(settings, name):.4g}") for name in space.names}
+    if "gain_factor" in values:
+        values["gain"] = base_gain * values["gain_factor"]
+    return replace(settings, **values)
+
+
+def _sensitivity(samples: _SampleSet, nominal: FeedforwardSettings) -> list[SensitivityRow]:
+    fbff = samples.iae_fbff(nominal)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(samples.iae_fb > 0, fbff / samples.iae_fb, np.nan)
+    return rank_sensitivity(samples.values[samples.keep], samples.names, ratio,
+                            fbff > samples.iae_fb)

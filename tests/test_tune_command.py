@@ -1,0 +1,118 @@
+"""``robustff tune``: output, JSON shape, the tuned case file, errors."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from robustff import CAUTION
+from robustff.case import load_case
+from robustff.cli import main
+
+CASES = Path(__file__).resolve().parents[1] / "cases"
+
+SMALL_CASE = """\
+# A small fictional loop for the tune command tests
+title = "Tune test loop"
+time_unit = "min"
+
+[process]            # valve -> temperature
+model = "fopdt"
+gain = 2.0
+time_constant = 6.0
+dead_time = 1.5
+
+[disturbance]        # load -> temperature
+model = "fopdt"
+gain = 1.0
+time_constant = 4.0
+dead_time = 0.5
+
+[feedback]
+form = "pi"
+tuning = "simc"
+
+[feedforward]
+structure = "lead-lag"
+
+[simulation]
+duration = 30.0
+step = 0.1
+
+[[event]]
+kind = "disturbance-step"
+at = 1.0
+size = 1.0
+
+[uncertainty]
+"disturbance.gain" = { relative = 0.3 }   # the load varies
+"process.dead_time" = { uniform = [1.0, 2.5] }
+
+[study]
+samples = 150
+seed = 4
+sampling = "random"
+"""
+
+
+@pytest.fixture()
+def small_case(tmp_path: Path) -> Path:
+    path = tmp_path / "small-loop.toml"
+    path.write_text(SMALL_CASE, encoding="utf-8")
+    return path
+
+
+def test_json_output_and_tuned_case(small_case: Path, tmp_path: Path, capsys) -> None:
+    out = tmp_path / "out"
+    (out).mkdir()
+    (out / "keep.txt").write_text("other file")
+    assert main(["tune", str(small_case), "--json", "--out", str(out), "--objective", "cvar"]) == 0
+    payload = json.loads(capsys.readouterr().out)
+    assert payload["objective"] == "cvar"
+    for key in ("gain_factor", "lead", "lag", "delay", "objective_value", "objective_fresh"):
+        assert key in payload["robust"]
+    assert payload["rule"] is not None  # disturbance dead time 0.5 < process dead time 1.5
+    assert payload["nominal"]["gain_factor"] == 1.0
+    assert payload["robust"]["objective_value"] <= payload["nominal"]["objective_value"]
+    assert payload["sensitivity"][0]["name"] in {"disturbance.gain", "process.dead_time"}
+    written = out / "small-loop-robust.toml"
+    assert (out / "keep.txt").read_text() == "other file"
+    text = written.read_text()
+    assert "# A small fictional loop" in text and "# the load varies" in text  # comments kept
+    tuned = load_case(written)
+    assert tuned.feedforward.gain_factor == payload["robust"]["gain_factor"]
+    assert tuned.feedforward.lag == payload["robust"]["lag"]
+    assert tuned.feedforward.delay is None  # not searched for a lead-lag structure
+
+
+def test_human_output_ends_with_caution(small_case: Path, tmp_path: Path, capsys) -> None:
+    assert main(["tune", str(small_case), "--out", str(tmp_path), "--samples", "60"]) == 0
+    text = capsys.readouterr().out
+    assert "robust optimum" in text and "ISE lag rule" in text and "nominal ideal" in text
+    assert "What drives the risk" in text
+    assert text.rstrip().endswith(CAUTION)
+
+
+def test_errors_exit_2_without_traceback(tmp_path: Path, capsys) -> None:
+    assert main(["tune", str(tmp_path / "missing.toml")]) == 2
+    assert "Traceback" not in capsys.readouterr().err
+    none = tmp_path / "none.toml"
+    none.write_text(SMALL_CASE.replace('structure = "lead-lag"', 'structure = "none"'))
+    assert main(["tune", str(none), "--out", str(tmp_path)]) == 2
+    assert "no feedforward to tune" in capsys.readouterr().err
+    with pytest.raises(SystemExit) as stop:
+        main(["tune", str(none), "--objective", "mean"])
+    assert stop.value.code == 2
+
+
+def test_demo_case_is_accepted() -> None:
+    # the demo cases load and have a searchable structure (the full search is in benchmarks/)
+    from robustff.robust_tuning import search_space
+    from robustff.tuning import design_loop
+
+    for path in sorted(CASES.glob("*.toml")):
+        case = load_case(path)
+        names = search_space(case, design_loop(case).feedforward.structure).names
+        assert names[0] == "gain_factor"
