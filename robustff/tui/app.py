@@ -45,6 +45,8 @@ class StudioApp(FileActions, App[None]):
         Use this case instead of loading ``case_path`` (tests set a small sample count).
     recovery_folder : Path, optional
         Fallback folder of recovery files (default ``~/.cache/robustff``).
+    live : bool
+        False runs no study (editing and files only; for tests that need no results).
     """
 
     CSS_PATH = "studio.tcss"
@@ -61,8 +63,9 @@ class StudioApp(FileActions, App[None]):
     ]
 
     def __init__(self, case_path: Path, case: Case | None = None,
-                 recovery_folder: Path | None = None) -> None:
+                 recovery_folder: Path | None = None, live: bool = True) -> None:
         super().__init__()
+        self.live = live
         self.init_files(case_path, case, recovery_folder)
         self.results_version = 0
         self.last_view: StudyView | None = None
@@ -90,7 +93,9 @@ class StudioApp(FileActions, App[None]):
         self.refresh_title()
         self.show_design()
         self.offer_recovery()
-        self.start_run()
+        # The first run imports and loads the compiled simulator, which holds the GIL for a
+        # while: start it just after the first paint so the screen appears at once.
+        self.set_timer(0.25, self.start_run)
 
     # --- edits ------------------------------------------------------------------------------
 
@@ -174,6 +179,8 @@ class StudioApp(FileActions, App[None]):
 
     def start_run(self) -> None:
         """Cancel the running study (if any) and start a new one on the current case."""
+        if not self.live:
+            return
         self._cancel.set()
         self._cancel = threading.Event()
         self._generation += 1

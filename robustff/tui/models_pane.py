@@ -8,7 +8,7 @@ from textual.widgets import Input, Label, Select, Static
 
 from robustff.case import Case
 from robustff.models import MODEL_PARAMETERS
-from robustff.tui.editing import CHOICE_FIELDS, field_text
+from robustff.tui.editing import CHOICE_FIELDS, OPTIONAL_FIELDS, field_text
 from robustff.tui.messages import FieldEdited, field_id
 
 __all__ = ["ModelsPane", "FieldRow"]
@@ -39,7 +39,8 @@ class FieldRow(Vertical):
                              id=f"in-{field_id(self.field)}")
             else:
                 yield Input(self.applied, compact=True, id=f"in-{field_id(self.field)}",
-                            placeholder="blank = rule")
+                            placeholder="blank = rule" if self.field in OPTIONAL_FIELDS
+                            else "a number")
         yield Static("", classes="error", id=f"err-{field_id(self.field)}")
 
     def _send(self, text: str) -> None:

@@ -21,21 +21,21 @@ MARKS = {"better": ("▼ better", "green"), "worse": ("▲ WORSE", "bold red"), 
 
 
 def _cell(value: float) -> str:
-    return "n/a" if not math.isfinite(value) else f"{value:.4g}"
+    return "n/a" if not math.isfinite(value) else f"{value:.3g}"
 
 
 def percentile_table(view: StudyView) -> Table:
     """fb vs fbff percentiles of IAE, peak deviation and valve travel, with a verdict column."""
-    table = Table(box=None, padding=(0, 1), show_edge=False, header_style="bold")
+    table = Table(box=None, padding=(0, 1, 0, 0), show_edge=False, header_style="bold")
     table.add_column("metric", no_wrap=True)
     table.add_column("arm", no_wrap=True)
     for p in TABLE_PERCENTILES:
         table.add_column(f"P{p:g}", justify="right", no_wrap=True)
-    table.add_column("ff", no_wrap=True)
+    table.add_column("with ff", no_wrap=True)
     for row in view.rows:
         table.add_row(Text(row.label), "fb", *map(_cell, row.fb), "")
         mark, style = MARKS[row.verdict]
-        table.add_row(Text(f"  [{row.unit}]"), "fb+ff", *map(_cell, row.fbff), Text(mark, style))
+        table.add_row(Text(f" [{row.unit}]"), "+ff", *map(_cell, row.fbff), Text(mark, style))
     return table
 
 

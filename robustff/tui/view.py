@@ -15,8 +15,8 @@ __all__ = ["TABLE_METRICS", "TABLE_PERCENTILES", "MetricRow", "StudyView", "buil
 #: Metrics in the percentile table, with their short labels.
 TABLE_METRICS: dict[str, str] = {
     "iae": "IAE",
-    "peak_deviation": "peak dev.",
-    "valve_travel": "valve travel",
+    "peak_deviation": "peak dev",
+    "valve_travel": "valve trav",
 }
 #: Percentiles shown in the table (the export has the full set).
 TABLE_PERCENTILES: tuple[float, ...] = (5.0, 50.0, 95.0)

@@ -1,0 +1,103 @@
+"""Studio latency: time from an edit to the first refreshed result and to the full result.
+
+Runs the app headless (Textual's pilot) on a demo case, waits for the first run (which loads the
+compiled simulator), then edits an uncertainty bound several times and reports, per edit, the
+time until the quick pass is on screen and until the full-sample result is. The baseline in the
+same run is ``run_study`` called directly with the same sample counts, so the ratio shows the
+studio's own overhead (thread hand-over, summary, drawing).
+
+Usage: python benchmarks/studio_latency.py [--case NAME] [--edits N]
+"""
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import statistics
+import time
+from pathlib import Path
+
+from textual.widgets import Input
+
+from robustff.case import load_case
+from robustff.demo import DEMO_CASES, demo_case_path
+from robustff.study import run_study
+from robustff.tui.app import QUICK_SAMPLES, StudioApp
+from robustff.tui.messages import field_id
+
+
+async def _measure(path: Path, edits: int, cache: Path) -> dict[str, list[float]]:
+    app = StudioApp(path, recovery_folder=cache)
+    timings: dict[str, list[float]] = {"startup_first": [], "quick": [], "full": []}
+    started = time.perf_counter()
+    async with app.run_test(size=(100, 30)) as pilot:
+        while app.results_version < 1:
+            await pilot.pause(0.01)
+        timings["startup_first"].append(time.perf_counter() - started)
+        while app.last_view is None or app.last_view.quick:
+            await pilot.pause(0.01)
+        key = app.case.uncertainty[0].key
+        row = app.query_one(f"#u-{field_id(key)}")
+        params = row.query_one(".uparams", Input)
+        base = params.value
+        for index in range(edits):
+            version = app.results_version
+            params.focus()
+            params.value = base if index % 2 else _widened(app, key)
+            edited = time.perf_counter()
+            await pilot.press("enter")
+            while app.results_version <= version:
+                await pilot.pause(0.005)
+            timings["quick"].append(time.perf_counter() - edited)
+            while app.last_view.quick:
+                await pilot.pause(0.005)
+            timings["full"].append(time.perf_counter() - edited)
+    return timings
+
+
+def _widened(app: StudioApp, key: str) -> str:
+    params = app.case.uncertainty[0].distribution.params
+    return ", ".join(f"{1.2 * value:g}" for value in params)
+
+
+def _baseline(path: Path, repeats: int) -> tuple[float, float]:
+    case = load_case(path)
+    quick, full = [], []
+    run_study(case, samples=QUICK_SAMPLES)
+    for _ in range(repeats):
+        started = time.perf_counter()
+        run_study(case, samples=QUICK_SAMPLES)
+        quick.append(time.perf_counter() - started)
+        started = time.perf_counter()
+        run_study(case)
+        full.append(time.perf_counter() - started)
+    return statistics.median(quick), statistics.median(full)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--case", default="wash-water-heater", choices=DEMO_CASES)
+    parser.add_argument("--edits", type=int, default=6)
+    args = parser.parse_args()
+    path = demo_case_path(args.case)
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as cache:
+        timings = asyncio.run(_measure(path, args.edits, Path(cache)))
+    base_quick, base_full = _baseline(path, 3)
+    samples = load_case(path).study.samples
+    quick, full = statistics.median(timings["quick"]), statistics.median(timings["full"])
+    print(f"case {args.case}: quick pass {QUICK_SAMPLES} samples, full {samples} samples")
+    print(f"start to first result (cold: loads the simulator): {timings['startup_first'][0]:.2f} s")
+    print(f"edit -> first refreshed result: median {quick:.3f} s "
+          f"(min {min(timings['quick']):.3f}, max {max(timings['quick']):.3f})")
+    print(f"edit -> full result:            median {full:.3f} s "
+          f"(min {min(timings['full']):.3f}, max {max(timings['full']):.3f})")
+    print(f"baseline run_study: {base_quick:.3f} s ({QUICK_SAMPLES}), "
+          f"{base_full:.3f} s ({samples})")
+    print(f"ratio studio/baseline: quick {quick / base_quick:.2f}, "
+          f"full {full / (base_quick + base_full):.2f} (full includes the quick pass)")
+
+
+if __name__ == "__main__":
+    main()

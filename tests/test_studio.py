@@ -1,0 +1,226 @@
+"""The text-UI studio, driven through Textual's pilot (small sample counts keep it fast).
+
+The check against the outside world here is the direction of a physical effect: a feedforward
+gain designed from the nominal disturbance model over- or under-compensates more often when the
+true disturbance gain is spread more widely, so the probability that feedforward makes IAE worse
+must rise when the disturbance-gain range is widened (common practice, no source: the usual
+argument for detuning feedforward, e.g. a gain factor below 1, under model uncertainty).
+"""
+
+from __future__ import annotations
+
+import asyncio
+import shutil
+import subprocess
+import sys
+import time
+from dataclasses import replace
+from pathlib import Path
+
+import pytest
+
+from robustff.case import load_case
+from robustff.demo import demo_case_path
+from robustff.errors import CaseError
+from robustff.tui import editing
+from robustff.tui.recovery import read_recovery, recovery_path, write_recovery
+
+textual = pytest.importorskip("textual")
+
+from textual.widgets import Input  # noqa: E402
+
+from robustff.tui.app import StudioApp  # noqa: E402
+from robustff.tui.dialogs import ChoiceScreen, HelpScreen  # noqa: E402
+from robustff.tui.messages import field_id  # noqa: E402
+
+SAMPLES = 300
+
+
+@pytest.fixture
+def case_file(tmp_path: Path) -> Path:
+    """A writable copy of the demo case (comments included)."""
+    path = tmp_path / "heater.toml"
+    shutil.copy(demo_case_path("wash-water-heater"), path)
+    return path
+
+
+def _app(path: Path, recovery: Path, live: bool = True) -> StudioApp:
+    case = load_case(path)
+    return StudioApp(path, case=replace(case, study=replace(case.study, samples=SAMPLES)),
+                     recovery_folder=recovery, live=live)
+
+
+async def _wait_results(app: StudioApp, pilot, above: int, timeout: float = 90.0) -> None:
+    """Poll until the results-version counter passes ``above``."""
+    started = time.monotonic()
+    while app.results_version <= above:
+        if time.monotonic() - started > timeout:
+            raise AssertionError("no refreshed result in time")
+        await pilot.pause(0.05)
+
+
+async def _type(pilot, widget: Input, text: str) -> None:
+    widget.focus()
+    widget.value = text
+    await pilot.press("enter")
+    await pilot.pause()
+
+
+def _row_inputs(app: StudioApp, key: str) -> tuple[Input, Input]:
+    row = app.query_one(f"#u-{field_id(key)}")
+    return row.query_one(".uparams", Input), row.query_one(".uclip", Input)
+
+
+def test_widening_disturbance_gain_raises_harm(case_file: Path, tmp_path: Path) -> None:
+    async def scenario() -> None:
+        app = _app(case_file, tmp_path / "cache")
+        async with app.run_test(size=(100, 30)) as pilot:
+            await _wait_results(app, pilot, 0)
+            before = app.last_view.harm_probability
+            version = app.results_version
+            params, clip = _row_inputs(app, "disturbance.gain")
+            clip.value = "-3.6, -0.2"
+            await _type(pilot, params, "-1.8, 0.8")
+            await _wait_results(app, pilot, version)
+            after = app.last_view
+            assert app.case.uncertainty[3].distribution.params == (-1.8, 0.8)
+            assert after.samples == SAMPLES
+            assert after.harm_probability > before + 0.05
+            assert "P(feedforward worsens IAE)" in app.screen_text()
+            assert app.dirty
+
+    asyncio.run(scenario())
+
+
+def test_invalid_edits_show_the_loader_reason_and_keep_the_text(
+        case_file: Path, tmp_path: Path) -> None:
+    async def scenario() -> None:
+        app = _app(case_file, tmp_path / "cache", live=False)
+        async with app.run_test(size=(100, 30)) as pilot:
+            original = app.case
+            params, _ = _row_inputs(app, "process.time_constant")
+            await _type(pilot, params, "60, 35")
+            row = app.query_one(f"#u-{field_id('process.time_constant')}")
+            assert "low must be below high" in str(row.query_one(".udesc").render())
+            assert params.value == "60, 35"
+            dead_time = app.query_one(f"#in-{field_id('process.dead_time')}", Input)
+            await _type(pilot, dead_time, "-2")
+            error = app.query_one(f"#err-{field_id('process.dead_time')}")
+            assert "process.dead_time: must be >= 0" in str(error.render())
+            await _type(pilot, dead_time, "eight")
+            assert "must be a number" in str(error.render())
+            assert dead_time.value == "eight"
+            assert app.is_running and app.case == original and not app.dirty
+            await _type(pilot, dead_time, "9")  # a valid value clears the error
+            assert str(error.render()) == "" and app.case.process.dead_time == 9.0
+
+    asyncio.run(scenario())
+
+
+def test_save_and_reload_round_trip_the_edit(case_file: Path, tmp_path: Path) -> None:
+    async def scenario() -> None:
+        app = _app(case_file, tmp_path / "cache", live=False)
+        async with app.run_test(size=(100, 30)) as pilot:
+            gain = app.query_one(f"#in-{field_id('feedforward.gain_factor')}", Input)
+            await _type(pilot, gain, "0.7")
+            assert app.dirty and app.recovery_file.exists()
+            await pilot.press("ctrl+s")
+            await pilot.pause()
+            assert not app.dirty and not app.recovery_file.exists()
+            saved = load_case(case_file)
+            assert saved.feedforward.gain_factor == 0.7
+            assert "# steam pressure varies" in case_file.read_text()  # comments kept
+            case_file.write_text(case_file.read_text().replace("gain_factor = 0.7",
+                                                               "gain_factor = 0.4"))
+            await pilot.press("ctrl+r")
+            await pilot.pause()
+            assert app.case.feedforward.gain_factor == 0.4 and not app.dirty
+            await pilot.pause(0.2)
+            assert app.query_one(f"#in-{field_id('feedforward.gain_factor')}", Input).value == "0.4"
+
+    asyncio.run(scenario())
+
+
+def test_recovery_file_restores_edits_after_a_lost_session(
+        case_file: Path, tmp_path: Path) -> None:
+    async def scenario() -> None:
+        first = _app(case_file, tmp_path / "cache", live=False)
+        async with first.run_test(size=(100, 30)) as pilot:
+            params, _ = _row_inputs(first, "process.gain")
+            await _type(pilot, params, "0.4")
+            assert first.case.uncertainty[0].distribution.params == (0.4,)
+        # the session ends without saving (as when an SSH connection drops)
+        assert recovery_path(case_file).exists()
+        second = _app(case_file, tmp_path / "cache", live=False)
+        async with second.run_test(size=(100, 30)) as pilot:
+            await pilot.pause()
+            assert isinstance(second.screen, ChoiceScreen)
+            await pilot.press("r")
+            await pilot.pause(0.2)
+            assert second.case.uncertainty[0].distribution.params == (0.4,)
+            assert second.dirty
+            assert _row_inputs(second, "process.gain")[0].value == "0.4"
+            await pilot.press("ctrl+q")  # unsaved edits: asks first
+            await pilot.pause()
+            assert isinstance(second.screen, ChoiceScreen) and second.is_running
+            await pilot.press("c")
+            await pilot.pause()
+            assert second.is_running
+
+    asyncio.run(scenario())
+
+
+def test_screen_text_at_small_and_large_terminals(case_file: Path, tmp_path: Path) -> None:
+    async def scenario() -> None:
+        app = _app(case_file, tmp_path / "cache")
+        async with app.run_test(size=(80, 24)) as pilot:
+            await _wait_results(app, pilot, 0)
+            for size in ((80, 24), (120, 40)):
+                await pilot.resize_terminal(*size)
+                await pilot.pause(0.3)
+                text = app.screen_text()
+                lines = text.splitlines()
+                assert len(lines) == size[1] and max(map(len, lines)) <= size[0]
+                for label in ("Help", "Save", "Export", "Reload", "Quit", "Caution", "Process",
+                              "management-of-change", "P50", "better", "IAE"):
+                    assert label in text, (size, label)
+                assert "…" not in text  # nothing truncated in the table
+            assert "P(feedforward worsens IAE)" in text and "▼ better" in text
+            await pilot.press("f1")
+            await pilot.pause()
+            assert isinstance(app.screen, HelpScreen) and "Ctrl+S" in app.screen_text()
+            await pilot.press("escape")
+
+    asyncio.run(scenario())
+
+
+def test_edits_use_the_loaders_messages() -> None:
+    case = load_case(demo_case_path())
+    with pytest.raises(CaseError) as caught:
+        editing.edit_distribution(case, "disturbance.gain", "uniform", "-1.0, -3.0", "")
+    assert caught.value.problems == [
+        "edit: uncertainty.disturbance.gain.uniform: low must be below high (got [-1.0, -3.0])"]
+    manual = editing.edit_field(case, "feedback.tuning", "manual")
+    assert manual.feedback.kc is not None and manual.feedback.ti is not None
+    added = editing.add_uncertain(case, "disturbance.dead_time")
+    assert added.uncertainty[-1].distribution.params == (0.2,)
+    removed = editing.remove_uncertain(case, "process.dead_time")
+    assert not removed.correlations  # the correlation naming it goes too
+
+
+def test_recovery_of_a_bundled_demo_goes_to_the_cache(tmp_path: Path) -> None:
+    demo = demo_case_path()
+    path = recovery_path(demo, cache=tmp_path)
+    assert path.parent == tmp_path
+    case = load_case(demo)
+    edited = editing.edit_field(case, "process.gain", "0.8")
+    write_recovery(path, edited, demo.read_text())
+    found = read_recovery(path, demo)
+    assert found is not None and found.case == edited and "steam pressure" in found.text
+
+
+def test_run_command_does_not_import_textual() -> None:
+    code = ("import sys; from robustff.cli import build_parser; build_parser(); "
+            "print('textual' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False"
