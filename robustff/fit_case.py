@@ -1,0 +1,188 @@
+"""Write fitted models and their uncertainty into a case file, starting from a template case.
+
+The template is edited with tomlkit so that its comments, order and every other table survive:
+only the chosen model block (``[process]`` or ``[disturbance]``) and that block's entries of
+``[uncertainty]`` are replaced. The result is validated by the case loader before it is written
+(atomically: a temporary file renamed over the target).
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+from typing import Any
+
+from robustff.errors import CaseError, DataError
+from robustff.identification_spread import Proposal
+from robustff.models import MODEL_PARAMETERS, TransferModel
+
+__all__ = ["SECONDS_PER_UNIT", "FIT_BLOCKS", "time_factor", "fitted_case_text", "write_fitted_case"]
+
+SECONDS_PER_UNIT: dict[str, float] = {"s": 1.0, "min": 60.0, "h": 3600.0}
+FIT_BLOCKS: tuple[str, ...] = ("process", "disturbance")
+_ALL_MODEL_KEYS = ("gain", "time_constant", "time_constant_2", "dead_time")
+
+
+def time_factor(data_unit: str, case_unit: str) -> float:
+    """Multiplier turning a time in ``data_unit`` into ``case_unit`` (e.g. s -> min: 1/60)."""
+    return SECONDS_PER_UNIT[data_unit] / SECONDS_PER_UNIT[case_unit]
+
+
+def _converted(kind: str, proposals: dict[str, Proposal], factor: float) -> dict[str, Proposal]:
+    """Proposals in the case's time unit: times scale by ``factor``, an IPDT slope gain by
+    1/factor."""
+    out = {}
+    for name, proposal in proposals.items():
+        if name == "gain":
+            out[name] = proposal.scaled(1.0 / factor) if kind == "ipdt" else proposal
+        else:
+            out[name] = proposal.scaled(factor)
+    return out
+
+
+def _inline(values: dict[str, Any]) -> Any:
+    import tomlkit
+
+    table = tomlkit.inline_table()
+    table.update(values)
+    return table
+
+
+def fitted_case_text(
+    template_text: str,
+    block: str,
+    model: TransferModel,
+    proposals: dict[str, Proposal],
+    data_time_unit: str | None,
+    source: str = "<template>",
+) -> tuple[str, list[str]]:
+    """The template case with the fitted block and its uncertainty replaced.
+
+    Parameters
+    ----------
+    template_text : str
+        TOML text of a valid case.
+    block : {"process", "disturbance"}
+    model : TransferModel
+        Nominal model, times in the data's time unit.
+    proposals : dict of str to Proposal
+        One per parameter of ``model.kind`` (from
+        :func:`robustff.identification_spread.combine_fits`).
+    data_time_unit : str or None
+        "s", "min" or "h"; None means the data are in the case's time unit.
+
+    Returns
+    -------
+    (text, notes) : tuple of str and list of str
+        The new case text and notes for the user (unit conversion done or assumed).
+
+    Raises
+    ------
+    CaseError
+        The template is not valid TOML, or the result fails validation.
+    """
+    import tomlkit
+    from tomlkit.exceptions import TOMLKitError
+
+    if block not in FIT_BLOCKS:
+        raise DataError(f"--block must be one of {', '.join(FIT_BLOCKS)}, got '{block}'")
+    try:
+        doc = tomlkit.parse(template_text)
+    except TOMLKitError as exc:
+        raise CaseError(f"{source}: not readable as TOML: {exc}") from None
+    case_unit = str(doc.get("time_unit", "s"))
+    notes: list[str] = []
+    if data_time_unit is None:
+        data_time_unit = case_unit
+        notes.append(f"times taken to be in the case's time unit ({case_unit}); "
+                     "use --time-unit if the data use another")
+    elif case_unit not in SECONDS_PER_UNIT or data_time_unit not in SECONDS_PER_UNIT:
+        raise CaseError(f"{source}: time_unit must be s, min or h to convert the fitted times")
+    factor = time_factor(data_time_unit, case_unit) if case_unit in SECONDS_PER_UNIT else 1.0
+    if factor != 1.0:
+        notes.append(f"times converted from {data_time_unit} to {case_unit}")
+    converted = _converted(model.kind, proposals, factor)
+    _set_block(doc, block, model.kind, converted)
+    _set_uncertainty(doc, block, converted)
+    text = tomlkit.dumps(doc)
+    _validate(text, source)
+    return text, notes
+
+
+def _set_block(doc: Any, block: str, kind: str, proposals: dict[str, Proposal]) -> None:
+    import tomlkit
+
+    if block not in doc:
+        doc[block] = tomlkit.table()
+    table = doc[block]
+    table["model"] = kind
+    for name in _ALL_MODEL_KEYS:
+        if name in MODEL_PARAMETERS[kind]:
+            table[name] = float(f"{proposals[name].value:.6g}")
+        elif name in table:
+            del table[name]
+
+
+def _set_uncertainty(doc: Any, block: str, proposals: dict[str, Proposal]) -> None:
+    import tomlkit
+
+    if "uncertainty" not in doc:
+        doc["uncertainty"] = tomlkit.table()
+    section = doc["uncertainty"]
+    for key in list(section.keys()):
+        if key == block or key.startswith(f"{block}."):
+            del section[key]
+    for name, proposal in proposals.items():
+        if proposal.kind == "uniform" and proposal.params[0] == proposal.params[1]:
+            continue  # no spread found: leave the parameter certain
+        section[f"{block}.{name}"] = _inline(proposal.to_dict())
+
+
+def _validate(text: str, source: str) -> None:
+    import robustff.case as case_module  # re-exports the loader's parse_case
+
+    parse_case = getattr(case_module, "parse_case", None)
+    if parse_case is None:  # pragma: no cover - loader not part of this build
+        from robustff.case_loader import parse_case
+    try:
+        parse_case(text, source=f"{source} (after fitting)")
+    except CaseError as exc:
+        raise CaseError(["the fitted case would not be valid:", *exc.problems]) from None
+
+
+def write_fitted_case(
+    template: str | Path,
+    out: str | Path,
+    block: str,
+    model: TransferModel,
+    proposals: dict[str, Proposal],
+    data_time_unit: str | None,
+) -> list[str]:
+    """Write a new case from ``template`` with the fitted block (see :func:`fitted_case_text`).
+
+    Returns
+    -------
+    list of str
+        Notes for the user.
+    """
+    template = Path(template)
+    try:
+        template_text = template.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise CaseError(
+            f"{template}: cannot read the template case ({exc.strerror or exc})"
+        ) from None
+    text, notes = fitted_case_text(template_text, block, model, proposals, data_time_unit,
+                                   source=str(template))
+    out = Path(out)
+    handle, temp = tempfile.mkstemp(dir=out.parent or Path("."), prefix=f".{out.name}.",
+                                    suffix=".tmp")
+    try:
+        with os.fdopen(handle, "w", encoding="utf-8") as stream:
+            stream.write(text)
+        os.replace(temp, out)
+    except OSError as exc:
+        Path(temp).unlink(missing_ok=True)
+        raise CaseError(f"{out}: cannot write the case ({exc.strerror or exc})") from None
+    return notes
