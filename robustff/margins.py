@@ -404,9 +404,8 @@ def loop_margins(
     parts = [_run_block(loop.pick(slice(i, i + step)), omega) for i in range(0, n, step)]
     joined = {key: np.concatenate([p[key] for p in parts]) for key in parts[0]} if parts else {}
     keys = ("gain_margin", "phase_margin", "delay_margin", "ms")
-    if not joined:
-        return MarginResult(*(np.zeros(0) for _ in keys), np.zeros(0, dtype=bool))
-    return MarginResult(*(joined[k] for k in keys), joined["stable"].astype(bool))
+    arrays = {k: joined.get(k, np.zeros(0)) for k in keys}
+    return MarginResult(**arrays, stable=joined.get("stable", np.zeros(0)).astype(bool))
 
 
 def model_margins(process: TransferModel, feedback: FeedbackSettings) -> MarginResult:
