@@ -88,8 +88,10 @@ def test_json_output_and_tuned_case(small_case: Path, tmp_path: Path, capsys) ->
 
 
 def test_human_output_ends_with_caution(small_case: Path, tmp_path: Path, capsys) -> None:
-    assert main(["tune", str(small_case), "--out", str(tmp_path), "--samples", "60"]) == 0
+    assert main(["tune", str(small_case), "--out", str(tmp_path), "--samples", "60",
+                 "--sobol", "64"]) == 0
     text = capsys.readouterr().out
+    assert "Sobol indices" in text
     assert "robust optimum" in text and "ISE lag rule" in text and "nominal ideal" in text
     assert "What drives the risk" in text
     assert text.rstrip().endswith(CAUTION)

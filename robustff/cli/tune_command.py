@@ -41,6 +41,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--jobs", type=_positive_int, help="threads (default: all cores)")
     parser.add_argument("--out", metavar="DIR",
                         help="folder for the tuned case file (default: results/<case name>)")
+    parser.add_argument("--sobol", nargs="?", const=512, type=_positive_int, metavar="N",
+                        help="also compute first-order and total Sobol indices of the IAE ratio "
+                             "(base sample size N, default 512; N x (parameters + 2) plants)")
     parser.add_argument("--json", action="store_true",
                         help="print one JSON object instead of the tables")
     parser.set_defaults(func=execute)
@@ -142,7 +145,16 @@ def _print_sensitivity(result) -> None:
         print(f"  {row.name:<28}{ratio:>26}{harm:>26}")
 
 
-def _print_human(case, result, args, written: Path, warnings: list[str], elapsed: float) -> None:
+def _print_sobol(case, sobol) -> None:
+    print("Sobol indices of the IAE ratio fbff/fb (nominal design; inputs taken as independent"
+          + (", rank correlations ignored" if case.correlations else "") + "):")
+    print(f"  {'parameter':<28}{'first order':>12}{'total':>10}")
+    for name, first, total in sobol:
+        print(f"  {name:<28}{first:>12.3f}{total:>10.3f}")
+
+
+def _print_human(case, result, args, written: Path, warnings: list[str], elapsed: float,
+                 sobol) -> None:
     print(case.title)
     print(f"Objective: {_objective_title(args)}; {result.samples} samples (seed {result.seed}), "
           f"re-checked on {result.samples} fresh samples (seed {result.fresh_seed}); "
@@ -157,6 +169,8 @@ def _print_human(case, result, args, written: Path, warnings: list[str], elapsed
     if result.excluded:
         print(f"{result.excluded} samples are unstable with feedback alone and were left out.")
     _print_sensitivity(result)
+    if sobol is not None:
+        _print_sobol(case, sobol)
     for warning in warnings:
         print(f"warning: {warning}")
     print(f"Tuned case written to {written}")
@@ -172,7 +186,7 @@ def _progress(done: int, budget: int) -> None:
 def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case, save_case
     from robustff.cli import EXIT_OK
-    from robustff.robust_tuning import robust_search
+    from robustff.robust_tuning import robust_search, sobol_sensitivity
 
     started = time.perf_counter()
     case = load_case(args.case)
@@ -185,6 +199,9 @@ def execute(args: argparse.Namespace) -> int:
         raise CaseError(f"--out {out}: exists and is not a folder")
     result = robust_search(case, objective=args.objective, samples=args.samples, seed=args.seed,
                            jobs=args.jobs, progress=None if args.json else _progress)
+    sobol = None
+    if args.sobol:
+        sobol = sobol_sensitivity(case, args.sobol, seed=args.seed, jobs=args.jobs)
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
@@ -194,7 +211,10 @@ def execute(args: argparse.Namespace) -> int:
     if args.json:
         payload = result_to_dict(result, written)
         payload["warnings"] = warnings
+        payload["sobol"] = (None if sobol is None else
+                            [{"name": n, "first": f, "total": t} for n, f, t in sobol])
         print(json.dumps(payload, indent=2))
     else:
-        _print_human(case, result, args, written, warnings, time.perf_counter() - started)
+        _print_human(case, result, args, written, warnings, time.perf_counter() - started,
+                     sobol)
     return EXIT_OK
