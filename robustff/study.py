@@ -28,6 +28,7 @@ from robustff.engine import (
     nominal_batch,
     simulate,
 )
+from robustff.margins import MarginResult, loop_margins
 from robustff.metrics import METRIC_NAMES
 from robustff.tuning import LoopDesign, design_loop
 from robustff.uncertainty import plant_batch, sample
@@ -38,6 +39,9 @@ __all__ = ["StudyResult", "run_study", "CHUNK_SIZE", "ProgressCallback"]
 CHUNK_SIZE = 1000
 #: Number of samples whose full trajectories are kept for plots.
 KEPT_TRAJECTORIES = 5
+#: Stability margins are computed for the first this many samples (a large subset is enough for
+#: their percentiles and keeps the cost below the simulation's).
+MARGIN_SAMPLES = 2000
 
 ProgressCallback = Callable[[int, int], None]
 
@@ -72,6 +76,10 @@ class StudyResult:
         True when the run was stopped before all chunks finished.
     elapsed : float
         Wall time, seconds.
+    margins : MarginResult or None
+        Feedback stability margins of the first ``MARGIN_SAMPLES`` simulated samples.
+    nominal_margins : MarginResult or None
+        Margins of the nominal loop.
     """
 
     case: Case
@@ -89,6 +97,8 @@ class StudyResult:
     requested: int
     partial: bool
     elapsed: float
+    margins: MarginResult | None = None
+    nominal_margins: MarginResult | None = None
 
     @property
     def samples(self) -> int:
@@ -154,6 +164,7 @@ def run_study(
     chunk_size: int = CHUNK_SIZE,
     progress: ProgressCallback | None = None,
     cancel: threading.Event | None = None,
+    margins: bool = True,
 ) -> StudyResult:
     """Run the Monte Carlo study of a case.
 
@@ -173,6 +184,9 @@ def run_study(
     cancel : threading.Event, optional
         When set, no new chunk starts and the finished ones are returned, marked partial.
         A KeyboardInterrupt does the same.
+    margins : bool
+        Also compute the feedback stability margins (exact dead time) of the nominal loop and
+        of the first ``MARGIN_SAMPLES`` samples.
 
     Returns
     -------
@@ -213,8 +227,14 @@ def run_study(
         close = getattr(generator, "close", None)
         if close is not None:
             close()
-    return _assemble(case, design, scenario, grid, names, values, results, nominal_traj,
-                     seed, n, partial or len(results) < len(chunks), time.perf_counter() - started)
+    result = _assemble(case, design, scenario, grid, names, values, results, nominal_traj,
+                       seed, n, partial or len(results) < len(chunks), 0.0)
+    if margins:
+        subset = min(result.samples, MARGIN_SAMPLES)
+        result.margins = loop_margins(plant_batch(case, names, values[:subset]), design.feedback)
+        result.nominal_margins = loop_margins(nominal_batch(case), design.feedback)
+    result.elapsed = time.perf_counter() - started
+    return result
 
 
 def _assemble(case, design, scenario, grid, names, values, results, nominal_traj, seed, n,

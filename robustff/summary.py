@@ -24,7 +24,7 @@ from robustff.stats import (
 )
 from robustff.study import StudyResult
 
-__all__ = ["summarize_study", "metric_unit", "HARM_METRICS", "PAIRED_METRICS"]
+__all__ = ["summarize_study", "metric_unit", "nominal_margin_warnings", "HARM_METRICS", "PAIRED_METRICS"]
 
 #: Metrics for which the probability that feedforward makes things worse is reported.
 HARM_METRICS: tuple[str, ...] = ("iae", "peak_deviation")
@@ -55,6 +55,41 @@ def _ratio(result: StudyResult) -> np.ndarray:
     iae = result.metrics["iae"]
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(iae[:, 0] > 0, iae[:, 1] / iae[:, 0], np.nan)
+
+
+def _margins(result: StudyResult, percentiles: Sequence[float]) -> dict | None:
+    """Margin percentiles, limit fractions, unstable samples, and the nominal loop's margins."""
+    if result.margins is None or result.nominal_margins is None:
+        return None
+    from robustff.uncertainty import plant_batch
+
+    subset = result.margins.size
+    batch = plant_batch(result.case, result.names, result.parameters[:subset])
+    out = result.margins.summary(percentiles, batch=batch)
+    nominal = result.nominal_margins
+    out["samples"] = subset
+    out["nominal"] = {
+        "gain_margin": float(nominal.gain_margin[0]), "phase_margin": float(nominal.phase_margin[0]),
+        "delay_margin": float(nominal.delay_margin[0]), "ms": float(nominal.ms[0]),
+        "stable": bool(nominal.stable[0]),
+    }
+    out["nominal_warnings"] = nominal_margin_warnings(out["nominal"])
+    out["limits_note"] = "Ms > 2, GM < 2, PM < 30 deg: common practice, no source"
+    return out
+
+
+def nominal_margin_warnings(nominal: dict) -> list[str]:
+    """Warnings when the NOMINAL loop already misses common design limits (common practice)."""
+    warnings = []
+    if not nominal["stable"]:
+        return ["the nominal feedback loop is unstable"]
+    if nominal["ms"] > 2.0:
+        warnings.append(f"nominal Ms = {nominal['ms']:.2f} > 2: the feedback tuning is not robust")
+    if nominal["gain_margin"] < 2.0:
+        warnings.append(f"nominal gain margin {nominal['gain_margin']:.2f} < 2")
+    if nominal["phase_margin"] < 30.0:
+        warnings.append(f"nominal phase margin {nominal['phase_margin']:.1f} deg < 30 deg")
+    return warnings
 
 
 def summarize_study(result: StudyResult, percentiles: Sequence[float] = DEFAULT_PERCENTILES) -> dict:
@@ -115,6 +150,7 @@ def summarize_study(result: StudyResult, percentiles: Sequence[float] = DEFAULT_
             if np.isfinite(result.metrics["iae"][:, 1]).sum() > 1 else None,
         },
         "sensitivity": sensitivity,
+        "margins": _margins(result, percentiles),
         "design": result.design.to_dict(),
         "settling_band": result.scenario.settling_band,
         "elapsed_seconds": round(result.elapsed, 3),

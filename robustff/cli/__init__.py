@@ -69,6 +69,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         for line in str(exc).splitlines() or [type(exc).__name__]:
             print(f"robustff: error: {line}", file=sys.stderr)
         return EXIT_USAGE
+    except OSError as exc:
+        target = f" {exc.filename}" if exc.filename else ""
+        print(f"robustff: error: cannot read or write{target}: {exc.strerror or exc}", file=sys.stderr)
+        return EXIT_USAGE
     except KeyboardInterrupt:
         print("robustff: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED

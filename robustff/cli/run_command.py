@@ -30,6 +30,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         help="percentiles to report, e.g. 5,50,95 (default: 5,10,50,90,95,99)")
     parser.add_argument("--cluster", metavar="tcp://HOST:PORT",
                         help="run the chunks on a Dask cluster (needs the 'cluster' extra)")
+    parser.add_argument("--report", action="store_true",
+                        help="also write report.html and PNG/SVG plots (needs matplotlib)")
     parser.set_defaults(func=execute)
 
 
@@ -98,6 +100,14 @@ def _print_table(summary: dict, percentiles) -> None:
                         for i, (cell, w) in enumerate(zip(row, widths))))
 
 
+def _margin_values(result) -> dict | None:
+    if result.margins is None:
+        return None
+    m = result.margins
+    return {"gain_margin": m.gain_margin, "phase_margin": m.phase_margin,
+            "delay_margin": m.delay_margin, "ms": m.ms}
+
+
 def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case
     from robustff.cli import EXIT_INTERRUPTED, EXIT_OK
@@ -122,7 +132,14 @@ def execute(args: argparse.Namespace) -> int:
         print("robustff: interrupted before any sample finished; nothing written", file=sys.stderr)
         return EXIT_INTERRUPTED
     summary = summarize_study(result, percentiles)
-    write_results(result, summary, out, percentiles)
+    extra = None
+    if args.report:
+        from robustff.html_report import write_report
+
+        def extra(folder: Path) -> None:
+            write_report(result, summary, folder, percentiles, _margin_values(result))
+
+    write_results(result, summary, out, percentiles, extra=extra)
     print(f"{case.title}")
     print(f"{result.samples} samples" + (" (PARTIAL)" if result.partial else "")
           + f", seed {result.seed}, {result.elapsed:.2f} s")
@@ -131,6 +148,15 @@ def execute(args: argparse.Namespace) -> int:
     print(risk_sentence(summary, "peak_deviation"))
     print(f"Unstable samples: {summary['unstable']['fb']} feedback only, {summary['unstable']['fbff']} with feedforward")
     print(summary["convergence"]["ff_worse_iae"]["message"])
+    margins = summary.get("margins")
+    if margins:
+        nominal = margins["nominal"]
+        print(f"Feedback margins (nominal): GM {nominal['gain_margin']:.3g}, PM {nominal['phase_margin']:.3g} deg, "
+              f"Ms {nominal['ms']:.3g}; across {margins['samples']} samples: "
+              f"{100 * margins['fraction_below_limits']['ms_above_2']:.1f} % with Ms > 2, "
+              f"{margins['unstable']} unstable")
+        for warning in margins["nominal_warnings"]:
+            print(f"WARNING: {warning}")
     print(f"Results written to {out}/")
     print(CAUTION)
     return EXIT_INTERRUPTED if result.partial else EXIT_OK
