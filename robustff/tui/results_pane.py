@@ -54,6 +54,8 @@ def risk_text(view: StudyView) -> Text:
                     f"{view.harm_count} of {view.harm_n} plants)\n")
     warn = "  ⚠ check" if view.unstable_fb or view.unstable_fbff else ""
     text.append(f"Unstable plants: fb {view.unstable_fb}, fb+ff {view.unstable_fbff}{warn}")
+    for line in (*view.margin_lines, *view.driver_lines):
+        text.append("\n" + line, "bold" if line.startswith("⚠") else "")
     return text
 
 

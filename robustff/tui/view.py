@@ -69,6 +69,10 @@ class StudyView:
     bands : ndarray, shape (2, 3, P)
         CV P5, P50, P95 per arm (arm 0 feedback only), CV units (deviation from the start).
     cv_label, time_unit : str
+    margin_lines : list of str
+        Feedback stability margins (nominal and P5/P50/P95 over the samples) and warnings.
+    driver_lines : list of str
+        The uncertain parameters ranked by their rank correlation with the IAE ratio.
     """
 
     samples: int
@@ -88,6 +92,8 @@ class StudyView:
     bands: np.ndarray
     cv_label: str
     time_unit: str
+    margin_lines: tuple[str, ...] = ()
+    driver_lines: tuple[str, ...] = ()
 
 
 def verdict(fb: float, fbff: float) -> str:
@@ -109,6 +115,40 @@ def _row(summary: dict, metric: str) -> MetricRow:
     middle = TABLE_PERCENTILES.index(50.0)
     return MetricRow(TABLE_METRICS[metric], summary["units"][metric], fb, fbff,
                      verdict(fb[middle], fbff[middle]))
+
+
+def _number(value: object, digits: str = ".3g") -> str:
+    return "n/a" if value is None else format(float(value), digits)
+
+
+def margin_lines(summary: dict) -> tuple[str, ...]:
+    """Margin percentiles and warnings (limits are common practice, no source)."""
+    margins = summary.get("margins")
+    if not margins:
+        return ()
+    nominal = margins["nominal"]
+    lines = [
+        f"Margins nominal: GM {_number(nominal['gain_margin'])}, PM {_number(nominal['phase_margin'], '.0f')} deg, "
+        f"Ms {_number(nominal['ms'])}",
+        "  over samples P5/P50/P95: GM " + "/".join(_number(margins["gain_margin"].get(k)) for k in ("p5", "p50", "p95"))
+        + ", Ms " + "/".join(_number(margins["ms"].get(k)) for k in ("p5", "p50", "p95")),
+    ]
+    below = margins["fraction_below_limits"]
+    if below.get("ms_above_2") is not None:
+        lines.append(f"  Ms > 2 in {100 * below['ms_above_2']:.1f} % of plants; "
+                     f"unstable loops {margins['unstable']}")
+    lines += [f"⚠ WARNING: {warning}" for warning in margins.get("nominal_warnings", [])]
+    return tuple(lines)
+
+
+def driver_lines(summary: dict, rows: int = 3) -> tuple[str, ...]:
+    """The top rows of the sensitivity ranking (Spearman rho with the IAE ratio)."""
+    ranking = [row for row in summary.get("sensitivity", []) if row.get("rho") is not None]
+    if not ranking:
+        return ()
+    return ("Drives the IAE ratio (Spearman rho):",) + tuple(
+        f"  {row['name']}: {row['rho']:+.2f}" for row in ranking[:rows]
+    )
 
 
 def build_view(result, summary: dict, quick: bool) -> StudyView:
@@ -140,4 +180,5 @@ def build_view(result, summary: dict, quick: bool) -> StudyView:
         unstable_fb=summary["unstable"]["fb"], unstable_fbff=summary["unstable"]["fbff"],
         ratio=ratio, times=np.asarray(result.envelope.times, dtype=float), bands=bands,
         cv_label=result.case.signals.controlled.label(), time_unit=result.case.time_unit,
+        margin_lines=margin_lines(summary), driver_lines=driver_lines(summary),
     )
