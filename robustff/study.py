@@ -211,10 +211,14 @@ def run_study(
         for c in chunks
     ]
     results, partial = [], False
+    # Envelope histograms are summed as chunks arrive so memory does not grow with their count.
+    counts = np.zeros((2, grid.times.size, grid.edges.size - 1), np.int64)
     cancel = cancel or threading.Event()
     generator = _parallel_results(tasks, jobs, cluster)
     try:
         for chunk, result in zip(chunks, generator):
+            counts += result.envelope_counts
+            result.envelope_counts = None
             results.append(result)
             if progress is not None:
                 progress(chunk.stop, n)
@@ -227,7 +231,7 @@ def run_study(
         close = getattr(generator, "close", None)
         if close is not None:
             close()
-    result = _assemble(case, design, scenario, grid, names, values, results, nominal_traj,
+    result = _assemble(case, design, scenario, grid, names, values, results, counts, nominal_traj,
                        seed, n, partial or len(results) < len(chunks), 0.0)
     if margins:
         subset = min(result.samples, MARGIN_SAMPLES)
@@ -237,15 +241,14 @@ def run_study(
     return result
 
 
-def _assemble(case, design, scenario, grid, names, values, results, nominal_traj, seed, n,
-              partial, elapsed) -> StudyResult:
+def _assemble(case, design, scenario, grid, names, values, results, counts, nominal_traj, seed,
+              n, partial, elapsed) -> StudyResult:
     done = sum(r.unstable.shape[0] for r in results)
     metrics = {
         name: (np.concatenate([r.metrics[name] for r in results]) if results else np.empty((0, 2)))
         for name in METRIC_NAMES
     }
     unstable = np.concatenate([r.unstable for r in results]) if results else np.empty((0, 2), bool)
-    counts = sum((r.envelope_counts for r in results), np.zeros((2, grid.times.size, grid.edges.size - 1), np.int64))
     kept = results[0].trajectories if results and results[0].trajectories is not None else np.empty((0, 4, scenario.n_steps))
     return StudyResult(
         case, design, scenario, names, values[:done], metrics, unstable, grid, counts,

@@ -55,9 +55,6 @@ class LateStderrPrinter(run_command.ProgressPrinter):
 def _in_tmp(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     # A run without --out writes results/<case>/ under the working folder: keep it in tmp_path.
     monkeypatch.chdir(tmp_path)
-    # ProgressPrinter binds sys.stderr as a default argument at import time, which is a stream
-    # pytest has closed by now (see the xfail test below); hand it the current one.
-    monkeypatch.setattr(run_command, "ProgressPrinter", LateStderrPrinter)
 
 
 def _write(path: Path, text: str) -> Path:
@@ -196,17 +193,12 @@ def test_one_and_two_jobs_give_identical_files(
         assert (one / name).read_bytes() == (two / name).read_bytes(), name
 
 
-@pytest.mark.xfail(strict=True, reason="main() raises SystemExit(2) for usage errors instead of "
-                   "returning 2 as its docstring says ('returns the exit status')")
-def test_main_returns_the_usage_status_instead_of_exiting(
+def test_main_returns_the_usage_status(
     capsys: pytest.CaptureFixture[str]
 ) -> None:
     assert main(["run", str(DEMO), "--samples", "abc"]) == EXIT_USAGE
 
 
-@pytest.mark.xfail(strict=True, reason="ProgressPrinter(stream=sys.stderr) binds the stderr of "
-                   "import time; after sys.stderr is replaced (tests, an embedding UI) the printer "
-                   "writes to the old, possibly closed stream")
 def test_progress_printer_writes_to_the_current_stderr(monkeypatch: pytest.MonkeyPatch) -> None:
     replaced = io.StringIO()
     monkeypatch.setattr(sys, "stderr", replaced)

@@ -251,9 +251,6 @@ def test_progress_reports_every_chunk_in_order() -> None:
     assert not result.partial
 
 
-@pytest.mark.xfail(strict=True, reason="run_study keeps every chunk's SimulationResult, each with "
-                   "its own (2, P, B) envelope histogram (1.9 MB), until the end and sums them in "
-                   "_assemble: peak memory grows by ~1.9 MB per chunk, not bounded by chunk size")
 def test_peak_memory_is_bounded_by_chunk_size_not_chunk_count() -> None:
     import tracemalloc
 
@@ -261,7 +258,8 @@ def test_peak_memory_is_bounded_by_chunk_size_not_chunk_count() -> None:
     run_study(case, samples=20, jobs=1)  # load the compiled kernel and libraries first
     tracemalloc.start()
     try:
-        result = run_study(case, jobs=1, chunk_size=25)  # 40 chunks of 25 samples
+        # Margins work in fixed blocks of about 20 MB whatever the chunking: leave them out here.
+        result = run_study(case, jobs=1, chunk_size=25, margins=False)  # 40 chunks of 25 samples
         peak = tracemalloc.get_traced_memory()[1]
     finally:
         tracemalloc.stop()

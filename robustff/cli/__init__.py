@@ -59,7 +59,10 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit status."""
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # --help, --version, or a usage error already reported
+        return int(exc.code or 0)
     if not getattr(args, "func", None):
         parser.print_help(sys.stderr)
         return EXIT_USAGE

@@ -69,9 +69,9 @@ def parse_percentiles(text: str) -> tuple[float, ...]:
 class ProgressPrinter:
     """Progress on stderr: a bar on a terminal, plain lines (every 10 %) otherwise."""
 
-    def __init__(self, stream=sys.stderr) -> None:
-        self.stream = stream
-        self.tty = stream.isatty()
+    def __init__(self, stream=None) -> None:
+        self.stream = stream or sys.stderr
+        self.tty = self.stream.isatty()
         self.started = time.perf_counter()
         self.last_tenth = -1
 
@@ -131,6 +131,9 @@ def execute(args: argparse.Namespace) -> int:
     if result.samples == 0:
         print("robustff: interrupted before any sample finished; nothing written", file=sys.stderr)
         return EXIT_INTERRUPTED
+    if result.partial:
+        print(f"robustff: interrupted: {result.samples} of {result.requested} samples finished; "
+              "writing partial results", file=sys.stderr)
     summary = summarize_study(result, percentiles)
     extra = None
     if args.report:
