@@ -241,9 +241,34 @@ class Case:
         return float(getattr(owner, parameter))
 
 
-# File entry points. Imported at the end of the module, not the top: the loader and the writer
-# import the dataclasses above, so importing them first would be a circular import.
-from robustff.case_loader import load_case, parse_case  # noqa: E402
-from robustff.case_writer import case_to_toml, save_case  # noqa: E402
+# File entry points. Thin wrappers that import on first use: the loader and the writer import the
+# dataclasses above, so importing them at module level would be circular.
+def load_case(path: str | Path) -> Case:
+    """Read and validate a case file; see :func:`robustff.case_loader.load_case`."""
+    from robustff.case_loader import load_case as _load_case
+
+    return _load_case(path)
+
+
+def parse_case(text: str, source: str = "<text>") -> Case:
+    """Validate case text; see :func:`robustff.case_loader.parse_case`."""
+    from robustff.case_loader import parse_case as _parse_case
+
+    return _parse_case(text, source)
+
+
+def save_case(case: Case, path: str | Path, original_text: str | None = None) -> list[str]:
+    """Write a case atomically; see :func:`robustff.case_writer.save_case`."""
+    from robustff.case_writer import save_case as _save_case
+
+    return _save_case(case, path, original_text)
+
+
+def case_to_toml(case: Case, original_text: str | None = None) -> str:
+    """A case as TOML text; see :func:`robustff.case_writer.case_to_toml`."""
+    from robustff.case_writer import case_to_toml as _case_to_toml
+
+    return _case_to_toml(case, original_text)
+
 
 __all__ += ["load_case", "parse_case", "save_case", "case_to_toml"]
