@@ -37,7 +37,7 @@ def test_check_prints_units_and_the_not_realizable_delay(capsys):
 def test_demo_copies_in_the_package_match_cases_folder():
     for name in DEMO_CASES:
         assert filecmp.cmp(ROOT / "cases" / f"{name}.toml", demo_case_path(name), shallow=False)
-    assert sorted(p.stem for p in (ROOT / "cases").glob("*.toml")) == sorted(DEMO_CASES)
+    assert set(DEMO_CASES) <= {p.stem for p in (ROOT / "cases").glob("*.toml")}
     with pytest.raises(CaseError):
         demo_case_path("no-such-plant")
 
