@@ -9,7 +9,7 @@ A sample is built in three steps, all vectorised over the samples:
    mapped to normal scores, mixed with the Cholesky factor of their correlation matrix and mapped
    back. The target Spearman rank correlation rho is converted to the Pearson correlation of the
    normal scores, ``r = 2 sin(pi rho / 6)``, which gives exactly rho for a bivariate normal
-   (Kruskal, "Ordinal measures of association", JASA 53 (1958) 814-861);
+   (Kruskal, "Ordinal measures of association", JASA 53 (1958) 814-861; from memory);
 3. the *inverse distribution function* of each parameter (closed forms using
    ``scipy.special.ndtri``; the tests check them against ``scipy.stats`` ppf).
 

@@ -105,10 +105,10 @@ def test_latin_hypercube_hits_each_stratum_once(n):
 
 @pytest.mark.parametrize("m", [4, 10])
 def test_scrambled_sobol_balance(m):
-    # Source: Sobol (1967), USSR Comput. Math. Math. Phys. 7(4) 86-112, and the scipy.stats.qmc
-    # documentation: the first 2^m points form a (t, m, d)-net; in one dimension each of the
-    # 2^k intervals [j/2^k, (j+1)/2^k), k <= m, holds exactly 2^(m-k) points (so each half
-    # holds n/2). Owen scrambling keeps this property.
+    # Source: Sobol (1967), USSR Comput. Math. Math. Phys. 7(4) 86-112 (from memory), and the
+    # scipy.stats.qmc documentation: the first 2^m points form a (t, m, d)-net; in one
+    # dimension each of the 2^k intervals [j/2^k, (j+1)/2^k), k <= m, holds exactly 2^(m-k)
+    # points (so each half holds n/2). Owen scrambling keeps this property.
     n = 2**m
     scores = uniform_scores("sobol", n, 6, seed=2)
     for column in scores.T:
