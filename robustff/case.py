@@ -237,7 +237,9 @@ class Case:
     def nominal_value(self, key: str) -> float:
         """Nominal value of a plant parameter such as ``"process.gain"``."""
         block, parameter = key.split(".", 1)
-        owner = {"process": self.process, "disturbance": self.disturbance, "sensor": self.sensor}[block]
+        owner = {"process": self.process, "disturbance": self.disturbance, "sensor": self.sensor}[
+            block
+        ]
         return float(getattr(owner, parameter))
 
 

@@ -10,7 +10,13 @@ from pathlib import Path
 import numpy as np
 
 from robustff import CAUTION
-from robustff.plots import band_figure, margins_figure, ratio_figure, save_figure, sensitivity_figure
+from robustff.plots import (
+    band_figure,
+    margins_figure,
+    ratio_figure,
+    save_figure,
+    sensitivity_figure,
+)
 from robustff.report import percentile_rows, risk_sentence
 from robustff.study import StudyResult
 
@@ -29,7 +35,8 @@ img { max-width: 100%; }
 def _table(header: Sequence[str], rows: Sequence[Sequence[object]]) -> str:
     head = "".join(f"<th>{html.escape(str(h))}</th>" for h in header)
     body = "".join(
-        "<tr>" + "".join(f"<td>{html.escape(str(cell))}</td>" for cell in row) + "</tr>" for row in rows
+        "<tr>" + "".join(f"<td>{html.escape(str(cell))}</td>" for cell in row) + "</tr>"
+        for row in rows
     )
     return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
 
@@ -44,16 +51,26 @@ def _margins_section(summary: dict) -> str:
     if not margins:
         return ""
     rows = []
-    for key, label in (("gain_margin", "gain margin [-]"), ("phase_margin", "phase margin [deg]"),
-                       ("delay_margin", f"delay margin [{summary['time_unit']}]"), ("ms", "Ms [-]")):
+    for key, label in (
+        ("gain_margin", "gain margin [-]"),
+        ("phase_margin", "phase margin [deg]"),
+        ("delay_margin", f"delay margin [{summary['time_unit']}]"),
+        ("ms", "Ms [-]"),
+    ):
         stats = margins.get(key, {})
         rows.append([label, *[_fmt(stats.get(p)) for p in ("p5", "p50", "p95")]])
     limits = margins.get("fraction_below_limits", {})
-    lines = "".join(f"<li>{html.escape(k.replace('_', ' '))}: {100 * v:.1f} % of samples</li>"
-                    for k, v in limits.items() if v is not None)
-    return ("<h2>Feedback stability margins</h2>" + _table(["margin", "P5", "P50", "P95"], rows)
-            + f"<ul>{lines}<li>unstable feedback loops: {margins.get('unstable', 0)}</li></ul>"
-            + "<p>Limits Ms &gt; 2, GM &lt; 2, PM &lt; 30 deg are common practice, no source.</p>")
+    lines = "".join(
+        f"<li>{html.escape(k.replace('_', ' '))}: {100 * v:.1f} % of samples</li>"
+        for k, v in limits.items()
+        if v is not None
+    )
+    return (
+        "<h2>Feedback stability margins</h2>"
+        + _table(["margin", "P5", "P50", "P95"], rows)
+        + f"<ul>{lines}<li>unstable feedback loops: {margins.get('unstable', 0)}</li></ul>"
+        + "<p>Limits Ms &gt; 2, GM &lt; 2, PM &lt; 30 deg are common practice, no source.</p>"
+    )
 
 
 def _fmt(value: object) -> str:
@@ -74,8 +91,15 @@ def write_report(
         ("plot-sensitivity", sensitivity_figure(summary), "sensitivity ranking"),
     ]
     if margin_values is not None and summary.get("margins"):
-        figures.append(("plot-margins", margins_figure(
-            {**summary["margins"], "time_unit": summary["time_unit"]}, margin_values), "margins"))
+        figures.append(
+            (
+                "plot-margins",
+                margins_figure(
+                    {**summary["margins"], "time_unit": summary["time_unit"]}, margin_values
+                ),
+                "margins",
+            )
+        )
     images = []
     for stem, fig, alt in figures:
         png, _ = save_figure(fig, folder, stem)
@@ -95,16 +119,18 @@ def write_report(
         + f"<li>Unstable samples: {summary['unstable']['fb']} feedback only, "
         + f"{summary['unstable']['fbff']} with feedforward</li></ul>",
         "<h2>Design (from the nominal models)</h2><pre>"
-        + html.escape("\n".join(design_lines)) + "</pre>",
+        + html.escape("\n".join(design_lines))
+        + "</pre>",
         "<h2>Percentiles</h2>" + _table(header, percentile_rows(summary, percentiles)),
         _margins_section(summary),
         "<h2>Figures</h2>" + "".join(_image(png, alt) for png, alt in images),
         f'<p class="caution">{html.escape(CAUTION)}</p>',
     ]
     page = (
-        "<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
+        '<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'
         f"<title>{html.escape(summary['title'])}</title><style>{_STYLE}</style></head><body>"
-        + "\n".join(parts) + "</body></html>\n"
+        + "\n".join(parts)
+        + "</body></html>\n"
     )
     path = folder / "report.html"
     path.write_text(page, encoding="utf-8")

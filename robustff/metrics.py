@@ -30,15 +30,30 @@ import numpy as np
 __all__ = ["METRIC_NAMES", "METRIC_UNITS", "metrics_from_accumulators", "trajectory_metrics"]
 
 METRIC_NAMES: tuple[str, ...] = (
-    "iae", "ise", "itae", "ie", "peak_deviation", "overshoot", "overshoot_percent",
-    "settling_time", "valve_travel", "time_at_limit",
+    "iae",
+    "ise",
+    "itae",
+    "ie",
+    "peak_deviation",
+    "overshoot",
+    "overshoot_percent",
+    "settling_time",
+    "valve_travel",
+    "time_at_limit",
 )
 
 #: Unit of each metric as a template: {cv}, {u} and {t} are the CV, output and time units.
 METRIC_UNITS: dict[str, str] = {
-    "iae": "{cv}*{t}", "ise": "{cv}^2*{t}", "itae": "{cv}*{t}^2", "ie": "{cv}*{t}",
-    "peak_deviation": "{cv}", "overshoot": "{cv}", "overshoot_percent": "%",
-    "settling_time": "{t}", "valve_travel": "{u}", "time_at_limit": "{t}",
+    "iae": "{cv}*{t}",
+    "ise": "{cv}^2*{t}",
+    "itae": "{cv}*{t}^2",
+    "ie": "{cv}*{t}",
+    "peak_deviation": "{cv}",
+    "overshoot": "{cv}",
+    "overshoot_percent": "%",
+    "settling_time": "{t}",
+    "valve_travel": "{u}",
+    "time_at_limit": "{t}",
 }
 
 
@@ -113,7 +128,9 @@ def trajectory_metrics(
     """
     t = np.arange(error.size) * step
     outside = np.nonzero((np.abs(error) > settling_band) & (t >= event_start))[0]
-    settle = 0.0 if outside.size == 0 else min(t[outside[-1]] + step, error.size * step) - event_start
+    settle = (
+        0.0 if outside.size == 0 else min(t[outside[-1]] + step, error.size * step) - event_start
+    )
     return {
         "ie": float(np.sum(error) * step),
         "iae": float(np.sum(np.abs(error)) * step),

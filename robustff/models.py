@@ -97,7 +97,8 @@ class TransferModel:
             "sopdt": f"tau = {self.time_constant:g}{unit}, tau2 = {self.time_constant_2:g}{unit}",
             "ipdt": "integrating",
         }[self.kind]
-        return f"{self.kind.upper()}: K = {self.gain:g}, {lag_text}, dead time = {self.dead_time:g}{unit}"
+        head = f"{self.kind.upper()}: K = {self.gain:g}, {lag_text}"
+        return f"{head}, dead time = {self.dead_time:g}{unit}"
 
     def to_control(self, pade_order: int | None = None) -> Any:
         """The model as a python-control transfer function.

@@ -13,9 +13,19 @@ import numpy as np
 from robustff.stats import envelope_from_histogram, ratio_histogram
 from robustff.study import StudyResult
 
-__all__ = ["band_figure", "ratio_figure", "sensitivity_figure", "margins_figure", "save_figure", "FIGURES"]
+__all__ = [
+    "band_figure",
+    "ratio_figure",
+    "sensitivity_figure",
+    "margins_figure",
+    "save_figure",
+    "FIGURES",
+]
 
-_ARMS = (("fb", "feedback only", "-", "0.25", None), ("fbff", "feedback + feedforward", "--", "0.6", "//"))
+_ARMS = (
+    ("fb", "feedback only", "-", "0.25", None),
+    ("fbff", "feedback + feedforward", "--", "0.6", "//"),
+)
 
 
 def _pyplot():
@@ -33,11 +43,28 @@ def band_figure(result: StudyResult):
     signals, unit = result.case.signals, result.case.time_unit
     fig, ax = plt.subplots(figsize=(8, 4.2))
     for arm, (_, label, style, grey, hatch) in enumerate(_ARMS):
-        bands = envelope_from_histogram(result.envelope_counts[arm], result.envelope.edges, (5, 50, 95))
-        ax.fill_between(result.envelope.times, bands[0], bands[2], color=grey, alpha=0.35,
-                        hatch=hatch, edgecolor="0.3", linewidth=0, label=f"{label}: P5-P95")
-        ax.plot(result.envelope.times, bands[1], style, color="black", linewidth=1.4,
-                label=f"{label}: median")
+        bands = envelope_from_histogram(
+            result.envelope_counts[arm], result.envelope.edges, (5, 50, 95)
+        )
+        ax.fill_between(
+            result.envelope.times,
+            bands[0],
+            bands[2],
+            color=grey,
+            alpha=0.35,
+            hatch=hatch,
+            edgecolor="0.3",
+            linewidth=0,
+            label=f"{label}: P5-P95",
+        )
+        ax.plot(
+            result.envelope.times,
+            bands[1],
+            style,
+            color="black",
+            linewidth=1.4,
+            label=f"{label}: median",
+        )
     ax.axhline(0.0, color="0.5", linewidth=0.8)
     ax.set_xlabel(f"time [{unit}]")
     ax.set_ylabel(f"{signals.controlled.name} deviation [{signals.controlled.unit or 'CV units'}]")
@@ -55,11 +82,24 @@ def ratio_figure(result: StudyResult):
         ratio = np.where(iae[:, 0] > 0, iae[:, 1] / iae[:, 0], np.nan)
     counts, edges = ratio_histogram(ratio, bins=40)
     fig, ax = plt.subplots(figsize=(8, 3.8))
-    ax.bar(edges[:-1], counts, width=np.diff(edges), align="edge", color="0.55", edgecolor="black",
-           linewidth=0.4)
+    ax.bar(
+        edges[:-1],
+        counts,
+        width=np.diff(edges),
+        align="edge",
+        color="0.55",
+        edgecolor="black",
+        linewidth=0.4,
+    )
     top = max(float(counts.max(initial=0)), 1.0)
-    ax.axvspan(1.0, max(edges[-1], 1.05), color="0.85", hatch="xx", alpha=0.5,
-               label="feedforward worse (ratio > 1)")
+    ax.axvspan(
+        1.0,
+        max(edges[-1], 1.05),
+        color="0.85",
+        hatch="xx",
+        alpha=0.5,
+        label="feedforward worse (ratio > 1)",
+    )
     ax.axvline(1.0, color="black", linewidth=1.5, linestyle="--", label="ratio = 1")
     ax.set_ylim(0, top * 1.1)
     ax.set_xlabel("IAE ratio, feedback + feedforward / feedback only [-]")
@@ -86,8 +126,14 @@ def sensitivity_figure(summary: dict):
     y = np.arange(len(rows))
     ax.barh(y, rho, color="0.6", edgecolor="black", hatch="..")
     if rows:
-        ax.errorbar(rho, y, xerr=[np.nan_to_num(rho - low), np.nan_to_num(high - rho)], fmt="none",
-                    ecolor="black", capsize=3)
+        ax.errorbar(
+            rho,
+            y,
+            xerr=[np.nan_to_num(rho - low), np.nan_to_num(high - rho)],
+            fmt="none",
+            ecolor="black",
+            capsize=3,
+        )
     ax.set_yticks(y, names)
     ax.axvline(0.0, color="black", linewidth=0.8)
     ax.set_xlim(-1, 1)
@@ -109,18 +155,21 @@ def margins_figure(margins: dict, values: dict[str, np.ndarray]):
     """
     plt = _pyplot()
     panels = (
-        ("gain_margin", "gain margin [-]", 2.0), ("phase_margin", "phase margin [deg]", 30.0),
+        ("gain_margin", "gain margin [-]", 2.0),
+        ("phase_margin", "phase margin [deg]", 30.0),
         ("delay_margin", f"delay margin [{margins.get('time_unit', 'time')}]", None),
         ("ms", "maximum sensitivity Ms [-]", 2.0),
     )
     fig, axes = plt.subplots(2, 2, figsize=(8, 5.5))
-    for ax, (key, label, limit) in zip(axes.ravel(), panels):
+    for ax, (key, label, limit) in zip(axes.ravel(), panels, strict=True):
         data = np.asarray(values.get(key, []), dtype=float)
         data = data[np.isfinite(data)]
         if data.size:
             ax.hist(data, bins=30, color="0.6", edgecolor="black", linewidth=0.4)
         if limit is not None:
-            ax.axvline(limit, color="black", linestyle="--", linewidth=1.2, label=f"limit {limit:g}")
+            ax.axvline(
+                limit, color="black", linestyle="--", linewidth=1.2, label=f"limit {limit:g}"
+            )
             ax.legend(fontsize=7)
         ax.set_xlabel(label)
         ax.set_ylabel("samples [count]")

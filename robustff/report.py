@@ -39,9 +39,10 @@ RESULT_FILES: tuple[str, ...] = ("summary.json", "percentiles.csv", "percentiles
 _ARM_LABELS = {"fb": "feedback only", "fbff": "feedback + feedforward"}
 
 
-def percentile_rows(summary: dict, percentiles: Sequence[float],
-                    metrics: Sequence[str] = METRIC_NAMES) -> list[list[str]]:
-    """Table rows ``[metric, arm, unit, P.., ...]`` with values formatted to 4 significant digits."""
+def percentile_rows(
+    summary: dict, percentiles: Sequence[float], metrics: Sequence[str] = METRIC_NAMES
+) -> list[list[str]]:
+    """Table rows ``[metric, arm, unit, P.., ...]``, values to 4 significant digits."""
     rows = []
     for name in metrics:
         for arm in ("fb", "fbff"):
@@ -58,11 +59,12 @@ def _number(value: float | None) -> str:
 def risk_sentence(summary: dict, metric: str = "iae") -> str:
     """One line on the probability that feedforward makes ``metric`` worse."""
     harm = summary["ff_worse"][metric]
+    label = "IAE" if metric == "iae" else metric.replace("_", " ")
     low, high = harm["ci95"]
     if harm["probability"] is None:
         return f"Feedforward worse ({metric.upper()}): no usable samples"
     return (
-        f"Feedforward makes {metric.replace('_', ' ').upper() if metric == 'iae' else metric.replace('_', ' ')} "
+        f"Feedforward makes {label} "
         f"worse in {100 * harm['probability']:.1f} % of plants "
         f"(95 % interval {100 * low:.1f} to {100 * high:.1f} %, {harm['count']} of {harm['n']})"
     )
@@ -144,8 +146,11 @@ def check_output_folder(folder: Path) -> None:
     if folder.exists() and not folder.is_dir():
         raise RobustffError(f"--out {folder}: exists and is not a folder")
     if folder.is_dir():
-        foreign = sorted(p.name for p in folder.iterdir() if p.name not in RESULT_FILES
-                         and not p.name.startswith(("report", "plot-")))
+        foreign = sorted(
+            p.name
+            for p in folder.iterdir()
+            if p.name not in RESULT_FILES and not p.name.startswith(("report", "plot-"))
+        )
         if foreign:
             raise RobustffError(
                 f"--out {folder}: the folder holds files robustff did not write "
@@ -182,9 +187,13 @@ def write_results(
     folder.parent.mkdir(parents=True, exist_ok=True)
     staging = Path(tempfile.mkdtemp(prefix=f".{folder.name}.", dir=folder.parent))
     try:
-        (staging / "summary.json").write_text(json.dumps(json_safe(summary), indent=2, allow_nan=False) + "\n")
+        (staging / "summary.json").write_text(
+            json.dumps(json_safe(summary), indent=2, allow_nan=False) + "\n"
+        )
         header = ["metric", "arm", "unit", *[f"p{p:g}" for p in percentiles]]
-        (staging / "percentiles.csv").write_text(_csv_text([header, *percentile_rows(summary, percentiles)]))
+        (staging / "percentiles.csv").write_text(
+            _csv_text([header, *percentile_rows(summary, percentiles)])
+        )
         (staging / "percentiles.md").write_text(percentiles_markdown(summary, percentiles))
         (staging / "samples.csv").write_text(_samples_csv(result))
         if extra is not None:

@@ -127,12 +127,19 @@ def _chunk_seeds(seed: int, chunk: _Chunk) -> np.ndarray:
 
 
 def _run_chunk(
-    case: Case, design: LoopDesign, scenario: Scenario, grid: EnvelopeGrid,
-    names: list[str], values: np.ndarray, seeds: np.ndarray, keep: int,
+    case: Case,
+    design: LoopDesign,
+    scenario: Scenario,
+    grid: EnvelopeGrid,
+    names: list[str],
+    values: np.ndarray,
+    seeds: np.ndarray,
+    keep: int,
 ):
     batch = plant_batch(case, names, values)
-    result = simulate(batch, design, scenario, seeds=seeds, envelope=grid,
-                      keep=np.arange(min(keep, batch.size)))
+    result = simulate(
+        batch, design, scenario, seeds=seeds, envelope=grid, keep=np.arange(min(keep, batch.size))
+    )
     return result
 
 
@@ -149,7 +156,10 @@ def _parallel_results(tasks: list, jobs: int, cluster: str | None) -> Iterator:
         return
     from distributed import Client  # the "cluster" extra
 
-    with Client(cluster) as client, joblib.parallel_config(backend="dask", wait_for_workers_timeout=30):
+    with (
+        Client(cluster) as client,
+        joblib.parallel_config(backend="dask", wait_for_workers_timeout=30),
+    ):
         del client
         yield from joblib.Parallel(return_as="generator")(tasks)
 
@@ -206,8 +216,16 @@ def run_study(
     from joblib import delayed
 
     tasks = [
-        delayed(_run_chunk)(case, design, scenario, grid, names, values[c.start:c.stop],
-                            _chunk_seeds(seed, c), KEPT_TRAJECTORIES if c.index == 0 else 0)
+        delayed(_run_chunk)(
+            case,
+            design,
+            scenario,
+            grid,
+            names,
+            values[c.start : c.stop],
+            _chunk_seeds(seed, c),
+            KEPT_TRAJECTORIES if c.index == 0 else 0,
+        )
         for c in chunks
     ]
     results, partial = [], False
@@ -216,7 +234,7 @@ def run_study(
     cancel = cancel or threading.Event()
     generator = _parallel_results(tasks, jobs, cluster)
     try:
-        for chunk, result in zip(chunks, generator):
+        for chunk, result in zip(chunks, generator, strict=False):
             counts += result.envelope_counts
             result.envelope_counts = None
             results.append(result)
@@ -231,8 +249,21 @@ def run_study(
         close = getattr(generator, "close", None)
         if close is not None:
             close()
-    result = _assemble(case, design, scenario, grid, names, values, results, counts, nominal_traj,
-                       seed, n, partial or len(results) < len(chunks), 0.0)
+    result = _assemble(
+        case,
+        design,
+        scenario,
+        grid,
+        names,
+        values,
+        results,
+        counts,
+        nominal_traj,
+        seed,
+        n,
+        partial or len(results) < len(chunks),
+        0.0,
+    )
     if margins:
         subset = min(result.samples, MARGIN_SAMPLES)
         result.margins = loop_margins(plant_batch(case, names, values[:subset]), design.feedback)
@@ -241,16 +272,46 @@ def run_study(
     return result
 
 
-def _assemble(case, design, scenario, grid, names, values, results, counts, nominal_traj, seed,
-              n, partial, elapsed) -> StudyResult:
+def _assemble(
+    case,
+    design,
+    scenario,
+    grid,
+    names,
+    values,
+    results,
+    counts,
+    nominal_traj,
+    seed,
+    n,
+    partial,
+    elapsed,
+) -> StudyResult:
     done = sum(r.unstable.shape[0] for r in results)
     metrics = {
         name: (np.concatenate([r.metrics[name] for r in results]) if results else np.empty((0, 2)))
         for name in METRIC_NAMES
     }
     unstable = np.concatenate([r.unstable for r in results]) if results else np.empty((0, 2), bool)
-    kept = results[0].trajectories if results and results[0].trajectories is not None else np.empty((0, 4, scenario.n_steps))
+    kept = (
+        results[0].trajectories
+        if results and results[0].trajectories is not None
+        else np.empty((0, 4, scenario.n_steps))
+    )
     return StudyResult(
-        case, design, scenario, names, values[:done], metrics, unstable, grid, counts,
-        nominal_traj, kept, seed, n, partial, elapsed,
+        case,
+        design,
+        scenario,
+        names,
+        values[:done],
+        metrics,
+        unstable,
+        grid,
+        counts,
+        nominal_traj,
+        kept,
+        seed,
+        n,
+        partial,
+        elapsed,
     )

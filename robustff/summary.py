@@ -24,7 +24,13 @@ from robustff.stats import (
 )
 from robustff.study import StudyResult
 
-__all__ = ["summarize_study", "metric_unit", "nominal_margin_warnings", "HARM_METRICS", "PAIRED_METRICS"]
+__all__ = [
+    "summarize_study",
+    "metric_unit",
+    "nominal_margin_warnings",
+    "HARM_METRICS",
+    "PAIRED_METRICS",
+]
 
 #: Metrics for which the probability that feedforward makes things worse is reported.
 HARM_METRICS: tuple[str, ...] = ("iae", "peak_deviation")
@@ -36,7 +42,9 @@ def metric_unit(result: StudyResult, metric: str) -> str:
     """Engineering unit of a metric for this case, e.g. ``degC*s``."""
     signals = result.case.signals
     return METRIC_UNITS[metric].format(
-        cv=signals.controlled.unit or "CV", u=signals.output.unit or "output", t=result.case.time_unit
+        cv=signals.controlled.unit or "CV",
+        u=signals.output.unit or "output",
+        t=result.case.time_unit,
     )
 
 
@@ -46,8 +54,12 @@ def _versions() -> dict[str, str]:
     import scipy
 
     return {
-        "robustff": __version__, "python": platform.python_version(), "numpy": np.__version__,
-        "scipy": scipy.__version__, "numba": numba.__version__, "joblib": joblib.__version__,
+        "robustff": __version__,
+        "python": platform.python_version(),
+        "numpy": np.__version__,
+        "scipy": scipy.__version__,
+        "numba": numba.__version__,
+        "joblib": joblib.__version__,
     }
 
 
@@ -69,8 +81,10 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> dict | None:
     nominal = result.nominal_margins
     out["samples"] = subset
     out["nominal"] = {
-        "gain_margin": float(nominal.gain_margin[0]), "phase_margin": float(nominal.phase_margin[0]),
-        "delay_margin": float(nominal.delay_margin[0]), "ms": float(nominal.ms[0]),
+        "gain_margin": float(nominal.gain_margin[0]),
+        "phase_margin": float(nominal.phase_margin[0]),
+        "delay_margin": float(nominal.delay_margin[0]),
+        "ms": float(nominal.ms[0]),
         "stable": bool(nominal.stable[0]),
     }
     out["nominal_warnings"] = nominal_margin_warnings(out["nominal"])
@@ -92,7 +106,9 @@ def nominal_margin_warnings(nominal: dict) -> list[str]:
     return warnings
 
 
-def summarize_study(result: StudyResult, percentiles: Sequence[float] = DEFAULT_PERCENTILES) -> dict:
+def summarize_study(
+    result: StudyResult, percentiles: Sequence[float] = DEFAULT_PERCENTILES
+) -> dict:
     """The study's statistics.
 
     Parameters
@@ -116,7 +132,9 @@ def summarize_study(result: StudyResult, percentiles: Sequence[float] = DEFAULT_
     }
     improvement, ratio = {}, {}
     for name in PAIRED_METRICS:
-        paired = paired_comparison(result.metrics[name][:, 0], result.metrics[name][:, 1], percentiles)
+        paired = paired_comparison(
+            result.metrics[name][:, 0], result.metrics[name][:, 1], percentiles
+        )
         improvement[name] = paired["improvement_summary"].to_dict()
         ratio[name] = paired["ratio_summary"].to_dict()
     harm = {
@@ -127,8 +145,10 @@ def summarize_study(result: StudyResult, percentiles: Sequence[float] = DEFAULT_
     sensitivity = []
     if result.names and result.samples > 3:
         harmful = result.metrics["iae"][:, 1] > result.metrics["iae"][:, 0]
-        sensitivity = [row.to_dict() for row in rank_sensitivity(
-            result.parameters, result.names, iae_ratio, harmful)]
+        sensitivity = [
+            row.to_dict()
+            for row in rank_sensitivity(result.parameters, result.names, iae_ratio, harmful)
+        ]
     return {
         "case": result.case.name,
         "title": result.case.title,
@@ -143,11 +163,15 @@ def summarize_study(result: StudyResult, percentiles: Sequence[float] = DEFAULT_
         "improvement": improvement,
         "ratio": ratio,
         "ff_worse": {name: estimate.to_dict() for name, estimate in harm.items()},
-        "unstable": {"fb": int(result.unstable[:, 0].sum()), "fbff": int(result.unstable[:, 1].sum())},
+        "unstable": {
+            "fb": int(result.unstable[:, 0].sum()),
+            "fbff": int(result.unstable[:, 1].sum()),
+        },
         "convergence": {
             "ff_worse_iae": convergence_for_probability(harm["iae"]).to_dict(),
             "iae_fbff": convergence_for_percentile(result.metrics["iae"][:, 1]).to_dict()
-            if np.isfinite(result.metrics["iae"][:, 1]).sum() > 1 else None,
+            if np.isfinite(result.metrics["iae"][:, 1]).sum() > 1
+            else None,
         },
         "sensitivity": sensitivity,
         "margins": _margins(result, percentiles),

@@ -152,7 +152,11 @@ class LoopDesign:
             f"Feedback ({fb.rule}): {fb.form.upper()} Kc = {fb.kc:.4g} "
             f"{case.signals.output.unit or 'output'}/{case.signals.controlled.unit or 'CV'}, "
             f"Ti = {fb.ti:.4g} {unit}, Td = {fb.td:.4g} {unit}"
-            + ("" if math.isnan(fb.closed_loop_time) else f", tau_c = {fb.closed_loop_time:.4g} {unit}"),
+            + (
+                ""
+                if math.isnan(fb.closed_loop_time)
+                else f", tau_c = {fb.closed_loop_time:.4g} {unit}"
+            ),
             f"  output limits {fb.output_low:g} .. {fb.output_high:g}, bias {fb.output_bias:g}; "
             f"anti-windup: back-calculation, Tt = {fb.tracking_time:.4g} {unit}",
         ]
@@ -188,7 +192,9 @@ def series_to_ideal(kc: float, ti: float, td: float) -> tuple[float, float, floa
 def _half_rule(model: TransferModel) -> TransferModel:
     """SOPDT -> FOPDT by Skogestad's half rule (half of tau2 to the lag, half to the delay)."""
     half = 0.5 * model.time_constant_2
-    return TransferModel("fopdt", model.gain, model.time_constant + half, 0.0, model.dead_time + half)
+    return TransferModel(
+        "fopdt", model.gain, model.time_constant + half, 0.0, model.dead_time + half
+    )
 
 
 def _simc(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float, str]:
@@ -224,7 +230,9 @@ def _imc(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, f
     return tau / (k * (tau_c + theta)), tau, 0.0
 
 
-def tune_feedback(process: TransferModel, spec: FeedbackSpec, step: float) -> tuple[FeedbackSettings, list[str]]:
+def tune_feedback(
+    process: TransferModel, spec: FeedbackSpec, step: float
+) -> tuple[FeedbackSettings, list[str]]:
     """Design the feedback controller from the nominal process model.
 
     Parameters
@@ -262,13 +270,24 @@ def tune_feedback(process: TransferModel, spec: FeedbackSpec, step: float) -> tu
             kc, ti, td = _imc(process, spec.form, tau_c)
         rule = f"{spec.tuning.upper()}"
         if spec.form == "pid" and td == 0.0:
-            notes.append(f"{rule} gives no derivative action for a {process.kind.upper()} model: Td = 0")
+            notes.append(
+                f"{rule} gives no derivative action for a {process.kind.upper()} model: Td = 0"
+            )
     if spec.form == "pi":
         td = 0.0
     tracking = ti if td == 0.0 else math.sqrt(ti * td)
     settings = FeedbackSettings(
-        spec.form, kc, ti, td, DERIVATIVE_FILTER_FRACTION * td, tracking,
-        spec.output_low, spec.output_high, spec.output_bias, tau_c, rule,
+        spec.form,
+        kc,
+        ti,
+        td,
+        DERIVATIVE_FILTER_FRACTION * td,
+        tracking,
+        spec.output_low,
+        spec.output_high,
+        spec.output_bias,
+        tau_c,
+        rule,
     )
     return settings, notes
 
@@ -297,8 +316,9 @@ def design_feedforward(
     if process.integrating != disturbance.integrating:
         raise DesignError(
             "feedforward: an integrating and a self-regulating path cannot be compensated by a "
-            "static/lead-lag feedforward (the ideal compensator is a differentiator or an integrator); "
-            "model both paths as integrating, or use structure = \"none\""
+            "static/lead-lag feedforward (the ideal compensator is a differentiator or an "
+            "integrator); "
+            'model both paths as integrating, or use structure = "none"'
         )
     gain = -disturbance.gain / process.gain * spec.gain_factor
     lead = lag = delay = 0.0
@@ -306,12 +326,15 @@ def design_feedforward(
         lead, lag = process.total_lag, disturbance.total_lag
         if lag <= 0.0 and lead > 0.0:
             lag = max(0.1 * lead, step)
-            notes.append(f"disturbance path has no lag: compensator lag set to {lag:g} to keep it proper")
+            notes.append(
+                f"disturbance path has no lag: compensator lag set to {lag:g} to keep it proper"
+            )
     shortfall = process.dead_time - disturbance.dead_time
     if structure == "lead-lag-delay":
         if shortfall > 0.0:
             notes.append(
-                f"the disturbance dead time is shorter than the process dead time by {shortfall:g}: "
+                "the disturbance dead time is shorter than the process dead time by "
+                f"{shortfall:g}: "
                 "the ideal delay is negative, not realizable; delay dropped"
             )
         else:

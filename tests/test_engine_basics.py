@@ -11,10 +11,13 @@ from robustff.tuning import design_loop
 
 def make_case(structure="lead-lag-delay", process_dead=3.0, disturbance_dead=4.0, step=0.05):
     return Case(
-        "test", "min",
+        "test",
+        "min",
         TransferModel("fopdt", 2.0, 10.0, 0.0, process_dead),
         TransferModel("fopdt", 1.5, 5.0, 0.0, disturbance_dead),
-        FeedbackSpec(), FeedforwardSpec(structure), SimulationSpec(150.0, step),
+        FeedbackSpec(),
+        FeedforwardSpec(structure),
+        SimulationSpec(150.0, step),
         (Event("disturbance-step", 5.0, 1.0),),
     )
 

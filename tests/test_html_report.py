@@ -11,8 +11,19 @@ PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 
 def test_report_embeds_every_image_and_the_caution(tmp_path, capsys):
     out = tmp_path / "out"
-    status = main(["run", "cases/syrup-dilution.toml", "--samples", "300", "--jobs", "1",
-                   "--out", str(out), "--report"])
+    status = main(
+        [
+            "run",
+            "cases/syrup-dilution.toml",
+            "--samples",
+            "300",
+            "--jobs",
+            "1",
+            "--out",
+            str(out),
+            "--report",
+        ]
+    )
     assert status == 0
     page = (out / "report.html").read_text()
     assert "http://" not in page and "https://" not in page  # no network needed
@@ -30,5 +41,9 @@ def test_report_embeds_every_image_and_the_caution(tmp_path, capsys):
     margins = summary["margins"]
     for key in ("gain_margin", "phase_margin", "delay_margin", "ms"):
         assert {"p5", "p50", "p95"} <= set(margins[key])
-    assert set(margins["fraction_below_limits"]) == {"ms_above_2", "gain_margin_below_2", "phase_margin_below_30"}
+    assert set(margins["fraction_below_limits"]) == {
+        "ms_above_2",
+        "gain_margin_below_2",
+        "phase_margin_below_30",
+    }
     assert margins["nominal"]["stable"] is True

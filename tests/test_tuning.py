@@ -12,11 +12,14 @@ from robustff.tuning import design_feedforward, series_to_ideal, tune_feedback
 
 def test_simc_fopdt_pi_rule():
     # Source: Skogestad, "Simple analytic rules for model reduction and PID controller tuning",
-    # J. Process Control 13 (2003) 291-309: Kc = tau1/(k (tau_c + theta)), tau_I = min(tau1, 4(tau_c + theta)).
+    # J. Process Control 13 (2003) 291-309:
+    # Kc = tau1/(k (tau_c + theta)), tau_I = min(tau1, 4(tau_c + theta)).
     settings, _ = tune_feedback(TransferModel("fopdt", 2.0, 10.0, 0.0, 3.0), FeedbackSpec(), 0.1)
     assert settings.kc == pytest.approx(10.0 / (2.0 * 6.0))
     assert settings.ti == pytest.approx(min(10.0, 24.0))
-    lag_dominant, _ = tune_feedback(TransferModel("fopdt", 1.0, 100.0, 0.0, 1.0), FeedbackSpec(), 0.1)
+    lag_dominant, _ = tune_feedback(
+        TransferModel("fopdt", 1.0, 100.0, 0.0, 1.0), FeedbackSpec(), 0.1
+    )
     assert lag_dominant.ti == pytest.approx(8.0)  # 4 (tau_c + theta) caps tau_I
 
 
@@ -52,7 +55,9 @@ def test_imc_pid_fopdt_matches_pade_derivation():
     # controller is the series PID Kc' = tau/(k (tau_c + theta/2)), tau_I' = tau, tau_D' = theta/2.
     k, tau, theta, tau_c = 1.5, 8.0, 2.0, 3.0
     settings, _ = tune_feedback(
-        TransferModel("fopdt", k, tau, 0.0, theta), FeedbackSpec(form="pid", tuning="imc", closed_loop_time=tau_c), 0.1
+        TransferModel("fopdt", k, tau, 0.0, theta),
+        FeedbackSpec(form="pid", tuning="imc", closed_loop_time=tau_c),
+        0.1,
     )
     expected = series_to_ideal(tau / (k * (tau_c + theta / 2)), tau, theta / 2)
     assert (settings.kc, settings.ti, settings.td) == pytest.approx(expected)
@@ -71,7 +76,9 @@ def test_feedforward_structures_and_realizability():
     dropped, notes = design_feedforward(process, fast, FeedforwardSpec("lead-lag-delay"), 0.1)
     assert dropped.delay == 0.0 and any("not realizable" in n for n in notes)
     with pytest.raises(DesignError):
-        design_feedforward(TransferModel("ipdt", 1.0, 0, 0, 1.0), slow, FeedforwardSpec("static"), 0.1)
+        design_feedforward(
+            TransferModel("ipdt", 1.0, 0, 0, 1.0), slow, FeedforwardSpec("static"), 0.1
+        )
     assert math.isclose(
         design_feedforward(process, slow, FeedforwardSpec("lead-lag", lead=7.0), 0.1)[0].lead, 7.0
     )

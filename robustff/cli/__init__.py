@@ -35,7 +35,10 @@ class _Parser(argparse.ArgumentParser):
     """An argument parser whose usage errors exit with status 2 and one clear line."""
 
     def error(self, message: str) -> None:  # type: ignore[override]
-        self.exit(EXIT_USAGE, f"robustff: error: {message} (see 'robustff {self.prog.split()[-1]} --help')\n")
+        self.exit(
+            EXIT_USAGE,
+            f"robustff: error: {message} (see 'robustff {self.prog.split()[-1]} --help')\n",
+        )
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -74,7 +77,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_USAGE
     except OSError as exc:
         target = f" {exc.filename}" if exc.filename else ""
-        print(f"robustff: error: cannot read or write{target}: {exc.strerror or exc}", file=sys.stderr)
+        print(
+            f"robustff: error: cannot read or write{target}: {exc.strerror or exc}", file=sys.stderr
+        )
         return EXIT_USAGE
     except KeyboardInterrupt:
         print("robustff: interrupted", file=sys.stderr)

@@ -18,20 +18,34 @@ _TABLE_METRICS = ("iae", "peak_deviation", "overshoot", "settling_time", "valve_
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
-        "run", help="run the Monte Carlo study of a case and write the result files",
+        "run",
+        help="run the Monte Carlo study of a case and write the result files",
         description="Run the Monte Carlo study of CASE (feedback only vs feedback + feedforward).",
     )
     parser.add_argument("case", metavar="CASE.toml", help="case file")
-    parser.add_argument("--samples", type=_positive_int, help="number of perturbed plants (default: the case's)")
+    parser.add_argument(
+        "--samples", type=_positive_int, help="number of perturbed plants (default: the case's)"
+    )
     parser.add_argument("--seed", type=_non_negative_int, help="random seed (default: the case's)")
     parser.add_argument("--jobs", type=_positive_int, help="parallel workers (default: all cores)")
     parser.add_argument("--out", metavar="DIR", help="result folder (default: results/<case name>)")
-    parser.add_argument("--percentiles", type=parse_percentiles, default=None, metavar="P,P,...",
-                        help="percentiles to report, e.g. 5,50,95 (default: 5,10,50,90,95,99)")
-    parser.add_argument("--cluster", metavar="tcp://HOST:PORT",
-                        help="run the chunks on a Dask cluster (needs the 'cluster' extra)")
-    parser.add_argument("--report", action="store_true",
-                        help="also write report.html and PNG/SVG plots (needs matplotlib)")
+    parser.add_argument(
+        "--percentiles",
+        type=parse_percentiles,
+        default=None,
+        metavar="P,P,...",
+        help="percentiles to report, e.g. 5,50,95 (default: 5,10,50,90,95,99)",
+    )
+    parser.add_argument(
+        "--cluster",
+        metavar="tcp://HOST:PORT",
+        help="run the chunks on a Dask cluster (needs the 'cluster' extra)",
+    )
+    parser.add_argument(
+        "--report",
+        action="store_true",
+        help="also write report.html and PNG/SVG plots (needs matplotlib)",
+    )
     parser.set_defaults(func=execute)
 
 
@@ -60,9 +74,13 @@ def parse_percentiles(text: str) -> tuple[float, ...]:
     try:
         values = tuple(sorted({float(part) for part in text.split(",") if part.strip()}))
     except ValueError:
-        raise argparse.ArgumentTypeError(f"expected numbers separated by commas, got {text!r}") from None
+        raise argparse.ArgumentTypeError(
+            f"expected numbers separated by commas, got {text!r}"
+        ) from None
     if not values or any(not 0.0 < v < 100.0 for v in values):
-        raise argparse.ArgumentTypeError(f"percentiles must lie strictly between 0 and 100, got {text!r}")
+        raise argparse.ArgumentTypeError(
+            f"percentiles must lie strictly between 0 and 100, got {text!r}"
+        )
     return values
 
 
@@ -80,12 +98,16 @@ class ProgressPrinter:
         elapsed = time.perf_counter() - self.started
         if self.tty:
             filled = int(30 * fraction)
-            self.stream.write(f"\r[{'#' * filled}{'.' * (30 - filled)}] {done}/{total} samples {elapsed:5.1f} s")
+            self.stream.write(
+                f"\r[{'#' * filled}{'.' * (30 - filled)}] {done}/{total} samples {elapsed:5.1f} s"
+            )
             if done >= total:
                 self.stream.write("\n")
         elif int(10 * fraction) > self.last_tenth:
             self.last_tenth = int(10 * fraction)
-            self.stream.write(f"progress: {done}/{total} samples ({100 * fraction:.0f} %), {elapsed:.1f} s\n")
+            self.stream.write(
+                f"progress: {done}/{total} samples ({100 * fraction:.0f} %), {elapsed:.1f} s\n"
+            )
         self.stream.flush()
 
 
@@ -96,16 +118,24 @@ def _print_table(summary: dict, percentiles) -> None:
     header = ["metric", "arm", "unit", *[f"P{p:g}" for p in percentiles]]
     widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
     for row in [header, *rows]:
-        print("  ".join(str(cell).rjust(w) if i > 2 else str(cell).ljust(w)
-                        for i, (cell, w) in enumerate(zip(row, widths))))
+        print(
+            "  ".join(
+                str(cell).rjust(w) if i > 2 else str(cell).ljust(w)
+                for i, (cell, w) in enumerate(zip(row, widths, strict=True))
+            )
+        )
 
 
 def _margin_values(result) -> dict | None:
     if result.margins is None:
         return None
     m = result.margins
-    return {"gain_margin": m.gain_margin, "phase_margin": m.phase_margin,
-            "delay_margin": m.delay_margin, "ms": m.ms}
+    return {
+        "gain_margin": m.gain_margin,
+        "phase_margin": m.phase_margin,
+        "delay_margin": m.delay_margin,
+        "ms": m.ms,
+    }
 
 
 def execute(args: argparse.Namespace) -> int:
@@ -124,16 +154,28 @@ def execute(args: argparse.Namespace) -> int:
         try:
             import distributed  # noqa: F401
         except ImportError:
-            raise RobustffError("--cluster needs dask.distributed: pip install 'robustff[cluster]'") from None
+            raise RobustffError(
+                "--cluster needs dask.distributed: pip install 'robustff[cluster]'"
+            ) from None
     cancel = threading.Event()
-    result = run_study(case, samples=args.samples, seed=args.seed, jobs=args.jobs,
-                       cluster=args.cluster, progress=ProgressPrinter(), cancel=cancel)
+    result = run_study(
+        case,
+        samples=args.samples,
+        seed=args.seed,
+        jobs=args.jobs,
+        cluster=args.cluster,
+        progress=ProgressPrinter(),
+        cancel=cancel,
+    )
     if result.samples == 0:
         print("robustff: interrupted before any sample finished; nothing written", file=sys.stderr)
         return EXIT_INTERRUPTED
     if result.partial:
-        print(f"robustff: interrupted: {result.samples} of {result.requested} samples finished; "
-              "writing partial results", file=sys.stderr)
+        print(
+            f"robustff: interrupted: {result.samples} of {result.requested} samples finished; "
+            "writing partial results",
+            file=sys.stderr,
+        )
     summary = summarize_study(result, percentiles)
     extra = None
     if args.report:
@@ -144,20 +186,29 @@ def execute(args: argparse.Namespace) -> int:
 
     write_results(result, summary, out, percentiles, extra=extra)
     print(f"{case.title}")
-    print(f"{result.samples} samples" + (" (PARTIAL)" if result.partial else "")
-          + f", seed {result.seed}, {result.elapsed:.2f} s")
+    print(
+        f"{result.samples} samples"
+        + (" (PARTIAL)" if result.partial else "")
+        + f", seed {result.seed}, {result.elapsed:.2f} s"
+    )
     _print_table(summary, percentiles)
     print(risk_sentence(summary, "iae"))
     print(risk_sentence(summary, "peak_deviation"))
-    print(f"Unstable samples: {summary['unstable']['fb']} feedback only, {summary['unstable']['fbff']} with feedforward")
+    print(
+        f"Unstable samples: {summary['unstable']['fb']} feedback only, "
+        f"{summary['unstable']['fbff']} with feedforward"
+    )
     print(summary["convergence"]["ff_worse_iae"]["message"])
     margins = summary.get("margins")
     if margins:
         nominal = margins["nominal"]
-        print(f"Feedback margins (nominal): GM {nominal['gain_margin']:.3g}, PM {nominal['phase_margin']:.3g} deg, "
-              f"Ms {nominal['ms']:.3g}; across {margins['samples']} samples: "
-              f"{100 * margins['fraction_below_limits']['ms_above_2']:.1f} % with Ms > 2, "
-              f"{margins['unstable']} unstable")
+        print(
+            f"Feedback margins (nominal): GM {nominal['gain_margin']:.3g}, "
+            f"PM {nominal['phase_margin']:.3g} deg, "
+            f"Ms {nominal['ms']:.3g}; across {margins['samples']} samples: "
+            f"{100 * margins['fraction_below_limits']['ms_above_2']:.1f} % with Ms > 2, "
+            f"{margins['unstable']} unstable"
+        )
         for warning in margins["nominal_warnings"]:
             print(f"WARNING: {warning}")
     print(f"Results written to {out}/")

@@ -13,7 +13,12 @@ import numpy as np
 
 from robustff.case import Case
 from robustff.engine.kernel import ACCUMULATOR_NAMES, N_ACCUMULATORS, simulate_kernel
-from robustff.engine.scenario import Scenario, disturbance_direction, divergence_limit, event_profiles
+from robustff.engine.scenario import (
+    Scenario,
+    disturbance_direction,
+    divergence_limit,
+    event_profiles,
+)
 from robustff.metrics import metrics_from_accumulators
 from robustff.models import KIND_CODES, PlantBatch
 from robustff.tuning import LoopDesign
@@ -31,9 +36,16 @@ __all__ = [
 
 ARMS: tuple[str, str] = ("fb", "fbff")
 _PLANT_KEYS = (
-    "process.gain", "process.time_constant", "process.time_constant_2", "process.dead_time",
-    "disturbance.gain", "disturbance.time_constant", "disturbance.time_constant_2",
-    "disturbance.dead_time", "sensor.time_constant", "sensor.noise_std",
+    "process.gain",
+    "process.time_constant",
+    "process.time_constant_2",
+    "process.dead_time",
+    "disturbance.gain",
+    "disturbance.time_constant",
+    "disturbance.time_constant_2",
+    "disturbance.dead_time",
+    "sensor.time_constant",
+    "sensor.noise_std",
 )
 
 
@@ -56,8 +68,9 @@ class EnvelopeGrid:
     times: np.ndarray
 
     @classmethod
-    def spanning(cls, low: float, high: float, scenario: Scenario, points: int = 300,
-                 bins: int = 400) -> EnvelopeGrid:
+    def spanning(
+        cls, low: float, high: float, scenario: Scenario, points: int = 300, bins: int = 400
+    ) -> EnvelopeGrid:
         """A grid of ``points`` evenly spread samples and ``bins`` bins over ``[low, high]``."""
         n = scenario.n_steps
         points = min(points, n)
@@ -97,10 +110,18 @@ def plant_matrix(batch: PlantBatch) -> np.ndarray:
 
 def _controller_vector(design: LoopDesign, scenario: Scenario) -> np.ndarray:
     fb = design.feedback
-    return np.array([
-        fb.kc, fb.ti, fb.td, fb.filter_time, fb.tracking_time,
-        fb.output_low - fb.output_bias, fb.output_high - fb.output_bias, scenario.divergence_limit,
-    ])
+    return np.array(
+        [
+            fb.kc,
+            fb.ti,
+            fb.td,
+            fb.filter_time,
+            fb.tracking_time,
+            fb.output_low - fb.output_bias,
+            fb.output_high - fb.output_bias,
+            scenario.divergence_limit,
+        ]
+    )
 
 
 def _feedforward_vector(design: LoopDesign) -> np.ndarray:
@@ -158,15 +179,28 @@ def simulate(
     unstable = np.zeros((n, 2), dtype=np.bool_)
     simulate_kernel(
         np.array([KIND_CODES[batch.process_kind], KIND_CODES[batch.disturbance_kind]]),
-        plant_matrix(batch), np.asarray(seeds, dtype=np.uint64), scenario.step,
-        scenario.disturbance_profile, scenario.setpoint_profile, scenario.noise_events,
-        _controller_vector(design, scenario), _feedforward_vector(design),
+        plant_matrix(batch),
+        np.asarray(seeds, dtype=np.uint64),
+        scenario.step,
+        scenario.disturbance_profile,
+        scenario.setpoint_profile,
+        scenario.noise_events,
+        _controller_vector(design, scenario),
+        _feedforward_vector(design),
         np.array([scenario.event_start, scenario.settling_band, scenario.direction, 0.0]),
-        edges, index, slots, accumulators, unstable, counts, trajectories,
+        edges,
+        index,
+        slots,
+        accumulators,
+        unstable,
+        counts,
+        trajectories,
     )
     metrics = metrics_from_accumulators(accumulators, ACCUMULATOR_NAMES, scenario.setpoint_step)
     return SimulationResult(
-        metrics, unstable, counts if envelope is not None else None,
+        metrics,
+        unstable,
+        counts if envelope is not None else None,
         trajectories if keep.size else None,
     )
 
@@ -185,8 +219,15 @@ def build_scenario(case: Case, design: LoopDesign, settling_band: float | None =
     disturbance, setpoint, noise = event_profiles(case)
     direction, setpoint_step, start = disturbance_direction(case)
     scenario = Scenario(
-        case.simulation.step, disturbance, setpoint, noise, start, direction, setpoint_step,
-        np.inf, divergence_limit(case, design),
+        case.simulation.step,
+        disturbance,
+        setpoint,
+        noise,
+        start,
+        direction,
+        setpoint_step,
+        np.inf,
+        divergence_limit(case, design),
     )
     if settling_band is None:
         if setpoint_step:

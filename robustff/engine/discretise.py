@@ -70,7 +70,9 @@ def split_delay(dead_time: float, h: float) -> tuple[int, float]:
 
 
 @njit(cache=True, nogil=True)
-def block_coefficients(kind: int, gain: float, tau1: float, tau2: float, h: float, f: float) -> np.ndarray:
+def block_coefficients(
+    kind: int, gain: float, tau1: float, tau2: float, h: float, f: float
+) -> np.ndarray:
     """Update coefficients of one path for a sample time ``h`` and delay fraction ``f``.
 
     Parameters

@@ -104,7 +104,9 @@ def disturbance_direction(case: Case) -> tuple[float, float | None, float]:
     first = min(case.events, key=lambda event: event.at)
     if first.kind == "setpoint-step":
         return -float(np.sign(first.size) or 1.0), first.size, first.at
-    push = np.sign(case.disturbance.gain * (first.size if first.kind != "disturbance-noise" else 1.0))
+    push = np.sign(
+        case.disturbance.gain * (first.size if first.kind != "disturbance-noise" else 1.0)
+    )
     return float(push or 1.0), None, first.at
 
 
