@@ -249,20 +249,10 @@ def run_study(
         close = getattr(generator, "close", None)
         if close is not None:
             close()
-    result = _assemble(
-        case,
-        design,
-        scenario,
-        grid,
-        names,
-        values,
-        results,
-        counts,
-        nominal_traj,
-        seed,
-        n,
-        partial or len(results) < len(chunks),
-        0.0,
+    metrics, unstable, kept = _concatenate(results, scenario.n_steps)
+    result = StudyResult(
+        case, design, scenario, names, values[: unstable.shape[0]], metrics, unstable, grid,
+        counts, nominal_traj, kept, seed, n, partial or len(results) < len(chunks), 0.0,
     )
     if margins:
         subset = min(result.samples, MARGIN_SAMPLES)
@@ -272,46 +262,14 @@ def run_study(
     return result
 
 
-def _assemble(
-    case,
-    design,
-    scenario,
-    grid,
-    names,
-    values,
-    results,
-    counts,
-    nominal_traj,
-    seed,
-    n,
-    partial,
-    elapsed,
-) -> StudyResult:
-    done = sum(r.unstable.shape[0] for r in results)
-    metrics = {
-        name: (np.concatenate([r.metrics[name] for r in results]) if results else np.empty((0, 2)))
-        for name in METRIC_NAMES
-    }
-    unstable = np.concatenate([r.unstable for r in results]) if results else np.empty((0, 2), bool)
-    kept = (
-        results[0].trajectories
-        if results and results[0].trajectories is not None
-        else np.empty((0, 4, scenario.n_steps))
-    )
-    return StudyResult(
-        case,
-        design,
-        scenario,
-        names,
-        values[:done],
-        metrics,
-        unstable,
-        grid,
-        counts,
-        nominal_traj,
-        kept,
-        seed,
-        n,
-        partial,
-        elapsed,
-    )
+def _concatenate(
+    results: list, n_steps: int
+) -> tuple[dict[str, np.ndarray], np.ndarray, np.ndarray]:
+    """Per-sample metrics, unstable flags and kept trajectories of the finished chunks, in order."""
+    if not results:
+        empty = {name: np.empty((0, 2)) for name in METRIC_NAMES}
+        return empty, np.empty((0, 2), dtype=bool), np.empty((0, 4, n_steps))
+    metrics = {name: np.concatenate([r.metrics[name] for r in results]) for name in METRIC_NAMES}
+    unstable = np.concatenate([r.unstable for r in results])
+    kept = results[0].trajectories
+    return metrics, unstable, kept if kept is not None else np.empty((0, 4, n_steps))

@@ -9,6 +9,7 @@ import time
 from pathlib import Path
 
 from robustff import CAUTION
+from robustff.cli.arguments import non_negative_int, positive_int
 from robustff.errors import RobustffError
 
 __all__ = ["register", "parse_percentiles", "ProgressPrinter"]
@@ -24,10 +25,10 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     parser.add_argument("case", metavar="CASE.toml", help="case file")
     parser.add_argument(
-        "--samples", type=_positive_int, help="number of perturbed plants (default: the case's)"
+        "--samples", type=positive_int, help="number of perturbed plants (default: the case's)"
     )
-    parser.add_argument("--seed", type=_non_negative_int, help="random seed (default: the case's)")
-    parser.add_argument("--jobs", type=_positive_int, help="parallel workers (default: all cores)")
+    parser.add_argument("--seed", type=non_negative_int, help="random seed (default: the case's)")
+    parser.add_argument("--jobs", type=positive_int, help="parallel workers (default: all cores)")
     parser.add_argument("--out", metavar="DIR", help="result folder (default: results/<case name>)")
     parser.add_argument(
         "--percentiles",
@@ -47,26 +48,6 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         help="also write report.html and PNG/SVG plots (needs matplotlib)",
     )
     parser.set_defaults(func=execute)
-
-
-def _positive_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"expected a number >= 1, got {text!r}")
-    return value
-
-
-def _non_negative_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"expected a number >= 0, got {text!r}")
-    return value
 
 
 def parse_percentiles(text: str) -> tuple[float, ...]:

@@ -11,6 +11,7 @@ from dataclasses import replace
 from pathlib import Path
 
 from robustff import CAUTION
+from robustff.cli.arguments import non_negative_int, positive_int
 from robustff.errors import CaseError
 
 __all__ = ["register", "execute", "result_to_dict", "robust_case"]
@@ -33,37 +34,20 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--objective", choices=("p90", "cvar", "harm"), default="p90",
                         help="p90: 90th percentile of IAE (default); cvar: mean of the worst "
                              "10 %% of IAE; harm: probability that feedforward is worse")
-    parser.add_argument("--samples", type=_positive_int,
+    parser.add_argument("--samples", type=positive_int,
                         help="perturbed plants per sample set (default: the case's)")
-    parser.add_argument("--seed", type=_non_negative_int,
+    parser.add_argument("--seed", type=non_negative_int,
                         help="seed of the optimisation samples (default: the case's); the "
                              "fresh re-check uses seed + 1")
-    parser.add_argument("--jobs", type=_positive_int, help="threads (default: all cores)")
+    parser.add_argument("--jobs", type=positive_int, help="threads (default: all cores)")
     parser.add_argument("--out", metavar="DIR",
                         help="folder for the tuned case file (default: results/<case name>)")
-    parser.add_argument("--sobol", nargs="?", const=512, type=_positive_int, metavar="N",
+    parser.add_argument("--sobol", nargs="?", const=512, type=positive_int, metavar="N",
                         help="also compute first-order and total Sobol indices of the IAE ratio "
                              "(base sample size N, default 512; N x (parameters + 2) plants)")
     parser.add_argument("--json", action="store_true",
                         help="print one JSON object instead of the tables")
     parser.set_defaults(func=execute)
-
-
-def _positive_int(text: str) -> int:
-    value = _non_negative_int(text)
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"expected a number >= 1, got {text!r}")
-    return value
-
-
-def _non_negative_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"expected a number >= 0, got {text!r}")
-    return value
 
 
 def _finite(value: float) -> float | None:
