@@ -32,6 +32,8 @@ from textual.widgets import Input  # noqa: E402
 from robustff.tui.app import StudioApp  # noqa: E402
 from robustff.tui.dialogs import ChoiceScreen, HelpScreen  # noqa: E402
 from robustff.tui.messages import field_id  # noqa: E402
+from robustff.tui.robust_actions import ROBUST_SAMPLES, robust_sample_count  # noqa: E402
+from robustff.tui.robust_screens import RobustResultScreen  # noqa: E402
 
 SAMPLES = 300
 
@@ -190,6 +192,91 @@ def test_screen_text_at_small_and_large_terminals(case_file: Path, tmp_path: Pat
             await pilot.pause()
             assert isinstance(app.screen, HelpScreen) and "Ctrl+S" in app.screen_text()
             await pilot.press("escape")
+
+    asyncio.run(scenario())
+
+
+async def _wait_screen(app: StudioApp, pilot, kind: type, timeout: float = 90.0) -> None:
+    started = time.monotonic()
+    while not isinstance(app.screen, kind):
+        if time.monotonic() - started > timeout:
+            raise AssertionError(f"no {kind.__name__} in time (screen {app.screen!r})")
+        await pilot.pause(0.05)
+
+
+def test_robust_search_key_applies_the_searched_feedforward(
+        case_file: Path, tmp_path: Path) -> None:
+    """F6 runs the search of 'robustff tune' and applying writes its values into the case.
+
+    Outside check: on the optimisation samples the search starts from the nominal design and
+    keeps the best point it evaluated, so the robust P90 can be no worse than the nominal P90
+    (definition of a minimisation; the P90 is the linear-interpolation percentile, the same
+    definition as numpy.percentile's default, checked against it below).
+    """
+
+    async def scenario() -> None:
+        app = _app(case_file, tmp_path / "cache")
+        app.robust_budget = 6  # a few evaluations keep the test quick
+        async with app.run_test(size=(100, 30)) as pilot:
+            await _wait_results(app, pilot, 0)
+            await pilot.press("f6")
+            await pilot.pause()
+            assert isinstance(app.screen, ChoiceScreen) and "objective" in app.screen_text()
+            await pilot.press("p")
+            await _wait_screen(app, pilot, RobustResultScreen)
+            result = app.screen.result
+            assert result.objective == "p90" and result.samples == SAMPLES
+            optimisation = result.figures["robust"]["optimisation"]
+            assert optimisation.iae_p90 <= result.figures["nominal"]["optimisation"].iae_p90
+            text = app.screen_text()
+            for label in ("nominal", "robust", "gain factor", "lead [s]", "lag [s]",
+                          "P90 IAE, fresh samples", "P(harm), fresh", "apply"):
+                assert label in text, label
+            assert f"{result.figures['robust']['fresh'].iae_p90:.4g}" in text
+            before, version = app.case.feedforward, app.results_version
+            await pilot.press("a")
+            await _wait_results(app, pilot, version)
+            after = app.case.feedforward
+            assert after != before and after.structure == before.structure
+            for name in result.space.names:
+                assert getattr(after, name) == getattr(result.robust, name), name
+            assert app.dirty and app.recovery_file.exists()
+            assert read_recovery(app.recovery_file, case_file).case.feedforward == after
+            assert app.last_result.case.feedforward == after  # the rerun used the new values
+            await pilot.pause(0.2)
+            lag = app.query_one(f"#in-{field_id('feedforward.lag')}", Input)
+            assert lag.value == f"{after.lag:g}"
+        assert robust_sample_count(replace(app.case, study=replace(
+            app.case.study, samples=5 * ROBUST_SAMPLES))) == ROBUST_SAMPLES
+
+    asyncio.run(scenario())
+
+
+def test_p90_used_by_the_search_is_numpys_percentile() -> None:
+    import numpy as np
+
+    from robustff.robust_tuning import objective_value
+
+    # Source: NumPy reference, numpy.percentile, method="linear" (the default), NumPy 1.22+.
+    values = np.random.default_rng(3).lognormal(size=101)
+    assert objective_value("p90", values, values) == pytest.approx(np.percentile(values, 90.0))
+
+
+def test_robust_search_can_be_stopped(case_file: Path, tmp_path: Path) -> None:
+    async def scenario() -> None:
+        app = _app(case_file, tmp_path / "cache", live=False)
+        async with app.run_test(size=(80, 24)) as pilot:
+            await pilot.press("f6")
+            await pilot.pause()
+            await pilot.press("p")
+            await pilot.pause()
+            await pilot.press("escape")  # stops at the next objective evaluation
+            started = time.monotonic()
+            while app._robust_screen is not None:
+                assert time.monotonic() - started < 60
+                await pilot.pause(0.05)
+            assert not isinstance(app.screen, RobustResultScreen)
+            assert app.is_running and app.case.feedforward.lead is None
 
     asyncio.run(scenario())
 

@@ -25,6 +25,7 @@ from robustff.tui.messages import DistributionEdited, FieldEdited, KindChanged, 
 from robustff.tui.models_pane import ModelsPane
 from robustff.tui.pictures import PicturesPane
 from robustff.tui.results_pane import CautionLine, ResultsPane
+from robustff.tui.robust_actions import RobustActions
 from robustff.tui.uncertainty_pane import UncertaintyPane
 from robustff.tui.view import StudyView
 
@@ -34,7 +35,7 @@ __all__ = ["StudioApp", "QUICK_SAMPLES"]
 QUICK_SAMPLES = 500
 
 
-class StudioApp(FileActions, App[None]):
+class StudioApp(FileActions, RobustActions, App[None]):
     """Edit a case and watch the feedforward risk move.
 
     Parameters
@@ -59,6 +60,7 @@ class StudioApp(FileActions, App[None]):
         Binding("ctrl+e", "export", "Export"),
         Binding("ctrl+r", "reload", "Reload"),
         Binding("f5", "rerun", "Rerun"),
+        Binding("f6", "robust", "Robust ff"),
         Binding("ctrl+q", "quit", "Quit", priority=True),
     ]
 
@@ -87,7 +89,7 @@ class StudioApp(FileActions, App[None]):
                     yield ResultsPane(id="results")
                     yield PicturesPane(id="pictures")
                 yield CautionLine()
-        yield Footer()
+        yield Footer(compact=True, show_command_palette=False)
 
     def on_mount(self) -> None:
         self.refresh_title()
@@ -262,6 +264,7 @@ class StudioApp(FileActions, App[None]):
 
     def on_unmount(self) -> None:
         self._cancel.set()
+        self.stop_robust()
 
 
 def _reason(exc: CaseError) -> str:

@@ -5,6 +5,7 @@ from __future__ import annotations
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.markup import escape
 from textual.screen import ModalScreen
 from textual.widgets import Button, Input, Static
 
@@ -23,6 +24,12 @@ Runs
   Each edit cancels the running study and starts again: a quick pass of 500 plants first,
   then the case's sample count with a progress bar.   F5  rerun now
 
+Robust feedforward
+  F6  search the feedforward gain factor, lead, lag and delay that stay good across the
+      uncertainty (the search of 'robustff tune', on at most 1000 plants here); choose the
+      objective (P90 of IAE, CVaR, or probability of harm), Escape stops the search. The
+      result compares nominal and robust settings; [a] writes them into the case and reruns.
+
 Files
   Ctrl+S  save the case (atomic; comments kept where possible, else you are told)
   F2      save as...         Ctrl+E  export results (same files as 'robustff run --out')
@@ -34,7 +41,7 @@ Reading the results
   Histogram: IAE of fb+ff divided by fb for each plant; ┃ marks 1.0 (right of it ff hurts).
   Band plot: ░ fb only, ▒ fb+ff, ▓ both; o / x medians.
 
-F1 or ? opens this help; Escape closes it.
+F1 or ? opens this help; Escape closes it. Ctrl+P opens the command palette.
 """
 
 
@@ -66,7 +73,7 @@ class ChoiceScreen(ModalScreen[str]):
             yield Static(self.question, classes="question")
             with Horizontal(classes="buttons"):
                 for key, label in self.choices:
-                    yield Button(f"[{key}] {label}", id=f"choice-{key}", compact=True)
+                    yield Button(escape(f"[{key}] {label}"), id=f"choice-{key}", compact=True)
 
     def on_key(self, event) -> None:
         if event.key in {key for key, _ in self.choices}:

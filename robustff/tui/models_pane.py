@@ -18,6 +18,7 @@ _LABELS = {
     "dead_time": "dead time", "form": "form", "tuning": "tuning rule",
     "closed_loop_time": "tau_c", "kc": "Kc (manual)", "ti": "Ti (manual)", "td": "Td (manual)",
     "structure": "structure", "gain_factor": "gain factor",
+    "lead": "ff lead", "lag": "ff lag", "delay": "ff delay",
 }
 
 
@@ -89,7 +90,7 @@ class ModelsPane(Vertical):
         for name in ("form", "tuning", "closed_loop_time", "kc", "ti", "td"):
             yield FieldRow(case, f"feedback.{name}")
         yield Static("Feedforward", classes="section")
-        for name in ("structure", "gain_factor"):
+        for name in ("structure", "gain_factor", "lead", "lag", "delay"):
             yield FieldRow(case, f"feedforward.{name}")
         yield Static("", id="design-summary")
 

@@ -127,11 +127,13 @@ def margin_lines(summary: dict) -> tuple[str, ...]:
     if not margins:
         return ()
     nominal = margins["nominal"]
+    def spread(name: str) -> str:
+        return "/".join(_number(margins[name].get(k)) for k in ("p5", "p50", "p95"))
+
     lines = [
-        f"Margins nominal: GM {_number(nominal['gain_margin'])}, PM {_number(nominal['phase_margin'], '.0f')} deg, "
-        f"Ms {_number(nominal['ms'])}",
-        "  over samples P5/P50/P95: GM " + "/".join(_number(margins["gain_margin"].get(k)) for k in ("p5", "p50", "p95"))
-        + ", Ms " + "/".join(_number(margins["ms"].get(k)) for k in ("p5", "p50", "p95")),
+        f"Margins nominal: GM {_number(nominal['gain_margin'])}, "
+        f"PM {_number(nominal['phase_margin'], '.0f')} deg, Ms {_number(nominal['ms'])}",
+        f"  over samples P5/P50/P95: GM {spread('gain_margin')}, Ms {spread('ms')}",
     ]
     below = margins["fraction_below_limits"]
     if below.get("ms_above_2") is not None:

@@ -1,0 +1,140 @@
+"""Screens of the robust feedforward search: its progress, and nominal against robust settings.
+
+The comparison is formatted from a :class:`~robustff.robust_tuning.RobustResult` (no numbers are
+computed here). Every figure carries its label and unit in words, nothing depends on colour.
+"""
+
+from __future__ import annotations
+
+import math
+
+from rich.table import Table
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.markup import escape
+from textual.screen import ModalScreen
+from textual.widgets import Button, ProgressBar, Static
+
+from robustff import CAUTION
+
+__all__ = ["OBJECTIVE_CHOICES", "OBJECTIVE_WORDS", "RobustProgressScreen", "RobustResultScreen",
+           "comparison_table", "searched_values"]
+
+#: Keys and labels of the objective question (the first is the default).
+OBJECTIVE_CHOICES: list[tuple[str, str]] = [("p", "P90 of IAE"), ("c", "CVaR"), ("h", "P(harm)")]
+#: Key -> objective name of :func:`robustff.robust_tuning.robust_search`.
+OBJECTIVE_KEYS = {"p": "p90", "c": "cvar", "h": "harm"}
+#: What each objective minimises, in words.
+OBJECTIVE_WORDS = {
+    "p90": "P90 of IAE with feedforward",
+    "cvar": "CVaR90 of IAE with feedforward (mean of the worst 10 %)",
+    "harm": "probability that feedforward worsens IAE, with a median improvement",
+}
+
+
+def _number(value: float, digits: str = ".4g") -> str:
+    return "unstable" if not math.isfinite(value) else format(value, digits)
+
+
+def searched_values(result) -> dict[str, float]:
+    """The searched feedforward parameters of the robust settings (what applying writes)."""
+    return {name: float(getattr(result.robust, name)) for name in result.space.names}
+
+
+def comparison_table(result, time_unit: str) -> Table:
+    """Nominal against robust: settings, P90 IAE on both sample sets, probability of harm.
+
+    Parameters
+    ----------
+    result : robustff.robust_tuning.RobustResult
+    time_unit : str
+        The case's time unit (lead, lag and delay).
+    """
+    table = Table(box=None, padding=(0, 2, 0, 0), show_edge=False, header_style="bold")
+    table.add_column("", no_wrap=True)
+    table.add_column("nominal", justify="right", no_wrap=True)
+    table.add_column("robust", justify="right", no_wrap=True)
+    searched = set(result.space.names)
+    for name, label in (("gain_factor", "gain factor"), ("lead", f"lead [{time_unit}]"),
+                        ("lag", f"lag [{time_unit}]"), ("delay", f"delay [{time_unit}]")):
+        mark = "" if name in searched else " (kept)"
+        table.add_row(Text(label + mark), _number(getattr(result.nominal, name)),
+                      _number(getattr(result.robust, name)))
+    nominal, robust = result.figures["nominal"], result.figures["robust"]
+    for key, label in (("optimisation", "optimisation"), ("fresh", "fresh")):
+        table.add_row(f"P90 IAE, {label} samples", _number(nominal[key].iae_p90),
+                      _number(robust[key].iae_p90))
+    for key, label in (("optimisation", "optimisation"), ("fresh", "fresh")):
+        table.add_row(f"P(harm), {label}", f"{100 * nominal[key].harm:.1f} %",
+                      f"{100 * robust[key].harm:.1f} %")
+    if result.objective != "p90":
+        digits = ".3f" if result.objective == "harm" else ".4g"
+        table.add_row("objective, fresh", _number(nominal["fresh"].objective, digits),
+                      _number(result.objective_fresh, digits))
+    return table
+
+
+class RobustProgressScreen(ModalScreen[None]):
+    """Shown while the search runs; Escape stops it (the app owns the worker)."""
+
+    BINDINGS = [Binding("escape", "stop", "Stop the search")]
+
+    def __init__(self, text: str, budget: int | None) -> None:
+        super().__init__()
+        self.text = text
+        self.budget = budget
+
+    def compose(self) -> ComposeResult:
+        with Vertical(classes="dialog"):
+            yield Static(self.text, classes="question", id="robust-what")
+            yield ProgressBar(total=self.budget, show_eta=False, id="robust-progress")
+            yield Static("Preparing the sample sets...", id="robust-state")
+            yield Static("Escape: stop the search", classes="hint")
+
+    def show_progress(self, done: int, budget: int) -> None:
+        """One more objective evaluation finished."""
+        self.query_one("#robust-progress", ProgressBar).update(total=budget, progress=done)
+        self.query_one("#robust-state", Static).update(f"{done} of at most {budget} evaluations")
+
+    def action_stop(self) -> None:
+        self.query_one("#robust-state", Static).update("Stopping...")
+        self.app.stop_robust()
+
+
+class RobustResultScreen(ModalScreen[bool]):
+    """Nominal against robust settings; ``a`` applies (dismisses True), Escape keeps the case."""
+
+    BINDINGS = [Binding("a", "apply", "Apply"), Binding("escape,k", "keep", "Keep current")]
+
+    def __init__(self, result, time_unit: str, note: str) -> None:
+        super().__init__()
+        self.result = result
+        self.time_unit = time_unit
+        self.note = note
+
+    def compose(self) -> ComposeResult:
+        result = self.result
+        head = (f"Robust feedforward: minimises {OBJECTIVE_WORDS[result.objective]}. "
+                f"{result.evaluations} evaluations on {result.samples} plants, re-checked on "
+                f"{result.samples} fresh plants.")
+        with Vertical(classes="dialog", id="robust-dialog"):
+            with VerticalScroll(id="robust-body"):
+                yield Static(head, classes="question")
+                yield Static(comparison_table(result, self.time_unit), id="robust-table")
+                yield Static(f"{self.note}The optimisation figures flatter the winner (chosen on "
+                             "those plants); compare the fresh ones.", classes="hint")
+                yield Static(f"⚠ {CAUTION}", classes="hint")
+            with Horizontal(classes="buttons"):
+                yield Button(escape("[a] apply to the case"), id="robust-apply", compact=True)
+                yield Button(escape("[k] keep current"), id="robust-keep", compact=True)
+
+    def on_button_pressed(self, event: Button.Pressed) -> None:
+        self.dismiss(event.button.id == "robust-apply")
+
+    def action_apply(self) -> None:
+        self.dismiss(True)
+
+    def action_keep(self) -> None:
+        self.dismiss(False)
