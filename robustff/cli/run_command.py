@@ -107,6 +107,18 @@ def _print_table(summary: dict, percentiles) -> None:
         )
 
 
+def _print_drivers(summary: dict, rows: int = 5) -> None:
+    """The ranked rank correlations of the uncertain parameters with the IAE ratio."""
+    ranking = [row for row in summary.get("sensitivity", []) if row.get("rho") is not None]
+    if not ranking:
+        return
+    print("What drives the IAE ratio fbff/fb (Spearman rank correlation, 95 % interval):")
+    for row in ranking[:rows]:
+        low, high = row["ci95"]
+        interval = "" if low is None or high is None else f"  [{low:+.2f}, {high:+.2f}]"
+        print(f"  {row['name']:<28} {row['rho']:+.2f}{interval}")
+
+
 def _margin_values(result) -> dict | None:
     if result.margins is None:
         return None
@@ -180,6 +192,7 @@ def execute(args: argparse.Namespace) -> int:
         f"{summary['unstable']['fbff']} with feedforward"
     )
     print(summary["convergence"]["ff_worse_iae"]["message"])
+    _print_drivers(summary)
     margins = summary.get("margins")
     if margins:
         nominal = margins["nominal"]
