@@ -9,6 +9,8 @@ in a thread worker; finished passes come back through ``call_from_thread`` as a
 from __future__ import annotations
 
 import threading
+import time
+from dataclasses import replace
 from pathlib import Path
 
 from textual import work
@@ -33,6 +35,8 @@ __all__ = ["StudioApp", "QUICK_SAMPLES"]
 
 #: Samples of the quick first pass after an edit.
 QUICK_SAMPLES = 500
+#: Shown instead of the stability margins until the full pass has computed them.
+MARGINS_PENDING = "Margins: computed with the full run..."
 
 
 class StudioApp(FileActions, RobustActions, App[None]):
@@ -73,6 +77,8 @@ class StudioApp(FileActions, RobustActions, App[None]):
         self.last_view: StudyView | None = None
         self.last_result = None
         self.last_summary: dict | None = None
+        #: (perf_counter time, quick) of each result handed to the panes (for the benchmark).
+        self.result_log: list[tuple[float, bool]] = []
         self._generation = 0
         self._cancel = threading.Event()
 
@@ -96,8 +102,8 @@ class StudioApp(FileActions, RobustActions, App[None]):
         self.show_design()
         self.offer_recovery()
         # The first run imports and loads the compiled simulator, which holds the GIL for a
-        # while: start it just after the first paint so the screen appears at once.
-        self.set_timer(0.25, self.start_run)
+        # while: start it once the first frame is drawn so the screen appears at once.
+        self.call_after_refresh(self.start_run)
 
     # --- edits ------------------------------------------------------------------------------
 
@@ -200,20 +206,24 @@ class StudioApp(FileActions, RobustActions, App[None]):
         from robustff.tui.view import build_view
 
         total = case.study.samples
-        passes = [(min(QUICK_SAMPLES, total), True)]
+        passes = [(min(QUICK_SAMPLES, total), total <= QUICK_SAMPLES)]
         if total > QUICK_SAMPLES:
-            passes.append((total, False))
-        for samples, quick in passes:
+            passes.append((total, True))
+        for samples, last in passes:
             def progress(done: int, of: int) -> None:
                 self._from_thread(self._on_progress, generation, done, of)
 
             try:
-                result = run_study(case, samples=samples, cancel=cancel,
-                                   progress=None if quick else progress)
+                # The stability margins cost about as much as the quick pass's simulation:
+                # only the last pass computes them, so the first result comes sooner.
+                result = run_study(case, samples=samples, cancel=cancel, margins=last,
+                                   progress=progress if last else None)
                 if cancel.is_set() or result.samples == 0:
                     return
                 summary = summarize_study(result, DEFAULT_PERCENTILES)
-                view = build_view(result, summary, quick=quick and len(passes) > 1)
+                view = build_view(result, summary, quick=not last)
+                if not last:
+                    view = replace(view, margin_lines=(MARGINS_PENDING,))
             except (RobustffError, ArithmeticError, ValueError) as exc:
                 self._from_thread(self._on_failure, generation, str(exc))
                 return
@@ -238,6 +248,7 @@ class StudioApp(FileActions, RobustActions, App[None]):
             return  # an older case's run finished after an edit
         self.last_view, self.last_result, self.last_summary = view, result, summary
         self.results_version += 1
+        self.result_log.append((time.perf_counter(), view.quick))
         pane = self.query_one(ResultsPane)
         state = ("quick pass; refining to "
                  f"{self.case.study.samples}..." if view.quick else "full run")
