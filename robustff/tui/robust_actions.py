@@ -127,7 +127,7 @@ class RobustActions:
         note = ""
         if result.samples < case.study.samples:
             note = (f"Searched on {result.samples} of the case's {case.study.samples} plants "
-                    "to keep the studio quick; 'robustff tune' uses them all. ")
+                    "(quicker; 'robustff tune' uses all). ")
         self.push_screen(RobustResultScreen(result, case.time_unit, note),
                          lambda apply: self._apply_robust(case, result) if apply else None)
 

@@ -69,10 +69,9 @@ def comparison_table(result, time_unit: str) -> Table:
     for key, label in (("optimisation", "optimisation"), ("fresh", "fresh")):
         table.add_row(f"P(harm), {label}", f"{100 * nominal[key].harm:.1f} %",
                       f"{100 * robust[key].harm:.1f} %")
-    if result.objective != "p90":
-        digits = ".3f" if result.objective == "harm" else ".4g"
-        table.add_row("objective, fresh", _number(nominal["fresh"].objective, digits),
-                      _number(result.objective_fresh, digits))
+    if result.objective == "cvar":  # p90 and harm are rows above already
+        table.add_row("CVaR90 IAE, fresh", _number(nominal["fresh"].objective),
+                      _number(result.objective_fresh))
     return table
 
 
@@ -116,16 +115,16 @@ class RobustResultScreen(ModalScreen[bool]):
 
     def compose(self) -> ComposeResult:
         result = self.result
-        head = (f"Robust feedforward: minimises {OBJECTIVE_WORDS[result.objective]}. "
+        head = (f"Robust feedforward, minimising {OBJECTIVE_WORDS[result.objective]}: "
                 f"{result.evaluations} evaluations on {result.samples} plants, re-checked on "
-                f"{result.samples} fresh plants.")
+                f"{result.samples} fresh ones.")
         with Vertical(classes="dialog", id="robust-dialog"):
             with VerticalScroll(id="robust-body"):
                 yield Static(head, classes="question")
                 yield Static(comparison_table(result, self.time_unit), id="robust-table")
-                yield Static(f"{self.note}The optimisation figures flatter the winner (chosen on "
+                yield Static(f"{self.note}Optimisation figures flatter the winner (chosen on "
                              "those plants); compare the fresh ones.", classes="hint")
-                yield Static(f"⚠ {CAUTION}", classes="hint")
+            yield Static(f"⚠ {CAUTION}", id="robust-caution")
             with Horizontal(classes="buttons"):
                 yield Button(escape("[a] apply to the case"), id="robust-apply", compact=True)
                 yield Button(escape("[k] keep current"), id="robust-keep", compact=True)
