@@ -140,11 +140,7 @@ def _set_uncertainty(doc: Any, block: str, proposals: dict[str, Proposal]) -> No
 
 
 def _validate(text: str, source: str) -> None:
-    import robustff.case as case_module  # re-exports the loader's parse_case
-
-    parse_case = getattr(case_module, "parse_case", None)
-    if parse_case is None:  # pragma: no cover - loader not part of this build
-        from robustff.case_loader import parse_case
+    from robustff.case import parse_case
     try:
         parse_case(text, source=f"{source} (after fitting)")
     except CaseError as exc:

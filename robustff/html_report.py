@@ -73,7 +73,7 @@ def _margins_section(summary: dict) -> str:
     )
 
 
-def _fmt(value: object) -> str:
+def _fmt(value: float | None) -> str:
     return "n/a" if value is None else f"{float(value):.4g}"
 
 

@@ -226,7 +226,7 @@ def _grid_starts(problem: _Problem, y: np.ndarray, low: np.ndarray, high: np.nda
     lags = np.geomspace(max(low[0], 0.5 * problem.h), 0.7 * duration, 7)
     delays = np.linspace(0.0, 0.4 * duration, 7)
     candidates = []
-    for lag in lags if problem.kind != "ipdt" else [None]:
+    for lag in lags if problem.kind != "ipdt" else [0.0]:  # an IPDT has no lag
         for delay in delays:
             if problem.kind == "fopdt":
                 p = np.array([lag, delay])

@@ -12,7 +12,7 @@ All times are in the case's time unit. A time constant of zero means "no lag".
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -87,7 +87,12 @@ class TransferModel:
 
     def with_parameter(self, name: str, value: float) -> TransferModel:
         """A copy with one parameter changed."""
-        return replace(self, **{name: float(value)})
+        if name not in MODEL_PARAMETERS[self.kind]:
+            raise KeyError(f"a {self.kind} model has no parameter {name!r}")
+        names = ("gain", "time_constant", "time_constant_2", "dead_time")
+        values = {key: float(getattr(self, key)) for key in names}
+        values[name] = float(value)
+        return TransferModel(self.kind, **values)
 
     def describe(self, time_unit: str = "") -> str:
         """A one-line description such as ``2.0 e^(-3 s)/(10 s + 1)`` with the time unit."""

@@ -194,7 +194,11 @@ def _settings(nominal: FeedforwardSettings, base_gain: float, space: SearchSpace
               x: np.ndarray) -> FeedforwardSettings:
     values = dict(zip(space.names, (float(v) for v in x), strict=True))
     gain_factor = values.pop("gain_factor", nominal.gain_factor)
-    settings = replace(nominal, gain=base_gain * gain_factor, gain_factor=gain_factor, **values)
+    settings = replace(
+        nominal, gain=base_gain * gain_factor, gain_factor=gain_factor,
+        lead=values.get("lead", nominal.lead), lag=values.get("lag", nominal.lag),
+        delay=values.get("delay", nominal.delay),
+    )
     if settings.lead > 0.0 and settings.lag <= 0.0:
         settings = replace(settings, lag=settings.lead * 1e-3)
     return settings
@@ -496,9 +500,13 @@ def _rounded(settings: FeedforwardSettings, space: SearchSpace,
              base_gain: float) -> FeedforwardSettings:
     """The searched values to 4 significant digits (what an engineer writes in a case file)."""
     values = {name: float(f"{getattr(settings, name):.4g}") for name in space.names}
-    if "gain_factor" in values:
-        values["gain"] = base_gain * values["gain_factor"]
-    return replace(settings, **values)
+    gain_factor = values.get("gain_factor", settings.gain_factor)
+    return replace(
+        settings, gain_factor=gain_factor,
+        gain=base_gain * gain_factor if "gain_factor" in values else settings.gain,
+        lead=values.get("lead", settings.lead), lag=values.get("lag", settings.lag),
+        delay=values.get("delay", settings.delay),
+    )
 
 
 def _sensitivity(samples: _SampleSet, nominal: FeedforwardSettings) -> list[SensitivityRow]:

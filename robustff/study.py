@@ -209,6 +209,7 @@ def run_study(
     design = design_loop(case)
     scenario = build_scenario(case, design)
     nominal = simulate(nominal_batch(case), design, scenario, keep=np.array([0]))
+    assert nominal.trajectories is not None  # asked for with keep
     nominal_traj = nominal.trajectories[0]
     grid = _envelope_grid(scenario, nominal_traj)
     values, names = sample(case, n, seed)

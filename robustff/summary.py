@@ -80,14 +80,15 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> dict | None:
     out = result.margins.summary(percentiles, batch=batch)
     nominal = result.nominal_margins
     out["samples"] = subset
-    out["nominal"] = {
+    nominal_values: dict = {
         "gain_margin": float(nominal.gain_margin[0]),
         "phase_margin": float(nominal.phase_margin[0]),
         "delay_margin": float(nominal.delay_margin[0]),
         "ms": float(nominal.ms[0]),
         "stable": bool(nominal.stable[0]),
     }
-    out["nominal_warnings"] = nominal_margin_warnings(out["nominal"])
+    out["nominal"] = nominal_values
+    out["nominal_warnings"] = nominal_margin_warnings(nominal_values)
     out["limits_note"] = "Ms > 2, GM < 2, PM < 30 deg: common practice, no source"
     return out
 

@@ -39,12 +39,11 @@ N_ACCUMULATORS = len(ACCUMULATOR_NAMES)
 _RING_ROWS = 5
 
 
-_FAST = {"cache": True, "nogil": True, "inline": "always"}
 # Hot helpers take and return scalars and tuples only: an array argument would cost reference
 # counting on every call inside the time loop.
 
 
-@njit(**_FAST)
+@njit(cache=True, nogil=True, inline="always")
 def _splitmix64(state: np.uint64) -> tuple[np.uint64, np.uint64]:
     # splitmix64: small, fast and reproducible per sample, independent of thread or chunk.
     state += np.uint64(0x9E3779B97F4A7C15)
@@ -54,7 +53,7 @@ def _splitmix64(state: np.uint64) -> tuple[np.uint64, np.uint64]:
     return state, z ^ (z >> np.uint64(31))
 
 
-@njit(**_FAST)
+@njit(cache=True, nogil=True, inline="always")
 def _random_normal(state: np.uint64) -> tuple[np.uint64, float]:
     """Next standard normal draw (Box-Muller); returns ``(new state, draw)``."""
     state, z1 = _splitmix64(state)
@@ -81,12 +80,12 @@ def _coefficients(kind: int, gain: float, tau1: float, tau2: float, h: float, f:
     return (c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7] == 2.0)
 
 
-@njit(**_FAST)
+@njit(cache=True, nogil=True, inline="always")
 def _output(x: tuple, c: tuple) -> float:
     return x[1] if c[7] else x[0]
 
 
-@njit(**_FAST)
+@njit(cache=True, nogil=True, inline="always")
 def _path_step(x: tuple, c: tuple, u_new: float, u_old: float) -> tuple[float, float]:
     """One exact step of a path; ``x = (x1, x2)``, ``c`` from :func:`_coefficients`."""
     first = c[0] * x[0] + c[3] * u_new + c[5] * u_old
@@ -96,7 +95,7 @@ def _path_step(x: tuple, c: tuple, u_new: float, u_old: float) -> tuple[float, f
     return first, second
 
 
-@njit(**_FAST)
+@njit(cache=True, nogil=True, inline="always")
 def _arm_control(s: tuple, a: tuple, y: float, sp: float, ff: float, first: bool, t: float,
                  weight: float, p: tuple, mp: tuple) -> tuple:
     """Controller and metrics of one live arm at one step; returns ``(u, s, a)``.
@@ -124,7 +123,7 @@ def _arm_control(s: tuple, a: tuple, y: float, sp: float, ff: float, first: bool
     return u, (integral, deriv, y, u), a
 
 
-@njit(**_FAST)
+@njit(cache=True, nogil=True, inline="always")
 def _probe_control(s: tuple, y: float, k: int, p: tuple, q2: int, q3: int) -> tuple:
     """Stability probe: the linear loop (no limits) after a unit load at the process input.
 
@@ -143,7 +142,7 @@ def _probe_control(s: tuple, y: float, k: int, p: tuple, q2: int, q3: int) -> tu
     return u, (s[0] + p[3] * e, deriv, y, first, second, diverged)
 
 
-@njit(**_FAST)
+@njit(cache=True, nogil=True, inline="always")
 def _envelope_bin(y: float, grid: tuple) -> int:
     """Histogram bin of ``y``; ``grid = (lowest edge, bin width, number of bins)``."""
     b = int((y - grid[0]) / grid[1])
