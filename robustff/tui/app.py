@@ -23,6 +23,7 @@ from robustff.case import Case
 from robustff.errors import CaseError, RobustffError
 from robustff.tui import editing
 from robustff.tui.file_actions import FileActions
+from robustff.tui.fit_actions import FitActions
 from robustff.tui.messages import DistributionEdited, FieldEdited, KindChanged, RowAdded, RowRemoved
 from robustff.tui.models_pane import ModelsPane
 from robustff.tui.pictures import PicturesPane
@@ -39,7 +40,7 @@ QUICK_SAMPLES = 500
 MARGINS_PENDING = "Margins: computed with the full run..."
 
 
-class StudioApp(FileActions, RobustActions, App[None]):
+class StudioApp(FileActions, RobustActions, FitActions, App[None]):
     """Edit a case and watch the feedforward risk move.
 
     Parameters
@@ -64,7 +65,8 @@ class StudioApp(FileActions, RobustActions, App[None]):
         Binding("ctrl+e", "export", "Export"),
         Binding("ctrl+r", "reload", "Reload"),
         Binding("f5", "rerun", "Rerun"),
-        Binding("f6", "robust", "Robust ff"),
+        Binding("f6", "robust", "Robust"),
+        Binding("f7", "fit_data", "Fit data"),
         Binding("ctrl+q", "quit", "Quit", priority=True),
     ]
 

@@ -30,6 +30,12 @@ Robust feedforward
       objective (P90 of IAE, CVaR, or probability of harm), Escape stops the search. The
       result compares nominal and robust settings; [a] writes them into the case and reruns.
 
+Models from plant data
+  F7  fit an FOPDT, SOPDT or IPDT model to a bump test (CSV: input, output, time column or
+      sample time), with 95 % intervals, RMSE and a text plot of data (dots) against the fit;
+      [a] sets the process or disturbance model (times converted to the case's unit when the
+      data's unit is given, else assumed equal) and reruns; [p] saves a PNG/SVG picture.
+
 Files
   Ctrl+S  save the case (atomic; comments kept where possible, else you are told)
   F2      save as...         Ctrl+E  export results (same files as 'robustff run --out')
