@@ -265,6 +265,7 @@ class FitResultScreen(ModalScreen[bool]):
                 yield Button(escape("[p] save plot"), id="fit-save-plot", compact=True)
 
     def on_mount(self) -> None:
+        self.query_one("#fit-body").focus()  # arrows and Page keys scroll on small terminals
         self.call_after_refresh(self.draw_plot)
 
     def on_resize(self) -> None:
@@ -272,10 +273,11 @@ class FitResultScreen(ModalScreen[bool]):
 
     def plot_size(self) -> tuple[int, int]:
         """Cells of the text plot: the width of its place, about half the terminal's height."""
-        width = self.query_one("#fit-plot", Static).content_region.width
+        # less 2 cells for the scrollbar, which may appear once the plot is drawn
+        width = self.query_one("#fit-plot", Static).content_region.width - 2
         if width <= 0:  # not laid out yet: the dialog's CSS width less borders and scrollbar
             width = min(100, int(self.app.size.width * 0.95)) - 7
-        return max(30, width), max(8, min(20, self.app.size.height - 14))
+        return max(30, width), max(8, min(20, self.app.size.height - 19))
 
     def draw_plot(self) -> None:
         """Draw data (dots) and fit (line) at the current terminal size, without colour."""
