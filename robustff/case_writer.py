@@ -9,8 +9,6 @@ compared with the case; if that fails the canonical form is written instead (wit
 
 from __future__ import annotations
 
-import os
-import tempfile
 from dataclasses import asdict, fields
 from pathlib import Path
 from typing import Any
@@ -19,6 +17,7 @@ import tomlkit
 from tomlkit.exceptions import TOMLKitError
 from tomlkit.items import AoT, InlineTable, Item, Table
 
+from robustff.atomic import write_text_atomic
 from robustff.case import (
     DISTRIBUTION_KINDS,
     Case,
@@ -88,19 +87,9 @@ def save_case(case: Case, path: str | Path, original_text: str | None = None) ->
 
 
 def _atomic_write(path: Path, text: str) -> None:
-    folder = path.parent if str(path.parent) else Path(".")
     try:
-        handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+        write_text_atomic(path, text)
     except OSError as exc:
-        raise CaseError(f"{path}: cannot write in {folder} ({exc.strerror or exc})") from None
-    try:
-        with os.fdopen(handle, "w", encoding="utf-8", newline="\n") as stream:
-            stream.write(text)
-            stream.flush()
-            os.fsync(stream.fileno())
-        os.replace(temporary, path)
-    except OSError as exc:
-        Path(temporary).unlink(missing_ok=True)
         raise CaseError(f"{path}: cannot write the case file ({exc.strerror or exc})") from None
 
 

@@ -12,11 +12,11 @@ from __future__ import annotations
 
 import hashlib
 import os
-import tempfile
 import time
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+from robustff.atomic import write_text_atomic
 from robustff.case import Case, case_to_toml, parse_case
 from robustff.errors import CaseError
 
@@ -89,13 +89,7 @@ def write_recovery(path: Path, case: Case, original_text: str | None) -> None:
     text = _MARK + str(case.source_path) + "\n" + case_to_toml(case, original_text)
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
-        handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp",
-                                             dir=path.parent)
-        with os.fdopen(handle, "w", encoding="utf-8", newline="\n") as stream:
-            stream.write(text)
-            stream.flush()
-            os.fsync(stream.fileno())
-        os.replace(temporary, path)
+        write_text_atomic(path, text)
     except OSError as exc:
         raise CaseError(f"{path}: cannot write the recovery file ({exc.strerror or exc})") from None
 
