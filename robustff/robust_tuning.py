@@ -42,6 +42,7 @@ from robustff.errors import DesignError
 from robustff.feedforward_rule import feedforward_rule
 from robustff.models import PlantBatch
 from robustff.sensitivity import SensitivityRow, rank_sensitivity, sobol_first_total
+from robustff.study import CHUNK_SIZE, noise_seeds
 from robustff.tuning import FeedforwardSettings, LoopDesign, design_loop
 from robustff.uncertainty import inverse_cdf, plant_batch, sample
 
@@ -52,7 +53,7 @@ __all__ = [
 
 OBJECTIVES: tuple[str, ...] = ("p90", "cvar", "harm")
 #: Samples per chunk of noise seeds, as in robustff.study.
-_CHUNK = 1000
+_CHUNK = CHUNK_SIZE
 _HARM_WIDTH = 0.02
 _HARM_TIE_WEIGHT = 0.01
 
@@ -312,11 +313,8 @@ def _spans(n: int, size: int = _CHUNK) -> list[tuple[int, int]]:
 
 
 def _noise_seeds(seed: int, n: int) -> np.ndarray:
-    # Same per-chunk seeds as robustff.study (SeedSequence(seed).spawn, chunks of 1000 samples),
-    # so the nominal design's figures match those of ``robustff run`` with the same seed.
-    seeds = [np.random.SeedSequence(seed).spawn(i + 1)[i].generate_state(b - a, dtype=np.uint64)
-             for i, (a, b) in enumerate(_spans(n))]
-    return np.concatenate(seeds) if seeds else np.empty(0, dtype=np.uint64)
+    # The runner's seeds, so the nominal design's figures match ``robustff run`` with that seed.
+    return noise_seeds(seed, n, _CHUNK)
 
 
 def _simulate_iae(batch: PlantBatch, design: LoopDesign, scenario: Scenario,

@@ -33,7 +33,7 @@ from robustff.metrics import METRIC_NAMES
 from robustff.tuning import LoopDesign, design_loop
 from robustff.uncertainty import plant_batch, sample
 
-__all__ = ["StudyResult", "run_study", "CHUNK_SIZE", "ProgressCallback"]
+__all__ = ["StudyResult", "run_study", "noise_seeds", "CHUNK_SIZE", "ProgressCallback"]
 
 #: Samples per chunk. Fixed (not derived from the number of jobs) so results never depend on it.
 CHUNK_SIZE = 1000
@@ -121,9 +121,15 @@ def _envelope_grid(scenario: Scenario, nominal: np.ndarray) -> EnvelopeGrid:
     return EnvelopeGrid.spanning(low - 1.5 * span, high + 1.5 * span, scenario)
 
 
-def _chunk_seeds(seed: int, chunk: _Chunk) -> np.ndarray:
-    sequence = np.random.SeedSequence(seed).spawn(chunk.index + 1)[chunk.index]
-    return sequence.generate_state(chunk.stop - chunk.start, dtype=np.uint64)
+def noise_seeds(seed: int, n: int, chunk_size: int = CHUNK_SIZE) -> np.ndarray:
+    """Per-sample noise seeds, shape (n,) uint64: chunk ``i`` draws from child ``i`` of
+    ``SeedSequence(seed)``, so a sample's seed depends only on the seed and its index."""
+    children = np.random.SeedSequence(seed).spawn(-(-n // chunk_size))
+    parts = [
+        child.generate_state(min(chunk_size, n - i * chunk_size), dtype=np.uint64)
+        for i, child in enumerate(children)
+    ]
+    return np.concatenate(parts) if parts else np.empty(0, dtype=np.uint64)
 
 
 def _run_chunk(
@@ -216,16 +222,11 @@ def run_study(
     chunks = _chunks(n, chunk_size)
     from joblib import delayed
 
+    seeds = noise_seeds(seed, n, chunk_size)
     tasks = [
         delayed(_run_chunk)(
-            case,
-            design,
-            scenario,
-            grid,
-            names,
-            values[c.start : c.stop],
-            _chunk_seeds(seed, c),
-            KEPT_TRAJECTORIES if c.index == 0 else 0,
+            case, design, scenario, grid, names, values[c.start : c.stop],
+            seeds[c.start : c.stop], KEPT_TRAJECTORIES if c.index == 0 else 0,
         )
         for c in chunks
     ]
