@@ -7,23 +7,8 @@ objective is minimised by Nelder-Mead with bounds (``scipy.optimize.minimize``, 
 on parameters scaled to the unit box, started from the better of the nominal design and the
 rule of :mod:`robustff.feedforward_rule`. The winner and the nominal design are then simulated
 on FRESH samples (another seed): the optimum's objective on its own samples is biased low
-(it was selected on them), the fresh figure is not.
-
-Objectives (on IAE with feedforward; samples where feedback alone is unstable are left out,
-since no feedforward changes them; samples unstable only with feedforward count as +inf):
-
-* ``"p90"``: the ``percentile``-th percentile of IAE(fbff) (linear interpolation);
-* ``"cvar"``: the conditional value at risk, the mean of the worst ``ceil((1 - alpha) n)``
-  IAE(fbff) values (Rockafellar and Uryasev, "Optimization of conditional value-at-risk",
-  J. Risk 2 (2000) 21-41);
-* ``"harm"``: the probability that IAE(fbff) > IAE(fb), subject to a median improvement
-  IAE(fb) - IAE(fbff) > 0.
-
-The search minimises a *score*: the objective with +inf replaced by a finite penalty, and for
-``"harm"`` the indicator smoothed by a logistic of width 2 % of IAE(fb), plus 0.01 x the median
-IAE ratio as a tie-break, plus 1 + the shortfall when the median improvement is not positive
-(otherwise the score is flat and the search has no direction). Reported objective values are
-the unsmoothed ones.
+(it was selected on them), the fresh figure is not. The objectives and the score the search
+minimises are described in :mod:`robustff.robust_objectives`.
 """
 
 from __future__ import annotations
@@ -37,25 +22,30 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from robustff.case import Case
-from robustff.engine import Scenario, build_scenario, simulate
+from robustff.engine import Scenario, build_scenario
 from robustff.errors import DesignError
 from robustff.feedforward_rule import feedforward_rule
-from robustff.models import PlantBatch
-from robustff.sensitivity import SensitivityRow, rank_sensitivity, sobol_first_total
+from robustff.robust_objectives import (
+    OBJECTIVES,
+    objective_value,
+    percentile_with_inf,
+    search_score,
+    unknown_objective,
+)
+from robustff.robust_simulation import chunk_spans, simulate_iae
+from robustff.robust_sobol import sobol_sensitivity
+from robustff.sensitivity import SensitivityRow, rank_sensitivity
 from robustff.study import CHUNK_SIZE, noise_seeds
 from robustff.tuning import FeedforwardSettings, LoopDesign, design_loop
-from robustff.uncertainty import inverse_cdf, plant_batch, sample
+from robustff.uncertainty import plant_batch, sample
 
 __all__ = [
     "OBJECTIVES", "RobustResult", "DesignFigures", "SearchSpace", "robust_search",
     "search_space", "objective_value", "evaluation_budget", "sobol_sensitivity",
 ]
 
-OBJECTIVES: tuple[str, ...] = ("p90", "cvar", "harm")
 #: Samples per chunk of noise seeds, as in robustff.study.
 _CHUNK = CHUNK_SIZE
-_HARM_WIDTH = 0.02
-_HARM_TIE_WEIGHT = 0.01
 
 
 @dataclass(frozen=True)
@@ -210,64 +200,6 @@ def _point(settings: FeedforwardSettings, space: SearchSpace) -> np.ndarray:
     return np.clip(x, space.low, space.high)
 
 
-def _percentile(values: np.ndarray, q: float) -> float:
-    """Linear-interpolation percentile that returns inf when an infinite value takes part."""
-    x = np.sort(values)
-    if x.size == 0:
-        return math.nan
-    position = q / 100.0 * (x.size - 1)
-    lo, hi = int(math.floor(position)), int(math.ceil(position))
-    if not math.isfinite(x[hi]):
-        return math.inf
-    return float(x[lo] + (x[hi] - x[lo]) * (position - lo))
-
-
-def objective_value(objective: str, iae_fb: np.ndarray, iae_fbff: np.ndarray, *,
-                    percentile: float = 90.0, cvar_alpha: float = 0.9) -> float:
-    """The (unsmoothed) objective of one design on one sample set.
-
-    Parameters
-    ----------
-    objective : {"p90", "cvar", "harm"}
-    iae_fb, iae_fbff : ndarray, shape (n,)
-        IAE without and with feedforward; ``inf`` marks a sample unstable with feedforward.
-        Samples where feedback alone is unstable must already be removed.
-    percentile : float
-        Percentile for ``"p90"``, in percent.
-    cvar_alpha : float
-        Level of the conditional value at risk, 0 < alpha < 1.
-
-    Returns
-    -------
-    float
-        IAE units for p90/cvar; the probability of harm for ``"harm"``.
-    """
-    if objective == "p90":
-        return _percentile(iae_fbff, percentile)
-    if objective == "cvar":
-        worst = max(1, math.ceil((1.0 - cvar_alpha) * iae_fbff.size - 1e-9))
-        return float(np.mean(np.sort(iae_fbff)[-worst:]))
-    if objective == "harm":
-        return float(np.mean(iae_fbff > iae_fb))
-    raise DesignError(_unknown_objective(objective))
-
-
-def _score(objective: str, iae_fb: np.ndarray, iae_fbff: np.ndarray, penalty: float,
-           percentile: float, cvar_alpha: float) -> float:
-    """The smooth, finite version of the objective that the optimiser minimises."""
-    finite = np.where(np.isfinite(iae_fbff), iae_fbff, penalty)
-    if objective != "harm":
-        return objective_value(objective, iae_fb, finite, percentile=percentile,
-                               cvar_alpha=cvar_alpha)
-    scale = _HARM_WIDTH * np.maximum(iae_fb, 1e-300)
-    smooth = float(np.mean(0.5 * (1.0 + np.tanh((finite - iae_fb) / (2.0 * scale)))))
-    ratio = float(np.median(finite / np.maximum(iae_fb, 1e-300)))
-    score = smooth + _HARM_TIE_WEIGHT * ratio
-    if ratio >= 1.0:  # median improvement not positive: the constraint is violated
-        score += 1.0 + (ratio - 1.0)
-    return score
-
-
 class _SampleSet:
     """Plants and noise seeds of one sample set, simulated in parallel chunks."""
 
@@ -276,7 +208,7 @@ class _SampleSet:
         self.values, self.names = sample(case, n, seed)
         self.seeds = _noise_seeds(seed, n)
         # any chunking gives the same numbers: every sample has its own seed and state
-        self.spans = _spans(n, max(64, math.ceil(n / max(jobs, 1))))
+        self.spans = chunk_spans(n, max(64, math.ceil(n / max(jobs, 1))))
         self.batches = [plant_batch(case, self.names, self.values[a:b]) for a, b in self.spans]
         self.design, self.scenario, self.pool = design, scenario, pool
         both = self._run(design.feedforward)  # the feedback arm does not depend on feedforward
@@ -286,7 +218,7 @@ class _SampleSet:
 
     def _run(self, settings: FeedforwardSettings) -> np.ndarray:
         design = replace(self.design, feedforward=settings)
-        jobs = [self.pool.submit(_simulate_iae, batch, design, self.scenario, self.seeds[a:b])
+        jobs = [self.pool.submit(simulate_iae, batch, design, self.scenario, self.seeds[a:b])
                 for batch, (a, b) in zip(self.batches, self.spans, strict=True)]
         return np.concatenate([job.result() for job in jobs]) if jobs else np.empty((0, 2))
 
@@ -296,31 +228,26 @@ class _SampleSet:
             return self._nominal[1]
         return self._run(settings)[self.keep, 1]
 
+    def feedback_percentiles(self) -> tuple[float, float]:
+        """(P50, P90) of IAE without feedforward, CV units x time units."""
+        return percentile_with_inf(self.iae_fb, 50.0), percentile_with_inf(self.iae_fb, 90.0)
+
     def figures(self, settings: FeedforwardSettings, objective: str, percentile: float,
                 cvar_alpha: float) -> DesignFigures:
         fbff = self.iae_fbff(settings)
         return DesignFigures(
             objective_value(objective, self.iae_fb, fbff, percentile=percentile,
                             cvar_alpha=cvar_alpha),
-            _percentile(fbff, 50.0), _percentile(fbff, 90.0), float(np.mean(fbff > self.iae_fb)),
+            percentile_with_inf(fbff, 50.0), percentile_with_inf(fbff, 90.0),
+            float(np.mean(fbff > self.iae_fb)),
             float(np.median(self.iae_fb - fbff)) if fbff.size else math.nan,
             int(np.sum(~np.isfinite(fbff))),
         )
 
 
-def _spans(n: int, size: int = _CHUNK) -> list[tuple[int, int]]:
-    return [(a, min(a + size, n)) for a in range(0, n, size)]
-
-
 def _noise_seeds(seed: int, n: int) -> np.ndarray:
     # The runner's seeds, so the nominal design's figures match ``robustff run`` with that seed.
     return noise_seeds(seed, n, _CHUNK)
-
-
-def _simulate_iae(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
-                  seeds: np.ndarray) -> np.ndarray:
-    result = simulate(batch, design, scenario, seeds=seeds)
-    return np.where(result.unstable, np.inf, result.metrics["iae"])
 
 
 def evaluation_budget(dimensions: int) -> int:
@@ -354,7 +281,7 @@ class _Objective:
         key = tuple(np.round(np.clip(z, 0.0, 1.0), 12))
         if key not in self.cache:
             fbff = self.samples.iae_fbff(self.settings_at(np.array(key)))
-            self.cache[key] = _score(self.objective, self.samples.iae_fb, fbff, self.penalty,
+            self.cache[key] = search_score(self.objective, self.samples.iae_fb, fbff, self.penalty,
                                      self.percentile, self.cvar_alpha)
             if self.progress is not None:
                 self.progress(len(self.cache), self.budget)
@@ -387,13 +314,17 @@ def _minimise(objective: _Objective, starts: list[np.ndarray], budget: int) -> s
     return str(result.message)
 
 
-def _unknown_objective(objective: str) -> str:
-    return f"tune: objective {objective!r} is unknown (use one of {', '.join(OBJECTIVES)})"
+def _sample_plan(case: Case, samples: int | None, seed: int | None,
+                 fresh_seed: int | None) -> tuple[int, int, int]:
+    """Sample count, optimisation seed and fresh seed, defaults from the case's ``[study]``."""
+    n = case.study.samples if samples is None else int(samples)
+    seed = case.study.seed if seed is None else int(seed)
+    return n, seed, seed + 1 if fresh_seed is None else int(fresh_seed)
 
 
 def _check_arguments(objective: str, samples: int, percentile: float, cvar_alpha: float) -> None:
     if objective not in OBJECTIVES:
-        raise DesignError(_unknown_objective(objective))
+        raise DesignError(unknown_objective(objective))
     if samples < 10:
         raise DesignError(f"tune: at least 10 samples are needed, got {samples}")
     if not 0.0 < percentile < 100.0:
@@ -401,6 +332,76 @@ def _check_arguments(objective: str, samples: int, percentile: float, cvar_alpha
             f"tune: the percentile must lie strictly between 0 and 100, got {percentile}")
     if not 0.0 < cvar_alpha < 1.0:
         raise DesignError(f"tune: cvar_alpha must lie strictly between 0 and 1, got {cvar_alpha}")
+
+
+@dataclass(frozen=True)
+class _Problem:
+    """What the search takes from the case: the nominal loop, the searched space, the budget."""
+
+    case: Case
+    design: LoopDesign
+    scenario: Scenario
+    space: SearchSpace
+    base_gain: float
+    rule: FeedforwardSettings | None
+    budget: int
+
+    @classmethod
+    def build(cls, case: Case, bounds: dict[str, tuple[float, float]] | None,
+              max_evaluations: int | None) -> _Problem:
+        design = design_loop(case)
+        if not design.feedforward.active:
+            raise DesignError("tune: the case has no feedforward to tune; set [feedforward] "
+                              "structure to \"static\", \"lead-lag\" or \"lead-lag-delay\" and "
+                              "gain_factor > 0")
+        if not case.uncertainty:
+            raise DesignError("tune: the case has no [uncertainty] section; a robust search "
+                              "needs one")
+        space = search_space(case, design.feedforward.structure, bounds)
+        base_gain = -case.disturbance.gain / case.process.gain
+        rule = feedforward_rule(case)
+        budget = max_evaluations or evaluation_budget(len(space.names))
+        return cls(case, design, build_scenario(case, design), space, base_gain, rule, budget)
+
+    @property
+    def nominal(self) -> FeedforwardSettings:
+        """The model-based feedforward design."""
+        return self.design.feedforward
+
+    def sample_set(self, n: int, seed: int, pool: ThreadPoolExecutor, jobs: int) -> _SampleSet:
+        """``n`` sampled plants from ``seed``, with the feedback arm simulated."""
+        return _SampleSet(self.case, self.design, self.scenario, n, seed, pool, jobs)
+
+    def compare(self, robust: FeedforwardSettings, sets: dict[str, _SampleSet],
+                settings: tuple[str, float, float]) -> dict[str, dict[str, DesignFigures]]:
+        """``figures[design][sample_set]`` of the nominal design, the winner and the rule."""
+        designs = {"nominal": self.nominal, "robust": robust}
+        if self.rule is not None:
+            designs["rule"] = self.rule
+        return {name: {label: sample_set.figures(design, *settings)
+                       for label, sample_set in sets.items()}
+                for name, design in designs.items()}
+
+
+def _optimise(optimisation: _SampleSet, problem: _Problem, settings: tuple[str, float, float],
+              progress: Callable[[int, int], None] | None) -> tuple[FeedforwardSettings, str, int]:
+    """Minimise the score on the optimisation samples from the nominal design (and the rule).
+
+    Returns the winner rounded to 4 significant digits, the optimiser's message and the number
+    of objective evaluations.
+    """
+    if optimisation.iae_fb.size == 0:
+        raise DesignError("tune: feedback alone is unstable on every sample; fix the feedback "
+                          "design before tuning the feedforward")
+    nominal, space, rule = problem.nominal, problem.space, problem.rule
+    target = _Objective(optimisation, space, nominal, problem.base_gain, settings, progress,
+                        problem.budget)
+    starts = [target.unit(nominal)]
+    if rule is not None and space.names != ("gain_factor",):
+        starts.append(target.unit(replace(rule, structure=nominal.structure)))
+    message = _minimise(target, starts, problem.budget)
+    robust = _rounded(target.settings_at(target.best()), space, problem.base_gain)
+    return robust, message, len(target.cache)
 
 
 def robust_search(
@@ -446,51 +447,23 @@ def robust_search(
     -------
     RobustResult
     """
-    n = case.study.samples if samples is None else int(samples)
-    seed = case.study.seed if seed is None else int(seed)
-    fresh_seed = seed + 1 if fresh_seed is None else int(fresh_seed)
+    n, seed, fresh_seed = _sample_plan(case, samples, seed, fresh_seed)
     _check_arguments(objective, n, percentile, cvar_alpha)
-    design = design_loop(case)
-    nominal = design.feedforward
-    if not nominal.active:
-        raise DesignError("tune: the case has no feedforward to tune; set [feedforward] structure "
-                          "to \"static\", \"lead-lag\" or \"lead-lag-delay\" and gain_factor > 0")
-    if not case.uncertainty:
-        raise DesignError("tune: the case has no [uncertainty] section; a robust search needs one")
-    space = search_space(case, nominal.structure, bounds)
-    base_gain = -case.disturbance.gain / case.process.gain
-    rule = feedforward_rule(case)
-    budget = max_evaluations or evaluation_budget(len(space.names))
-    scenario = build_scenario(case, design)
+    problem = _Problem.build(case, bounds, max_evaluations)
+    settings = (objective, percentile, cvar_alpha)
     jobs = jobs or os.cpu_count() or 1
     with ThreadPoolExecutor(max_workers=jobs) as pool:
-        optimisation = _SampleSet(case, design, scenario, n, seed, pool, jobs)
-        if optimisation.iae_fb.size == 0:
-            raise DesignError("tune: feedback alone is unstable on every sample; fix the feedback "
-                              "design before tuning the feedforward")
-        target = _Objective(optimisation, space, nominal, base_gain,
-                            (objective, percentile, cvar_alpha), progress, budget)
-        starts = [target.unit(nominal)]
-        if rule is not None and space.names != ("gain_factor",):
-            starts.append(target.unit(replace(rule, structure=nominal.structure)))
-        message = _minimise(target, starts, budget)
-        robust = _rounded(target.settings_at(target.best()), space, base_gain)
-        fresh = _SampleSet(case, design, scenario, n, fresh_seed, pool, jobs)
-        designs = {"nominal": nominal, "robust": robust}
-        if rule is not None:
-            designs["rule"] = rule
-        figures = {
-            name: {label: sample_set.figures(settings, objective, percentile, cvar_alpha)
-                   for label, sample_set in (("optimisation", optimisation), ("fresh", fresh))}
-            for name, settings in designs.items()
-        }
+        optimisation = problem.sample_set(n, seed, pool, jobs)
+        robust, message, evaluations = _optimise(optimisation, problem, settings, progress)
+        fresh = problem.sample_set(n, fresh_seed, pool, jobs)
+        sets = {"optimisation": optimisation, "fresh": fresh}
+        figures = problem.compare(robust, sets, settings)
     return RobustResult(
-        objective, nominal, robust, rule, figures["robust"]["optimisation"].objective,
-        figures["robust"]["fresh"].objective, figures,
-        {label: (_percentile(s.iae_fb, 50.0), _percentile(s.iae_fb, 90.0))
-         for label, s in (("optimisation", optimisation), ("fresh", fresh))},
-        space, len(target.cache), n, seed, fresh_seed, int(np.sum(~optimisation.keep)), message,
-        _sensitivity(optimisation, nominal),
+        objective, problem.nominal, robust, problem.rule,
+        figures["robust"]["optimisation"].objective, figures["robust"]["fresh"].objective, figures,
+        {label: s.feedback_percentiles() for label, s in sets.items()}, problem.space,
+        evaluations, n, seed, fresh_seed, int(np.sum(~optimisation.keep)), message,
+        _sensitivity(optimisation, problem.nominal),
     )
 
 
@@ -513,64 +486,3 @@ def _sensitivity(samples: _SampleSet, nominal: FeedforwardSettings) -> list[Sens
         ratio = np.where(samples.iae_fb > 0, fbff / samples.iae_fb, np.nan)
     return rank_sensitivity(samples.values[samples.keep], samples.names, ratio,
                             fbff > samples.iae_fb)
-
-
-class _CaseDistribution:
-    """One uncertain parameter of a case as an object with ``ppf`` (what scipy's Sobol needs)."""
-
-    def __init__(self, case: Case, index: int) -> None:
-        parameter = case.uncertainty[index]
-        self.distribution, self.nominal = parameter.distribution, case.nominal_value(parameter.key)
-
-    def ppf(self, u: np.ndarray) -> np.ndarray:
-        u = np.clip(np.asarray(u, dtype=float), 2.0**-53, 1.0 - 2.0**-53)
-        return inverse_cdf(self.distribution, self.nominal, u.ravel()).reshape(u.shape)
-
-
-def sobol_sensitivity(case: Case, n: int = 512, seed: int | None = None,
-                      jobs: int | None = None) -> list[tuple[str, float, float]]:
-    """First-order and total Sobol indices of the IAE ratio fbff/fb of the nominal design.
-
-    Parameters
-    ----------
-    case : Case
-        Uncertain parameters are treated as independent (rank correlations are ignored: the
-        Sobol decomposition assumes independent inputs).
-    n : int
-        Base sample size (rounded up to a power of two); ``n (p + 2)`` plants are simulated.
-    seed : int, optional
-        Default: the case's seed.
-    jobs : int, optional
-        Threads (default: all cores).
-
-    Returns
-    -------
-    list of (name, first, total)
-        Sorted by the total index, largest first. Samples whose ratio is not finite (unstable)
-        are given the largest finite ratio of the run.
-    """
-    if not case.uncertainty:
-        raise DesignError("sensitivity: the case has no [uncertainty] section")
-    design = design_loop(case)
-    scenario = build_scenario(case, design)
-    names = [parameter.key for parameter in case.uncertainty]
-    jobs = jobs or os.cpu_count() or 1
-
-    def response(x: np.ndarray) -> np.ndarray:
-        values = np.ascontiguousarray(x.T)
-        spans = _spans(values.shape[0], max(64, math.ceil(values.shape[0] / jobs)))
-        with ThreadPoolExecutor(max_workers=jobs) as pool:
-            parts = pool.map(lambda ab: _simulate_iae(
-                plant_batch(case, names, values[ab[0]:ab[1]]), design, scenario,
-                np.arange(ab[0], ab[1], dtype=np.uint64)), spans)
-            iae = np.concatenate(list(parts))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = iae[:, 1] / iae[:, 0]
-        finite = np.isfinite(ratio)
-        return np.where(finite, ratio, np.max(ratio[finite], initial=1.0))
-
-    dists = [_CaseDistribution(case, i) for i in range(len(names))]
-    first, total = sobol_first_total(response, dists, n,
-                                     case.study.seed if seed is None else seed)
-    rows = [(name, float(f), float(t)) for name, f, t in zip(names, first, total, strict=True)]
-    return sorted(rows, key=lambda row: -row[2])
