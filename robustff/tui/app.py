@@ -10,8 +10,10 @@ from __future__ import annotations
 
 import threading
 import time
+from collections.abc import Callable
 from dataclasses import replace
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 from textual import work
 from textual.app import App, ComposeResult
@@ -31,6 +33,9 @@ from robustff.tui.results_pane import CautionLine, ResultsPane
 from robustff.tui.robust_actions import RobustActions
 from robustff.tui.uncertainty_pane import UncertaintyPane
 from robustff.tui.view import StudyView
+
+if TYPE_CHECKING:
+    from robustff.study import StudyResult
 
 __all__ = ["StudioApp", "QUICK_SAMPLES"]
 
@@ -77,8 +82,8 @@ class StudioApp(FileActions, RobustActions, FitActions, App[None]):
         self.init_files(case_path, case, recovery_folder)
         self.results_version = 0
         self.last_view: StudyView | None = None
-        self.last_result = None
-        self.last_summary: dict | None = None
+        self.last_result: StudyResult | None = None
+        self.last_summary: dict[str, Any] | None = None
         #: (perf_counter time, quick) of each result handed to the panes (for the benchmark).
         self.result_log: list[tuple[float, bool]] = []
         self._generation = 0
@@ -149,7 +154,7 @@ class StudioApp(FileActions, RobustActions, FitActions, App[None]):
     def on_row_removed(self, message: RowRemoved) -> None:
         self._table_edit(lambda: editing.remove_uncertain(self.case, message.key))
 
-    def _table_edit(self, make) -> None:
+    def _table_edit(self, make: Callable[[], Case]) -> None:
         try:
             case = make()
         except CaseError as exc:
@@ -231,7 +236,7 @@ class StudioApp(FileActions, RobustActions, FitActions, App[None]):
                 return
             self._from_thread(self._on_result, generation, result, summary, view)
 
-    def _from_thread(self, callback, *args) -> None:
+    def _from_thread(self, callback: Callable[..., object], *args: object) -> None:
         try:
             self.call_from_thread(callback, *args)
         except RuntimeError:
@@ -245,7 +250,8 @@ class StudioApp(FileActions, RobustActions, FitActions, App[None]):
         if generation == self._generation:
             self.query_one(ResultsPane).show_status(f"✗ run failed: {message}")
 
-    def _on_result(self, generation: int, result, summary: dict, view: StudyView) -> None:
+    def _on_result(self, generation: int, result: StudyResult, summary: dict[str, Any],
+                   view: StudyView) -> None:
         if generation != self._generation:
             return  # an older case's run finished after an edit
         self.last_view, self.last_result, self.last_summary = view, result, summary

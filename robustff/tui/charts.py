@@ -127,8 +127,8 @@ def band_chart(times: np.ndarray, bands: np.ndarray, width: int, height: int,
                 cells[row, column] = "both" if overlap else name
     for arm, name in enumerate(("fb_median", "fbff_median")):
         middle = _cell_rows(grid[arm, 1], low, high, rows)
-        for column in np.flatnonzero(middle >= 0):
-            cells[middle[column], column] = name
+        for drawn in np.flatnonzero(middle >= 0):
+            cells[middle[drawn], drawn] = name
     text = Text(f"{cv_label}: P5-P95 band and median, deviation from start\n", style="bold")
     for row in range(rows):
         label = _fmt(high) if row == 0 else _fmt(low) if row == rows - 1 else (

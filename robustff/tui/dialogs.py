@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from textual import events
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
@@ -81,7 +82,7 @@ class ChoiceScreen(ModalScreen[str]):
                 for key, label in self.choices:
                     yield Button(escape(f"[{key}] {label}"), id=f"choice-{key}", compact=True)
 
-    def on_key(self, event) -> None:
+    def on_key(self, event: events.Key) -> None:
         if event.key in {key for key, _ in self.choices}:
             event.stop()
             self.dismiss(event.key)

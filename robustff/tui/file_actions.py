@@ -11,6 +11,7 @@ from pathlib import Path
 from robustff.case import Case, load_case, save_case
 from robustff.errors import RobustffError
 from robustff.tui.dialogs import ChoiceScreen, HelpScreen, PathScreen
+from robustff.tui.host import StudioHost
 from robustff.tui.recovery import discard_recovery, read_recovery, recovery_path, write_recovery
 
 __all__ = ["FileActions", "is_bundled"]
@@ -22,10 +23,9 @@ def is_bundled(path: Path) -> bool:
     return path.resolve().parent == package_demo
 
 
-class FileActions:
+class FileActions(StudioHost):
     """File handling; mixed into :class:`robustff.tui.app.StudioApp`."""
 
-    case: Case
     saved_case: Case
     case_path: Path
     original_text: str | None
@@ -136,12 +136,16 @@ class FileActions:
         from robustff.report import write_results
         from robustff.stats import DEFAULT_PERCENTILES
 
+        result, summary, view = self.last_result, self.last_summary, self.last_view
+        if result is None or summary is None or view is None:
+            self.notify("no results yet; wait for the first run", severity="warning")
+            return False
         try:
-            write_results(self.last_result, self.last_summary, folder, DEFAULT_PERCENTILES)
+            write_results(result, summary, folder, DEFAULT_PERCENTILES)
         except (RobustffError, OSError) as exc:
             self.notify(f"not exported: {exc}", severity="error", timeout=8)
             return False
-        quick = " (quick pass only: the full run had not finished)" if self.last_view.quick else ""
+        quick = " (quick pass only: the full run had not finished)" if view.quick else ""
         self.notify(f"results written to {folder}/{quick}")
         return True
 

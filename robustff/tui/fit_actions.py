@@ -8,20 +8,23 @@ by the loader), marks the case edited, autosaves and reruns the study.
 
 from __future__ import annotations
 
-from typing import Any
+from typing import TYPE_CHECKING
 
-from robustff.case import Case
 from robustff.errors import RobustffError
 from robustff.tui.fit_apply import FitRequest, converted_model, with_fitted_model
 from robustff.tui.fit_screens import DEFAULT_FORM, FitFormScreen, FitResultScreen
+from robustff.tui.host import StudioHost
+
+if TYPE_CHECKING:
+    from robustff.identification import FitResult
+    from robustff.models import TransferModel
 
 __all__ = ["FitActions"]
 
 
-class FitActions:
+class FitActions(StudioHost):
     """Data-fit actions; mixed into :class:`robustff.tui.app.StudioApp`."""
 
-    case: Case
     _fit_form: dict[str, str] | None = None
 
     @property
@@ -34,7 +37,7 @@ class FitActions:
     def action_fit_data(self) -> None:
         self.push_screen(FitFormScreen(self.fit_form, self.case.time_unit), self._fit_finished)
 
-    def _fit_finished(self, outcome: tuple[FitRequest, Any] | None) -> None:
+    def _fit_finished(self, outcome: tuple[FitRequest, FitResult] | None) -> None:
         if outcome is None:
             return
         request, result = outcome
@@ -43,7 +46,7 @@ class FitActions:
         self.push_screen(FitResultScreen(request, result, applied, case_unit, note),
                          lambda apply: self._apply_fit(request, applied, note) if apply else None)
 
-    def _apply_fit(self, request: FitRequest, model, unit_note: str) -> None:
+    def _apply_fit(self, request: FitRequest, model: TransferModel, unit_note: str) -> None:
         try:
             case, notes = with_fitted_model(self.case, request.block, model)
         except RobustffError as exc:

@@ -12,11 +12,15 @@ import csv
 import math
 from dataclasses import dataclass, replace
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from robustff.case import TIME_UNITS, Case
 from robustff.errors import DataError
 from robustff.models import MODEL_KINDS, MODEL_PARAMETERS, TransferModel
 from robustff.tui import editing
+
+if TYPE_CHECKING:
+    from robustff.identification import FitResult
 
 __all__ = [
     "FIT_BLOCKS",
@@ -137,7 +141,7 @@ def parse_fit_form(values: dict[str, str]) -> FitRequest:
                       _choice(text, "intervals", FIT_INTERVALS))
 
 
-def fit_from_request(request: FitRequest, seed: int = 0):
+def fit_from_request(request: FitRequest, seed: int = 0) -> FitResult:
     """Read the record and fit it (least squares; intervals as requested).
 
     Returns

@@ -9,9 +9,11 @@ fit, so NO_COLOR terminals lose nothing).
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING
 
+from rich.console import JustifyMethod
 from rich.table import Table
 from rich.text import Text
 from textual import work
@@ -37,6 +39,9 @@ from robustff.tui.fit_apply import (
     parse_fit_form,
 )
 
+if TYPE_CHECKING:
+    from robustff.identification import FitResult, ParameterEstimate
+
 __all__ = ["FitFormScreen", "FitResultScreen", "estimates_table", "DEFAULT_FORM"]
 
 #: Starting texts of the form.
@@ -49,7 +54,7 @@ _INPUTS = (("path", "CSV file", "path/to/bump-test.csv"),
            ("output", "output column", "the controlled variable"))
 
 
-class FitFormScreen(ModalScreen[tuple[FitRequest, Any] | None]):
+class FitFormScreen(ModalScreen["tuple[FitRequest, FitResult] | None"]):
     """Ask for the data and the model; Enter fits (in a worker), Escape cancels.
 
     Dismissed with ``(request, FitResult)`` once a fit succeeded. Problems with the entries or
@@ -164,7 +169,7 @@ class FitFormScreen(ModalScreen[tuple[FitRequest, Any] | None]):
             return
         self._back(self._fitted, request, result)
 
-    def _back(self, callback, *args) -> None:
+    def _back(self, callback: Callable[..., object], *args: object) -> None:
         try:
             self.app.call_from_thread(callback, *args)
         except RuntimeError:
@@ -176,7 +181,7 @@ class FitFormScreen(ModalScreen[tuple[FitRequest, Any] | None]):
             self.query_one("#fit-state", Static).update("Enter or Ctrl+F: fit   Escape: cancel")
             self.show_error(message, error_field(message, request))
 
-    def _fitted(self, request: FitRequest, result) -> None:
+    def _fitted(self, request: FitRequest, result: FitResult) -> None:
         self.running = False
         if self.is_attached and self.app.screen is self:
             self.dismiss((request, result))
@@ -186,18 +191,19 @@ class FitFormScreen(ModalScreen[tuple[FitRequest, Any] | None]):
         self.dismiss(None)
 
 
-def _interval(estimate) -> str:
+def _interval(estimate: ParameterEstimate) -> str:
     if estimate.ci95 is None:
         return "not computed"
     return f"{estimate.ci95[0]:.4g} .. {estimate.ci95[1]:.4g}"
 
 
-def estimates_table(result, time_unit: str) -> Table:
+def estimates_table(result: FitResult, time_unit: str) -> Table:
     """Fitted parameters with their 95 % intervals (times in ``time_unit``, the data's)."""
     table = Table(box=None, padding=(0, 2, 0, 0), show_edge=False, header_style="bold")
-    for title, justify in (("parameter", "left"), ("value", "right"),
-                           ("95 % interval", "right"), ("unit", "left")):
-        table.add_column(title, justify=justify, no_wrap=True)  # type: ignore[arg-type]
+    columns: tuple[tuple[str, JustifyMethod], ...] = (
+        ("parameter", "left"), ("value", "right"), ("95 % interval", "right"), ("unit", "left"))
+    for title, justify in columns:
+        table.add_column(title, justify=justify, no_wrap=True)
     record = result.record
     for name, estimate in result.estimates.items():
         if name == "gain":
@@ -226,8 +232,8 @@ class FitResultScreen(ModalScreen[bool]):
     BINDINGS = [Binding("a", "apply", "Apply"), Binding("escape,k", "keep", "Keep current"),
                 Binding("p", "save_plot", "Save plot")]
 
-    def __init__(self, request: FitRequest, result, applied: TransferModel, case_unit: str,
-                 unit_note: str) -> None:
+    def __init__(self, request: FitRequest, result: FitResult, applied: TransferModel,
+                 case_unit: str, unit_note: str) -> None:
         super().__init__()
         self.request, self.result = request, result
         self.applied, self.case_unit, self.unit_note = applied, case_unit, unit_note

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Input, Label, Select, Static
@@ -74,7 +76,7 @@ class FieldRow(Vertical):
 class ModelsPane(Vertical):
     """Nominal models and the loop design; the design summary below is refreshed by the app."""
 
-    def __init__(self, case: Case, **kwargs) -> None:
+    def __init__(self, case: Case, **kwargs: Any) -> None:
         super().__init__(**kwargs)
         self.case = case
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import threading
 from dataclasses import replace
+from typing import TYPE_CHECKING
 
 from textual import work
 
@@ -17,6 +18,7 @@ from robustff.case import Case
 from robustff.errors import CaseError, RobustffError
 from robustff.tui import editing
 from robustff.tui.dialogs import ChoiceScreen
+from robustff.tui.host import StudioHost
 from robustff.tui.robust_screens import (
     OBJECTIVE_CHOICES,
     OBJECTIVE_KEYS,
@@ -25,6 +27,9 @@ from robustff.tui.robust_screens import (
     RobustResultScreen,
     searched_values,
 )
+
+if TYPE_CHECKING:
+    from robustff.robust_tuning import RobustResult
 
 __all__ = ["RobustActions", "ROBUST_SAMPLES", "robust_sample_count", "with_robust_settings"]
 
@@ -41,7 +46,7 @@ def robust_sample_count(case: Case) -> int:
     return min(case.study.samples, ROBUST_SAMPLES)
 
 
-def with_robust_settings(case: Case, result) -> Case:
+def with_robust_settings(case: Case, result: RobustResult) -> Case:
     """The case with the searched feedforward values of ``result`` (validated by the loader).
 
     Raises
@@ -49,14 +54,17 @@ def with_robust_settings(case: Case, result) -> Case:
     CaseError
         When the loader refuses the values.
     """
-    feedforward = replace(case.feedforward, **searched_values(result))
+    values = searched_values(result)  # only the searched ones: the others keep the case's value
+    old = case.feedforward
+    feedforward = replace(old, gain_factor=values.get("gain_factor", old.gain_factor),
+                          lead=values.get("lead", old.lead), lag=values.get("lag", old.lag),
+                          delay=values.get("delay", old.delay))
     return editing.validated(replace(case, feedforward=feedforward))
 
 
-class RobustActions:
+class RobustActions(StudioHost):
     """Robust search actions; mixed into :class:`robustff.tui.app.StudioApp`."""
 
-    case: Case
     #: Optimiser budget of studio searches (None: the search's default; tests set a small one).
     robust_budget: int | None = None
     _robust_stop: threading.Event | None = None
@@ -81,7 +89,7 @@ class RobustActions:
         self._robust_screen = RobustProgressScreen(
             f"Searching: {OBJECTIVE_WORDS[objective]}, {samples} plants"
             + (f" (of the case's {case.study.samples})" if samples < case.study.samples else ""),
-            self.robust_budget)
+            self.robust_budget, self.stop_robust)
         self.push_screen(self._robust_screen)
         self._robust(case, objective, samples, self._robust_stop)
 
@@ -117,7 +125,8 @@ class RobustActions:
         if self._robust_screen is not None:
             self._robust_screen.show_progress(done, budget)
 
-    def _robust_finished(self, case: Case, result, problem: str | None) -> None:
+    def _robust_finished(self, case: Case, result: RobustResult | None,
+                         problem: str | None) -> None:
         if self._robust_screen is not None:
             self._robust_screen.dismiss(None)
         self._robust_screen = self._robust_stop = None
@@ -131,7 +140,7 @@ class RobustActions:
         self.push_screen(RobustResultScreen(result, case.time_unit, note),
                          lambda apply: self._apply_robust(case, result) if apply else None)
 
-    def _apply_robust(self, searched: Case, result) -> None:
+    def _apply_robust(self, searched: Case, result: RobustResult) -> None:
         if self.case != searched:
             self.notify("the case changed since the search; not applied", severity="warning")
             return

@@ -7,6 +7,8 @@ computed here). Every figure carries its label and unit in words, nothing depend
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
+from typing import TYPE_CHECKING
 
 from rich.table import Table
 from rich.text import Text
@@ -18,6 +20,9 @@ from textual.screen import ModalScreen
 from textual.widgets import Button, ProgressBar, Static
 
 from robustff import CAUTION
+
+if TYPE_CHECKING:
+    from robustff.robust_tuning import RobustResult
 
 __all__ = ["OBJECTIVE_CHOICES", "OBJECTIVE_WORDS", "RobustProgressScreen", "RobustResultScreen",
            "comparison_table", "searched_values"]
@@ -38,12 +43,12 @@ def _number(value: float, digits: str = ".4g") -> str:
     return "unstable" if not math.isfinite(value) else format(value, digits)
 
 
-def searched_values(result) -> dict[str, float]:
+def searched_values(result: RobustResult) -> dict[str, float]:
     """The searched feedforward parameters of the robust settings (what applying writes)."""
     return {name: float(getattr(result.robust, name)) for name in result.space.names}
 
 
-def comparison_table(result, time_unit: str) -> Table:
+def comparison_table(result: RobustResult, time_unit: str) -> Table:
     """Nominal against robust: settings, P90 IAE on both sample sets, probability of harm.
 
     Parameters
@@ -76,14 +81,25 @@ def comparison_table(result, time_unit: str) -> Table:
 
 
 class RobustProgressScreen(ModalScreen[None]):
-    """Shown while the search runs; Escape stops it (the app owns the worker)."""
+    """Shown while the search runs; Escape calls ``stop`` (the app owns the worker).
+
+    Parameters
+    ----------
+    text : str
+        What is searched, in words.
+    budget : int or None
+        Most objective evaluations (None: not known until the search reports).
+    stop : callable
+        Asks the search to stop (it ends after the running evaluation).
+    """
 
     BINDINGS = [Binding("escape", "stop", "Stop the search")]
 
-    def __init__(self, text: str, budget: int | None) -> None:
+    def __init__(self, text: str, budget: int | None, stop: Callable[[], None]) -> None:
         super().__init__()
         self.text = text
         self.budget = budget
+        self.stop_search = stop
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog"):
@@ -99,7 +115,7 @@ class RobustProgressScreen(ModalScreen[None]):
 
     def action_stop(self) -> None:
         self.query_one("#robust-state", Static).update("Stopping...")
-        self.app.stop_robust()
+        self.stop_search()
 
 
 class RobustResultScreen(ModalScreen[bool]):
@@ -107,7 +123,7 @@ class RobustResultScreen(ModalScreen[bool]):
 
     BINDINGS = [Binding("a", "apply", "Apply"), Binding("escape,k", "keep", "Keep current")]
 
-    def __init__(self, result, time_unit: str, note: str) -> None:
+    def __init__(self, result: RobustResult, time_unit: str, note: str) -> None:
         super().__init__()
         self.result = result
         self.time_unit = time_unit

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Button, Input, Label, Select, Static
@@ -88,7 +90,7 @@ def _describe(case: Case, row: UncertainParameter) -> str:
 class UncertaintyPane(Vertical):
     """The table; the app recomposes it when rows are added or removed."""
 
-    def __init__(self, case: Case, **kwargs) -> None:
+    def __init__(self, case: Case, **kwargs: Any) -> None:
         super().__init__(**kwargs)
         self.case = case
 

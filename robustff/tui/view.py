@@ -7,8 +7,12 @@ symbol, never colour alone.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
+
+if TYPE_CHECKING:
+    from robustff.study import StudyResult
 
 __all__ = ["TABLE_METRICS", "TABLE_PERCENTILES", "MetricRow", "StudyView", "build_view", "verdict"]
 
@@ -117,7 +121,7 @@ def _row(summary: dict, metric: str) -> MetricRow:
                      verdict(fb[middle], fbff[middle]))
 
 
-def _number(value: object, digits: str = ".3g") -> str:
+def _number(value: float | None, digits: str = ".3g") -> str:
     return "n/a" if value is None else format(float(value), digits)
 
 
@@ -153,7 +157,7 @@ def driver_lines(summary: dict, rows: int = 3) -> tuple[str, ...]:
     )
 
 
-def build_view(result, summary: dict, quick: bool) -> StudyView:
+def build_view(result: StudyResult, summary: dict, quick: bool) -> StudyView:
     """The view of a study.
 
     Parameters
