@@ -91,6 +91,44 @@ def _resample(times: np.ndarray, bands: np.ndarray, columns: int) -> np.ndarray:
     return bands[:, :, picks]
 
 
+def _band_cells(grid: np.ndarray, low: float, high: float, rows: int, zero: int) -> np.ndarray:
+    """What each character cell shows: a key of :data:`BAND_GLYPHS`, ``"zero"`` or ``""``.
+
+    Parameters
+    ----------
+    grid : ndarray, shape (2, 3, C)
+        P5, P50, P95 per arm at each of the C columns, CV units.
+    low, high : float
+        CV values of the bottom and top rows.
+    rows : int
+        Character rows of the plot area.
+    zero : int
+        Row of the zero deviation line.
+
+    Returns
+    -------
+    ndarray of str, shape (rows, C)
+    """
+    columns = grid.shape[2]
+    cells = np.full((rows, columns), "", dtype=object)
+    cells[zero, :] = "zero"
+    for arm, name in enumerate(("fb", "fbff")):
+        top = _cell_rows(grid[arm, 2], low, high, rows)
+        bottom = _cell_rows(grid[arm, 0], low, high, rows)
+        for column in range(columns):
+            if top[column] < 0:
+                continue
+            for row in range(top[column], bottom[column] + 1):
+                overlap = arm and cells[row, column] in ("fb", "both")
+                cells[row, column] = "both" if overlap else name
+    # medians are drawn last so they stay visible on top of the bands
+    for arm, name in enumerate(("fb_median", "fbff_median")):
+        middle = _cell_rows(grid[arm, 1], low, high, rows)
+        for drawn in np.flatnonzero(middle >= 0):
+            cells[middle[drawn], drawn] = name
+    return cells
+
+
 def band_chart(times: np.ndarray, bands: np.ndarray, width: int, height: int,
                cv_label: str, time_unit: str) -> Text:
     """Band plot of the CV: P5..P95 and median over time for both arms.
@@ -113,22 +151,8 @@ def band_chart(times: np.ndarray, bands: np.ndarray, width: int, height: int,
     high = float(np.nanmax(np.maximum(grid.max(axis=(0, 1)), 0.0)))
     if not high > low:
         low, high = low - 1.0, high + 1.0
-    cells = np.full((rows, columns), "", dtype=object)
-    zero = _cell_rows(np.array([0.0]), low, high, rows)[0]
-    cells[zero, :] = "zero"
-    for arm, name in enumerate(("fb", "fbff")):
-        top = _cell_rows(grid[arm, 2], low, high, rows)
-        bottom = _cell_rows(grid[arm, 0], low, high, rows)
-        for column in range(columns):
-            if top[column] < 0:
-                continue
-            for row in range(top[column], bottom[column] + 1):
-                overlap = arm and cells[row, column] in ("fb", "both")
-                cells[row, column] = "both" if overlap else name
-    for arm, name in enumerate(("fb_median", "fbff_median")):
-        middle = _cell_rows(grid[arm, 1], low, high, rows)
-        for drawn in np.flatnonzero(middle >= 0):
-            cells[middle[drawn], drawn] = name
+    zero = int(_cell_rows(np.array([0.0]), low, high, rows)[0])
+    cells = _band_cells(grid, low, high, rows, zero)
     text = Text(f"{cv_label}: P5-P95 band and median, deviation from start\n", style="bold")
     for row in range(rows):
         label = _fmt(high) if row == 0 else _fmt(low) if row == rows - 1 else (
