@@ -81,6 +81,8 @@ def result_to_dict(result, case_file: Path | None = None) -> dict:
         "samples": result.samples, "seed": result.seed, "fresh_seed": result.fresh_seed,
         "evaluations": result.evaluations, "excluded_unstable_feedback": result.excluded,
         "optimiser": result.message,
+        "recommended": result.recommended,
+        "improvement_interval90": [_finite(v) for v in result.improvement_interval],
         "sensitivity": [row.to_dict() for row in result.sensitivity],
         "case_file": str(case_file) if case_file is not None else None,
         "caution": CAUTION,
@@ -88,8 +90,13 @@ def result_to_dict(result, case_file: Path | None = None) -> dict:
 
 
 def robust_case(case, result):
-    """The case with the robust feedforward settings written into ``[feedforward]``."""
-    searched = {name: getattr(result.robust, name) for name in result.space.names}
+    """The case with the recommended feedforward settings written into ``[feedforward]``.
+
+    That is the search's winner, unless its improvement over the nominal design is within
+    Monte Carlo noise (then the nominal settings are written explicitly).
+    """
+    chosen = result.recommended_settings
+    searched = {name: getattr(chosen, name) for name in result.space.names}
     return replace(case, feedforward=replace(case.feedforward, **searched))
 
 
@@ -152,6 +159,14 @@ def _print_human(case, result, args, written: Path, warnings: list[str], elapsed
           "flatters it; compare the fresh column.")
     if result.excluded:
         print(f"{result.excluded} samples are unstable with feedback alone and were left out.")
+    low, high = result.improvement_interval
+    if result.recommended == "robust":
+        print(f"Recommended: the robust optimum (its objective improvement over the nominal design "
+              f"on the optimisation samples, 90 % bootstrap interval {low:.4g} to {high:.4g}, "
+              "is clear of Monte Carlo noise).")
+    else:
+        print(f"Recommended: keep the nominal design: the search's improvement (90 % bootstrap "
+              f"interval {low:.4g} to {high:.4g}) is within Monte Carlo noise.")
     _print_sensitivity(result)
     if sobol is not None:
         _print_sobol(case, sobol)

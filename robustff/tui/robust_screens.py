@@ -140,6 +140,7 @@ class RobustResultScreen(ModalScreen[bool]):
                 yield Static(comparison_table(result, self.time_unit), id="robust-table")
                 yield Static(f"{self.note}Optimisation figures flatter the winner (chosen on "
                              "those plants); compare the fresh ones.", classes="hint")
+                yield Static(_recommendation(result), classes="hint", id="robust-verdict")
             yield Static(f"⚠ {CAUTION}", id="robust-caution")
             with Horizontal(classes="buttons"):
                 yield Button(escape("[a] apply to the case"), id="robust-apply", compact=True)
@@ -153,3 +154,13 @@ class RobustResultScreen(ModalScreen[bool]):
 
     def action_keep(self) -> None:
         self.dismiss(False)
+
+
+def _recommendation(result: RobustResult) -> str:
+    """Whether the winner beats the nominal design by more than Monte Carlo noise."""
+    low, high = result.improvement_interval
+    if result.recommended == "robust":
+        return (f"Verdict: the improvement is clear of Monte Carlo noise (90 % bootstrap interval "
+                f"{low:.3g} to {high:.3g}); applying it is reasonable.")
+    return (f"Verdict: the improvement is within Monte Carlo noise (90 % bootstrap interval "
+            f"{low:.3g} to {high:.3g}); keeping the current design is as good.")
