@@ -10,7 +10,8 @@ integrals over the simulated window):
 * ``overshoot``: for a setpoint step, the largest excursion of the CV beyond the new setpoint in
   the step's direction, in percent of the step; for a disturbance, the largest excursion on the
   side opposite to the one the uncompensated disturbance pushes the CV (the signature of an
-  over-compensating feedforward), in CV units (``overshoot``) and in percent of the same
+  over-compensating feedforward; with several events each one sets the side from its start on),
+  in CV units (``overshoot``) and in percent of the same
   sample's feedback-only peak deviation (``overshoot_percent``);
 * ``settling_time``: time from ``t0`` until |e| stays within the settling band for good; the band
   is 2 % of the setpoint step, or, for disturbance events, 2 % of the feedback-only peak
@@ -97,7 +98,7 @@ def trajectory_metrics(
     step: float,
     *,
     event_start: float,
-    direction: float,
+    direction: float | np.ndarray,
     settling_band: float,
     at_limit: np.ndarray | None = None,
 ) -> dict[str, float]:
@@ -113,7 +114,7 @@ def trajectory_metrics(
         Controller sample time, time units.
     event_start : float
         ``t0``, time units.
-    direction : float
+    direction : float or ndarray, shape (T,)
         +1 or -1: the sign of ``e`` that counts as an opposite-side excursion.
     settling_band : float
         Settling band, CV units.

@@ -145,6 +145,13 @@ def check_output_folder(folder: Path) -> None:
     """
     if folder.exists() and not folder.is_dir():
         raise RobustffError(f"--out {folder}: exists and is not a folder")
+    parent = folder.parent if str(folder.parent) else Path(".")
+    existing = next((p for p in (parent, *parent.parents) if p.exists()), Path("."))
+    try:  # a real probe: permissions alone do not tell (read-only or special file systems)
+        os.rmdir(tempfile.mkdtemp(prefix=".robustff-probe.", dir=existing))
+    except OSError as exc:
+        reason = exc.strerror or exc
+        raise RobustffError(f"--out {folder}: cannot write in {existing} ({reason})") from None
     if folder.is_dir():
         foreign = sorted(
             p.name
@@ -186,6 +193,9 @@ def write_results(
     check_output_folder(folder)
     folder.parent.mkdir(parents=True, exist_ok=True)
     staging = Path(tempfile.mkdtemp(prefix=f".{folder.name}.", dir=folder.parent))
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(staging, 0o777 & ~umask)  # mkdtemp's 0700 would hide results on a shared server
     try:
         (staging / "summary.json").write_text(
             json.dumps(json_safe(summary), indent=2, allow_nan=False) + "\n"

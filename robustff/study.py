@@ -28,6 +28,7 @@ from robustff.engine import (
     nominal_batch,
     simulate,
 )
+from robustff.errors import RobustffError
 from robustff.margins import MarginResult, loop_margins
 from robustff.metrics import METRIC_NAMES
 from robustff.tuning import LoopDesign, design_loop
@@ -162,11 +163,13 @@ def _parallel_results(tasks: list, jobs: int, cluster: str | None) -> Iterator:
         return
     from distributed import Client  # the "cluster" extra
 
-    with (
-        Client(cluster) as client,
-        joblib.parallel_config(backend="dask", wait_for_workers_timeout=30),
-    ):
-        del client
+    try:
+        client = Client(cluster, timeout=30)
+    except (OSError, ValueError) as exc:
+        raise RobustffError(
+            f"--cluster {cluster}: cannot connect to the scheduler ({exc})"
+        ) from None
+    with client, joblib.parallel_config(backend="dask", wait_for_workers_timeout=30):
         yield from joblib.Parallel(return_as="generator")(tasks)
 
 

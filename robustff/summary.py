@@ -39,8 +39,13 @@ PAIRED_METRICS: tuple[str, ...] = ("iae", "ise", "peak_deviation", "valve_travel
 
 
 def metric_unit(result: StudyResult, metric: str) -> str:
-    """Engineering unit of a metric for this case, e.g. ``degC*s``."""
+    """Engineering unit of a metric for this case, e.g. ``degC*s``.
+
+    ``overshoot`` is in percent of the step when the first event is a setpoint step.
+    """
     signals = result.case.signals
+    if metric == "overshoot" and result.scenario.setpoint_step:
+        return "%"
     return METRIC_UNITS[metric].format(
         cv=signals.controlled.unit or "CV",
         u=signals.output.unit or "output",

@@ -261,6 +261,12 @@ def tune_feedback(
             raise DesignError("feedback: manual tuning needs kc and ti")
         kc, ti, td, rule = spec.kc, spec.ti, spec.td or 0.0, "manual"
         tau_c = math.nan
+        if kc * process.gain <= 0.0:
+            # With e = setpoint - CV and u = Kc e, Kc must share the process gain's sign.
+            raise DesignError(
+                f"feedback.kc: {kc:g} acts in the wrong direction for a process gain of "
+                f"{process.gain:g} (Kc must have the same sign: the loop would run away)"
+            )
     else:
         if process.kind != "ipdt" and process.time_constant <= 0.0:
             raise DesignError("feedback: tuning rules need a process time constant > 0")
@@ -323,7 +329,7 @@ def design_feedforward(
     gain = -disturbance.gain / process.gain * spec.gain_factor
     lead = lag = delay = 0.0
     if structure in ("lead-lag", "lead-lag-delay") and not process.integrating:
-        lead, lag = process.total_lag, disturbance.total_lag
+        lead, lag = _reduced_lead_lag(process, disturbance)
         if lag <= 0.0 and lead > 0.0:
             lag = max(0.1 * lead, step)
             notes.append(
@@ -331,13 +337,13 @@ def design_feedforward(
             )
     shortfall = process.dead_time - disturbance.dead_time
     if structure == "lead-lag-delay":
-        if shortfall > 0.0:
+        if shortfall > 0.0 and spec.delay is None:
             notes.append(
                 "the disturbance dead time is shorter than the process dead time by "
                 f"{shortfall:g}: "
                 "the ideal delay is negative, not realizable; delay dropped"
             )
-        else:
+        elif shortfall <= 0.0:
             delay = -shortfall
     lead = spec.lead if spec.lead is not None else lead
     lag = spec.lag if spec.lag is not None else lag
@@ -345,6 +351,28 @@ def design_feedforward(
     if lead > 0.0 and lag <= 0.0:
         raise DesignError("feedforward: a lead needs a lag > 0 (the compensator must be proper)")
     return FeedforwardSettings(structure, gain, lead, lag, delay, spec.gain_factor), notes
+
+
+def _lags(model: TransferModel) -> list[float]:
+    return [tau for tau in (model.time_constant, model.time_constant_2)[
+        : 2 if model.kind == "sopdt" else 1] if tau > 0.0]
+
+
+def _reduced_lead_lag(process: TransferModel, disturbance: TransferModel) -> tuple[float, float]:
+    """Lead and lag of ``-Gd/Gp`` reduced to one lead-lag.
+
+    Lags common to both paths cancel exactly first (e.g. a process lag equal to one of two
+    disturbance lags); the remaining process lags are summed into the lead and the remaining
+    disturbance lags into the lag, which keeps the first moment (mean delay) of the ideal
+    compensator.
+    """
+    leads, lags = _lags(process), _lags(disturbance)
+    for tau in list(leads):
+        match = next((other for other in lags if abs(other - tau) <= 1e-9 * max(tau, other)), None)
+        if match is not None:
+            leads.remove(tau)
+            lags.remove(match)
+    return float(sum(leads)), float(sum(lags))
 
 
 def design_loop(case: Case) -> LoopDesign:

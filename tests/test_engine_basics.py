@@ -70,3 +70,25 @@ def test_unstable_sample_is_flagged_not_averaged():
     result = simulate(batch, design, build_scenario(case, design))
     assert result.unstable[1].all() and not result.unstable[0].any()
     assert np.isnan(result.metrics["iae"][1]).all()
+
+
+def test_overshoot_side_follows_each_event():
+    # A step up and, later, the same step back down: with feedback only the CV returns after
+    # each event without crossing to the other side of its push by more than a small amount,
+    # so the over-compensation signature stays near zero; a feedforward with 1.5x the gain
+    # over-compensates both events (source: linearity; error scales with 1 - 1.5 = -0.5).
+    from dataclasses import replace
+
+    case = make_case(structure="static", process_dead=3.0, disturbance_dead=3.0)
+    case = replace(
+        case,
+        disturbance=TransferModel("fopdt", 1.5, 10.0, 0.0, 3.0),
+        events=(Event("disturbance-step", 5.0, 1.0), Event("disturbance-step", 80.0, -1.0)),
+        feedforward=FeedforwardSpec("static", gain_factor=1.5),
+    )
+    design = design_loop(case)
+    result = simulate(nominal_batch(case), design, build_scenario(case, design))
+    fb_overshoot, ff_overshoot = result.metrics["overshoot"][0]
+    fb_peak = result.metrics["peak_deviation"][0, 0]
+    assert fb_overshoot < 0.1 * fb_peak
+    assert ff_overshoot > 0.2 * fb_peak

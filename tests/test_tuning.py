@@ -82,3 +82,27 @@ def test_feedforward_structures_and_realizability():
     assert math.isclose(
         design_feedforward(process, slow, FeedforwardSpec("lead-lag", lead=7.0), 0.1)[0].lead, 7.0
     )
+
+
+def test_common_lags_cancel_before_the_lead_lag_reduction():
+    # Algebra: -Gd/Gp = -(Kd/Kp) (20 s + 1) / ((20 s + 1)(4 s + 1)) = -(Kd/Kp) / (4 s + 1), so
+    # the exact compensator has no lead and a 4 s lag (no first-moment approximation needed).
+    process = TransferModel("fopdt", -0.12, 20.0, 0.0, 12.0)
+    disturbance = TransferModel("sopdt", 0.15, 20.0, 4.0, 18.0)
+    settings, _ = design_feedforward(process, disturbance, FeedforwardSpec("lead-lag-delay"), 0.5)
+    assert (settings.lead, settings.lag, settings.delay) == pytest.approx((0.0, 4.0, 6.0))
+
+
+def test_manual_gain_of_the_wrong_sign_is_refused():
+    spec = FeedbackSpec(tuning="manual", kc=4.0, ti=10.0)
+    with pytest.raises(DesignError, match="wrong direction"):
+        tune_feedback(TransferModel("ipdt", -0.05, 0.0, 0.0, 0.3), spec, 0.02)
+
+
+def test_explicit_delay_has_no_unrealizable_note():
+    process = TransferModel("fopdt", 2.0, 10.0, 0.0, 3.0)
+    fast = TransferModel("fopdt", 1.5, 5.0, 0.0, 1.0)
+    settings, notes = design_feedforward(
+        process, fast, FeedforwardSpec("lead-lag-delay", delay=0.6), 0.1
+    )
+    assert settings.delay == 0.6 and not any("not realizable" in n for n in notes)

@@ -107,6 +107,20 @@ def _print_table(summary: dict, percentiles) -> None:
         )
 
 
+def _check_cluster_address(address: str) -> None:
+    """``tcp://HOST:PORT`` with dask.distributed installed, or a RobustffError."""
+    import re
+
+    if not re.fullmatch(r"(tcp|tls)://[^\s:/]+:\d{1,5}", address):
+        raise RobustffError(f"--cluster: expected tcp://HOST:PORT, got {address!r}")
+    try:
+        import distributed  # noqa: F401
+    except ImportError:
+        raise RobustffError(
+            "--cluster needs dask.distributed: pip install 'robustff[cluster]'"
+        ) from None
+
+
 def _print_drivers(summary: dict, rows: int = 5) -> None:
     """The ranked rank correlations of the uncertain parameters with the IAE ratio."""
     ranking = [row for row in summary.get("sensitivity", []) if row.get("rho") is not None]
@@ -144,12 +158,7 @@ def execute(args: argparse.Namespace) -> int:
     out = Path(args.out) if args.out else Path("results") / case.name
     check_output_folder(out)
     if args.cluster:
-        try:
-            import distributed  # noqa: F401
-        except ImportError:
-            raise RobustffError(
-                "--cluster needs dask.distributed: pip install 'robustff[cluster]'"
-            ) from None
+        _check_cluster_address(args.cluster)
     cancel = threading.Event()
     result = run_study(
         case,

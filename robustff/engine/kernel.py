@@ -102,7 +102,7 @@ def _arm_control(s: tuple, a: tuple, y: float, sp: float, ff: float, first: bool
 
     ``s = (integral, derivative state, previous CV, previous output)``;
     ``p = (kc, derivative pole, derivative gain, kc h / ti, h / tt, u_low, u_high, has_d)``;
-    ``mp = (h, t_start, band, direction)``; ``weight = max(t - t_start, 0)``;
+    ``mp = (h, t_start, band, direction at this step)``; ``weight = max(t - t_start, 0)``;
     ``a`` holds the accumulators, slot 6 the last time outside the band (or -1).
     """
     e = sp - y
@@ -178,7 +178,8 @@ def _commit_envelope(env_buf: np.ndarray, envelope_counts: np.ndarray, keep: boo
 @njit(cache=True, nogil=True)
 def _simulate_sample(
     i: int, kinds: np.ndarray, plant: np.ndarray, seed: np.uint64,
-    disturbance_profile: np.ndarray, setpoint_profile: np.ndarray, noise: np.ndarray,
+    disturbance_profile: np.ndarray, setpoint_profile: np.ndarray,
+    direction_profile: np.ndarray, noise: np.ndarray,
     p: tuple, mp: tuple, ffp: tuple, m_ff: int, limit: float, grid: tuple,
     envelope_index: np.ndarray, slot: int, ring: np.ndarray, env_buf: np.ndarray,
     trajectories: np.ndarray,
@@ -209,6 +210,7 @@ def _simulate_sample(
     for k in range(n_steps):
         t = k * h
         weight = max(t - mp[1], 0.0)
+        mpk = (mp[0], mp[1], mp[2], direction_profile[k])
         d = disturbance_profile[k]
         for j in range(noise.shape[0]):
             if k >= noise[j, 0]:
@@ -229,11 +231,11 @@ def _simulate_sample(
         alive0 = alive0 and math.isfinite(y0) and not abs(y0) > limit
         alive1 = alive1 and math.isfinite(y1) and not abs(y1) > limit
         if alive0:
-            u0, s0, acc0 = _arm_control(s0, acc0, y0, sp, 0.0, k == 0, t, weight, p, mp)
+            u0, s0, acc0 = _arm_control(s0, acc0, y0, sp, 0.0, k == 0, t, weight, p, mpk)
             ring[k & mask] = u0
             x0 = _path_step(x0, cp, ring[(k - m_p) & mask], ring[(k - m_p - 1) & mask])
         if alive1:
-            u1, s1, acc1 = _arm_control(s1, acc1, y1, sp, ff_out, k == 0, t, weight, p, mp)
+            u1, s1, acc1 = _arm_control(s1, acc1, y1, sp, ff_out, k == 0, t, weight, p, mpk)
             ring[size + (k & mask)] = u1
             x1 = _path_step(x1, cp, ring[size + ((k - m_p) & mask)],
                             ring[size + ((k - m_p - 1) & mask)])
@@ -275,7 +277,8 @@ def simulate_kernel(
     noise_events: np.ndarray,     # (E, 3): start index, stationary std, filter time constant
     controller: np.ndarray,       # (8,): kc, ti, td, tf, tt, u_low, u_high, divergence limit
     feedforward: np.ndarray,      # (4,): gain, lead, lag, delay
-    metric_setup: np.ndarray,     # (4,): event start time, settling band, direction, unused
+    metric_setup: np.ndarray,     # (4,): event start time, settling band, unused, unused
+    direction_profile: np.ndarray,  # (T,): sign of e that counts as an opposite excursion
     envelope_edges: np.ndarray,   # (B+1,) CV bin edges
     envelope_index: np.ndarray,   # (T,) int: envelope time point recorded at step k, or -1
     trajectory_slot: np.ndarray,  # (N,) int, -1 = do not keep
@@ -307,7 +310,8 @@ def simulate_kernel(
     env_buf = np.full((2, envelope_counts.shape[1]), -1, dtype=np.int64)
     for i in range(plant.shape[0]):
         acc0, acc1, alive0, alive1, probe = _simulate_sample(
-            i, kinds, plant, seeds[i], disturbance_profile, setpoint_profile, noise, p, mp,
+            i, kinds, plant, seeds[i], disturbance_profile, setpoint_profile, direction_profile,
+            noise, p, mp,
             ffp, min(m_ff, n_steps), controller[7], grid, envelope_index, trajectory_slot[i],
             ring, env_buf, trajectories)
         _commit_envelope(env_buf, envelope_counts, not probe)

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from robustff.case import Case
+from robustff.case import Case, Event
 from robustff.tuning import LoopDesign
 
 __all__ = ["Scenario", "event_profiles", "disturbance_direction", "divergence_limit"]
@@ -28,8 +28,9 @@ class Scenario:
         Filtered-noise events: start sample, stationary standard deviation, filter time constant.
     event_start : float
         Start of the first event, time units (``t0`` of the metrics).
-    direction : float
-        Sign of the error that counts as an opposite-side excursion (see :mod:`robustff.metrics`).
+    direction : ndarray, shape (T,)
+        At each sample, the sign of the error that counts as an opposite-side excursion,
+        set by the latest event (see :mod:`robustff.metrics`).
     setpoint_step : float or None
         Size of the first event when it is a setpoint step, CV units.
     settling_band : float
@@ -43,7 +44,7 @@ class Scenario:
     setpoint_profile: np.ndarray
     noise_events: np.ndarray
     event_start: float
-    direction: float
+    direction: np.ndarray
     setpoint_step: float | None
     settling_band: float
     divergence_limit: float
@@ -89,25 +90,48 @@ def event_profiles(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return disturbance, setpoint, np.array(noise, dtype=np.float64).reshape(-1, 3)
 
 
-def disturbance_direction(case: Case) -> tuple[float, float | None, float]:
-    """Direction convention, setpoint step and start time of the first event.
+def _event_direction(case: Case, event: Event, previous: float) -> float:
+    """For a setpoint step ``-sign(step)`` (the CV passing the new setpoint makes ``e`` take that
+    sign); for a step or ramp of the disturbance the sign of nominal ``Kd x size`` (the
+    uncompensated disturbance pushes the CV that way, so an opposite excursion gives an error of
+    that sign); filtered noise has no direction and keeps the previous one."""
+    if event.kind == "setpoint-step":
+        return -float(np.sign(event.size) or 1.0)
+    if event.kind == "disturbance-noise":
+        return previous
+    return float(np.sign(case.disturbance.gain * event.size) or 1.0)
+
+
+def disturbance_direction(case: Case) -> tuple[np.ndarray, float | None, float]:
+    """Direction profile, setpoint step and start time of the first event.
 
     Returns
     -------
-    direction : float
-        For a setpoint step: ``-sign(step)`` (the CV passing the new setpoint makes ``e`` take
-        that sign). For a disturbance: the sign of nominal ``Kd x size`` (the uncompensated
-        disturbance pushes the CV that way, so the error of an opposite excursion has that sign).
+    direction : ndarray, shape (T,)
+        Each event sets the direction from its (rounded) start sample until the next event, so
+        that the return of a disturbance to zero is not counted as over-compensation of the
+        first one. Before the first event the first event's direction applies.
     setpoint_step : float or None
+        The first event's size when it is a setpoint step.
     event_start : float
     """
-    first = min(case.events, key=lambda event: event.at)
-    if first.kind == "setpoint-step":
-        return -float(np.sign(first.size) or 1.0), first.size, first.at
-    push = np.sign(
-        case.disturbance.gain * (first.size if first.kind != "disturbance-noise" else 1.0)
-    )
-    return float(push or 1.0), None, first.at
+    h, n = case.simulation.step, case.simulation.n_steps
+    ordered = sorted(case.events, key=lambda event: event.at)
+    first = ordered[0]
+    current = float(np.sign(case.disturbance.gain) or 1.0)
+    direction = np.empty(n)
+    start = 0
+    for event in ordered:
+        current_next = _event_direction(case, event, current)
+        begin = min(max(round(event.at / h), 0), n)
+        if event is first:
+            current = current_next
+            continue
+        direction[start:begin] = current
+        start, current = begin, current_next
+    direction[start:] = current
+    setpoint_step = first.size if first.kind == "setpoint-step" else None
+    return direction, setpoint_step, first.at
 
 
 def divergence_limit(case: Case, design: LoopDesign) -> float:
