@@ -95,6 +95,11 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> dict | None:
     out["nominal"] = nominal_values
     out["nominal_warnings"] = nominal_margin_warnings(nominal_values)
     out["limits_note"] = "Ms > 2, GM < 2, PM < 30 deg: common practice, no source"
+    out["note"] = (
+        "continuous-time loop with the exact dead time; the simulated digital controller adds "
+        "about half a sample of delay (zero-order hold), so a loop within a few percent of the "
+        "stability limit may count as stable here and unstable in the simulation"
+    )
     return out
 
 

@@ -35,10 +35,9 @@ class _Parser(argparse.ArgumentParser):
     """An argument parser whose usage errors exit with status 2 and one clear line."""
 
     def error(self, message: str) -> None:  # type: ignore[override]
-        self.exit(
-            EXIT_USAGE,
-            f"robustff: error: {message} (see 'robustff {self.prog.split()[-1]} --help')\n",
-        )
+        words = self.prog.split()
+        command = "robustff" if len(words) == 1 else f"robustff {words[-1]}"
+        self.exit(EXIT_USAGE, f"robustff: error: {message} (see '{command} --help')\n")
 
 
 def build_parser() -> argparse.ArgumentParser:

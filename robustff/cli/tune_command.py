@@ -41,7 +41,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                              "fresh re-check uses seed + 1")
     parser.add_argument("--jobs", type=positive_int, help="threads (default: all cores)")
     parser.add_argument("--out", metavar="DIR",
-                        help="folder for the tuned case file (default: results/<case name>)")
+                        help="folder for the tuned case file (default: results/<case name>-tune)")
     parser.add_argument("--sobol", nargs="?", const=512, type=positive_int, metavar="N",
                         help="also compute first-order and total Sobol indices of the IAE ratio "
                              "(base sample size N, default 512; N x (parameters + 2) plants)")
@@ -193,7 +193,8 @@ def execute(args: argparse.Namespace) -> int:
         original = Path(args.case).read_text(encoding="utf-8")
     except OSError as exc:
         raise CaseError(f"{args.case}: cannot read the case file ({exc.strerror or exc})") from None
-    out = Path(args.out) if args.out else Path("results") / case.name
+    # Beside, not inside, the run's result folder: `run` replaces that folder as a whole.
+    out = Path(args.out) if args.out else Path("results") / f"{case.name}-tune"
     if out.exists() and not out.is_dir():
         raise CaseError(f"--out {out}: exists and is not a folder")
     result = robust_search(case, objective=args.objective, samples=args.samples, seed=args.seed,

@@ -59,7 +59,7 @@ class HelpScreen(ModalScreen[None]):
 
     def compose(self) -> ComposeResult:
         with VerticalScroll(id="help-box"):
-            yield Static(HELP_TEXT, id="help-text")
+            yield Static(escape(HELP_TEXT), id="help-text")
 
     def action_close(self) -> None:
         self.dismiss(None)
