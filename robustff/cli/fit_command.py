@@ -98,6 +98,12 @@ def run_fit(args: argparse.Namespace) -> int:
         notes = write_fitted_case(args.template, args.case_out, args.block, nominal, proposals,
                                   time_unit)
         notes.append(f"wrote {args.case_out} ([{args.block}] and its [uncertainty] entries)")
+    if len(results) == 1:
+        notes.append(
+            "one test only: the proposed spread is the statistical error of this fit, not the "
+            "drift of the plant between operating points; widen it from experience or fit tests "
+            "taken at other throughputs"
+        )
     if args.json:
         print(json.dumps(result_json(results, proposals, notes), indent=2))
     else:
