@@ -109,6 +109,9 @@ def convergence_for_probability(
         f"Probability that feedforward is worse: {prob} from {n} samples; {n} samples are "
         f"{verdict} for +-{half_width:g} at {level} (about {needed} needed)."
     )
+    if n == 0:
+        msg = ("Probability that feedforward is worse: no usable samples (unstable in both arms); "
+               "more samples will not help: fix the feedback design or the uncertainty ranges.")
     return ConvergenceCheck(enough, needed, msg, n)
 
 
