@@ -62,7 +62,7 @@ def risk_sentence(summary: dict, metric: str = "iae") -> str:
     label = "IAE" if metric == "iae" else metric.replace("_", " ")
     low, high = harm["ci95"]
     if harm["probability"] is None:
-        return f"Feedforward worse ({metric.upper()}): no usable samples"
+        return f"Feedforward makes {label} worse: no usable samples (unstable in both arms)"
     return (
         f"Feedforward makes {label} "
         f"worse in {100 * harm['probability']:.1f} % of plants "
