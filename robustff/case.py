@@ -234,6 +234,19 @@ class Case:
         slug = "".join(c if c.isalnum() else "-" for c in self.title.lower()).strip("-")
         return "-".join(part for part in slug.split("-") if part) or "case"
 
+    def parameter_unit(self, key: str) -> str:
+        """Engineering unit of a plant parameter such as ``"process.gain"`` (from ``[signals]``)."""
+        block, _, name = key.partition(".")
+        signals = self.signals
+        if name == "noise_std":
+            return signals.disturbance.unit
+        if name != "gain":
+            return self.time_unit
+        source = signals.output if block == "process" else signals.disturbance
+        model = self.process if block == "process" else self.disturbance
+        unit = f"{signals.controlled.unit or 'CV unit'} per {source.unit or 'input unit'}"
+        return f"{unit} per {self.time_unit}" if model.integrating else unit
+
     def nominal_value(self, key: str) -> float:
         """Nominal value of a plant parameter such as ``"process.gain"``."""
         block, parameter = key.split(".", 1)

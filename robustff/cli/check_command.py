@@ -61,16 +61,7 @@ def _signal_lines(case: Case) -> list[str]:
 
 def parameter_unit(case: Case, key: str) -> str:
     """Engineering unit of a plant parameter such as ``"process.gain"``."""
-    block, _, name = key.partition(".")
-    signals, time_unit = case.signals, case.time_unit
-    if name == "noise_std":
-        return signals.disturbance.unit
-    if name != "gain":
-        return time_unit
-    source = signals.output if block == "process" else signals.disturbance
-    model = case.process if block == "process" else case.disturbance
-    unit = f"{signals.controlled.unit or 'CV unit'} per {source.unit or 'input unit'}"
-    return f"{unit} per {time_unit}" if model.integrating else unit
+    return case.parameter_unit(key)
 
 
 def _model_lines(case: Case) -> list[str]:

@@ -86,6 +86,8 @@ class ModelsPane(Vertical):
                              ("disturbance", "Disturbance: measured -> CV")):
             kind = getattr(case, block).kind.upper()
             yield Static(f"{title} ({kind})", classes="section")
+            yield Static(f"  gain in {case.parameter_unit(f'{block}.gain')}; "
+                         f"times in {case.time_unit}", classes="hint")
             for name in MODEL_PARAMETERS[getattr(case, block).kind]:
                 yield FieldRow(case, f"{block}.{name}")
         yield Static("Feedback controller", classes="section")
