@@ -35,9 +35,9 @@ import tracemalloc
 import numpy as np
 
 from robustff.case import Case, Event, FeedbackSpec, FeedforwardSpec, SimulationSpec
+from robustff.design.tuning import LoopDesign, design_loop
 from robustff.engine import build_scenario, nominal_batch, simulate
-from robustff.models import PlantBatch, TransferModel
-from robustff.tuning import LoopDesign, design_loop
+from robustff.plant.models import PlantBatch, TransferModel
 
 STEP = 0.1  # controller sample time, min
 SPREAD = {  # relative half-width of the uniform perturbation of each parameter

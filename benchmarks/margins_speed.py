@@ -16,9 +16,9 @@ import warnings
 
 import numpy as np
 
-from robustff.margins import loop_margins
-from robustff.models import PlantBatch, SensorModel, TransferModel
-from robustff.tuning import FeedbackSettings
+from robustff.design.margins import loop_margins
+from robustff.design.tuning import FeedbackSettings
+from robustff.plant.models import PlantBatch, SensorModel, TransferModel
 
 
 def fictional_spread(n: int, seed: int = 2024) -> tuple[PlantBatch, FeedbackSettings]:

@@ -19,10 +19,10 @@ from pathlib import Path
 import numpy as np
 
 from robustff.case import load_case
+from robustff.case.sampling import plant_batch, sample
+from robustff.design.tuning import design_loop
 from robustff.engine import build_scenario, simulate
-from robustff.robust_tuning import robust_search
-from robustff.tuning import design_loop
-from robustff.uncertainty import plant_batch, sample
+from robustff.tune.search import robust_search
 
 TARGET_SECONDS = 60.0
 

@@ -24,7 +24,7 @@ from robustff.case import (
 )
 from robustff.demo import DEMO_CASES, demo_case_path
 from robustff.errors import CaseError
-from robustff.models import SensorModel, TransferModel
+from robustff.plant.models import SensorModel, TransferModel
 
 MINIMAL = """\
 title = "Test loop"

@@ -28,7 +28,7 @@ from robustff.case import (
 )
 from robustff.demo import DEMO_CASES, demo_case_path
 from robustff.errors import CaseError
-from robustff.models import MODEL_PARAMETERS, SensorModel, TransferModel
+from robustff.plant.models import MODEL_PARAMETERS, SensorModel, TransferModel
 
 # --- strategies for valid cases ------------------------------------------------------------------
 

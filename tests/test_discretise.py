@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from robustff.engine.discretise import block_coefficients, split_delay
-from robustff.models import KIND_CODES
+from robustff.plant.models import KIND_CODES
 
 
 def step_path(kind: str, gain: float, tau1: float, tau2: float, dead_time: float, h: float,

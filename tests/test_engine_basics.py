@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 
 from robustff.case import Case, Event, FeedbackSpec, FeedforwardSpec, SimulationSpec
+from robustff.design.tuning import design_loop
 from robustff.engine import build_scenario, nominal_batch, simulate
-from robustff.models import TransferModel
-from robustff.tuning import design_loop
+from robustff.plant.models import TransferModel
 
 
 def make_case(structure="lead-lag-delay", process_dead=3.0, disturbance_dead=4.0, step=0.05):

@@ -11,11 +11,11 @@ import pytest
 from numba import njit
 
 from robustff.case import Case, Event, FeedbackSpec, FeedforwardSpec, SimulationSpec
+from robustff.design.tuning import design_loop
 from robustff.engine import EnvelopeGrid, build_scenario, nominal_batch, simulate
-from robustff.models import KIND_CODES
-from robustff.models import TransferModel as Model
+from robustff.plant.models import KIND_CODES
+from robustff.plant.models import TransferModel as Model
 from robustff.stats import envelope_from_histogram
-from robustff.tuning import design_loop
 
 PADE_ORDER = 10
 

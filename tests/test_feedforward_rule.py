@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 
 from robustff.case import Case, Event, FeedbackSpec, FeedforwardSpec, SimulationSpec
-from robustff.feedforward_rule import feedforward_rule, ise_optimal_lag, open_loop_ise
-from robustff.models import TransferModel
+from robustff.design.feedforward_rule import feedforward_rule, ise_optimal_lag, open_loop_ise
+from robustff.plant.models import TransferModel
 
 
 def numerical_ise(lag: float, kd: float, kp: float, tau_p: float, tau_d: float,

@@ -11,8 +11,8 @@ import pytest
 
 from robustff import CAUTION
 from robustff.cli import main
-from robustff.identification_sim import simulate_response
-from robustff.models import TransferModel
+from robustff.fit.response import simulate_response
+from robustff.plant.models import TransferModel
 
 DEMO = Path(__file__).resolve().parents[1] / "cases" / "data"
 

@@ -1,4 +1,4 @@
-"""Tests of model fitting from step-test data (robustff.identification and helpers)."""
+"""Tests of model fitting from step-test data (robustff.fit.least_squares and helpers)."""
 
 from __future__ import annotations
 
@@ -9,18 +9,18 @@ import numpy as np
 import pytest
 
 from robustff.errors import DataError
-from robustff.fit_plot import terminal_fit_plot
-from robustff.identification import fit_record, two_point_estimate, two_point_times
-from robustff.identification_ci import fit_autoregression
-from robustff.identification_data import (
+from robustff.fit.intervals import fit_autoregression
+from robustff.fit.least_squares import fit_record, two_point_estimate, two_point_times
+from robustff.fit.records import (
     check_settled,
     locate_step,
     read_record,
     record_from_arrays,
 )
-from robustff.identification_sim import simulate_response
-from robustff.identification_spread import combine_fits, propose_distribution
-from robustff.models import TransferModel
+from robustff.fit.response import simulate_response
+from robustff.fit.spread import combine_fits, propose_distribution
+from robustff.output.fit_plot import terminal_fit_plot
+from robustff.plant.models import TransferModel
 
 H = 0.5
 
@@ -341,8 +341,8 @@ def test_terminal_fit_plot_has_the_requested_size() -> None:
 
 
 def test_fitting_core_does_not_import_plotting_or_the_command_line() -> None:
-    code = ("import sys, robustff.identification, robustff.identification_spread, "
-            "robustff.identification_ci; "
+    code = ("import sys, robustff.fit.least_squares, robustff.fit.spread, "
+            "robustff.fit.intervals; "
             "bad = [m for m in ('matplotlib', 'plotext', 'textual', 'robustff.cli', 'control') "
             "if m in sys.modules]; print(bad); sys.exit(1 if bad else 0)")
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)

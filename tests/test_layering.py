@@ -14,8 +14,8 @@ from pathlib import Path
 
 DEMO = Path(__file__).resolve().parents[1] / "cases" / "syrup-dilution.toml"
 
-CORE_MODULES = ("robustff.engine", "robustff.study", "robustff.summary", "robustff.stats",
-                "robustff.uncertainty", "robustff.metrics", "robustff.tuning", "robustff.case")
+CORE_MODULES = ("robustff.engine", "robustff.study", "robustff.study.summary", "robustff.stats",
+                "robustff.case.sampling", "robustff.engine.metrics", "robustff.design.tuning", "robustff.case")
 CORE_FORBIDDEN = ("textual", "matplotlib", "control", "argparse", "rich", "robustff.cli",
                   "robustff.tui")
 RUN_FORBIDDEN = ("textual", "matplotlib", "control", "scipy.signal", "robustff.tui")

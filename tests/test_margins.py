@@ -9,11 +9,11 @@ import warnings
 import numpy as np
 import pytest
 
-import robustff.margins as margins_module
+import robustff.design.margins as margins_module
+from robustff.design.margins import loop_margins, model_margins
+from robustff.design.tuning import FeedbackSettings
 from robustff.errors import DataError, DesignError
-from robustff.margins import loop_margins, model_margins
-from robustff.models import PlantBatch, SensorModel, TransferModel
-from robustff.tuning import FeedbackSettings
+from robustff.plant.models import PlantBatch, SensorModel, TransferModel
 
 
 def settings(kc: float, ti: float, td: float = 0.0, filter_time: float = 0.0) -> FeedbackSettings:
@@ -267,7 +267,7 @@ def test_bad_settings_and_data_raise_errors_an_engineer_understands():
 
 def test_margins_module_imports_neither_scipy_nor_control():
     code = (
-        "import sys, robustff.margins; "
+        "import sys, robustff.design.margins; "
         "print(any(m.split('.')[0] in ('scipy', 'control', 'matplotlib', 'textual') "
         "for m in sys.modules))"
     )

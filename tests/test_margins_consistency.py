@@ -4,7 +4,7 @@ import numpy as np
 
 from robustff.case import parse_case
 from robustff.study import run_study
-from robustff.summary import summarize_study
+from robustff.study.summary import summarize_study
 
 CASE = """
 title = "Spread reaching instability"

@@ -5,10 +5,10 @@ import numpy as np
 import pytest
 
 from robustff.case import Case, Event, FeedbackSpec, FeedforwardSpec, SimulationSpec
+from robustff.design.tuning import design_loop
 from robustff.engine import build_scenario, nominal_batch, simulate
-from robustff.metrics import trajectory_metrics
-from robustff.models import TransferModel as Model
-from robustff.tuning import design_loop
+from robustff.engine.metrics import trajectory_metrics
+from robustff.plant.models import TransferModel as Model
 
 PROCESS = Model("fopdt", 2.0, 10.0, 0.0, 3.0)
 DISTURBANCE = Model("fopdt", 1.5, 5.0, 0.0, 4.0)
@@ -28,7 +28,7 @@ def make_case(events, structure="lead-lag-delay", process=PROCESS, disturbance=D
     [Event("disturbance-step", 3.0, 4.0), Event("disturbance-ramp", 40.0, -6.0, duration=10.0)],
 ], ids=["setpoint then disturbance", "disturbance step and ramp"])
 def test_streaming_metrics_equal_trajectory_metrics(events):
-    # Source: the definitions in robustff.metrics, evaluated with numpy on the stored response.
+    # Source: the definitions in robustff.engine.metrics, evaluated with numpy on the stored response.
     # Tight output limits (bias 50, range 48.5..51.5) make the output saturate, so time at limit and
     # anti-windup are exercised; perturbed plants give different responses per sample.
     case = make_case(events, output_low=48.5, output_high=51.5, output_bias=50.0)

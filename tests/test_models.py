@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from robustff.models import PlantBatch, SensorModel, TransferModel
+from robustff.plant.models import PlantBatch, SensorModel, TransferModel
 
 
 @pytest.mark.parametrize(

@@ -1,4 +1,4 @@
-"""Tests of the result files (robustff.report.write_results and friends)."""
+"""Tests of the result files (robustff.output.result_files.write_results and friends)."""
 
 from __future__ import annotations
 
@@ -12,9 +12,9 @@ import pytest
 
 from robustff import CAUTION
 from robustff.case import load_case
+from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
-from robustff.metrics import METRIC_NAMES
-from robustff.report import (
+from robustff.output.result_files import (
     RESULT_FILES,
     check_output_folder,
     json_safe,
@@ -22,7 +22,7 @@ from robustff.report import (
     write_results,
 )
 from robustff.study import run_study
-from robustff.summary import summarize_study
+from robustff.study.summary import summarize_study
 
 DEMO = Path(__file__).resolve().parents[1] / "cases" / "syrup-dilution.toml"
 PERCENTILES = (5.0, 50.0, 95.0)

@@ -17,10 +17,10 @@ from robustff.case import (
     StudySpec,
     UncertainParameter,
 )
+from robustff.case.sampling import sample
 from robustff.errors import DesignError
-from robustff.models import TransferModel
-from robustff.robust_tuning import objective_value, robust_search, search_space
-from robustff.uncertainty import sample
+from robustff.plant.models import TransferModel
+from robustff.tune.search import objective_value, robust_search, search_space
 
 N = 800
 
@@ -197,7 +197,7 @@ def test_sobol_ranks_the_dominant_parameter_first():
         UncertainParameter("disturbance.gain", Distribution("relative", (0.4,))),
         UncertainParameter("process.time_constant", Distribution("relative", (0.01,))),
     ))
-    from robustff.robust_tuning import sobol_sensitivity
+    from robustff.tune.search import sobol_sensitivity
 
     rows = sobol_sensitivity(case, 128, seed=2)
     assert rows[0][0] == "disturbance.gain" and rows[0][2] > 0.9

@@ -18,7 +18,7 @@ import pytest
 from robustff import CAUTION
 from robustff.cli import EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE, main, run_command
 from robustff.cli.run_command import ProgressPrinter as OriginalPrinter
-from robustff.report import RESULT_FILES
+from robustff.output.result_files import RESULT_FILES
 
 DEMO = Path(__file__).resolve().parents[1] / "cases" / "syrup-dilution.toml"
 VOLATILE_KEYS = ("elapsed_seconds", "versions")

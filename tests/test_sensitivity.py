@@ -1,4 +1,4 @@
-"""Checks of robustff.sensitivity against scipy, closed-form Sobol indices and simulation."""
+"""Checks of robustff.stats.sensitivity against scipy, closed-form Sobol indices and simulation."""
 
 import math
 
@@ -7,7 +7,7 @@ import pytest
 from scipy import stats as sps
 
 from robustff.errors import DataError
-from robustff.sensitivity import rank_sensitivity, sobol_first_total, spearman_with_interval
+from robustff.stats.sensitivity import rank_sensitivity, sobol_first_total, spearman_with_interval
 
 
 def test_spearman_matches_scipy_including_ties():

@@ -255,7 +255,7 @@ def test_robust_search_key_applies_the_searched_feedforward(
 def test_p90_used_by_the_search_is_numpys_percentile() -> None:
     import numpy as np
 
-    from robustff.robust_tuning import objective_value
+    from robustff.tune.search import objective_value
 
     # Source: NumPy reference, numpy.percentile, method="linear" (the default), NumPy 1.22+.
     values = np.random.default_rng(3).lognormal(size=101)

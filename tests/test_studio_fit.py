@@ -26,7 +26,7 @@ import pytest
 from robustff.case import load_case
 from robustff.demo import demo_case_path
 from robustff.errors import CaseError
-from robustff.models import TransferModel
+from robustff.plant.models import TransferModel
 from robustff.tui import editing
 from robustff.tui.fit_apply import (
     FormError,

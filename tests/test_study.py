@@ -19,7 +19,7 @@ import pytest
 from robustff.case import parse_case
 from robustff.stats import summarize, wilson_interval
 from robustff.study import run_study
-from robustff.summary import summarize_study
+from robustff.study.summary import summarize_study
 
 KD_MODEL = 1.0
 KP_MODEL = 2.0

@@ -110,8 +110,8 @@ def test_errors_exit_2_without_traceback(tmp_path: Path, capsys) -> None:
 
 def test_demo_case_is_accepted() -> None:
     # the demo cases load and have a searchable structure (the full search is in benchmarks/)
-    from robustff.robust_tuning import search_space
-    from robustff.tuning import design_loop
+    from robustff.design.tuning import design_loop
+    from robustff.tune.search import search_space
 
     for path in sorted(CASES.glob("*.toml")):
         case = load_case(path)

@@ -5,9 +5,9 @@ import math
 import pytest
 
 from robustff.case import FeedbackSpec, FeedforwardSpec
+from robustff.design.tuning import design_feedforward, series_to_ideal, tune_feedback
 from robustff.errors import DesignError
-from robustff.models import TransferModel
-from robustff.tuning import design_feedforward, series_to_ideal, tune_feedback
+from robustff.plant.models import TransferModel
 
 
 def test_simc_fopdt_pi_rule():

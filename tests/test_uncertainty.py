@@ -17,9 +17,7 @@ from robustff.case import (
     load_case,
     parse_case,
 )
-from robustff.demo import demo_case_path
-from robustff.errors import CaseError
-from robustff.uncertainty import (
+from robustff.case.sampling import (
     copula_factor,
     describe_distribution,
     distribution_bounds,
@@ -28,6 +26,8 @@ from robustff.uncertainty import (
     sample,
     uniform_scores,
 )
+from robustff.demo import demo_case_path
+from robustff.errors import CaseError
 
 BASE = load_case(demo_case_path("wash-water-heater"))
 

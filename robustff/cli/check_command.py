@@ -96,7 +96,7 @@ def _event_lines(case: Case) -> list[str]:
 
 
 def _uncertainty_lines(case: Case) -> list[str]:
-    from robustff.uncertainty import describe_distribution
+    from robustff.case.sampling import describe_distribution
 
     if not case.uncertainty:
         return ["", "Uncertainty: none (every sample is the nominal plant)"]
@@ -125,7 +125,7 @@ def _study_lines(case: Case) -> list[str]:
 
 
 def _design_lines(case: Case) -> list[str]:
-    from robustff.tuning import design_loop
+    from robustff.design.tuning import design_loop
 
     design = design_loop(case)
     summary = ["  " + line for line in design.summary_lines(case)]

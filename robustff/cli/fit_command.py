@@ -50,8 +50,8 @@ def register(subparsers: Any) -> None:
 
 
 def _fit_files(args: argparse.Namespace) -> list[Any]:
-    from robustff.identification import fit_record
-    from robustff.identification_data import read_record
+    from robustff.fit.least_squares import fit_record
+    from robustff.fit.records import read_record
 
     results = []
     for path in args.data:
@@ -80,7 +80,7 @@ def _check_args(args: argparse.Namespace) -> None:
 
 def run_fit(args: argparse.Namespace) -> int:
     """Fit every file, print the result, and write the plot and case if asked."""
-    from robustff.identification_spread import combine_fits
+    from robustff.fit.spread import combine_fits
 
     _check_args(args)
     results = _fit_files(args)
@@ -88,11 +88,11 @@ def run_fit(args: argparse.Namespace) -> int:
     time_unit = results[0].record.time_unit
     notes: list[str] = []
     if args.plot:
-        from robustff.fit_plot import save_fit_plot
+        from robustff.output.fit_plot import save_fit_plot
 
         save_fit_plot(results, args.plot, time_unit)
     if args.case_out:
-        from robustff.fit_case import write_fitted_case
+        from robustff.fit.write_case import write_fitted_case
 
         nominal = _nominal_model(results, proposals)
         notes = write_fitted_case(args.template, args.case_out, args.block, nominal, proposals,

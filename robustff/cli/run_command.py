@@ -93,7 +93,7 @@ class ProgressPrinter:
 
 
 def _print_table(summary: dict, percentiles) -> None:
-    from robustff.report import percentile_rows
+    from robustff.output.result_files import percentile_rows
 
     rows = percentile_rows(summary, percentiles, _TABLE_METRICS)
     header = ["metric", "arm", "unit", *[f"P{p:g}" for p in percentiles]]
@@ -148,10 +148,10 @@ def _margin_values(result) -> dict | None:
 def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case
     from robustff.cli import EXIT_INTERRUPTED, EXIT_OK
-    from robustff.report import check_output_folder, risk_sentence, write_results
+    from robustff.output.result_files import check_output_folder, risk_sentence, write_results
     from robustff.stats import DEFAULT_PERCENTILES
     from robustff.study import run_study
-    from robustff.summary import summarize_study
+    from robustff.study.summary import summarize_study
 
     case = load_case(args.case)
     percentiles = args.percentiles or DEFAULT_PERCENTILES
@@ -181,7 +181,7 @@ def execute(args: argparse.Namespace) -> int:
     summary = summarize_study(result, percentiles)
     extra = None
     if args.report:
-        from robustff.html_report import write_report
+        from robustff.output.html_report import write_report
 
         def extra(folder: Path) -> None:
             write_report(result, summary, folder, percentiles, _margin_values(result))

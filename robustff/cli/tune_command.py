@@ -185,7 +185,7 @@ def _progress(done: int, budget: int) -> None:
 def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case, save_case
     from robustff.cli import EXIT_OK
-    from robustff.robust_tuning import robust_search, sobol_sensitivity
+    from robustff.tune.search import robust_search, sobol_sensitivity
 
     started = time.perf_counter()
     case = load_case(args.case)

@@ -12,16 +12,16 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.case import Case
+from robustff.design.tuning import LoopDesign
 from robustff.engine.kernel import ACCUMULATOR_NAMES, N_ACCUMULATORS, simulate_kernel
+from robustff.engine.metrics import metrics_from_accumulators
 from robustff.engine.scenario import (
     Scenario,
     disturbance_direction,
     divergence_limit,
     event_profiles,
 )
-from robustff.metrics import metrics_from_accumulators
-from robustff.models import KIND_CODES, PlantBatch
-from robustff.tuning import LoopDesign
+from robustff.plant.models import KIND_CODES, PlantBatch
 
 __all__ = [
     "ARMS",
@@ -215,7 +215,7 @@ def build_scenario(case: Case, design: LoopDesign, settling_band: float | None =
     """The scenario of a case; the settling band comes from a nominal run unless given.
 
     The band is 2 % of the setpoint step, or 2 % of the nominal plant's feedback-only peak
-    deviation for disturbance events (see :mod:`robustff.metrics`).
+    deviation for disturbance events (see :mod:`robustff.engine.metrics`).
     """
     disturbance, setpoint, noise = event_profiles(case)
     direction, setpoint_step, start = disturbance_direction(case)

@@ -78,7 +78,7 @@ def block_coefficients(
     Parameters
     ----------
     kind : int
-        0 FOPDT, 1 SOPDT, 2 IPDT (see :data:`robustff.models.KIND_CODES`).
+        0 FOPDT, 1 SOPDT, 2 IPDT (see :data:`robustff.plant.models.KIND_CODES`).
     gain, tau1, tau2 : float
         Path gain and lags (time units); a SOPDT with one zero lag behaves as a FOPDT.
     h : float

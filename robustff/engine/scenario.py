@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.case import Case, Event
-from robustff.tuning import LoopDesign
+from robustff.design.tuning import LoopDesign
 
 __all__ = ["Scenario", "event_profiles", "disturbance_direction", "divergence_limit"]
 
@@ -30,11 +30,11 @@ class Scenario:
         Start of the first event, time units (``t0`` of the metrics).
     direction : ndarray, shape (T,)
         At each sample, the sign of the error that counts as an opposite-side excursion,
-        set by the latest event (see :mod:`robustff.metrics`).
+        set by the latest event (see :mod:`robustff.engine.metrics`).
     setpoint_step : float or None
         Size of the first event when it is a setpoint step, CV units.
     settling_band : float
-        CV units; see :mod:`robustff.metrics`.
+        CV units; see :mod:`robustff.engine.metrics`.
     divergence_limit : float
         |CV| beyond which a sample is declared unstable, CV units.
     """

@@ -179,7 +179,7 @@ class StudioApp(FileActions, RobustActions, FitActions, App[None]):
             self.call_later(pane.recompose)
 
     def show_design(self) -> None:
-        from robustff.tuning import design_loop
+        from robustff.design.tuning import design_loop
 
         try:
             lines = design_loop(self.case).summary_lines(self.case)
@@ -209,7 +209,7 @@ class StudioApp(FileActions, RobustActions, FitActions, App[None]):
     def _study(self, case: Case, generation: int, cancel: threading.Event) -> None:
         from robustff.stats import DEFAULT_PERCENTILES
         from robustff.study import run_study
-        from robustff.summary import summarize_study
+        from robustff.study.summary import summarize_study
         from robustff.tui.view import build_view
 
         total = case.study.samples

@@ -20,7 +20,7 @@ from robustff.case import (
     parse_case,
 )
 from robustff.errors import CaseError
-from robustff.models import MODEL_PARAMETERS, SENSOR_PARAMETERS
+from robustff.plant.models import MODEL_PARAMETERS, SENSOR_PARAMETERS
 
 __all__ = [
     "EDIT_SOURCE",
@@ -143,7 +143,7 @@ def _with_manual_settings(case: Case) -> Case:
     fb = case.feedback
     if fb.kc is not None and fb.ti is not None:
         return case
-    from robustff.tuning import design_loop
+    from robustff.design.tuning import design_loop
 
     try:
         settings = design_loop(replace(case, feedback=replace(fb, tuning="simc"))).feedback
@@ -206,7 +206,7 @@ def convert_distribution(case: Case, key: str, kind: str) -> Distribution:
 
     Used when the kind is changed in the table, so the row keeps sensible numbers.
     """
-    from robustff.uncertainty import distribution_bounds
+    from robustff.case.sampling import distribution_bounds
 
     if kind not in DISTRIBUTION_KINDS:
         raise CaseError(f"{EDIT_SOURCE}: uncertainty.{key}: unknown distribution {kind!r}")

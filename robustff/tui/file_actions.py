@@ -133,7 +133,7 @@ class FileActions(StudioHost):
 
     def export_to(self, folder: Path) -> bool:
         """Write the result files (as ``robustff run --out``) of the latest pass."""
-        from robustff.report import write_results
+        from robustff.output.result_files import write_results
         from robustff.stats import DEFAULT_PERCENTILES
 
         result, summary, view = self.last_result, self.last_summary, self.last_view

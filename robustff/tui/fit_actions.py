@@ -16,8 +16,8 @@ from robustff.tui.fit_screens import DEFAULT_FORM, FitFormScreen, FitResultScree
 from robustff.tui.host import StudioHost
 
 if TYPE_CHECKING:
-    from robustff.identification import FitResult
-    from robustff.models import TransferModel
+    from robustff.fit.least_squares import FitResult
+    from robustff.plant.models import TransferModel
 
 __all__ = ["FitActions"]
 

@@ -1,7 +1,7 @@
 """Fitting bump-test data from the studio, and writing the fitted model into the case.
 
 Plain Python (no Textual), so the form checks, the fit call and the case edit can be tested
-without a terminal. The fit itself is :func:`robustff.identification.fit_record` (the fit of
+without a terminal. The fit itself is :func:`robustff.fit.least_squares.fit_record` (the fit of
 ``robustff fit``); the edited case is checked by the loader through
 :func:`robustff.tui.editing.validated`.
 """
@@ -16,11 +16,11 @@ from typing import TYPE_CHECKING
 
 from robustff.case import TIME_UNITS, Case
 from robustff.errors import DataError
-from robustff.models import MODEL_KINDS, MODEL_PARAMETERS, TransferModel
+from robustff.plant.models import MODEL_KINDS, MODEL_PARAMETERS, TransferModel
 from robustff.tui import editing
 
 if TYPE_CHECKING:
-    from robustff.identification import FitResult
+    from robustff.fit.least_squares import FitResult
 
 __all__ = [
     "FIT_BLOCKS",
@@ -146,7 +146,7 @@ def fit_from_request(request: FitRequest, seed: int = 0) -> FitResult:
 
     Returns
     -------
-    robustff.identification.FitResult
+    robustff.fit.least_squares.FitResult
         Times in the data's time unit.
 
     Raises
@@ -154,8 +154,8 @@ def fit_from_request(request: FitRequest, seed: int = 0) -> FitResult:
     DataError
         Unusable data or a failed fit, the message naming the file.
     """
-    from robustff.identification import fit_record
-    from robustff.identification_data import read_record
+    from robustff.fit.least_squares import fit_record
+    from robustff.fit.records import read_record
 
     record = read_record(request.path, request.input_column, request.output_column,
                          time_column=request.time_column, sample_time=request.sample_time,
@@ -218,7 +218,7 @@ def converted_model(model: TransferModel, data_unit: str | None,
     (TransferModel, str)
         Times (and an IPDT slope gain, per time unit) converted; values to six significant digits.
     """
-    from robustff.fit_case import time_factor
+    from robustff.fit.write_case import time_factor
 
     if data_unit is None:
         factor = 1.0
@@ -251,7 +251,7 @@ def with_fitted_model(case: Case, block: str, model: TransferModel) -> tuple[Cas
     CaseError
         The loader's reason when the case would not load.
     """
-    from robustff.uncertainty import distribution_bounds
+    from robustff.case.sampling import distribution_bounds
 
     if block not in FIT_BLOCKS:
         raise DataError(f"a fitted model goes to one of {', '.join(FIT_BLOCKS)}, not {block!r}")

@@ -2,8 +2,8 @@
 the result (parameters with 95 % intervals, RMSE, notes, a text plot of data against fit).
 
 Nothing here computes a fit figure: the numbers come from a
-:class:`~robustff.identification.FitResult`, the plot from
-:func:`robustff.fit_plot.terminal_fit_plot` (always colourless: dots are data, the line is the
+:class:`~robustff.fit.least_squares.FitResult`, the plot from
+:func:`robustff.output.fit_plot.terminal_fit_plot` (always colourless: dots are data, the line is the
 fit, so NO_COLOR terminals lose nothing).
 """
 
@@ -27,7 +27,7 @@ from textual.widgets import Button, Input, Label, Select, Static
 from robustff import CAUTION
 from robustff.case import TIME_UNITS
 from robustff.errors import DataError
-from robustff.models import MODEL_KINDS, TransferModel
+from robustff.plant.models import MODEL_KINDS, TransferModel
 from robustff.tui.fit_apply import (
     FIT_BLOCKS,
     FIT_RESAMPLES,
@@ -40,7 +40,7 @@ from robustff.tui.fit_apply import (
 )
 
 if TYPE_CHECKING:
-    from robustff.identification import FitResult, ParameterEstimate
+    from robustff.fit.least_squares import FitResult, ParameterEstimate
 
 __all__ = ["FitFormScreen", "FitResultScreen", "estimates_table", "DEFAULT_FORM"]
 
@@ -287,7 +287,7 @@ class FitResultScreen(ModalScreen[bool]):
 
     def draw_plot(self) -> None:
         """Draw data (dots) and fit (line) at the current terminal size, without colour."""
-        from robustff.fit_plot import terminal_fit_plot
+        from robustff.output.fit_plot import terminal_fit_plot
 
         record = self.result.record
         width, height = self.plot_size()
@@ -319,7 +319,7 @@ class FitResultScreen(ModalScreen[bool]):
         """Write the PNG/SVG picture of ``robustff fit --plot`` to the path ``text``."""
         if not text:
             return
-        from robustff.fit_plot import save_fit_plot
+        from robustff.output.fit_plot import save_fit_plot
 
         path = Path(text).expanduser()
         try:

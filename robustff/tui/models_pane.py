@@ -9,7 +9,7 @@ from textual.containers import Horizontal, Vertical
 from textual.widgets import Input, Label, Select, Static
 
 from robustff.case import Case
-from robustff.models import MODEL_PARAMETERS
+from robustff.plant.models import MODEL_PARAMETERS
 from robustff.tui.editing import CHOICE_FIELDS, OPTIONAL_FIELDS, field_text
 from robustff.tui.messages import FieldEdited, field_id
 

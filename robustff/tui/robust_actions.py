@@ -1,6 +1,6 @@
 """The robust feedforward search from the studio (a mixin of the app).
 
-F6 asks for the objective, runs :func:`robustff.robust_tuning.robust_search` (the same search as
+F6 asks for the objective, runs :func:`robustff.tune.search.robust_search` (the same search as
 ``robustff tune``) in a thread worker with a progress screen, then shows nominal against robust
 settings and offers to write the searched values into the case's ``[feedforward]``. The search
 checks a stop flag after each objective evaluation (its progress callback raises to stop).
@@ -29,7 +29,7 @@ from robustff.tui.robust_screens import (
 )
 
 if TYPE_CHECKING:
-    from robustff.robust_tuning import RobustResult
+    from robustff.tune.search import RobustResult
 
 __all__ = ["RobustActions", "ROBUST_SAMPLES", "robust_sample_count", "with_robust_settings"]
 
@@ -100,7 +100,7 @@ class RobustActions(StudioHost):
 
     @work(thread=True, exclusive=True, group="robust", exit_on_error=False)
     def _robust(self, case: Case, objective: str, samples: int, stop: threading.Event) -> None:
-        from robustff.robust_tuning import robust_search
+        from robustff.tune.search import robust_search
 
         def progress(done: int, budget: int) -> None:
             if stop.is_set():

@@ -1,6 +1,6 @@
 """Screens of the robust feedforward search: its progress, and nominal against robust settings.
 
-The comparison is formatted from a :class:`~robustff.robust_tuning.RobustResult` (no numbers are
+The comparison is formatted from a :class:`~robustff.tune.search.RobustResult` (no numbers are
 computed here). Every figure carries its label and unit in words, nothing depends on colour.
 """
 
@@ -22,14 +22,14 @@ from textual.widgets import Button, ProgressBar, Static
 from robustff import CAUTION
 
 if TYPE_CHECKING:
-    from robustff.robust_tuning import RobustResult
+    from robustff.tune.search import RobustResult
 
 __all__ = ["OBJECTIVE_CHOICES", "OBJECTIVE_WORDS", "RobustProgressScreen", "RobustResultScreen",
            "comparison_table", "searched_values"]
 
 #: Keys and labels of the objective question (the first is the default).
 OBJECTIVE_CHOICES: list[tuple[str, str]] = [("p", "P90 of IAE"), ("c", "CVaR"), ("h", "P(harm)")]
-#: Key -> objective name of :func:`robustff.robust_tuning.robust_search`.
+#: Key -> objective name of :func:`robustff.tune.search.robust_search`.
 OBJECTIVE_KEYS = {"p": "p90", "c": "cvar", "h": "harm"}
 #: What each objective minimises, in words.
 OBJECTIVE_WORDS = {
@@ -53,7 +53,7 @@ def comparison_table(result: RobustResult, time_unit: str) -> Table:
 
     Parameters
     ----------
-    result : robustff.robust_tuning.RobustResult
+    result : robustff.tune.search.RobustResult
     time_unit : str
         The case's time unit (lead, lag and delay).
     """

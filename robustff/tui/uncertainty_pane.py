@@ -82,7 +82,7 @@ class UncertainRow(Vertical):
 
 
 def _describe(case: Case, row: UncertainParameter) -> str:
-    from robustff.uncertainty import describe_distribution
+    from robustff.case.sampling import describe_distribution
 
     return describe_distribution(row, case.nominal_value(row.key))
 

@@ -164,7 +164,7 @@ def build_view(result: StudyResult, summary: dict, quick: bool) -> StudyView:
     ----------
     result : robustff.study.StudyResult
     summary : dict
-        From :func:`robustff.summary.summarize_study`.
+        From :func:`robustff.study.summary.summarize_study`.
     quick : bool
         True for the first short pass.
     """

@@ -1,6 +1,6 @@
 """Reading primitives for case files: typed fields with one clear message per problem.
 
-Private helpers of :mod:`robustff.case_loader`. A :class:`Problems` collects every problem found
+Private helpers of :mod:`robustff.case.loader`. A :class:`Problems` collects every problem found
 in a file (the loader raises one :class:`~robustff.errors.CaseError` at the end, never at the
 first problem); a :class:`Table` reads typed values out of one TOML table and records what is
 wrong with each, naming the key path and the offending value.

@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 
 from robustff.errors import DataError
-from robustff.identification import FitResult
+from robustff.fit.least_squares import FitResult
 
 __all__ = ["PLOT_SUFFIXES", "save_fit_plot", "terminal_fit_plot"]
 

@@ -22,8 +22,8 @@ from __future__ import annotations
 import math
 
 from robustff.case import Case
-from robustff.models import TransferModel
-from robustff.tuning import FeedforwardSettings
+from robustff.design.tuning import FeedforwardSettings
+from robustff.plant.models import TransferModel
 
 __all__ = [
     "ise_optimal_lag", "open_loop_ise", "feedforward_rule", "RULE_NAME", "LAG_FLOOR_FRACTION",

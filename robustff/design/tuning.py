@@ -41,7 +41,7 @@ from dataclasses import dataclass, field
 
 from robustff.case import Case, FeedbackSpec, FeedforwardSpec
 from robustff.errors import DesignError
-from robustff.models import TransferModel
+from robustff.plant.models import TransferModel
 
 __all__ = [
     "FeedbackSettings",

@@ -21,7 +21,7 @@ import math
 import numpy as np
 
 from robustff.errors import DataError
-from robustff.identification import (
+from robustff.fit.least_squares import (
     FitResult,
     ParameterEstimate,
     _Problem,
@@ -30,9 +30,9 @@ from robustff.identification import (
     model_parameters,
     two_point_estimate,
 )
-from robustff.identification_data import StepInfo, StepRecord
-from robustff.identification_sim import simulate_response
-from robustff.models import MODEL_PARAMETERS, TransferModel
+from robustff.fit.records import StepInfo, StepRecord
+from robustff.fit.response import simulate_response
+from robustff.plant.models import MODEL_PARAMETERS, TransferModel
 
 __all__ = ["finish_fit", "two_point_result", "fit_autoregression", "resample_residuals"]
 

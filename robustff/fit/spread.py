@@ -17,8 +17,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from robustff.identification import FitResult
-from robustff.models import MODEL_PARAMETERS
+from robustff.fit.least_squares import FitResult
+from robustff.plant.models import MODEL_PARAMETERS
 
 __all__ = ["Proposal", "propose_distribution", "combine_fits"]
 

@@ -2,7 +2,7 @@
 
 Every problem in a file is collected, then one :class:`~robustff.errors.CaseError` is raised with
 one line per problem, ``"FILE: key.path: what is wrong (got VALUE)"``. The schema is described in
-``docs/case-format.md``; the uncertainty section is read by :mod:`robustff.case_loader_uncertainty`.
+``docs/case-format.md``; the uncertainty section is read by :mod:`robustff.case.uncertainty_section`.
 """
 
 from __future__ import annotations
@@ -11,8 +11,8 @@ import tomllib
 from pathlib import Path
 from typing import Any
 
-from robustff._case_fields import REQUIRED, Problems, Table, as_table, join
-from robustff.case import (
+from robustff.case.fields import REQUIRED, Problems, Table, as_table, join
+from robustff.case.schema import (
     EVENT_KINDS,
     FEEDFORWARD_STRUCTURES,
     TIME_UNITS,
@@ -25,9 +25,9 @@ from robustff.case import (
     SimulationSpec,
     StudySpec,
 )
-from robustff.case_loader_uncertainty import read_uncertainty
+from robustff.case.uncertainty_section import read_uncertainty
 from robustff.errors import CaseError
-from robustff.models import MODEL_KINDS, MODEL_PARAMETERS, SensorModel, TransferModel
+from robustff.plant.models import MODEL_KINDS, MODEL_PARAMETERS, SensorModel, TransferModel
 
 __all__ = ["parse_case", "load_case", "MAX_STEPS", "SAMPLING_PLANS", "TOP_LEVEL_KEYS"]
 

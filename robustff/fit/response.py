@@ -17,7 +17,7 @@ import math
 import numpy as np
 from scipy.linalg import expm
 
-from robustff.models import TransferModel
+from robustff.plant.models import TransferModel
 
 __all__ = ["HOLDS", "simulate_response", "unit_response"]
 

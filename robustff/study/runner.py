@@ -21,6 +21,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.case import Case
+from robustff.case.sampling import plant_batch, sample
+from robustff.design.margins import MarginResult, loop_margins
+from robustff.design.tuning import LoopDesign, design_loop
 from robustff.engine import (
     EnvelopeGrid,
     Scenario,
@@ -28,11 +31,8 @@ from robustff.engine import (
     nominal_batch,
     simulate,
 )
+from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
-from robustff.margins import MarginResult, loop_margins
-from robustff.metrics import METRIC_NAMES
-from robustff.tuning import LoopDesign, design_loop
-from robustff.uncertainty import plant_batch, sample
 
 __all__ = ["StudyResult", "run_study", "noise_seeds", "CHUNK_SIZE", "ProgressCallback"]
 

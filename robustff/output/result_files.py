@@ -20,8 +20,8 @@ from pathlib import Path
 import numpy as np
 
 from robustff import CAUTION
+from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
-from robustff.metrics import METRIC_NAMES
 from robustff.stats import percentile_key
 from robustff.study import StudyResult
 
@@ -178,7 +178,7 @@ def write_results(
     ----------
     result : StudyResult
     summary : dict
-        From :func:`robustff.summary.summarize_study`.
+        From :func:`robustff.study.summary.summarize_study`.
     folder : path
     percentiles : sequence of float
     extra : callable(Path), optional

@@ -30,9 +30,9 @@ from statistics import NormalDist
 
 import numpy as np
 
-from robustff.case import Case, Correlation, Distribution, UncertainParameter
+from robustff.case.schema import Case, Correlation, Distribution, UncertainParameter
 from robustff.errors import CaseError
-from robustff.models import PlantBatch
+from robustff.plant.models import PlantBatch
 
 __all__ = [
     "SAMPLING_PLANS",

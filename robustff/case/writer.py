@@ -18,7 +18,7 @@ from tomlkit.exceptions import TOMLKitError
 from tomlkit.items import AoT, InlineTable, Item, Table
 
 from robustff.atomic import write_text_atomic
-from robustff.case import (
+from robustff.case.schema import (
     DISTRIBUTION_KINDS,
     Case,
     Distribution,
@@ -28,7 +28,7 @@ from robustff.case import (
     StudySpec,
 )
 from robustff.errors import CaseError
-from robustff.models import MODEL_PARAMETERS, SensorModel
+from robustff.plant.models import MODEL_PARAMETERS, SensorModel
 
 __all__ = ["case_to_toml", "save_case"]
 
@@ -47,7 +47,7 @@ def case_to_toml(case: Case, original_text: str | None = None) -> str:
     Returns
     -------
     str
-        Text that :func:`robustff.case_loader.parse_case` reads back to an equal case
+        Text that :func:`robustff.case.loader.parse_case` reads back to an equal case
         (for a valid case).
     """
     return _render(case, original_text)[0]
@@ -74,7 +74,7 @@ def save_case(case: Case, path: str | Path, original_text: str | None = None) ->
     CaseError
         If the case is not valid (it would not load again) or the file cannot be written.
     """
-    from robustff.case_loader import parse_case
+    from robustff.case.loader import parse_case
 
     path = Path(path)
     text, warnings = _render(case, original_text)
@@ -110,7 +110,7 @@ def _render(case: Case, original_text: str | None) -> tuple[str, list[str]]:
 
 
 def _reads_back(text: str, case: Case) -> bool:
-    from robustff.case_loader import parse_case
+    from robustff.case.loader import parse_case
 
     try:
         return parse_case(text) == case

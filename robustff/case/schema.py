@@ -1,7 +1,7 @@
 """The study description (a *case*) as frozen dataclasses, and its file entry points.
 
 A case file is TOML; the schema is documented in ``docs/case-format.md``. Loading and validation
-live in :mod:`robustff.case_loader`, writing in :mod:`robustff.case_writer`; this module holds the
+live in :mod:`robustff.case.loader`, writing in :mod:`robustff.case.writer`; this module holds the
 types every other layer uses and re-exports :func:`load_case`, :func:`parse_case` and
 :func:`save_case`.
 """
@@ -11,7 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from robustff.models import SensorModel, TransferModel
+from robustff.plant.models import SensorModel, TransferModel
 
 __all__ = [
     "TIME_UNITS",
@@ -254,36 +254,3 @@ class Case:
             block
         ]
         return float(getattr(owner, parameter))
-
-
-# File entry points. Thin wrappers that import on first use: the loader and the writer import the
-# dataclasses above, so importing them at module level would be circular.
-def load_case(path: str | Path) -> Case:
-    """Read and validate a case file; see :func:`robustff.case_loader.load_case`."""
-    from robustff.case_loader import load_case as _load_case
-
-    return _load_case(path)
-
-
-def parse_case(text: str, source: str = "<text>") -> Case:
-    """Validate case text; see :func:`robustff.case_loader.parse_case`."""
-    from robustff.case_loader import parse_case as _parse_case
-
-    return _parse_case(text, source)
-
-
-def save_case(case: Case, path: str | Path, original_text: str | None = None) -> list[str]:
-    """Write a case atomically; see :func:`robustff.case_writer.save_case`."""
-    from robustff.case_writer import save_case as _save_case
-
-    return _save_case(case, path, original_text)
-
-
-def case_to_toml(case: Case, original_text: str | None = None) -> str:
-    """A case as TOML text; see :func:`robustff.case_writer.case_to_toml`."""
-    from robustff.case_writer import case_to_toml as _case_to_toml
-
-    return _case_to_toml(case, original_text)
-
-
-__all__ += ["load_case", "parse_case", "save_case", "case_to_toml"]

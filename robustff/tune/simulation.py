@@ -1,17 +1,17 @@
 """IAE of both arms for a batch of plants, simulated in chunks: shared by the robust searches.
 
-Used by :mod:`robustff.robust_tuning` (the robust feedforward search) and
-:mod:`robustff.robust_sobol` (Sobol indices of the IAE ratio).
+Used by :mod:`robustff.tune.search` (the robust feedforward search) and
+:mod:`robustff.tune.sobol` (Sobol indices of the IAE ratio).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
+from robustff.design.tuning import LoopDesign
 from robustff.engine import Scenario, simulate
-from robustff.models import PlantBatch
+from robustff.plant.models import PlantBatch
 from robustff.study import CHUNK_SIZE
-from robustff.tuning import LoopDesign
 
 __all__ = ["chunk_spans", "simulate_iae"]
 

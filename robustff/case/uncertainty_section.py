@@ -18,15 +18,15 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from robustff._case_fields import Problems, Table, as_table, check_number, join
-from robustff.case import (
+from robustff.case.fields import Problems, Table, as_table, check_number, join
+from robustff.case.schema import (
     DISTRIBUTION_KINDS,
     Correlation,
     Distribution,
     UncertainParameter,
 )
 from robustff.errors import CaseError
-from robustff.models import MODEL_PARAMETERS, SENSOR_PARAMETERS, SensorModel, TransferModel
+from robustff.plant.models import MODEL_PARAMETERS, SENSOR_PARAMETERS, SensorModel, TransferModel
 
 __all__ = ["read_uncertainty", "NON_NEGATIVE_PARAMETERS", "UNCERTAIN_BLOCKS"]
 
@@ -306,8 +306,8 @@ def _read_correlation(
 
 
 def _check_consistent(problems: Problems, keys: list[str], correlations: list[Correlation]) -> None:
-    # Imported here: robustff.uncertainty imports robustff.case, which imports this module.
-    from robustff.uncertainty import copula_factor
+    # Imported here: robustff.case.sampling imports robustff.case.schema, which imports this module.
+    from robustff.case.sampling import copula_factor
 
     try:
         copula_factor(keys, correlations)

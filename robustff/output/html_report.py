@@ -10,14 +10,14 @@ from pathlib import Path
 import numpy as np
 
 from robustff import CAUTION
-from robustff.plots import (
+from robustff.output.plots import (
     band_figure,
     margins_figure,
     ratio_figure,
     save_figure,
     sensitivity_figure,
 )
-from robustff.report import percentile_rows, risk_sentence
+from robustff.output.result_files import percentile_rows, risk_sentence
 from robustff.study import StudyResult
 
 __all__ = ["write_report"]

@@ -5,10 +5,10 @@ Every candidate is simulated on the SAME sampled plants with the SAME noise seed
 numbers), so differences between candidates are not sampling noise. The sample-average
 objective is minimised by Nelder-Mead with bounds (``scipy.optimize.minimize``, scipy >= 1.7)
 on parameters scaled to the unit box, started from the better of the nominal design and the
-rule of :mod:`robustff.feedforward_rule`. The winner and the nominal design are then simulated
+rule of :mod:`robustff.design.feedforward_rule`. The winner and the nominal design are then simulated
 on FRESH samples (another seed): the optimum's objective on its own samples is biased low
 (it was selected on them), the fresh figure is not. The objectives and the score the search
-minimises are described in :mod:`robustff.robust_objectives`.
+minimises are described in :mod:`robustff.tune.objectives`.
 """
 
 from __future__ import annotations
@@ -22,22 +22,22 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from robustff.case import Case
+from robustff.case.sampling import plant_batch, sample
+from robustff.design.feedforward_rule import feedforward_rule
+from robustff.design.tuning import FeedforwardSettings, LoopDesign, design_loop
 from robustff.engine import Scenario, build_scenario
 from robustff.errors import DesignError
-from robustff.feedforward_rule import feedforward_rule
-from robustff.robust_objectives import (
+from robustff.stats.sensitivity import SensitivityRow, rank_sensitivity
+from robustff.study import CHUNK_SIZE, noise_seeds
+from robustff.tune.objectives import (
     OBJECTIVES,
     objective_value,
     percentile_with_inf,
     search_score,
     unknown_objective,
 )
-from robustff.robust_simulation import chunk_spans, simulate_iae
-from robustff.robust_sobol import sobol_sensitivity
-from robustff.sensitivity import SensitivityRow, rank_sensitivity
-from robustff.study import CHUNK_SIZE, noise_seeds
-from robustff.tuning import FeedforwardSettings, LoopDesign, design_loop
-from robustff.uncertainty import plant_batch, sample
+from robustff.tune.simulation import chunk_spans, simulate_iae
+from robustff.tune.sobol import sobol_sensitivity
 
 __all__ = [
     "OBJECTIVES", "RobustResult", "DesignFigures", "SearchSpace", "robust_search",
@@ -106,7 +106,7 @@ class RobustResult:
     nominal, robust : FeedforwardSettings
         The model-based design and the search's winner.
     rule : FeedforwardSettings or None
-        The rule of :mod:`robustff.feedforward_rule` when it applies.
+        The rule of :mod:`robustff.design.feedforward_rule` when it applies.
     objective_value, objective_fresh : float
         The winner's objective on the optimisation samples and on fresh samples.
     figures : dict of str to dict of str to DesignFigures

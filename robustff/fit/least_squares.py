@@ -1,7 +1,7 @@
 """Fitting FOPDT, SOPDT and IPDT models to bump-test records, with confidence intervals.
 
 The main method is a least-squares simulation-error fit: the model's exact sampled response to the
-recorded input (:mod:`robustff.identification_sim`, fractional dead time) is matched to the
+recorded input (:mod:`robustff.fit.response`, fractional dead time) is matched to the
 recorded output. Gain and output baseline enter linearly and are solved by linear least squares
 inside the loop (variable projection), so ``scipy.optimize.least_squares`` only searches the lags
 and the dead time, within bounds, from several starts: the two-point method's estimate and the
@@ -20,9 +20,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from robustff.errors import DataError
-from robustff.identification_data import StepInfo, StepRecord, check_settled, locate_step
-from robustff.identification_sim import unit_response
-from robustff.models import MODEL_KINDS, MODEL_PARAMETERS, TransferModel
+from robustff.fit.records import StepInfo, StepRecord, check_settled, locate_step
+from robustff.fit.response import unit_response
+from robustff.plant.models import MODEL_KINDS, MODEL_PARAMETERS, TransferModel
 
 __all__ = [
     "FIT_METHODS",
@@ -135,7 +135,7 @@ def two_point_estimate(record: StepRecord, step: StepInfo, kind: str = "fopdt") 
     ----------
     record : StepRecord
     step : StepInfo
-        From :func:`robustff.identification_data.locate_step`.
+        From :func:`robustff.fit.records.locate_step`.
     kind : {"fopdt", "sopdt", "ipdt"}
         For SOPDT the FOPDT estimate is split into two lags (half rule in reverse).
 
@@ -302,7 +302,7 @@ def fit_record(
     if kind != "ipdt":
         check_settled(record, step)
     if method == "two-point":
-        from robustff.identification_ci import two_point_result
+        from robustff.fit.intervals import two_point_result
 
         return two_point_result(record, step, kind, ci_method, resamples, seed, warnings)
     u = _deviation_input(record, step)
@@ -320,7 +320,7 @@ def fit_record(
     if kind == "sopdt":
         starts.extend(_sopdt_starts(problem, y, starts, low, high))
     p, _ = _solve(problem, y, starts, low, high)
-    from robustff.identification_ci import finish_fit
+    from robustff.fit.intervals import finish_fit
 
     return finish_fit(record, step, problem, p, y, low, high, ci_method, resamples, seed, warnings)
 

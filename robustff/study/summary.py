@@ -12,8 +12,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from robustff import CAUTION, __version__
-from robustff.metrics import METRIC_NAMES, METRIC_UNITS
-from robustff.sensitivity import rank_sensitivity
+from robustff.engine.metrics import METRIC_NAMES, METRIC_UNITS
 from robustff.stats import (
     DEFAULT_PERCENTILES,
     convergence_for_percentile,
@@ -22,7 +21,8 @@ from robustff.stats import (
     probability_worse,
     summarize,
 )
-from robustff.study import StudyResult
+from robustff.stats.sensitivity import rank_sensitivity
+from robustff.study.runner import StudyResult
 
 __all__ = [
     "summarize_study",
@@ -78,7 +78,7 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> dict | None:
     """Margin percentiles, limit fractions, unstable samples, and the nominal loop's margins."""
     if result.margins is None or result.nominal_margins is None:
         return None
-    from robustff.uncertainty import plant_batch
+    from robustff.case.sampling import plant_batch
 
     subset = result.margins.size
     batch = plant_batch(result.case, result.names, result.parameters[:subset])

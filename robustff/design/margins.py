@@ -21,7 +21,7 @@ Method: each sample gets its own log-spaced grid from well below the lowest cros
 ``|L|`` has fallen below 0.05. Crossovers found on the grid are refined by vectorised bisection on
 the analytic ``L`` (to ~1e-12 in log frequency) and ``Ms`` by a golden-section search. Samples are
 processed in blocks of about 20 MB of complex arrays. Only numpy is imported. The result type
-and its JSON summary live in :mod:`robustff.margins_result`.
+and its JSON summary live in :mod:`robustff.design.margins_result`.
 """
 
 from __future__ import annotations
@@ -31,15 +31,15 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from robustff.errors import DataError, DesignError
-from robustff.margins_result import (
+from robustff.design.margins_result import (
     GAIN_MARGIN_LIMIT,
     MS_LIMIT,
     PHASE_MARGIN_LIMIT,
     MarginResult,
 )
-from robustff.models import PlantBatch, TransferModel
-from robustff.tuning import FeedbackSettings
+from robustff.design.tuning import FeedbackSettings
+from robustff.errors import DataError, DesignError
+from robustff.plant.models import PlantBatch, TransferModel
 
 __all__ = [
     "MarginResult",

@@ -14,8 +14,8 @@ from pathlib import Path
 from typing import Any
 
 from robustff.errors import CaseError, DataError
-from robustff.identification_spread import Proposal
-from robustff.models import MODEL_PARAMETERS, TransferModel
+from robustff.fit.spread import Proposal
+from robustff.plant.models import MODEL_PARAMETERS, TransferModel
 
 __all__ = ["SECONDS_PER_UNIT", "FIT_BLOCKS", "time_factor", "fitted_case_text", "write_fitted_case"]
 
@@ -68,7 +68,7 @@ def fitted_case_text(
         Nominal model, times in the data's time unit.
     proposals : dict of str to Proposal
         One per parameter of ``model.kind`` (from
-        :func:`robustff.identification_spread.combine_fits`).
+        :func:`robustff.fit.spread.combine_fits`).
     data_time_unit : str or None
         "s", "min" or "h"; None means the data are in the case's time unit.
 

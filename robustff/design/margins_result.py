@@ -1,6 +1,6 @@
 """Stability margins per sample as a result object, with its JSON-friendly summary.
 
-:func:`robustff.margins.loop_margins` computes the arrays; this module holds them and turns them
+:func:`robustff.design.margins.loop_margins` computes the arrays; this module holds them and turns them
 into the ``margins`` section of ``summary.json``: percentiles over the stable samples, the
 fractions beyond the design limits, the unstable samples and their process parameters.
 """
@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from robustff.models import PlantBatch
+from robustff.plant.models import PlantBatch
 
 __all__ = ["MarginResult", "MS_LIMIT", "GAIN_MARGIN_LIMIT", "PHASE_MARGIN_LIMIT"]
 

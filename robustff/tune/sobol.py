@@ -1,9 +1,9 @@
 """Sobol indices of the IAE ratio fbff/fb of a case's nominal design over its uncertainty.
 
 The variance-based counterpart of the rank correlations in
-:class:`robustff.robust_tuning.RobustResult`: which uncertain parameter drives the spread of the
+:class:`robustff.tune.search.RobustResult`: which uncertain parameter drives the spread of the
 ratio, alone (first-order index) and with its interactions (total index). The estimator is
-:func:`robustff.sensitivity.sobol_first_total`.
+:func:`robustff.stats.sensitivity.sobol_first_total`.
 """
 
 from __future__ import annotations
@@ -16,12 +16,12 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 
 from robustff.case import Case
+from robustff.case.sampling import inverse_cdf, plant_batch
+from robustff.design.tuning import LoopDesign, design_loop
 from robustff.engine import Scenario, build_scenario
 from robustff.errors import DesignError
-from robustff.robust_simulation import chunk_spans, simulate_iae
-from robustff.sensitivity import sobol_first_total
-from robustff.tuning import LoopDesign, design_loop
-from robustff.uncertainty import inverse_cdf, plant_batch
+from robustff.stats.sensitivity import sobol_first_total
+from robustff.tune.simulation import chunk_spans, simulate_iae
 
 __all__ = ["sobol_sensitivity"]
 

@@ -1,0 +1,1 @@
+"""Design from the nominal models: feedback tuning, feedforward design and rules, stability margins."""

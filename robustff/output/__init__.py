@@ -1,0 +1,1 @@
+"""What a study leaves behind: result files, plots and the HTML report."""

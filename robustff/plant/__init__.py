@@ -1,0 +1,1 @@
+"""Process models: every model kind behind one registry (parameters, units, transfer function)."""

@@ -1,0 +1,7 @@
+"""The study: the parallel Monte Carlo runner and the typed ``summary.json`` statistics."""
+
+from __future__ import annotations
+
+from robustff.study.runner import CHUNK_SIZE, ProgressCallback, StudyResult, noise_seeds, run_study
+
+__all__ = ["StudyResult", "run_study", "noise_seeds", "CHUNK_SIZE", "ProgressCallback"]

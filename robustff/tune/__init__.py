@@ -1,0 +1,1 @@
+"""Robust feedforward search: common-random-number objectives, the search, Sobol indices."""
