@@ -29,12 +29,17 @@ from robustff.case.uncertainty_section import read_uncertainty
 from robustff.errors import CaseError
 from robustff.plant.models import MODEL_KINDS, MODEL_PARAMETERS, SensorModel, TransferModel
 
-__all__ = ["parse_case", "load_case", "MAX_STEPS", "SAMPLING_PLANS", "TOP_LEVEL_KEYS"]
+__all__ = [
+    "parse_case", "load_case", "MAX_STEPS", "MIN_SAMPLES", "MAX_SAMPLES", "MAX_SEED",
+    "SAMPLING_PLANS", "TOP_LEVEL_KEYS",
+]
 
 #: Largest number of controller samples in one simulated window (memory and run time guard).
 MAX_STEPS = 200_000
 SAMPLING_PLANS: tuple[str, ...] = ("random", "lhs", "sobol")
 MIN_SAMPLES, MAX_SAMPLES = 10, 10_000_000
+#: Largest random seed a case (or the command line) may give: numpy takes 64-bit seeds.
+MAX_SEED = 2**63 - 1
 TOP_LEVEL_KEYS: tuple[str, ...] = (
     "title", "time_unit", "process", "disturbance", "feedback", "feedforward", "sensor",
     "event", "signals", "simulation", "uncertainty", "study",
@@ -94,6 +99,8 @@ def parse_case(text: str, source: str = "<text>") -> Case:
     CaseError
         With one line per problem found.
     """
+    # Windows editors save UTF-8 with a byte-order mark; TOML itself does not allow one.
+    text = text.removeprefix("\ufeff")
     try:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -367,7 +374,7 @@ def _read_study(problems: Problems, value: object) -> StudySpec | None:
     default = StudySpec()
     table.check_keys(("samples", "seed", "sampling"))
     samples = table.integer("samples", default.samples, MIN_SAMPLES, MAX_SAMPLES)
-    seed = table.integer("seed", default.seed, 0, 2**63 - 1)
+    seed = table.integer("seed", default.seed, 0, MAX_SEED)
     sampling = table.text("sampling", default.sampling, SAMPLING_PLANS)
     if len(problems) > before:
         return None

@@ -32,7 +32,14 @@ COMMAND_MODULES: tuple[str, ...] = (
 
 
 class _Parser(argparse.ArgumentParser):
-    """An argument parser whose usage errors exit with status 2 and one clear line."""
+    """An argument parser whose usage errors exit with status 2 and one clear line.
+
+    Prefix matching is off: ``--sample 100`` is an error, not a silent ``--samples 100``.
+    """
+
+    def __init__(self, *args: object, **kwargs: object) -> None:
+        kwargs.setdefault("allow_abbrev", False)
+        super().__init__(*args, **kwargs)  # type: ignore[arg-type]
 
     def error(self, message: str) -> None:  # type: ignore[override]
         words = self.prog.split()

@@ -9,7 +9,7 @@ import time
 from pathlib import Path
 
 from robustff import CAUTION
-from robustff.cli.arguments import non_negative_int, positive_int
+from robustff.cli.arguments import positive_int, sample_count, seed_value
 from robustff.errors import RobustffError
 
 __all__ = ["register", "parse_percentiles", "ProgressPrinter"]
@@ -25,9 +25,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     parser.add_argument("case", metavar="CASE.toml", help="case file")
     parser.add_argument(
-        "--samples", type=positive_int, help="number of perturbed plants (default: the case's)"
+        "--samples", type=sample_count, help="number of perturbed plants (default: the case's)"
     )
-    parser.add_argument("--seed", type=non_negative_int, help="random seed (default: the case's)")
+    parser.add_argument("--seed", type=seed_value, help="random seed (default: the case's)")
     parser.add_argument("--jobs", type=positive_int, help="parallel workers (default: all cores)")
     parser.add_argument("--out", metavar="DIR", help="result folder (default: results/<case name>)")
     parser.add_argument(
@@ -111,8 +111,13 @@ def _check_cluster_address(address: str) -> None:
     """``tcp://HOST:PORT`` with dask.distributed installed, or a RobustffError."""
     import re
 
-    if not re.fullmatch(r"(tcp|tls)://[^\s:/]+:\d{1,5}", address):
+    match = re.fullmatch(r"(tcp|tls)://[^\s:/]+:(\d{1,5})", address)
+    if not match:
         raise RobustffError(f"--cluster: expected tcp://HOST:PORT, got {address!r}")
+    if not 1 <= int(match.group(2)) <= 65535:
+        raise RobustffError(
+            f"--cluster: port {match.group(2)} is outside 1-65535 in {address!r}"
+        )
     try:
         import distributed  # noqa: F401
     except ImportError:

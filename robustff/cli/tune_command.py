@@ -11,7 +11,7 @@ from dataclasses import replace
 from pathlib import Path
 
 from robustff import CAUTION
-from robustff.cli.arguments import non_negative_int, positive_int
+from robustff.cli.arguments import positive_int, sample_count, seed_value
 from robustff.errors import CaseError
 
 __all__ = ["register", "execute", "result_to_dict", "robust_case"]
@@ -34,9 +34,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--objective", choices=("p90", "cvar", "harm"), default="p90",
                         help="p90: 90th percentile of IAE (default); cvar: mean of the worst "
                              "10 %% of IAE; harm: probability that feedforward is worse")
-    parser.add_argument("--samples", type=positive_int,
+    parser.add_argument("--samples", type=sample_count,
                         help="perturbed plants per sample set (default: the case's)")
-    parser.add_argument("--seed", type=non_negative_int,
+    parser.add_argument("--seed", type=seed_value,
                         help="seed of the optimisation samples (default: the case's); the "
                              "fresh re-check uses seed + 1")
     parser.add_argument("--jobs", type=positive_int, help="threads (default: all cores)")

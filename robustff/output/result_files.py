@@ -60,6 +60,11 @@ def risk_sentence(summary: dict, metric: str = "iae") -> str:
     """One line on the probability that feedforward makes ``metric`` worse."""
     harm = summary["ff_worse"][metric]
     label = "IAE" if metric == "iae" else metric.replace("_", " ")
+    if summary["design"]["feedforward"]["structure"] == "none":
+        return (
+            f'No feedforward in this case ([feedforward] structure = "none"): both arms are '
+            f"feedback only, so there is no {label} change to judge"
+        )
     low, high = harm["ci95"]
     if harm["probability"] is None:
         return f"Feedforward makes {label} worse: no usable samples (unstable in both arms)"
@@ -145,8 +150,10 @@ def check_output_folder(folder: Path) -> None:
     """
     if folder.exists() and not folder.is_dir():
         raise RobustffError(f"--out {folder}: exists and is not a folder")
-    parent = folder.parent if str(folder.parent) else Path(".")
-    existing = next((p for p in (parent, *parent.parents) if p.exists()), Path("."))
+    # An existing folder must itself be writable (results are written into it); otherwise the
+    # nearest existing ancestor, where the folder will be created.
+    start = folder if folder.is_dir() else (folder.parent if str(folder.parent) else Path("."))
+    existing = next((p for p in (start, *start.parents) if p.exists()), Path("."))
     try:  # a real probe: permissions alone do not tell (read-only or special file systems)
         os.rmdir(tempfile.mkdtemp(prefix=".robustff-probe.", dir=existing))
     except OSError as exc:
