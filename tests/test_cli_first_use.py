@@ -143,3 +143,14 @@ def test_quick_start_commands_use_a_virtual_environment() -> None:
         assert command.startswith("python3 -m venv .venv && .venv/bin/pip install ")
     assert block[1].endswith(".venv/bin/python -m pytest")
     assert "README.md" in (ROOT / ".ci" / "run").read_text()
+
+
+def test_studio_without_a_terminal_refuses_in_one_line(tmp_path: Path) -> None:
+    import subprocess
+    import sys
+
+    done = subprocess.run([sys.executable, "-m", "robustff", "studio", str(DEMO)],
+                          capture_output=True, text=True, stdin=subprocess.DEVNULL, timeout=60,
+                          cwd=tmp_path, check=False)
+    assert done.returncode == EXIT_USAGE
+    assert "needs a terminal" in done.stderr and "\x1b[" not in done.stderr + done.stdout

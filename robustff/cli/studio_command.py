@@ -3,7 +3,10 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
+
+from robustff.errors import RobustffError
 
 __all__ = ["register", "execute"]
 
@@ -24,7 +27,20 @@ def execute(args: argparse.Namespace) -> int:
 
     path = Path(args.case) if args.case else demo_case_path("wash-water-heater")
     case = load_case(path)  # errors go to the CLI's one-line messages before the screen opens
+    _require_terminal()
     from robustff.tui.app import StudioApp  # Textual is imported only here
 
     StudioApp(path, case=case).run()
     return 0
+
+
+def _require_terminal() -> None:
+    """Refuse to start without a terminal: the screen would go nowhere and wait for keys forever."""
+    streams = {"standard input": sys.stdin, "standard output": sys.stdout}
+    missing = [name for name, stream in streams.items() if not (stream and stream.isatty())]
+    if missing:
+        raise RobustffError(
+            f"the studio needs a terminal, but {' and '.join(missing)} "
+            f"{'is' if len(missing) == 1 else 'are'} not connected to one "
+            "(run it in a terminal or over SSH with a terminal; for batch work use 'robustff run')"
+        )
