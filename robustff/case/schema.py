@@ -240,12 +240,13 @@ class Case:
         signals = self.signals
         if name == "noise_std":
             return signals.disturbance.unit
-        if name != "gain":
+        model = self.process if block == "process" else self.disturbance
+        if block == "sensor" or name not in model.spec.parameter_names:
             return self.time_unit
         source = signals.output if block == "process" else signals.disturbance
-        model = self.process if block == "process" else self.disturbance
-        unit = f"{signals.controlled.unit or 'CV unit'} per {source.unit or 'input unit'}"
-        return f"{unit} per {self.time_unit}" if model.integrating else unit
+        return model.spec.parameter(name).unit_text(
+            signals.controlled.unit or "CV unit", source.unit or "input unit", self.time_unit
+        )
 
     def nominal_value(self, key: str) -> float:
         """Nominal value of a plant parameter such as ``"process.gain"``."""

@@ -9,6 +9,7 @@ from typing import Any
 
 from robustff import CAUTION
 from robustff.errors import DataError
+from robustff.plant.models import MODEL_KINDS
 
 __all__ = ["register", "run_fit", "result_json"]
 
@@ -32,7 +33,7 @@ def register(subparsers: Any) -> None:
     timing.add_argument("--time", metavar="COL", help="time column (numbers or ISO timestamps)")
     timing.add_argument("--sample-time", type=float, metavar="DT", help="fixed sample interval")
     parser.add_argument("--time-unit", choices=_TIME_UNITS, help="time unit of the data")
-    parser.add_argument("--model", choices=("fopdt", "sopdt", "ipdt"), default="fopdt")
+    parser.add_argument("--model", choices=MODEL_KINDS, default="fopdt")
     parser.add_argument("--method", choices=("least-squares", "two-point"), default="least-squares")
     parser.add_argument("--ci", choices=("bootstrap", "jacobian", "none"), default="bootstrap",
                         help="how the 95%% intervals are computed (default: bootstrap)")

@@ -39,6 +39,7 @@ from robustff.design.margins_result import (
 )
 from robustff.design.tuning import FeedbackSettings
 from robustff.errors import DataError, DesignError
+from robustff.plant.kinds import model_kind
 from robustff.plant.models import PlantBatch, TransferModel
 
 __all__ = [
@@ -341,7 +342,10 @@ def _loop_from(batch: PlantBatch, feedback: FeedbackSettings) -> _Loop:
     if td > 0.0 and tf == 0.0:
         raise DesignError("loop margins: a derivative action needs a filter time > 0 "
                           "(an unfiltered derivative makes the loop improper)")
-    kind = batch.process_kind
+    kind = model_kind(batch.process_kind)
+    if len(kind.lag_parameters) > 2:
+        raise DesignError(f"loop margins: a {kind.name} model has more lags than the margin "
+                          "calculation handles (two)")
     cols = {}
     for name in ("gain", "time_constant", "time_constant_2", "dead_time"):
         values = np.asarray(batch.values[f"process.{name}"], dtype=np.float64)
@@ -353,9 +357,9 @@ def _loop_from(batch: PlantBatch, feedback: FeedbackSettings) -> _Loop:
                             f"value {values[first]!r})")
         cols[name] = values
     zero = np.zeros_like(cols["gain"])
-    tau1 = zero if kind == "ipdt" else cols["time_constant"]
-    tau2 = cols["time_constant_2"] if kind == "sopdt" else zero
-    return _Loop(cols["gain"], tau1, tau2, cols["dead_time"], kind == "ipdt", kc, ti, td, tf)
+    # Lags the kind does not have are "no lag" (zero), whatever the batch column holds.
+    tau1, tau2 = ([cols[name] for name in kind.lag_parameters] + [zero, zero])[:2]
+    return _Loop(cols["gain"], tau1, tau2, cols["dead_time"], kind.integrating, kc, ti, td, tf)
 
 
 def _block_rows(points: int) -> int:

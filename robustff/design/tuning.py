@@ -268,7 +268,7 @@ def tune_feedback(
                 f"{process.gain:g} (Kc must have the same sign: the loop would run away)"
             )
     else:
-        if process.kind != "ipdt" and process.time_constant <= 0.0:
+        if not process.integrating and process.time_constant <= 0.0:
             raise DesignError("feedback: tuning rules need a process time constant > 0")
         if spec.tuning == "simc":
             kc, ti, td, _ = _simc(process, spec.form, tau_c)
@@ -354,8 +354,7 @@ def design_feedforward(
 
 
 def _lags(model: TransferModel) -> list[float]:
-    return [tau for tau in (model.time_constant, model.time_constant_2)[
-        : 2 if model.kind == "sopdt" else 1] if tau > 0.0]
+    return [tau for tau in model.lags if tau > 0.0]
 
 
 def _reduced_lead_lag(process: TransferModel, disturbance: TransferModel) -> tuple[float, float]:

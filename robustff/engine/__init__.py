@@ -21,7 +21,8 @@ from robustff.engine.scenario import (
     divergence_limit,
     event_profiles,
 )
-from robustff.plant.models import KIND_CODES, PlantBatch
+from robustff.plant.kinds import model_kind
+from robustff.plant.models import PlantBatch
 
 __all__ = [
     "ARMS",
@@ -178,7 +179,7 @@ def simulate(
     accumulators = np.empty((n, 2, N_ACCUMULATORS))
     unstable = np.zeros((n, 2), dtype=np.bool_)
     simulate_kernel(
-        np.array([KIND_CODES[batch.process_kind], KIND_CODES[batch.disturbance_kind]]),
+        np.array([model_kind(batch.process_kind).code, model_kind(batch.disturbance_kind).code]),
         plant_matrix(batch),
         np.asarray(seeds, dtype=np.uint64),
         scenario.step,

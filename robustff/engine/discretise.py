@@ -20,7 +20,12 @@ import math
 import numpy as np
 from numba import njit
 
+from robustff.plant.kinds import FOPDT, IPDT, SOPDT
+
 __all__ = ["decay", "phi1", "coupling", "second_step", "block_coefficients", "split_delay"]
+
+# Simulator codes from the kind registry; numba compiles module-level ints in as constants.
+_FOPDT, _SOPDT, _IPDT = FOPDT.code, SOPDT.code, IPDT.code
 
 
 @njit(cache=True, nogil=True)
@@ -78,7 +83,8 @@ def block_coefficients(
     Parameters
     ----------
     kind : int
-        0 FOPDT, 1 SOPDT, 2 IPDT (see :data:`robustff.plant.models.KIND_CODES`).
+        :attr:`robustff.plant.kinds.ModelKind.code` of the path's kind (FOPDT, SOPDT, IPDT).
+        A new kind adds its branch here.
     gain, tau1, tau2 : float
         Path gain and lags (time units); a SOPDT with one zero lag behaves as a FOPDT.
     h : float
@@ -95,15 +101,15 @@ def block_coefficients(
     out = np.zeros(8)
     t_new = (1.0 - f) * h
     t_old = f * h
-    if kind == 2:
+    if kind == _IPDT:
         out[0] = 1.0
         out[3] = gain * t_new
         out[5] = gain * t_old
         out[7] = 1.0
         return out
-    if kind == 1 and tau1 <= 0.0:
+    if kind == _SOPDT and tau1 <= 0.0:
         tau1, tau2 = tau2, 0.0
-    if kind == 0 or tau2 <= 0.0:
+    if kind == _FOPDT or tau2 <= 0.0:
         out[0] = decay(h, tau1)
         out[3] = gain * (1.0 - decay(t_new, tau1))
         out[5] = gain * (1.0 - decay(t_old, tau1)) * decay(t_new, tau1)

@@ -32,6 +32,7 @@ from robustff.fit.least_squares import (
 )
 from robustff.fit.records import StepInfo, StepRecord
 from robustff.fit.response import simulate_response
+from robustff.plant.kinds import model_kind
 from robustff.plant.models import MODEL_PARAMETERS, TransferModel
 
 __all__ = ["finish_fit", "two_point_result", "fit_autoregression", "resample_residuals"]
@@ -83,8 +84,8 @@ def _percentile_ci(samples: np.ndarray) -> list[tuple[float, float]]:
 
 
 def _canonical(kind: str, p: np.ndarray) -> np.ndarray:
-    """SOPDT lags in decreasing order (the response is symmetric in them)."""
-    if kind == "sopdt" and p[1] > p[0]:
+    """Two lags in decreasing order (the response is symmetric in them)."""
+    if len(model_kind(kind).lag_parameters) == 2 and p[1] > p[0]:
         return np.array([p[1], p[0], p[2]])
     return p
 
@@ -136,11 +137,6 @@ def _estimates(model: TransferModel, cis: list[tuple[float, float]] | None,
     return {name: ParameterEstimate(v, by_name.get(name)) for name, v in values.items()}
 
 
-_ORDER = {"fopdt": ("gain", "time_constant", "dead_time"),
-          "sopdt": ("gain", "time_constant", "time_constant_2", "dead_time"),
-          "ipdt": ("gain", "dead_time")}
-
-
 def finish_fit(record: StepRecord, step: StepInfo, problem: _Problem, p: np.ndarray,
                y: np.ndarray, low: np.ndarray, high: np.ndarray, ci_method: str,
                resamples: int, seed: int, warnings: list[str]) -> FitResult:
@@ -155,7 +151,7 @@ def finish_fit(record: StepRecord, step: StepInfo, problem: _Problem, p: np.ndar
     elif ci_method == "jacobian":
         cis = _jacobian_ci(problem, y, gain, p, low, high)
     _warn_poor_fit(record, model, step, warnings)
-    return FitResult(model, _estimates(model, cis, _ORDER[model.kind]), "least-squares",
+    return FitResult(model, _estimates(model, cis, model.spec.parameter_names), "least-squares",
                      ci_method if cis is not None else "none", base, step.input_baseline,
                      fitted, float(np.sqrt(np.mean(residuals**2))), record, tuple(warnings))
 
@@ -177,7 +173,7 @@ def _warn_poor_fit(record: StepRecord, model: TransferModel, step: StepInfo,
 def two_point_result(record: StepRecord, step: StepInfo, kind: str, ci_method: str,
                      resamples: int, seed: int, warnings: list[str]) -> FitResult:
     """The two-point (or IPDT slope-line) estimate alone, with bootstrap intervals if asked."""
-    if kind == "sopdt":
+    if len(model_kind(kind).lag_parameters) > 1:
         raise DataError("the two-point method gives FOPDT (or IPDT) models only; use --model "
                         "fopdt, or the least-squares fit for SOPDT")
     if not step.single_step:
@@ -193,7 +189,7 @@ def two_point_result(record: StepRecord, step: StepInfo, kind: str, ci_method: s
     if ci_method != "none" and resamples > 0:
         samples = _two_point_bootstrap(record, step, kind, fitted, residuals, resamples, seed)
         cis = _percentile_ci(samples)
-    return FitResult(model, _estimates(model, cis, _ORDER[kind]), "two-point",
+    return FitResult(model, _estimates(model, cis, model_kind(kind).parameter_names), "two-point",
                      "bootstrap" if cis is not None else "none", step.output_baseline,
                      step.input_baseline, fitted, float(np.sqrt(np.mean(residuals**2))),
                      record, tuple(warnings))
@@ -213,7 +209,7 @@ def _two_point_bootstrap(record: StepRecord, step: StepInfo, kind: str, fitted: 
         except DataError:
             out[i] = np.nan
             continue
-        out[i] = [getattr(model, name) for name in _ORDER[kind]]
+        out[i] = [getattr(model, name) for name in model.spec.parameter_names]
     out = out[np.all(np.isfinite(out), axis=1)]
     if out.shape[0] < resamples // 2:
         raise DataError(f"{record.source}: the two-point method fails on most noisy resamples; "

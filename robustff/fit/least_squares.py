@@ -22,6 +22,7 @@ import numpy as np
 from robustff.errors import DataError
 from robustff.fit.records import StepInfo, StepRecord, check_settled, locate_step
 from robustff.fit.response import unit_response
+from robustff.plant.kinds import FOPDT, model_kind
 from robustff.plant.models import MODEL_KINDS, MODEL_PARAMETERS, TransferModel
 
 __all__ = [
@@ -36,11 +37,8 @@ __all__ = [
 
 FIT_METHODS: tuple[str, ...] = ("least-squares", "two-point")
 CI_METHODS: tuple[str, ...] = ("bootstrap", "jacobian", "none")
-_TIME_NAMES = {
-    "fopdt": ("time_constant", "dead_time"),
-    "sopdt": ("time_constant", "time_constant_2", "dead_time"),
-    "ipdt": ("dead_time",),
-}
+#: How a grid start's lag is split over a kind's lags, by the number of lags.
+_LAG_SPLIT: dict[int, tuple[float, ...]] = {0: (), 1: (1.0,), 2: (0.75, 0.25)}
 
 
 @dataclass(frozen=True)
@@ -147,8 +145,9 @@ def two_point_estimate(record: StepRecord, step: StepInfo, kind: str = "fopdt") 
     t, y = record.times, record.output - step.output_baseline
     t_step = float(t[step.index])  # the new input level is held from this sample
     tail = max(3, (record.size - step.index) // 10)
-    if kind == "ipdt":
-        return _slope_line_estimate(record, step, t_step)
+    spec = model_kind(kind)
+    if spec.integrating:
+        return _slope_line_estimate(record, step, t_step, kind)
     final = float(np.mean(y[-tail:]))
     width = max(1, min(9, (record.size - step.index) // 40))
     sign_y = np.sign(final) if final != 0 else 1.0
@@ -158,13 +157,14 @@ def two_point_estimate(record: StepRecord, step: StepInfo, kind: str = "fopdt") 
     tau, theta = two_point_times(t28, t63, t_step)
     tau = max(tau, 0.05 * record.sample_time)
     gain = final / step.input_change
-    if kind == "sopdt":
+    if len(spec.lag_parameters) == 2:
         tau2 = 0.3 * tau
-        return TransferModel("sopdt", gain, tau - tau2 / 2, tau2, max(0.0, theta - tau2 / 2))
-    return TransferModel("fopdt", gain, tau, 0.0, theta)
+        return TransferModel(kind, gain, tau - tau2 / 2, tau2, max(0.0, theta - tau2 / 2))
+    return TransferModel(kind, gain, tau, 0.0, theta)
 
 
-def _slope_line_estimate(record: StepRecord, step: StepInfo, t_step: float) -> TransferModel:
+def _slope_line_estimate(record: StepRecord, step: StepInfo, t_step: float,
+                         kind: str) -> TransferModel:
     """IPDT estimate: a line through the second half of the response; dead time where it
     leaves the baseline."""
     half = step.index + (record.size - step.index) // 2
@@ -172,14 +172,14 @@ def _slope_line_estimate(record: StepRecord, step: StepInfo, t_step: float) -> T
     slope, intercept = np.polyfit(t, y, 1)
     gain = float(slope) / step.input_change
     theta = (-intercept / slope - t_step) if slope != 0 else 0.0
-    return TransferModel("ipdt", gain, 0.0, 0.0, float(max(0.0, theta)))
+    return TransferModel(kind, gain, 0.0, 0.0, float(max(0.0, theta)))
 
 
 def _bounds(kind: str, duration: float, h: float) -> tuple[np.ndarray, np.ndarray]:
     lag_low, lag_high = 0.02 * h, 20.0 * duration
-    low = {"fopdt": [lag_low, 0.0], "sopdt": [lag_low, lag_low, 0.0], "ipdt": [0.0]}[kind]
-    high = {"fopdt": [lag_high, 0.8 * duration], "sopdt": [lag_high, lag_high, 0.8 * duration],
-            "ipdt": [0.8 * duration]}[kind]
+    n_lags = len(model_kind(kind).lag_parameters)
+    low = [lag_low] * n_lags + [0.0]
+    high = [lag_high] * n_lags + [0.8 * duration]
     return np.asarray(low, dtype=float), np.asarray(high, dtype=float)
 
 
@@ -188,12 +188,11 @@ class _Problem:
 
     def __init__(self, kind: str, u: np.ndarray, h: float, hold: str) -> None:
         self.kind, self.u, self.h, self.hold = kind, u, h, hold
+        self.n_lags = len(model_kind(kind).lag_parameters)
 
     def response(self, p: np.ndarray) -> np.ndarray:
-        if self.kind == "ipdt":
-            lags = (0.0, 0.0)
-        else:
-            lags = (p[0], p[1] if self.kind == "sopdt" else 0.0)
+        # p holds the kind's lags then the dead time; lags it does not have are zero
+        lags = (*p[: self.n_lags], 0.0, 0.0)
         return unit_response(self.kind, lags[0], lags[1], p[-1], self.u, self.h, self.hold)
 
     def linear(self, p: np.ndarray, y: np.ndarray) -> tuple[float, float, np.ndarray]:
@@ -208,16 +207,16 @@ class _Problem:
 
 
 def _to_model(kind: str, gain: float, p: np.ndarray) -> TransferModel:
-    if kind == "fopdt":
-        return TransferModel("fopdt", gain, float(p[0]), 0.0, float(p[1]))
-    if kind == "sopdt":
-        tau1, tau2 = sorted((float(p[0]), float(p[1])), reverse=True)
-        return TransferModel("sopdt", gain, tau1, tau2, float(p[2]))
-    return TransferModel("ipdt", gain, 0.0, 0.0, float(p[0]))
+    spec = model_kind(kind)
+    # lags in decreasing order: the response is symmetric in them
+    lags = sorted((float(tau) for tau in p[: len(spec.lag_parameters)]), reverse=True)
+    values = dict(zip(spec.lag_parameters, lags, strict=True))
+    return TransferModel(kind, gain, values.get("time_constant", 0.0),
+                         values.get("time_constant_2", 0.0), float(p[-1]))
 
 
 def _start_vector(model: TransferModel) -> np.ndarray:
-    return np.array([getattr(model, name) for name in _TIME_NAMES[model.kind]], dtype=float)
+    return np.array([getattr(model, name) for name in model.spec.time_parameters], dtype=float)
 
 
 def _grid_starts(problem: _Problem, y: np.ndarray, low: np.ndarray, high: np.ndarray,
@@ -226,14 +225,10 @@ def _grid_starts(problem: _Problem, y: np.ndarray, low: np.ndarray, high: np.nda
     lags = np.geomspace(max(low[0], 0.5 * problem.h), 0.7 * duration, 7)
     delays = np.linspace(0.0, 0.4 * duration, 7)
     candidates = []
-    for lag in lags if problem.kind != "ipdt" else [0.0]:  # an IPDT has no lag
+    split = _LAG_SPLIT[problem.n_lags]
+    for lag in lags if split else [0.0]:  # a kind without lags needs no lag grid
         for delay in delays:
-            if problem.kind == "fopdt":
-                p = np.array([lag, delay])
-            elif problem.kind == "sopdt":
-                p = np.array([0.75 * lag, 0.25 * lag, delay])
-            else:
-                p = np.array([delay])
+            p = np.array([*(fraction * lag for fraction in split), delay])
             p = np.clip(p, low, high)
             _, _, r = problem.linear(p, y)
             candidates.append((float(r @ r), p))
@@ -299,7 +294,7 @@ def fit_record(
         raise DataError(f"unknown fit method '{method}' or interval method '{ci_method}'")
     step = locate_step(record)
     warnings = list(record.warnings)
-    if kind != "ipdt":
+    if not model_kind(kind).integrating:
         check_settled(record, step)
     if method == "two-point":
         from robustff.fit.intervals import two_point_result
@@ -317,7 +312,7 @@ def fit_record(
             starts.insert(0, _start_vector(two_point_estimate(record, step, kind)))
         except DataError as exc:
             warnings.append(f"{record.source}: no two-point start ({exc})")
-    if kind == "sopdt":
+    if problem.n_lags == 2:
         starts.extend(_sopdt_starts(problem, y, starts, low, high))
     p, _ = _solve(problem, y, starts, low, high)
     from robustff.fit.intervals import finish_fit
@@ -328,7 +323,7 @@ def fit_record(
 def _sopdt_starts(problem: _Problem, y: np.ndarray, starts: list[np.ndarray], low: np.ndarray,
                   high: np.ndarray) -> list[np.ndarray]:
     """SOPDT starts from an FOPDT fit split into two lags in a few ratios."""
-    fo = _Problem("fopdt", problem.u, problem.h, problem.hold)
+    fo = _Problem(FOPDT.name, problem.u, problem.h, problem.hold)
     fo_low, fo_high = low[[0, 2]], high[[0, 2]]
     p_fo, _ = _solve(fo, y, [s[[0, 2]] + np.array([s[1], 0.0]) for s in starts[:2]],
                      fo_low, fo_high)

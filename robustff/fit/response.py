@@ -17,6 +17,7 @@ import math
 import numpy as np
 from scipy.linalg import expm
 
+from robustff.plant.kinds import model_kind
 from robustff.plant.models import TransferModel
 
 __all__ = ["HOLDS", "simulate_response", "unit_response"]
@@ -25,13 +26,27 @@ HOLDS: tuple[str, ...] = ("zoh", "linear")
 
 
 def _state_space(kind: str, time_constant: float, time_constant_2: float) -> tuple[np.ndarray, ...]:
-    """Unit-gain delay-free model (A, B, C): shapes (n, n), (n,), (n,)."""
-    if kind == "ipdt":
-        return np.zeros((1, 1)), np.ones(1), np.ones(1)
-    if kind == "fopdt":
-        return np.array([[-1.0 / time_constant]]), np.array([1.0 / time_constant]), np.ones(1)
-    a = np.array([[-1.0 / time_constant, 0.0], [1.0 / time_constant_2, -1.0 / time_constant_2]])
-    return a, np.array([1.0 / time_constant, 0.0]), np.array([0.0, 1.0])
+    """Unit-gain delay-free model (A, B, C): shapes (n, n), (n,), (n,).
+
+    The kind's stages in series, integrator first: an integrator is ``x' = v``, a lag ``tau``
+    is ``x' = (v - x)/tau``, where ``v`` is the previous stage (or the input); the output is
+    the last stage.
+    """
+    spec = model_kind(kind)
+    taus = (time_constant, time_constant_2)[: len(spec.lag_parameters)]
+    stages = ((None,) if spec.integrating else ()) + taus
+    n = len(stages)
+    a, b, c = np.zeros((n, n)), np.zeros(n), np.zeros(n)
+    c[-1] = 1.0
+    for i, tau in enumerate(stages):
+        rate = 1.0 if tau is None else 1.0 / tau
+        if tau is not None:
+            a[i, i] = -1.0 / tau
+        if i == 0:
+            b[0] = rate
+        else:
+            a[i, i - 1] = rate
+    return a, b, c
 
 
 def _segment_maps(
@@ -79,7 +94,8 @@ def unit_response(
 
     Parameters
     ----------
-    kind : {"fopdt", "sopdt", "ipdt"}
+    kind : str
+        A registered model kind (:mod:`robustff.plant.kinds`).
     time_constant, time_constant_2 : float
         Lags, time units (> 0 where used).
     dead_time : float

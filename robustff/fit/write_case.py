@@ -15,6 +15,7 @@ from typing import Any
 
 from robustff.errors import CaseError, DataError
 from robustff.fit.spread import Proposal
+from robustff.plant.kinds import model_kind
 from robustff.plant.models import MODEL_PARAMETERS, TransferModel
 
 __all__ = ["SECONDS_PER_UNIT", "FIT_BLOCKS", "time_factor", "fitted_case_text", "write_fitted_case"]
@@ -35,7 +36,8 @@ def _converted(kind: str, proposals: dict[str, Proposal], factor: float) -> dict
     out = {}
     for name, proposal in proposals.items():
         if name == "gain":
-            out[name] = proposal.scaled(1.0 / factor) if kind == "ipdt" else proposal
+            integrating = model_kind(kind).integrating
+            out[name] = proposal.scaled(1.0 / factor) if integrating else proposal
         else:
             out[name] = proposal.scaled(factor)
     return out

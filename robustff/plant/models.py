@@ -7,7 +7,8 @@ Three model kinds describe a path from an input to the controlled variable (CV):
 * ``"ipdt"``: integrating plus dead time, ``K exp(-theta s) / s`` (``K`` is the CV slope per unit
   input, in CV units per input unit per time unit).
 
-All times are in the case's time unit. A time constant of zero means "no lag".
+All times are in the case's time unit. A time constant of zero means "no lag". The kinds are
+described once in :mod:`robustff.plant.kinds`; this module reads their structure from there.
 """
 
 from __future__ import annotations
@@ -16,6 +17,8 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+
+from robustff.plant.kinds import ALL_PARAMETERS, ModelKind, kind_names, model_kind, registered_kinds
 
 __all__ = [
     "MODEL_KINDS",
@@ -27,29 +30,28 @@ __all__ = [
     "PlantBatch",
 ]
 
-MODEL_KINDS: tuple[str, ...] = ("fopdt", "sopdt", "ipdt")
+#: Names of the registered model kinds (views of :mod:`robustff.plant.kinds`).
+MODEL_KINDS: tuple[str, ...] = kind_names()
 
 #: Parameters each model kind has, in the order they are stored.
 MODEL_PARAMETERS: dict[str, tuple[str, ...]] = {
-    "fopdt": ("gain", "time_constant", "dead_time"),
-    "sopdt": ("gain", "time_constant", "time_constant_2", "dead_time"),
-    "ipdt": ("gain", "dead_time"),
+    kind.name: kind.parameter_names for kind in registered_kinds()
 }
 
 SENSOR_PARAMETERS: tuple[str, ...] = ("time_constant", "noise_std")
 
 #: Integer codes used by the compiled simulator.
-KIND_CODES: dict[str, int] = {"fopdt": 0, "sopdt": 1, "ipdt": 2}
+KIND_CODES: dict[str, int] = {kind.name: kind.code for kind in registered_kinds()}
 
 
 @dataclass(frozen=True)
 class TransferModel:
-    """A path model: FOPDT, SOPDT or IPDT.
+    """A path model of one registered kind (FOPDT, SOPDT, IPDT, ...).
 
     Parameters
     ----------
-    kind : {"fopdt", "sopdt", "ipdt"}
-        Model structure.
+    kind : str
+        Model structure: a name in :data:`robustff.plant.kinds.MODEL_KIND_REGISTRY`.
     gain : float
         Steady-state gain (CV units per input unit); for ``"ipdt"`` the slope gain
         (CV units per input unit per time unit). May be negative.
@@ -68,40 +70,45 @@ class TransferModel:
     dead_time: float = 0.0
 
     @property
+    def spec(self) -> ModelKind:
+        """The registry record of this model's kind."""
+        return model_kind(self.kind)
+
+    @property
     def integrating(self) -> bool:
         """True for an integrating (non-self-regulating) path."""
-        return self.kind == "ipdt"
+        return self.spec.integrating
+
+    @property
+    def lags(self) -> tuple[float, ...]:
+        """The kind's lag time constants, time units (empty for a kind without lags)."""
+        return tuple(float(getattr(self, name)) for name in self.spec.lag_parameters)
 
     @property
     def total_lag(self) -> float:
-        """Sum of the lags, time units (zero for ``"ipdt"``)."""
-        if self.kind == "ipdt":
-            return 0.0
-        if self.kind == "sopdt":
-            return self.time_constant + self.time_constant_2
-        return self.time_constant
+        """Sum of the lags, time units (zero for a kind without lags)."""
+        return float(sum(self.lags))
 
     def parameters(self) -> dict[str, float]:
         """The parameters this kind has, by name."""
-        return {name: float(getattr(self, name)) for name in MODEL_PARAMETERS[self.kind]}
+        return {name: float(getattr(self, name)) for name in self.spec.parameter_names}
 
     def with_parameter(self, name: str, value: float) -> TransferModel:
         """A copy with one parameter changed."""
-        if name not in MODEL_PARAMETERS[self.kind]:
+        if name not in self.spec.parameter_names:
             raise KeyError(f"a {self.kind} model has no parameter {name!r}")
-        names = ("gain", "time_constant", "time_constant_2", "dead_time")
-        values = {key: float(getattr(self, key)) for key in names}
+        values = {key: float(getattr(self, key)) for key in ALL_PARAMETERS}
         values[name] = float(value)
         return TransferModel(self.kind, **values)
 
     def describe(self, time_unit: str = "") -> str:
         """A one-line description such as ``2.0 e^(-3 s)/(10 s + 1)`` with the time unit."""
         unit = f" {time_unit}" if time_unit else ""
-        lag_text = {
-            "fopdt": f"tau = {self.time_constant:g}{unit}",
-            "sopdt": f"tau = {self.time_constant:g}{unit}, tau2 = {self.time_constant_2:g}{unit}",
-            "ipdt": "integrating",
-        }[self.kind]
+        spec = self.spec
+        parts = ["integrating"] if spec.integrating else []
+        parts += [f"{spec.parameter(name).symbol} = {getattr(self, name):g}{unit}"
+                  for name in spec.lag_parameters]
+        lag_text = ", ".join(parts)
         head = f"{self.kind.upper()}: K = {self.gain:g}, {lag_text}"
         return f"{head}, dead time = {self.dead_time:g}{unit}"
 
@@ -122,12 +129,10 @@ class TransferModel:
         import control
 
         s = control.tf("s")
-        if self.kind == "ipdt":
-            rational = self.gain / s
-        elif self.kind == "sopdt":
-            rational = self.gain / ((self.time_constant * s + 1) * (self.time_constant_2 * s + 1))
-        else:
-            rational = self.gain / (self.time_constant * s + 1)
+        den = s if self.integrating else None
+        for tau in self.lags:
+            den = tau * s + 1 if den is None else den * (tau * s + 1)
+        rational = control.tf([self.gain], [1.0]) if den is None else self.gain / den
         if pade_order is None or self.dead_time == 0.0:
             return rational
         num, den = control.pade(self.dead_time, pade_order)
@@ -147,12 +152,10 @@ class TransferModel:
         """
         jw = 1j * np.asarray(omega, dtype=float)
         delay = np.exp(-jw * self.dead_time)
-        if self.kind == "ipdt":
-            return self.gain * delay / jw
-        den = self.time_constant * jw + 1
-        if self.kind == "sopdt":
-            den = den * (self.time_constant_2 * jw + 1)
-        return self.gain * delay / den
+        den = jw if self.integrating else None
+        for tau in self.lags:
+            den = tau * jw + 1 if den is None else den * (tau * jw + 1)
+        return self.gain * delay if den is None else self.gain * delay / den
 
 
 @dataclass(frozen=True)
@@ -202,13 +205,10 @@ class PlantBatch:
         """``n`` copies of the nominal plant."""
         values: dict[str, np.ndarray] = {}
         for block, model in (("process", process), ("disturbance", disturbance)):
-            for name in ("gain", "time_constant", "time_constant_2", "dead_time"):
-                values[f"{block}.{name}"] = _column(getattr(model, name), n)
-            if model.kind == "fopdt":
-                values[f"{block}.time_constant_2"][:] = 0.0
-            if model.kind == "ipdt":
-                values[f"{block}.time_constant"][:] = 0.0
-                values[f"{block}.time_constant_2"][:] = 0.0
+            for name in ALL_PARAMETERS:
+                # Parameters the kind does not have are stored as zero ("no lag").
+                used = name in model.spec.parameter_names
+                values[f"{block}.{name}"] = _column(getattr(model, name) if used else 0.0, n)
         values["sensor.time_constant"] = _column(sensor.time_constant, n)
         values["sensor.noise_std"] = _column(sensor.noise_std, n)
         return cls(process.kind, disturbance.kind, values)

@@ -229,7 +229,7 @@ def converted_model(model: TransferModel, data_unit: str | None,
     else:
         factor = time_factor(data_unit, case_unit)
         note = f"times converted from {data_unit} to the case's {case_unit} (x {factor:g})"
-    gain = model.gain / factor if model.kind == "ipdt" else model.gain
+    gain = model.gain / factor if model.integrating else model.gain
     return TransferModel(model.kind, _rounded(gain), _rounded(model.time_constant * factor),
                          _rounded(model.time_constant_2 * factor),
                          _rounded(model.dead_time * factor)), note

@@ -208,7 +208,7 @@ def estimates_table(result: FitResult, time_unit: str) -> Table:
     for name, estimate in result.estimates.items():
         if name == "gain":
             unit = f"{record.output_name}/{record.input_name}"
-            unit += f" per {time_unit}" if result.model.kind == "ipdt" else ""
+            unit += f" per {time_unit}" if result.model.integrating else ""
         else:
             unit = time_unit
         table.add_row(_LABELS.get(name, name), f"{estimate.value:.4g}", _interval(estimate), unit)
@@ -216,11 +216,10 @@ def estimates_table(result: FitResult, time_unit: str) -> Table:
 
 
 def _describe(model: TransferModel, unit: str) -> str:
+    spec = model.spec
     parts = [f"K = {model.gain:.4g}"]
-    if model.kind != "ipdt":
-        parts.append(f"tau = {model.time_constant:.4g} {unit}")
-    if model.kind == "sopdt":
-        parts.append(f"tau2 = {model.time_constant_2:.4g} {unit}")
+    parts += [f"{spec.parameter(name).symbol} = {getattr(model, name):.4g} {unit}"
+              for name in spec.lag_parameters]
     parts.append(f"dead time = {model.dead_time:.4g} {unit}")
     return f"{model.kind.upper()} " + ", ".join(parts)
 
