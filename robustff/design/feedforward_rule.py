@@ -22,7 +22,7 @@ from __future__ import annotations
 import math
 
 from robustff.case import Case
-from robustff.design.tuning import FeedforwardSettings
+from robustff.design.tuning import FeedforwardSettings, half_rule
 from robustff.plant.models import TransferModel
 
 __all__ = [
@@ -88,9 +88,7 @@ def _as_fopdt(model: TransferModel) -> TransferModel | None:
     if model.kind == "fopdt":
         return model
     if model.kind == "sopdt":
-        half = 0.5 * model.time_constant_2
-        return TransferModel("fopdt", model.gain, model.time_constant + half, 0.0,
-                             model.dead_time + half)
+        return half_rule(model)
     return None
 
 

@@ -51,6 +51,7 @@ __all__ = [
     "design_feedforward",
     "design_loop",
     "series_to_ideal",
+    "half_rule",
     "DERIVATIVE_FILTER_FRACTION",
 ]
 
@@ -189,8 +190,19 @@ def series_to_ideal(kc: float, ti: float, td: float) -> tuple[float, float, floa
     return kc * factor, ti + td, ti * td / (ti + td)
 
 
-def _half_rule(model: TransferModel) -> TransferModel:
-    """SOPDT -> FOPDT by Skogestad's half rule (half of tau2 to the lag, half to the delay)."""
+def half_rule(model: TransferModel) -> TransferModel:
+    """SOPDT -> FOPDT by Skogestad's half rule (half of tau2 to the lag, half to the delay).
+
+    Parameters
+    ----------
+    model : TransferModel
+        A SOPDT model (gain, tau1 and tau2 and dead time in the case's time unit).
+
+    Returns
+    -------
+    TransferModel
+        FOPDT with the same gain, lag ``tau1 + tau2/2`` and dead time ``theta + tau2/2``.
+    """
     half = 0.5 * model.time_constant_2
     return TransferModel(
         "fopdt", model.gain, model.time_constant + half, 0.0, model.dead_time + half
@@ -207,7 +219,7 @@ def _simc(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, 
         kc_i, ti_i, td_i = series_to_ideal(kc, ti, model.time_constant_2)
         return kc_i, ti_i, td_i, ""
     if model.kind == "sopdt":
-        model = _half_rule(model)
+        model = half_rule(model)
         theta = model.dead_time
     tau = model.time_constant
     return tau / (k * (tau_c + theta)), min(tau, 4.0 * (tau_c + theta)), 0.0, ""
@@ -221,7 +233,7 @@ def _imc(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, f
         tau1 = model.time_constant
         return series_to_ideal(tau1 / (k * (tau_c + theta)), tau1, model.time_constant_2)
     if model.kind == "sopdt":
-        model = _half_rule(model)
+        model = half_rule(model)
         theta = model.dead_time
     tau = model.time_constant
     if form == "pid":
