@@ -288,9 +288,10 @@ def test_perfect_feedforward_with_fractional_delay_difference_converges():
 
 
 def test_gain_errors_scale_the_error_by_r0():
-    # Source: reference-values.md (linearity): with exact compensator dynamics and gain errors
-    # only, E_fbff = r0 E_fb with r0 = 1 - (kp kd_model)/(kp_model kd); feedforward is worse
-    # exactly when (kp kd_model)/(kp_model kd) lies outside (0, 2).
+    # Source: linear superposition; Seborg, Edgar, Mellichamp and Doyle, Process Dynamics and
+    # Control, 4th ed., 2016, ch. 15 (feedforward control), from memory. With exact compensator
+    # dynamics and gain errors only, E_fbff = r0 E_fb with r0 = 1 - (kp kd_model)/(kp_model kd);
+    # feedforward is worse exactly when (kp kd_model)/(kp_model kd) lies outside (0, 2).
     case = make_case(Model("fopdt", 2.0, 10.0, 0.0, 3.0), Model("fopdt", 1.5, 5.0, 0.0, 4.0),
                      "lead-lag-delay", 0.05, 120.0)
     design = design_loop(case)

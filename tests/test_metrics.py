@@ -79,10 +79,12 @@ def test_setpoint_overshoot_and_settling_match_python_control():
 
 
 def test_over_compensating_feedforward_overshoot_is_half_the_feedback_peak():
-    # Source: linearity (reference-values.md): equal lags and dead times make the static
-    # compensator exact in its dynamics, so with gain_factor 1.5 the error with feedforward is
-    # r0 = 1 - 1.5 = -0.5 times the feedback-only error: its opposite-side excursion is half the
-    # feedback-only peak (overshoot_percent = 50 %) and its peak deviation is half as large.
+    # Source: linear superposition; Seborg, Edgar, Mellichamp and Doyle, Process Dynamics and
+    # Control, 4th ed., 2016, ch. 15 (feedforward control), from memory. Equal lags and dead
+    # times make the static compensator exact in its dynamics, so with gain_factor 1.5 the error
+    # with feedforward is r0 = 1 - 1.5 = -0.5 times the feedback-only error: its opposite-side
+    # excursion is half the feedback-only peak (overshoot_percent = 50 %) and its peak deviation
+    # is half as large.
     disturbance = Model("fopdt", 1.5, 10.0, 0.0, 3.0)
     case = make_case([Event("disturbance-step", 1.0, 2.0)], structure="static",
                      disturbance=disturbance, gain_factor=1.5)
@@ -95,7 +97,7 @@ def test_over_compensating_feedforward_overshoot_is_half_the_feedback_peak():
 
 
 def test_open_loop_residual_of_static_feedforward_peaks_at_quarter_kd_d():
-    # Source: reference-values.md (arithmetic): static compensator with the right gain, no dead
+    # Source: analytic (arithmetic): static compensator with the right gain, no dead
     # times, tau_p = 10, tau_d = 5: residual kd d (e^{-t/tau_p} - e^{-t/tau_d}), peak 0.25 kd d at
     # t* = tau_p tau_d ln(tau_p/tau_d)/(tau_p - tau_d) = 6.931. Feedback made negligible.
     kd, size, t0, h = 1.5, 2.0, 1.0, 0.01

@@ -62,7 +62,8 @@ def argmin_spread(draw, replicates: int = 100) -> float:
 
 
 def test_engine_obeys_the_closed_form_used_below():
-    # Source: linear superposition (reference-values.md, Feedforward): with exact dynamics the
+    # Source: linear superposition; Seborg, Edgar, Mellichamp and Doyle, Process Dynamics and
+    # Control, 4th ed., 2016, ch. 15 (feedforward control), from memory. With exact dynamics the
     # error with feedforward is the feedback-only error times r0 = 1 - g kd_model / kd, and the
     # feedback-only error is proportional to kd, so IAE_fbff = A |kd - g kd_model|.
     case = gain_only_case(SYMMETRIC)

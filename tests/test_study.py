@@ -5,8 +5,7 @@ supplies the dead-time difference) so that only gain errors remain. The loop is 
 output limits, no noise), so per sample the error with feedforward is the feedback-only error
 times r0 = 1 - (kp kd_model) / (kp_model kd), and IAE(fbff) / IAE(fb) = |r0| exactly.
 Source: linear superposition; Seborg, Edgar, Mellichamp and Doyle, Process Dynamics and Control,
-chapter on feedforward and ratio control (ideal Gff = -Gd/Gp) [from memory];
-/work/shared/reference-values.md, "Feedforward".
+4th ed., 2016, ch. 15, feedforward and ratio control (ideal Gff = -Gd/Gp) [from memory].
 """
 
 from __future__ import annotations
@@ -139,7 +138,7 @@ def test_both_gains_uncertain_ratio_follows_r0() -> None:
     np.testing.assert_allclose(iae[:, 1] / iae[:, 0], np.abs(r0), rtol=1e-9, atol=1e-9)
     worse = iae[:, 1] > iae[:, 0]
     ratio = (kp * KD_MODEL) / (KP_MODEL * kd)
-    # Feedforward hurts exactly when the gain ratio leaves (0, 2) (reference-values.md).
+    # Feedforward hurts exactly when the gain ratio leaves (0, 2): |1 - ratio| > 1 (analytic).
     np.testing.assert_array_equal(worse, (ratio <= 0.0) | (ratio >= 2.0))
 
 

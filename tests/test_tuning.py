@@ -33,7 +33,7 @@ def test_simc_half_rule_example():
 
 
 def test_simc_sopdt_pid_series_to_ideal_example():
-    # Source: reference-values (arithmetic): k = 1, tau1 = 6, tau2 = 2, theta = tau_c = 1:
+    # Source: analytic (arithmetic): k = 1, tau1 = 6, tau2 = 2, theta = tau_c = 1:
     # series (Kc, tau_I, tau_D) = (3, 6, 2) -> ideal (4, 8, 1.5).
     assert series_to_ideal(3.0, 6.0, 2.0) == pytest.approx((4.0, 8.0, 1.5))
     settings, _ = tune_feedback(
