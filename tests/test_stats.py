@@ -33,8 +33,9 @@ from robustff.stats import (
 
 
 def test_order_statistic_coverage_reference_pair():
-    # Source: reference-values.md, arithmetic from the binomial CDF: N = 1000, p = 0.95,
-    # [X_(936), X_(964)] covers the true P95 with probability 0.958.
+    # Source: Hahn and Meeker, Statistical Intervals, 1991, distribution-free percentile
+    # intervals from order statistics (from memory); arithmetic from the binomial CDF:
+    # N = 1000, p = 0.95, [X_(936), X_(964)] covers the true P95 with probability 0.958.
     assert order_statistic_coverage(1000, 0.95, 936, 964) == pytest.approx(0.958, abs=5e-4)
     # Independent evaluation: P(936 <= B <= 963), B ~ Binomial(1000, 0.95), with scipy.stats.binom.
     expected = sps.binom.cdf(963, 1000, 0.95) - sps.binom.cdf(935, 1000, 0.95)
@@ -183,8 +184,9 @@ def test_probability_worse_counting_rules_with_unstable_samples():
 
 
 def test_probability_worse_matches_closed_form_for_a_known_rule():
-    # ff worse exactly when the gain ratio g lies outside (0, 2) (reference-values.md, linearity:
-    # error with ff = error without ff times |1 - g|). With g ~ N(1, 0.6), P(worse) =
+    # ff worse exactly when the gain ratio g lies outside (0, 2) (Source: linear superposition;
+    # Seborg, Edgar, Mellichamp and Doyle, Process Dynamics and Control, 4th ed., 2016, ch. 15,
+    # from memory: error with ff = error without ff times |1 - g|). With g ~ N(1, 0.6), P(worse) =
     # P(g < 0) + P(g > 2) = 2 * Phi(-1/0.6) (Source: normal CDF via scipy.stats.norm).
     rng = np.random.default_rng(7)
     g = rng.normal(1.0, 0.6, 20000)
@@ -198,7 +200,8 @@ def test_probability_worse_matches_closed_form_for_a_known_rule():
 
 
 def test_samples_for_probability_reference():
-    # Source: reference-values.md: N = 1.96^2 p (1-p) / E^2 = 385 for p = 0.5, E = 0.05 at 95 %.
+    # Source: Cochran, Sampling Techniques, 3rd ed., 1977, eq. 4.2 (from memory):
+    # N = 1.96^2 p (1-p) / E^2 = 385 for p = 0.5, E = 0.05 at 95 %.
     assert samples_for_probability(0.5, 0.05) == 385
 
 
