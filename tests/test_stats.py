@@ -16,6 +16,7 @@ from robustff.stats import (
     convergence_for_percentile,
     convergence_for_probability,
     envelope_from_histogram,
+    metric_ratio,
     order_statistic_coverage,
     order_statistic_interval,
     paired_comparison,
@@ -127,6 +128,14 @@ def test_summary_dict_keys_and_json():
         lo, hi = d[f"{key}_ci95"]
         assert lo <= d[key] <= hi
     json.dumps(d, allow_nan=False)  # no NaN leaks into JSON
+
+
+def test_metric_ratio_edge_cases():
+    # IEEE 754 division where fb > 0, NaN where fb gives no reference (zero, negative, NaN).
+    fb = np.array([2.0, 0.0, -1.0, np.nan, np.inf, np.inf, 4.0, 2.0])
+    fbff = np.array([1.0, 1.0, 1.0, 1.0, 3.0, np.inf, np.inf, np.nan])
+    np.testing.assert_array_equal(
+        metric_ratio(fb, fbff), [0.5, np.nan, np.nan, np.nan, 0.0, np.nan, np.inf, np.nan])
 
 
 def test_paired_comparison_ratio_and_improvement():

@@ -10,7 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
-from robustff.stats import envelope_from_histogram, ratio_histogram
+from robustff.stats import envelope_from_histogram, metric_ratio, ratio_histogram
 from robustff.study import StudyResult
 
 __all__ = [
@@ -78,9 +78,7 @@ def ratio_figure(result: StudyResult):
     """Histogram of IAE(fbff)/IAE(fb) with the harm region (> 1) hatched."""
     plt = _pyplot()
     iae = result.metrics["iae"]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = np.where(iae[:, 0] > 0, iae[:, 1] / iae[:, 0], np.nan)
-    counts, edges = ratio_histogram(ratio, bins=40)
+    counts, edges = ratio_histogram(metric_ratio(iae[:, 0], iae[:, 1]), bins=40)
     fig, ax = plt.subplots(figsize=(8, 3.8))
     ax.bar(
         edges[:-1],

@@ -34,6 +34,7 @@ __all__ = [
     "percentile_table",
     "summarize",
     "paired_comparison",
+    "metric_ratio",
 ]
 
 DEFAULT_PERCENTILES: tuple[float, ...] = (5.0, 10.0, 50.0, 90.0, 95.0, 99.0)
@@ -266,6 +267,29 @@ def summarize(
     return MetricSummary(mean, std, int(data.size), int(arr.size - data.size), confidence, table)
 
 
+def metric_ratio(fb: np.ndarray, fbff: np.ndarray) -> np.ndarray:
+    """Per-sample ratio ``fbff / fb`` of one metric (e.g. the IAE ratio); below 1 FF helped.
+
+    Parameters
+    ----------
+    fb, fbff : ndarray, shape (n,)
+        The same metric per sample (its unit cancels), feedback only and feedback plus
+        feedforward.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        ``fbff / fb`` where ``fb > 0``; NaN where ``fb`` is zero, negative or NaN (no meaningful
+        reference) and wherever ``fbff`` is NaN. Elsewhere IEEE division applies: an infinite
+        ``fbff`` (an unstable sample in the tuning searches) gives inf, an infinite ``fb`` gives
+        0 or NaN. The study's simulator reports unstable samples as NaN, so there the ratio is
+        finite or NaN.
+    """
+    fb_arr, fbff_arr = np.asarray(fb, dtype=float), np.asarray(fbff, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(fb_arr > 0, fbff_arr / fb_arr, np.nan)
+
+
 def paired_comparison(
     fb: np.ndarray,
     fbff: np.ndarray,
@@ -286,16 +310,15 @@ def paired_comparison(
     Returns
     -------
     dict
-        ``"improvement"``, ``"ratio"``: ndarray (n,) (NaN where either arm is NaN/inf; ratio
-        also NaN where ``fb == 0``); ``"improvement_summary"``, ``"ratio_summary"``:
-        :class:`MetricSummary`. A ratio below 1 means feedforward helped.
+        ``"improvement"``: ndarray (n,), NaN where either arm is NaN/inf; ``"ratio"``:
+        ndarray (n,) from :func:`metric_ratio`; ``"improvement_summary"``,
+        ``"ratio_summary"``: :class:`MetricSummary` (over the finite values). A ratio below 1
+        means feedforward helped.
     """
     a, b = paired_arrays(fb, fbff)
     both = np.isfinite(a) & np.isfinite(b)
     improvement = np.where(both, a - b, np.nan)
-    ok = both & (a != 0.0)
-    ratio = np.full(a.shape, np.nan)
-    np.divide(b, a, out=ratio, where=ok)
+    ratio = metric_ratio(a, b)
     return {
         "improvement": improvement,
         "ratio": ratio,

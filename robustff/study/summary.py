@@ -17,6 +17,7 @@ from robustff.stats import (
     DEFAULT_PERCENTILES,
     convergence_for_percentile,
     convergence_for_probability,
+    metric_ratio,
     paired_comparison,
     probability_worse,
     summarize,
@@ -70,8 +71,7 @@ def _versions() -> dict[str, str]:
 
 def _ratio(result: StudyResult) -> np.ndarray:
     iae = result.metrics["iae"]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(iae[:, 0] > 0, iae[:, 1] / iae[:, 0], np.nan)
+    return metric_ratio(iae[:, 0], iae[:, 1])
 
 
 def _margins(result: StudyResult, percentiles: Sequence[float]) -> dict | None:

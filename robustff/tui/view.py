@@ -168,11 +168,9 @@ def build_view(result: StudyResult, summary: dict, quick: bool) -> StudyView:
     quick : bool
         True for the first short pass.
     """
-    from robustff.stats import envelope_from_histogram
+    from robustff.stats import envelope_from_histogram, metric_ratio
 
-    iae = result.metrics["iae"]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = np.where(iae[:, 0] > 0, iae[:, 1] / iae[:, 0], np.nan)
+    ratio = metric_ratio(result.metrics["iae"][:, 0], result.metrics["iae"][:, 1])
     bands = np.stack([
         envelope_from_histogram(result.envelope_counts[arm], result.envelope.edges, (5, 50, 95))
         for arm in (0, 1)

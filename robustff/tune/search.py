@@ -27,6 +27,7 @@ from robustff.design.feedforward_rule import feedforward_rule
 from robustff.design.tuning import FeedforwardSettings, LoopDesign, design_loop
 from robustff.engine import Scenario, build_scenario
 from robustff.errors import DesignError
+from robustff.stats.percentiles import metric_ratio
 from robustff.stats.sensitivity import SensitivityRow, rank_sensitivity
 from robustff.study import CHUNK_SIZE, noise_seeds
 from robustff.tune.objectives import (
@@ -527,7 +528,6 @@ def _rounded(settings: FeedforwardSettings, space: SearchSpace,
 
 def _sensitivity(samples: _SampleSet, nominal: FeedforwardSettings) -> list[SensitivityRow]:
     fbff = samples.iae_fbff(nominal)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = np.where(samples.iae_fb > 0, fbff / samples.iae_fb, np.nan)
+    ratio = metric_ratio(samples.iae_fb, fbff)
     return rank_sensitivity(samples.values[samples.keep], samples.names, ratio,
                             fbff > samples.iae_fb)

@@ -20,6 +20,7 @@ from robustff.case.sampling import inverse_cdf, plant_batch
 from robustff.design.tuning import LoopDesign, design_loop
 from robustff.engine import Scenario, build_scenario
 from robustff.errors import DesignError
+from robustff.stats.percentiles import metric_ratio
 from robustff.stats.sensitivity import sobol_first_total
 from robustff.tune.simulation import chunk_spans, simulate_iae
 
@@ -53,8 +54,7 @@ def _ratio_response(case: Case, names: list[str], design: LoopDesign, scenario: 
                 plant_batch(case, names, values[ab[0]:ab[1]]), design, scenario,
                 np.arange(ab[0], ab[1], dtype=np.uint64)), spans)
             iae = np.concatenate(list(parts))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = iae[:, 1] / iae[:, 0]
+        ratio = metric_ratio(iae[:, 0], iae[:, 1])
         finite = np.isfinite(ratio)
         return np.where(finite, ratio, np.max(ratio[finite], initial=1.0))
 
