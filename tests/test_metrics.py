@@ -28,7 +28,8 @@ def make_case(events, structure="lead-lag-delay", process=PROCESS, disturbance=D
     [Event("disturbance-step", 3.0, 4.0), Event("disturbance-ramp", 40.0, -6.0, duration=10.0)],
 ], ids=["setpoint then disturbance", "disturbance step and ramp"])
 def test_streaming_metrics_equal_trajectory_metrics(events):
-    # Source: the definitions in robustff.engine.metrics, evaluated with numpy on the stored response.
+    # Source: the definitions in robustff.engine.metrics, evaluated with numpy on the stored
+    # response.
     # Tight output limits (bias 50, range 48.5..51.5) make the output saturate, so time at limit and
     # anti-windup are exercised; perturbed plants give different responses per sample.
     case = make_case(events, output_low=48.5, output_high=51.5, output_bias=50.0)
@@ -112,10 +113,18 @@ def test_open_loop_residual_of_static_feedforward_peaks_at_quarter_kd_d():
     t = np.maximum(scenario.times - t0, 0.0)
     np.testing.assert_allclose(cv, kd * size * (np.exp(-t / 10.0) - np.exp(-t / 5.0)),
                                rtol=0, atol=1e-9)
-    peak_time = 10.0 * 5.0 * np.log(2.0) / 5.0
-    assert peak_time == pytest.approx(6.931, abs=5e-4)
+    tau_p, tau_d = 10.0, 5.0
+    peak_time = tau_p * tau_d * np.log(tau_p / tau_d) / (tau_p - tau_d)
     assert np.argmax(cv) * h - t0 == pytest.approx(peak_time, abs=h)
     ref = trajectory_metrics(-cv, result.trajectories[0, 3], h, event_start=t0,
                              direction=scenario.direction, settling_band=0.01)
     assert ref["peak_deviation"] == pytest.approx(0.25 * kd * size, rel=1e-6)
     assert ref["opposite_excursion"] == 0.0  # the residual stays on the push side
+    # Integrals of the closed form over the T = 39 after the step (analytic; the rectangle rule
+    # of the metric definitions is off by about h |e(T)| / 2 = 3e-4):
+    # IAE = kd d [tau_p (1 - e^{-T/tau_p}) - tau_d (1 - e^{-T/tau_d})]
+    #     = 3 (10 (1 - e^{-3.9}) - 5 (1 - e^{-7.8})) = 3 (9.797581 - 4.997951) = 14.39889;
+    # ISE = (kd d)^2 [5 (1 - e^{-7.8}) - (20/3) (1 - e^{-11.7}) + 2.5 (1 - e^{-15.6})]
+    #     = 9 (4.997951 - 6.666611 + 2.500000) = 7.48206.
+    assert ref["iae"] == pytest.approx(14.39889, rel=1e-4)
+    assert ref["ise"] == pytest.approx(7.48206, rel=1e-4)
