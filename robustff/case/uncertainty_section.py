@@ -19,6 +19,7 @@ import math
 from typing import Any
 
 from robustff.case.fields import Problems, Table, as_table, check_number, join
+from robustff.case.sampling import copula_factor
 from robustff.case.schema import (
     DISTRIBUTION_KINDS,
     Correlation,
@@ -306,9 +307,6 @@ def _read_correlation(
 
 
 def _check_consistent(problems: Problems, keys: list[str], correlations: list[Correlation]) -> None:
-    # Imported here: robustff.case.sampling imports robustff.case.schema, which imports this module.
-    from robustff.case.sampling import copula_factor
-
     try:
         copula_factor(keys, correlations)
     except CaseError as exc:

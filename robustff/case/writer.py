@@ -18,6 +18,7 @@ from tomlkit.exceptions import TOMLKitError
 from tomlkit.items import AoT, InlineTable, Item, Table
 
 from robustff.atomic import write_text_atomic
+from robustff.case.loader import parse_case
 from robustff.case.schema import (
     DISTRIBUTION_KINDS,
     Case,
@@ -74,8 +75,6 @@ def save_case(case: Case, path: str | Path, original_text: str | None = None) ->
     CaseError
         If the case is not valid (it would not load again) or the file cannot be written.
     """
-    from robustff.case.loader import parse_case
-
     path = Path(path)
     text, warnings = _render(case, original_text)
     reread = parse_case(text, source=str(path))  # refuses to write a case that would not load
@@ -110,8 +109,6 @@ def _render(case: Case, original_text: str | None) -> tuple[str, list[str]]:
 
 
 def _reads_back(text: str, case: Case) -> bool:
-    from robustff.case.loader import parse_case
-
     try:
         return parse_case(text) == case
     except CaseError:

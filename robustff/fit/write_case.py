@@ -3,16 +3,16 @@
 The template is edited with tomlkit so that its comments, order and every other table survive:
 only the chosen model block (``[process]`` or ``[disturbance]``) and that block's entries of
 ``[uncertainty]`` are replaced. The result is validated by the case loader before it is written
-(atomically: a temporary file renamed over the target).
+(atomically, with :func:`robustff.atomic.write_text_atomic`).
 """
 
 from __future__ import annotations
 
-import os
-import tempfile
 from pathlib import Path
 from typing import Any
 
+from robustff.atomic import write_text_atomic
+from robustff.case import parse_case
 from robustff.errors import CaseError, DataError
 from robustff.fit.spread import Proposal
 from robustff.plant.kinds import model_kind
@@ -142,7 +142,6 @@ def _set_uncertainty(doc: Any, block: str, proposals: dict[str, Proposal]) -> No
 
 
 def _validate(text: str, source: str) -> None:
-    from robustff.case import parse_case
     try:
         parse_case(text, source=f"{source} (after fitting)")
     except CaseError as exc:
@@ -174,13 +173,8 @@ def write_fitted_case(
     text, notes = fitted_case_text(template_text, block, model, proposals, data_time_unit,
                                    source=str(template))
     out = Path(out)
-    handle, temp = tempfile.mkstemp(dir=out.parent or Path("."), prefix=f".{out.name}.",
-                                    suffix=".tmp")
     try:
-        with os.fdopen(handle, "w", encoding="utf-8") as stream:
-            stream.write(text)
-        os.replace(temp, out)
+        write_text_atomic(out, text)
     except OSError as exc:
-        Path(temp).unlink(missing_ok=True)
         raise CaseError(f"{out}: cannot write the case ({exc.strerror or exc})") from None
     return notes
