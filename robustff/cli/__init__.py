@@ -13,13 +13,10 @@ import importlib
 import sys
 from collections.abc import Sequence
 
+from robustff.cli.exit_codes import EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE
 from robustff.errors import RobustffError
 
 __all__ = ["main", "COMMAND_MODULES", "EXIT_OK", "EXIT_USAGE", "EXIT_INTERRUPTED"]
-
-EXIT_OK = 0
-EXIT_USAGE = 2
-EXIT_INTERRUPTED = 130
 
 #: Sub-command modules, in the order they appear in ``robustff --help``.
 COMMAND_MODULES: tuple[str, ...] = (

@@ -10,6 +10,7 @@ from pathlib import Path
 
 from robustff import CAUTION
 from robustff.cli.arguments import positive_int, sample_count, seed_value
+from robustff.cli.exit_codes import EXIT_INTERRUPTED, EXIT_OK
 from robustff.errors import RobustffError
 
 __all__ = ["register", "parse_percentiles", "ProgressPrinter"]
@@ -152,7 +153,6 @@ def _margin_values(result) -> dict | None:
 
 def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case
-    from robustff.cli import EXIT_INTERRUPTED, EXIT_OK
     from robustff.output.result_files import check_output_folder, risk_sentence, write_results
     from robustff.stats import DEFAULT_PERCENTILES
     from robustff.study import run_study

@@ -12,6 +12,7 @@ from pathlib import Path
 
 from robustff import CAUTION
 from robustff.cli.arguments import positive_int, sample_count, seed_value
+from robustff.cli.exit_codes import EXIT_OK
 from robustff.errors import CaseError
 
 __all__ = ["register", "execute", "result_to_dict", "robust_case"]
@@ -184,7 +185,6 @@ def _progress(done: int, budget: int) -> None:
 
 def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case, save_case
-    from robustff.cli import EXIT_OK
     from robustff.tune.search import robust_search, sobol_sensitivity
 
     started = time.perf_counter()

@@ -12,6 +12,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from robustff import CAUTION, __version__
+from robustff.case.sampling import plant_batch
 from robustff.engine.metrics import METRIC_NAMES, METRIC_UNITS
 from robustff.stats import (
     DEFAULT_PERCENTILES,
@@ -78,8 +79,6 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> dict | None:
     """Margin percentiles, limit fractions, unstable samples, and the nominal loop's margins."""
     if result.margins is None or result.nominal_margins is None:
         return None
-    from robustff.case.sampling import plant_batch
-
     subset = result.margins.size
     batch = plant_batch(result.case, result.names, result.parameters[:subset])
     out = result.margins.summary(percentiles, batch=batch)
