@@ -108,12 +108,33 @@ def test_errors_exit_2_without_traceback(tmp_path: Path, capsys) -> None:
     assert "invalid choice" in capsys.readouterr().err
 
 
-def test_demo_case_is_accepted() -> None:
-    # the demo cases load and have a searchable structure (the full search is in benchmarks/)
+def test_demo_cases_get_the_documented_search_box_around_their_nominal_design() -> None:
+    # The demo cases load and get the search box of the documented defaults (the full search is
+    # in benchmarks/): gain_factor in [0, 1.5]; lead in [0, 3 tau_max], lag in [h, 3 tau_max]
+    # with tau_max the largest nominal lag of either path; delay in [0, 2 theta_d]. Worked out
+    # by hand from the case files (common practice, no source, for the defaults themselves):
+    # * surge-tank-level, static, integrating paths: gain_factor only;
+    # * syrup-dilution, lead-lag-delay: tau_max = max(20, 20, 4) = 20 -> 60, h = 0.25,
+    #   theta_d = 18 -> delay up to 36;
+    # * wash-water-heater, lead-lag-delay: tau_max = max(45, 30) = 45 -> 135, h = 0.5,
+    #   theta_d = 3 -> delay up to 6.
     from robustff.design.tuning import design_loop
     from robustff.tune.search import search_space
 
-    for path in sorted(CASES.glob("*.toml")):
-        case = load_case(path)
-        names = search_space(case, design_loop(case).feedforward.structure).names
-        assert names[0] == "gain_factor"
+    expected = {
+        "surge-tank-level": (("gain_factor",), [0.0], [1.5]),
+        "syrup-dilution": (("gain_factor", "lead", "lag", "delay"),
+                           [0.0, 0.0, 0.25, 0.0], [1.5, 60.0, 60.0, 36.0]),
+        "wash-water-heater": (("gain_factor", "lead", "lag", "delay"),
+                              [0.0, 0.0, 0.5, 0.0], [1.5, 135.0, 135.0, 6.0]),
+    }
+    assert sorted(p.stem for p in CASES.glob("*.toml")) == sorted(expected)
+    for name, (names, low, high) in expected.items():
+        case = load_case(CASES / f"{name}.toml")
+        nominal = design_loop(case).feedforward
+        space = search_space(case, nominal.structure)
+        assert space.names == names, name
+        assert list(space.low) == pytest.approx(low) and list(space.high) == pytest.approx(high)
+        # the search starts from the nominal design: it must lie inside the box, not be clipped
+        point = [getattr(nominal, n) for n in names]
+        assert all(lo <= x <= hi for lo, x, hi in zip(space.low, point, space.high, strict=True))
