@@ -20,6 +20,7 @@ from pathlib import Path
 import numpy as np
 
 from robustff import CAUTION
+from robustff.atomic import write_text_atomic
 from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
 from robustff.stats import percentile_key
@@ -204,15 +205,15 @@ def write_results(
     os.umask(umask)
     os.chmod(staging, 0o777 & ~umask)  # mkdtemp's 0700 would hide results on a shared server
     try:
-        (staging / "summary.json").write_text(
-            json.dumps(json_safe(summary), indent=2, allow_nan=False) + "\n"
-        )
+        # Each file is flushed to disk before the folder is swapped in, so a crash right after
+        # the swap cannot leave a result folder with empty files.
+        write_text_atomic(staging / "summary.json",
+                          json.dumps(json_safe(summary), indent=2, allow_nan=False) + "\n")
         header = ["metric", "arm", "unit", *[f"p{p:g}" for p in percentiles]]
-        (staging / "percentiles.csv").write_text(
-            _csv_text([header, *percentile_rows(summary, percentiles)])
-        )
-        (staging / "percentiles.md").write_text(percentiles_markdown(summary, percentiles))
-        (staging / "samples.csv").write_text(_samples_csv(result))
+        write_text_atomic(staging / "percentiles.csv",
+                          _csv_text([header, *percentile_rows(summary, percentiles)]))
+        write_text_atomic(staging / "percentiles.md", percentiles_markdown(summary, percentiles))
+        write_text_atomic(staging / "samples.csv", _samples_csv(result))
         if extra is not None:
             extra(staging)
         _replace_folder(staging, folder)
