@@ -6,12 +6,17 @@ import argparse
 import sys
 import threading
 import time
+from collections.abc import Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from robustff import CAUTION
 from robustff.cli.arguments import positive_int, sample_count, seed_value
 from robustff.cli.exit_codes import EXIT_INTERRUPTED, EXIT_OK
 from robustff.errors import RobustffError
+
+if TYPE_CHECKING:
+    from robustff.study.summary_types import MarginsSummary, Summary
 
 __all__ = ["register", "parse_percentiles", "ProgressPrinter"]
 
@@ -93,7 +98,7 @@ class ProgressPrinter:
         self.stream.flush()
 
 
-def _print_table(summary: dict, percentiles) -> None:
+def _print_table(summary: Summary, percentiles: Sequence[float]) -> None:
     from robustff.output.result_files import percentile_rows
 
     rows = percentile_rows(summary, percentiles, _TABLE_METRICS)
@@ -127,7 +132,7 @@ def _check_cluster_address(address: str) -> None:
         ) from None
 
 
-def _print_drivers(summary: dict, rows: int = 5) -> None:
+def _print_drivers(summary: Summary, rows: int = 5) -> None:
     """The ranked rank correlations of the uncertain parameters with the IAE ratio."""
     ranking = [row for row in summary.get("sensitivity", []) if row.get("rho") is not None]
     if not ranking:
@@ -137,6 +142,23 @@ def _print_drivers(summary: dict, rows: int = 5) -> None:
         low, high = row["ci95"]
         interval = "" if low is None or high is None else f"  [{low:+.2f}, {high:+.2f}]"
         print(f"  {row['name']:<28} {row['rho']:+.2f}{interval}")
+
+
+def _print_margins(margins: MarginsSummary) -> None:
+    """The nominal loop's margins, the share of samples with Ms > 2, and the nominal warnings."""
+    nominal = margins["nominal"]
+    ms_above = margins["fraction_below_limits"]["ms_above_2"]
+    # None only without any margin sample, which a run with at least one sample cannot give.
+    share = "n/a" if ms_above is None else f"{100 * ms_above:.1f}"
+    print(
+        f"Feedback margins (nominal): GM {nominal['gain_margin']:.3g}, "
+        f"PM {nominal['phase_margin']:.3g} deg, "
+        f"Ms {nominal['ms']:.3g}; across {margins['samples']} samples: "
+        f"{share} % with Ms > 2, "
+        f"{margins['unstable']} unstable"
+    )
+    for warning in margins["nominal_warnings"]:
+        print(f"WARNING: {warning}")
 
 
 def _margin_values(result) -> dict | None:
@@ -209,16 +231,7 @@ def execute(args: argparse.Namespace) -> int:
     _print_drivers(summary)
     margins = summary.get("margins")
     if margins:
-        nominal = margins["nominal"]
-        print(
-            f"Feedback margins (nominal): GM {nominal['gain_margin']:.3g}, "
-            f"PM {nominal['phase_margin']:.3g} deg, "
-            f"Ms {nominal['ms']:.3g}; across {margins['samples']} samples: "
-            f"{100 * margins['fraction_below_limits']['ms_above_2']:.1f} % with Ms > 2, "
-            f"{margins['unstable']} unstable"
-        )
-        for warning in margins["nominal_warnings"]:
-            print(f"WARNING: {warning}")
+        _print_margins(margins)
     print(f"Results written to {out}/")
     print(CAUTION)
     return EXIT_INTERRUPTED if result.partial else EXIT_OK

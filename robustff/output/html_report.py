@@ -6,6 +6,7 @@ import base64
 import html
 from collections.abc import Sequence
 from pathlib import Path
+from typing import cast
 
 import numpy as np
 
@@ -19,6 +20,7 @@ from robustff.output.plots import (
 )
 from robustff.output.result_files import percentile_rows, risk_sentence
 from robustff.study import StudyResult
+from robustff.study.summary_types import MarginName, Summary, percentile_value
 
 __all__ = ["write_report"]
 
@@ -46,20 +48,22 @@ def _image(path: Path, alt: str) -> str:
     return f'<p><img src="data:image/png;base64,{data}" alt="{html.escape(alt)}"></p>'
 
 
-def _margins_section(summary: dict) -> str:
+def _margins_section(summary: Summary) -> str:
     margins = summary.get("margins")
     if not margins:
         return ""
     rows = []
-    for key, label in (
+    labels: tuple[tuple[MarginName, str], ...] = (
         ("gain_margin", "gain margin [-]"),
         ("phase_margin", "phase margin [deg]"),
         ("delay_margin", f"delay margin [{summary['time_unit']}]"),
         ("ms", "Ms [-]"),
-    ):
+    )
+    for key, label in labels:
         stats = margins.get(key, {})
-        rows.append([label, *[_fmt(stats.get(p)) for p in ("p5", "p50", "p95")]])
-    limits = margins.get("fraction_below_limits", {})
+        rows.append([label, *[_fmt(percentile_value(stats, p)) for p in (5.0, 50.0, 95.0)]])
+    # Every value of this section is a fraction or None (see FractionBelowLimits).
+    limits = cast("dict[str, float | None]", margins.get("fraction_below_limits", {}))
     lines = "".join(
         f"<li>{html.escape(k.replace('_', ' '))}: {100 * v:.1f} % of samples</li>"
         for k, v in limits.items()
@@ -79,7 +83,7 @@ def _fmt(value: float | None) -> str:
 
 def write_report(
     result: StudyResult,
-    summary: dict,
+    summary: Summary,
     folder: Path,
     percentiles: Sequence[float],
     margin_values: dict[str, np.ndarray] | None = None,
@@ -90,13 +94,12 @@ def write_report(
         ("plot-iae-ratio", ratio_figure(result), "histogram of the IAE ratio"),
         ("plot-sensitivity", sensitivity_figure(summary), "sensitivity ranking"),
     ]
-    if margin_values is not None and summary.get("margins"):
+    margins = summary.get("margins")
+    if margin_values is not None and margins:
         figures.append(
             (
                 "plot-margins",
-                margins_figure(
-                    {**summary["margins"], "time_unit": summary["time_unit"]}, margin_values
-                ),
+                margins_figure({**margins, "time_unit": summary["time_unit"]}, margin_values),
                 "margins",
             )
         )

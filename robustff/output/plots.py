@@ -12,6 +12,7 @@ import numpy as np
 
 from robustff.stats import envelope_from_histogram, metric_ratio, ratio_histogram
 from robustff.study import StudyResult
+from robustff.study.summary_types import Summary
 
 __all__ = [
     "band_figure",
@@ -112,7 +113,7 @@ def _or_nan(value: float | None) -> float:
     return float("nan") if value is None else float(value)
 
 
-def sensitivity_figure(summary: dict):
+def sensitivity_figure(summary: Summary):
     """Ranked Spearman correlations of each parameter with the IAE ratio, with 95 % intervals."""
     plt = _pyplot()
     rows = [row for row in summary.get("sensitivity", []) if row.get("rho") is not None]

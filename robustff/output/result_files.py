@@ -23,8 +23,8 @@ from robustff import CAUTION
 from robustff.atomic import write_text_atomic
 from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
-from robustff.stats import percentile_key
 from robustff.study import StudyResult
+from robustff.study.summary_types import ARMS, Summary, percentile_value
 
 __all__ = [
     "RESULT_FILES",
@@ -41,14 +41,14 @@ _ARM_LABELS = {"fb": "feedback only", "fbff": "feedback + feedforward"}
 
 
 def percentile_rows(
-    summary: dict, percentiles: Sequence[float], metrics: Sequence[str] = METRIC_NAMES
+    summary: Summary, percentiles: Sequence[float], metrics: Sequence[str] = METRIC_NAMES
 ) -> list[list[str]]:
     """Table rows ``[metric, arm, unit, P.., ...]``, values to 4 significant digits."""
     rows = []
     for name in metrics:
-        for arm in ("fb", "fbff"):
+        for arm in ARMS:
             stats = summary["metrics"][name][arm]
-            cells = [_number(stats.get(percentile_key(p))) for p in percentiles]
+            cells = [_number(percentile_value(stats, p)) for p in percentiles]
             rows.append([name, arm, summary["units"][name], *cells])
     return rows
 
@@ -57,7 +57,7 @@ def _number(value: float | None) -> str:
     return "n/a" if value is None else f"{value:.4g}"
 
 
-def risk_sentence(summary: dict, metric: str = "iae") -> str:
+def risk_sentence(summary: Summary, metric: str = "iae") -> str:
     """One line on the probability that feedforward makes ``metric`` worse."""
     harm = summary["ff_worse"][metric]
     label = "IAE" if metric == "iae" else metric.replace("_", " ")
@@ -67,7 +67,8 @@ def risk_sentence(summary: dict, metric: str = "iae") -> str:
             f"feedback only, so there is no {label} change to judge"
         )
     low, high = harm["ci95"]
-    if harm["probability"] is None:
+    # The interval bounds are None exactly when the probability is (no usable sample).
+    if harm["probability"] is None or low is None or high is None:
         return f"Feedforward makes {label} worse: no usable samples (unstable in both arms)"
     return (
         f"Feedforward makes {label} "
@@ -76,7 +77,7 @@ def risk_sentence(summary: dict, metric: str = "iae") -> str:
     )
 
 
-def percentiles_markdown(summary: dict, percentiles: Sequence[float]) -> str:
+def percentiles_markdown(summary: Summary, percentiles: Sequence[float]) -> str:
     """The Markdown report: percentile table, risk lines, unstable counts and the caution."""
     header = ["metric", "arm", "unit", *[f"P{p:g}" for p in percentiles]]
     lines = [
@@ -175,7 +176,7 @@ def check_output_folder(folder: Path) -> None:
 
 def write_results(
     result: StudyResult,
-    summary: dict,
+    summary: Summary,
     folder: str | Path,
     percentiles: Sequence[float],
     extra: Callable[[Path], None] | None = None,
@@ -185,8 +186,9 @@ def write_results(
     Parameters
     ----------
     result : StudyResult
-    summary : dict
-        From :func:`robustff.study.summary.summarize_study`.
+    summary : Summary
+        From :func:`robustff.study.summary.summarize_study`; written as ``summary.json``
+        (the only writer of that file; see ``docs/summary.schema.json``).
     folder : path
     percentiles : sequence of float
     extra : callable(Path), optional

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import platform
 from collections.abc import Sequence
+from typing import cast
 
 import numpy as np
 
@@ -16,6 +17,7 @@ from robustff.case.sampling import plant_batch
 from robustff.engine.metrics import METRIC_NAMES, METRIC_UNITS
 from robustff.stats import (
     DEFAULT_PERCENTILES,
+    HarmEstimate,
     convergence_for_percentile,
     convergence_for_probability,
     metric_ratio,
@@ -25,6 +27,19 @@ from robustff.stats import (
 )
 from robustff.stats.sensitivity import rank_sensitivity
 from robustff.study.runner import StudyResult
+from robustff.study.summary_types import (
+    ArmStats,
+    Convergence,
+    ConvergenceDict,
+    DesignDict,
+    HarmEstimateDict,
+    MarginsSummary,
+    MetricStats,
+    NominalMargins,
+    SensitivityRow,
+    Summary,
+    Versions,
+)
 
 __all__ = [
     "summarize_study",
@@ -55,7 +70,7 @@ def metric_unit(result: StudyResult, metric: str) -> str:
     )
 
 
-def _versions() -> dict[str, str]:
+def _versions() -> Versions:
     import joblib
     import numba
     import scipy
@@ -75,16 +90,17 @@ def _ratio(result: StudyResult) -> np.ndarray:
     return metric_ratio(iae[:, 0], iae[:, 1])
 
 
-def _margins(result: StudyResult, percentiles: Sequence[float]) -> dict | None:
+def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummary | None:
     """Margin percentiles, limit fractions, unstable samples, and the nominal loop's margins."""
     if result.margins is None or result.nominal_margins is None:
         return None
     subset = result.margins.size
     batch = plant_batch(result.case, result.names, result.parameters[:subset])
-    out = result.margins.summary(percentiles, batch=batch)
+    # MarginResult.summary gives the distribution keys; the rest is added here.
+    out = cast(MarginsSummary, result.margins.summary(percentiles, batch=batch))
     nominal = result.nominal_margins
     out["samples"] = subset
-    nominal_values: dict = {
+    nominal_values: NominalMargins = {
         "gain_margin": float(nominal.gain_margin[0]),
         "phase_margin": float(nominal.phase_margin[0]),
         "delay_margin": float(nominal.delay_margin[0]),
@@ -102,7 +118,7 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> dict | None:
     return out
 
 
-def nominal_margin_warnings(nominal: dict) -> list[str]:
+def nominal_margin_warnings(nominal: NominalMargins) -> list[str]:
     """Warnings when the NOMINAL loop already misses common design limits (common practice)."""
     warnings = []
     if not nominal["stable"]:
@@ -116,9 +132,35 @@ def nominal_margin_warnings(nominal: dict) -> list[str]:
     return warnings
 
 
+def _paired(
+    result: StudyResult, percentiles: Sequence[float]
+) -> tuple[dict[str, MetricStats], dict[str, MetricStats]]:
+    """Per-sample improvement ``fb - fbff`` and ratio ``fbff / fb`` of the paired metrics."""
+    improvement: dict[str, MetricStats] = {}
+    ratio: dict[str, MetricStats] = {}
+    for name in PAIRED_METRICS:
+        paired = paired_comparison(
+            result.metrics[name][:, 0], result.metrics[name][:, 1], percentiles
+        )
+        improvement[name] = cast(MetricStats, paired["improvement_summary"].to_dict())
+        ratio[name] = cast(MetricStats, paired["ratio_summary"].to_dict())
+    return improvement, ratio
+
+
+def _convergence(result: StudyResult, harm_iae: HarmEstimate) -> Convergence:
+    """Convergence of the IAE harm probability and of the IAE percentiles with feedforward."""
+    iae_fbff = result.metrics["iae"][:, 1]
+    return {
+        "ff_worse_iae": cast(ConvergenceDict, convergence_for_probability(harm_iae).to_dict()),
+        "iae_fbff": cast(ConvergenceDict, convergence_for_percentile(iae_fbff).to_dict())
+        if np.isfinite(iae_fbff).sum() > 1
+        else None,
+    }
+
+
 def summarize_study(
     result: StudyResult, percentiles: Sequence[float] = DEFAULT_PERCENTILES
-) -> dict:
+) -> Summary:
     """The study's statistics.
 
     Parameters
@@ -129,34 +171,28 @@ def summarize_study(
 
     Returns
     -------
-    dict
-        Keys ``case, title, samples, requested, seed, partial, units, metrics, improvement,
-        ratio, ff_worse, unstable, convergence, sensitivity, design, notes, versions, caution``.
+    Summary
+        The ``summary.json`` content (NaN and inf still present; the writer turns them into
+        null). See :mod:`robustff.study.summary_types` and ``docs/summary.schema.json``.
     """
-    metrics = {
-        name: {
+    metrics: dict[str, ArmStats] = {
+        name: cast(ArmStats, {
             arm: summarize(result.metrics[name][:, i], percentiles).to_dict()
             for i, arm in enumerate(("fb", "fbff"))
-        }
+        })
         for name in METRIC_NAMES
     }
-    improvement, ratio = {}, {}
-    for name in PAIRED_METRICS:
-        paired = paired_comparison(
-            result.metrics[name][:, 0], result.metrics[name][:, 1], percentiles
-        )
-        improvement[name] = paired["improvement_summary"].to_dict()
-        ratio[name] = paired["ratio_summary"].to_dict()
+    improvement, ratio = _paired(result, percentiles)
     harm = {
         name: probability_worse(result.metrics[name][:, 0], result.metrics[name][:, 1])
         for name in HARM_METRICS
     }
     iae_ratio = _ratio(result)
-    sensitivity = []
+    sensitivity: list[SensitivityRow] = []
     if result.names and result.samples > 3:
         harmful = result.metrics["iae"][:, 1] > result.metrics["iae"][:, 0]
         sensitivity = [
-            row.to_dict()
+            cast(SensitivityRow, row.to_dict())
             for row in rank_sensitivity(result.parameters, result.names, iae_ratio, harmful)
         ]
     return {
@@ -172,20 +208,17 @@ def summarize_study(
         "metrics": metrics,
         "improvement": improvement,
         "ratio": ratio,
-        "ff_worse": {name: estimate.to_dict() for name, estimate in harm.items()},
+        "ff_worse": {
+            name: cast(HarmEstimateDict, estimate.to_dict()) for name, estimate in harm.items()
+        },
         "unstable": {
             "fb": int(result.unstable[:, 0].sum()),
             "fbff": int(result.unstable[:, 1].sum()),
         },
-        "convergence": {
-            "ff_worse_iae": convergence_for_probability(harm["iae"]).to_dict(),
-            "iae_fbff": convergence_for_percentile(result.metrics["iae"][:, 1]).to_dict()
-            if np.isfinite(result.metrics["iae"][:, 1]).sum() > 1
-            else None,
-        },
+        "convergence": _convergence(result, harm["iae"]),
         "sensitivity": sensitivity,
         "margins": _margins(result, percentiles),
-        "design": result.design.to_dict(),
+        "design": cast(DesignDict, result.design.to_dict()),
         "settling_band": result.scenario.settling_band,
         "elapsed_seconds": round(result.elapsed, 3),
         "versions": _versions(),

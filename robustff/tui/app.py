@@ -13,7 +13,7 @@ import time
 from collections.abc import Callable
 from dataclasses import replace
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 from textual import work
 from textual.app import App, ComposeResult
@@ -36,6 +36,7 @@ from robustff.tui.view import StudyView
 
 if TYPE_CHECKING:
     from robustff.study import StudyResult
+    from robustff.study.summary_types import Summary
 
 __all__ = ["StudioApp", "QUICK_SAMPLES"]
 
@@ -83,7 +84,7 @@ class StudioApp(FileActions, RobustActions, FitActions, App[None]):
         self.results_version = 0
         self.last_view: StudyView | None = None
         self.last_result: StudyResult | None = None
-        self.last_summary: dict[str, Any] | None = None
+        self.last_summary: Summary | None = None
         #: (perf_counter time, quick) of each result handed to the panes (for the benchmark).
         self.result_log: list[tuple[float, bool]] = []
         self._generation = 0
@@ -250,7 +251,7 @@ class StudioApp(FileActions, RobustActions, FitActions, App[None]):
         if generation == self._generation:
             self.query_one(ResultsPane).show_status(f"✗ run failed: {message}")
 
-    def _on_result(self, generation: int, result: StudyResult, summary: dict[str, Any],
+    def _on_result(self, generation: int, result: StudyResult, summary: Summary,
                    view: StudyView) -> None:
         if generation != self._generation:
             return  # an older case's run finished after an edit

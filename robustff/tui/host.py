@@ -10,7 +10,7 @@ set-up (bindings, CSS) are exactly those of a mixin without a base.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 __all__ = ["StudioHost"]
 
@@ -21,6 +21,7 @@ if TYPE_CHECKING:
 
     from robustff.case import Case
     from robustff.study import StudyResult
+    from robustff.study.summary_types import Summary
     from robustff.tui.view import StudyView
 
     class StudioHost(App[None]):
@@ -29,7 +30,7 @@ if TYPE_CHECKING:
         case: Case
         last_view: StudyView | None
         last_result: StudyResult | None
-        last_summary: dict[str, Any] | None
+        last_summary: Summary | None
 
         def accept_edit(self, case: Case, rebuild: bool = False) -> None:
             """Make ``case`` current: autosave, refresh the design, restart the study."""

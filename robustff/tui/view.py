@@ -7,12 +7,13 @@ symbol, never colour alone.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 
 if TYPE_CHECKING:
     from robustff.study import StudyResult
+    from robustff.study.summary_types import Arm, Summary
 
 __all__ = ["TABLE_METRICS", "TABLE_PERCENTILES", "MetricRow", "StudyView", "build_view", "verdict"]
 
@@ -109,11 +110,15 @@ def verdict(fb: float, fbff: float) -> str:
     return "better" if fbff < fb else "worse"
 
 
-def _row(summary: dict, metric: str) -> MetricRow:
-    def values(arm: str) -> tuple[float, ...]:
+def _row(summary: Summary, metric: str) -> MetricRow:
+    # Imported here, like the statistics in build_view: robustff.study loads the simulation
+    # engine, which the studio should not pay for before its first run.
+    from robustff.study.summary_types import percentile_value
+
+    def values(arm: Arm) -> tuple[float, ...]:
         stats = summary["metrics"][metric][arm]
-        return tuple(float("nan") if stats.get(f"p{p:g}") is None else float(stats[f"p{p:g}"])
-                     for p in TABLE_PERCENTILES)
+        found = [percentile_value(stats, p) for p in TABLE_PERCENTILES]
+        return tuple(float("nan") if value is None else float(value) for value in found)
 
     fb, fbff = values("fb"), values("fbff")
     middle = TABLE_PERCENTILES.index(50.0)
@@ -125,29 +130,31 @@ def _number(value: float | None, digits: str = ".3g") -> str:
     return "n/a" if value is None else format(float(value), digits)
 
 
-def margin_lines(summary: dict) -> tuple[str, ...]:
+def margin_lines(summary: Summary) -> tuple[str, ...]:
     """Margin percentiles and warnings (limits are common practice, no source)."""
+    from robustff.study.summary_types import percentile_value  # see _row
+
     margins = summary.get("margins")
     if not margins:
         return ()
     nominal = margins["nominal"]
-    def spread(name: str) -> str:
-        return "/".join(_number(margins[name].get(k)) for k in ("p5", "p50", "p95"))
+    def spread(name: Literal["gain_margin", "ms"]) -> str:
+        return "/".join(_number(percentile_value(margins[name], p)) for p in (5.0, 50.0, 95.0))
 
     lines = [
         f"Margins nominal: GM {_number(nominal['gain_margin'])}, "
         f"PM {_number(nominal['phase_margin'], '.0f')} deg, Ms {_number(nominal['ms'])}",
         f"  over samples P5/P50/P95: GM {spread('gain_margin')}, Ms {spread('ms')}",
     ]
-    below = margins["fraction_below_limits"]
-    if below.get("ms_above_2") is not None:
-        lines.append(f"  Ms > 2 in {100 * below['ms_above_2']:.1f} % of plants; "
+    ms_above = margins["fraction_below_limits"]["ms_above_2"]
+    if ms_above is not None:
+        lines.append(f"  Ms > 2 in {100 * ms_above:.1f} % of plants; "
                      f"unstable loops {margins['unstable']}")
     lines += [f"⚠ WARNING: {warning}" for warning in margins.get("nominal_warnings", [])]
     return tuple(lines)
 
 
-def driver_lines(summary: dict, rows: int = 3) -> tuple[str, ...]:
+def driver_lines(summary: Summary, rows: int = 3) -> tuple[str, ...]:
     """The top rows of the sensitivity ranking (Spearman rho with the IAE ratio)."""
     ranking = [row for row in summary.get("sensitivity", []) if row.get("rho") is not None]
     if not ranking:
@@ -157,13 +164,13 @@ def driver_lines(summary: dict, rows: int = 3) -> tuple[str, ...]:
     )
 
 
-def build_view(result: StudyResult, summary: dict, quick: bool) -> StudyView:
+def build_view(result: StudyResult, summary: Summary, quick: bool) -> StudyView:
     """The view of a study.
 
     Parameters
     ----------
     result : robustff.study.StudyResult
-    summary : dict
+    summary : Summary
         From :func:`robustff.study.summary.summarize_study`.
     quick : bool
         True for the first short pass.
@@ -176,10 +183,13 @@ def build_view(result: StudyResult, summary: dict, quick: bool) -> StudyView:
         for arm in (0, 1)
     ])
     harm = summary["ff_worse"]["iae"]
+    # The interval is None only without usable samples (probability None too); NaN keeps the
+    # view's tuple of floats.
+    low, high = (float("nan") if bound is None else bound for bound in harm["ci95"])
     return StudyView(
         samples=result.samples, requested=result.requested, partial=result.partial, quick=quick,
         elapsed=result.elapsed, rows=[_row(summary, m) for m in TABLE_METRICS],
-        harm_probability=harm["probability"], harm_interval=tuple(harm["ci95"]),
+        harm_probability=harm["probability"], harm_interval=(low, high),
         harm_count=int(harm["count"]), harm_n=int(harm["n"]),
         unstable_fb=summary["unstable"]["fb"], unstable_fbff=summary["unstable"]["fbff"],
         ratio=ratio, times=np.asarray(result.envelope.times, dtype=float), bands=bands,
