@@ -9,31 +9,118 @@ error ``e = setpoint - CV``; controller output ``u`` limited to ``[u_low, u_high
 Per step ``k`` (time ``k h``): measure CV and the disturbance, compute both controllers, update
 metrics, then advance the plant over ``[k h, (k+1) h)`` with ``u[k]`` held.
 
-Speed notes (measured, see the module's benchmark): states live in scalar locals (tuples that
-LLVM keeps in registers), constants such as ``kc h / ti`` are computed once, delayed inputs come
-from power-of-two ring buffers sized by the sample's longest delay (memory independent of the
-number of steps), and the stability probe runs inside the main time loop as a third, unlimited
-linear chain so that its latency overlaps the two arms. No fast-math: every sample's arithmetic
-is the same IEEE sequence whatever the batch.
+Speed notes (measured, see the module's benchmark): states live in scalar locals (the named
+tuples below, which LLVM keeps in registers like plain tuples), constants such as ``kc h / ti``
+are computed once, delayed inputs come from power-of-two ring buffers sized by the sample's
+longest delay (memory independent of the number of steps), and the stability probe runs inside
+the main time loop as a third, unlimited linear chain so that its latency overlaps the two
+arms. No fast-math: every sample's arithmetic is the same IEEE
+sequence whatever the batch.
 """
 
 from __future__ import annotations
 
 import math
+from collections import namedtuple
 
 import numpy as np
 from numba import njit
 
 from robustff.engine.discretise import block_coefficients, decay, split_delay
 
-__all__ = ["simulate_kernel", "N_ACCUMULATORS", "ACCUMULATOR_NAMES"]
+__all__ = [
+    "simulate_kernel", "ACCUMULATOR_NAMES", "N_ACCUMULATORS", "ACCUMULATOR_INIT", "Accumulators",
+    "INITIAL_ACCUMULATORS", "accumulator_slot", "ArmState", "ProbeState", "ControllerParams",
+    "MetricParams", "PathCoefficients", "FeedforwardParams", "BinGrid",
+]
 
-#: Per-arm accumulators written by the kernel, in this order.
-ACCUMULATOR_NAMES = (
+# Records. The kernel keeps its state in small tuples so that the compiler holds them in
+# registers; these are collections.namedtuple types, which numba compiles exactly like plain
+# tuples (same machine code) while every field is read by name. They live in this file on
+# purpose: numba's on-disk cache is invalidated only by changes to the file of the compiled
+# function, so constants defined in another module would be silently kept stale.
+
+#: Per-arm accumulators written by the kernel, in the column order of its output.
+ACCUMULATOR_NAMES: tuple[str, ...] = (
     "ie", "iae", "ise", "itae", "peak_deviation", "opposite_excursion",
     "settling_time", "valve_travel", "time_at_limit",
 )
 N_ACCUMULATORS = len(ACCUMULATOR_NAMES)
+
+#: Value of each accumulator before the first step. During the run ``settling_time`` holds the
+#: last time the error was outside the settling band (-1: never); the kernel's finishing step
+#: turns it into a duration.
+ACCUMULATOR_INIT: dict[str, float] = {
+    "ie": 0.0, "iae": 0.0, "ise": 0.0, "itae": 0.0, "peak_deviation": 0.0,
+    "opposite_excursion": 0.0, "settling_time": -1.0, "valve_travel": 0.0,
+    "time_at_limit": 0.0,
+}
+
+#: One arm's running accumulators, fields named and ordered as :data:`ACCUMULATOR_NAMES`.
+Accumulators = namedtuple("Accumulators", ACCUMULATOR_NAMES)
+
+
+def _initial_record() -> Accumulators:
+    # Keyword construction fails loudly on a missing or unknown name, so the table and the list
+    # cannot drift apart silently; the order check catches a reordered table.
+    if tuple(ACCUMULATOR_INIT) != ACCUMULATOR_NAMES:
+        raise TypeError("ACCUMULATOR_INIT must list ACCUMULATOR_NAMES, in the same order")
+    return Accumulators(**{name: float(value) for name, value in ACCUMULATOR_INIT.items()})
+
+
+#: The record every arm starts from (a module constant: numba compiles it in).
+INITIAL_ACCUMULATORS = _initial_record()
+
+
+def accumulator_slot(name: str) -> int:
+    """Column of accumulator ``name`` in the kernel's output (axis 2)."""
+    return ACCUMULATOR_NAMES.index(name)
+
+
+# Slots the finishing step rewrites; numba reads module-level ints as compile-time constants.
+SETTLING_TIME = accumulator_slot("settling_time")
+OPPOSITE_EXCURSION = accumulator_slot("opposite_excursion")
+
+#: Controller state of one live arm: integral term, derivative term, CV and output at the
+#: previous step (deviation units).
+ArmState = namedtuple("ArmState", ("integral", "derivative", "previous_cv", "previous_output"))
+
+#: Stability probe state: integral and derivative terms, previous CV, max |e| over
+#: ``[T/2, 3T/4)`` and over ``[3T/4, T)``, and whether the probe has diverged.
+ProbeState = namedtuple(
+    "ProbeState",
+    ("integral", "derivative", "previous_cv", "early_peak", "late_peak", "diverged"),
+)
+
+#: Controller constants, computed once: ``kc``; derivative filter pole ``tf / (tf + h)``;
+#: derivative gain ``kc td / (tf + h)``; integral gain ``kc h / ti``; tracking gain ``h / tt``;
+#: output limits (deviation units); whether the controller has a derivative term.
+ControllerParams = namedtuple(
+    "ControllerParams",
+    ("kc", "derivative_pole", "derivative_gain", "integral_gain", "tracking_gain",
+     "u_low", "u_high", "has_derivative"),
+)
+
+#: Metric conventions: controller sample time ``h``, event start ``t0`` (time units), settling
+#: band (CV units), and the sign of ``e`` that counts as an opposite excursion at this step.
+MetricParams = namedtuple("MetricParams", ("h", "t_start", "band", "direction"))
+
+#: One path's exact step (see :func:`robustff.engine.discretise.block_coefficients`):
+#: ``x1' = phi11 x1 + g1_new u_new + g1_old u_old``; for second-order paths also
+#: ``x2' = phi21 x1 + phi22 x2 + g2_new u_new + g2_old u_old`` and the output is ``x2``.
+PathCoefficients = namedtuple(
+    "PathCoefficients",
+    ("phi11", "phi21", "phi22", "g1_new", "g2_new", "g1_old", "g2_old", "second_order"),
+)
+
+#: Discrete lead-lag feedforward: pole and zero per step, gain scale, and the weights of the
+#: newer and older delayed samples (fractional delay).
+FeedforwardParams = namedtuple(
+    "FeedforwardParams", ("pole", "zero", "scale", "weight_new", "weight_old"),
+)
+
+#: Envelope histogram grid: lowest edge and bin width (CV units), number of bins.
+BinGrid = namedtuple("BinGrid", ("low", "width", "n_bins"))
 
 # Ring rows: controller output of arm 0 and arm 1, probe input, disturbance, measured disturbance.
 _RING_ROWS = 5
@@ -74,93 +161,105 @@ def _ring_size(longest_delay: int) -> int:
 
 
 @njit(cache=True, nogil=True)
-def _coefficients(kind: int, gain: float, tau1: float, tau2: float, h: float, f: float) -> tuple:
-    """:func:`block_coefficients` as a tuple (kept in registers by the compiler)."""
+def _coefficients(kind: int, gain: float, tau1: float, tau2: float, h: float,
+                  f: float) -> PathCoefficients:
+    """:func:`block_coefficients` as a record (kept in registers by the compiler)."""
     c = block_coefficients(kind, gain, tau1, tau2, h, f)
-    return (c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7] == 2.0)
+    return PathCoefficients(c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7] == 2.0)
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _output(x: tuple, c: tuple) -> float:
-    return x[1] if c[7] else x[0]
+def _output(x: tuple, c: PathCoefficients) -> float:
+    return x[1] if c.second_order else x[0]
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _path_step(x: tuple, c: tuple, u_new: float, u_old: float) -> tuple[float, float]:
+def _path_step(x: tuple, c: PathCoefficients, u_new: float,
+               u_old: float) -> tuple[float, float]:
     """One exact step of a path; ``x = (x1, x2)``, ``c`` from :func:`_coefficients`."""
-    first = c[0] * x[0] + c[3] * u_new + c[5] * u_old
+    first = c.phi11 * x[0] + c.g1_new * u_new + c.g1_old * u_old
     second = x[1]
-    if c[7]:
-        second = c[1] * x[0] + c[2] * x[1] + c[4] * u_new + c[6] * u_old
+    if c.second_order:
+        second = c.phi21 * x[0] + c.phi22 * x[1] + c.g2_new * u_new + c.g2_old * u_old
     return first, second
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _arm_control(s: tuple, a: tuple, y: float, sp: float, ff: float, first: bool, t: float,
-                 weight: float, p: tuple, mp: tuple) -> tuple:
+def _arm_control(s: ArmState, a: Accumulators, y: float, sp: float, ff: float, first: bool,
+                 t: float, weight: float, p: ControllerParams, mp: MetricParams) -> tuple:
     """Controller and metrics of one live arm at one step; returns ``(u, s, a)``.
 
-    ``s = (integral, derivative state, previous CV, previous output)``;
-    ``p = (kc, derivative pole, derivative gain, kc h / ti, h / tt, u_low, u_high, has_d)``;
-    ``mp = (h, t_start, band, direction at this step)``; ``weight = max(t - t_start, 0)``;
-    ``a`` holds the accumulators, slot 6 the last time outside the band (or -1).
+    ``mp.direction`` is the direction at this step; ``weight = max(t - t_start, 0)``;
+    ``a.settling_time`` holds the last time outside the band (or -1) until :func:`_finish`.
     """
     e = sp - y
-    deriv = s[1]
-    if p[7]:
-        deriv = p[1] * deriv - p[2] * (y - (y if first else s[2]))
-    v = p[0] * e + s[0] + deriv + ff
-    u = min(max(v, p[5]), p[6])
-    integral = s[0] + (p[3] * e + p[4] * (u - v))
-    h = mp[0]
+    deriv = s.derivative
+    if p.has_derivative:
+        deriv = p.derivative_pole * deriv - p.derivative_gain * (
+            y - (y if first else s.previous_cv))
+    v = p.kc * e + s.integral + deriv + ff
+    u = min(max(v, p.u_low), p.u_high)
+    integral = s.integral + (p.integral_gain * e + p.tracking_gain * (u - v))
+    h = mp.h
     ae = abs(e)
-    a = (
-        a[0] + e * h, a[1] + ae * h, a[2] + e * e * h, a[3] + weight * ae * h,
-        max(a[4], ae), max(a[5], mp[3] * e),
-        t if (ae > mp[2] and t >= mp[1]) else a[6],
-        a[7] + abs(u - s[3]), a[8] + h if u != v else a[8],
+    # Keyword construction: a name added to ACCUMULATOR_NAMES but not updated here fails to
+    # compile instead of being carried along unchanged.
+    a = Accumulators(
+        ie=a.ie + e * h, iae=a.iae + ae * h, ise=a.ise + e * e * h,
+        itae=a.itae + weight * ae * h,
+        peak_deviation=max(a.peak_deviation, ae),
+        opposite_excursion=max(a.opposite_excursion, mp.direction * e),
+        settling_time=t if (ae > mp.band and t >= mp.t_start) else a.settling_time,
+        valve_travel=a.valve_travel + abs(u - s.previous_output),
+        time_at_limit=a.time_at_limit + h if u != v else a.time_at_limit,
     )
-    return u, (integral, deriv, y, u), a
+    return u, ArmState(integral, deriv, y, u), a
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _probe_control(s: tuple, y: float, k: int, p: tuple, q2: int, q3: int) -> tuple:
+def _probe_control(s: ProbeState, y: float, k: int, p: ControllerParams, q2: int,
+                   q3: int) -> tuple:
     """Stability probe: the linear loop (no limits) after a unit load at the process input.
 
-    ``s = (integral, derivative state, previous CV, max |e| over [T/2, 3T/4), same over
-    [3T/4, T), diverged)``; returns ``(u, s)``.
+    Returns ``(u, s)``; the peaks of ``s`` cover ``[T/2, 3T/4)`` (from step ``q2``) and
+    ``[3T/4, T)`` (from step ``q3``).
     """
-    diverged = s[5] or not math.isfinite(y) or abs(y) > 1e12
+    diverged = s.diverged or not math.isfinite(y) or abs(y) > 1e12
     e = -y
-    deriv = p[1] * s[1] - p[2] * (y - s[2]) if p[7] else s[1]
-    u = p[0] * e + s[0] + deriv
-    first, second = s[3], s[4]
+    deriv = (p.derivative_pole * s.derivative - p.derivative_gain * (y - s.previous_cv)
+             if p.has_derivative else s.derivative)
+    u = p.kc * e + s.integral + deriv
+    first, second = s.early_peak, s.late_peak
     if k >= q3:
         second = max(second, abs(e))
     elif k >= q2:
         first = max(first, abs(e))
-    return u, (s[0] + p[3] * e, deriv, y, first, second, diverged)
+    return u, ProbeState(s.integral + p.integral_gain * e, deriv, y, first, second, diverged)
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _envelope_bin(y: float, grid: tuple) -> int:
-    """Histogram bin of ``y``; ``grid = (lowest edge, bin width, number of bins)``."""
-    b = int((y - grid[0]) / grid[1])
-    return min(max(b, 0), grid[2] - 1)
+def _envelope_bin(y: float, grid: BinGrid) -> int:
+    """Histogram bin of ``y``; values outside the grid fall in the first or last bin."""
+    b = int((y - grid.low) / grid.width)
+    return min(max(b, 0), grid.n_bins - 1)
 
 
 @njit(cache=True, nogil=True)
-def _finish(i: int, arm: int, a: tuple, alive: bool, probe: bool, t_end: float, mp: tuple,
-            accumulators: np.ndarray, unstable: np.ndarray) -> None:
-    """Write one arm's accumulators (NaN when unstable) and its unstable flag."""
-    last_outside = a[6]
-    settling = 0.0 if last_outside < 0.0 else min(last_outside + mp[0], t_end) - mp[1]
-    for q in range(9):
+def _finish(i: int, arm: int, a: Accumulators, alive: bool, probe: bool, t_end: float,
+            mp: MetricParams, accumulators: np.ndarray, unstable: np.ndarray) -> None:
+    """Write one arm's accumulators (NaN when unstable) and its unstable flag.
+
+    Every column of :data:`ACCUMULATOR_NAMES` is written; only the slots named here are
+    rewritten, the others are the running value as it stands.
+    """
+    last_outside = a.settling_time
+    settling = 0.0 if last_outside < 0.0 else min(last_outside + mp.h, t_end) - mp.t_start
+    for q in range(N_ACCUMULATORS):
         value = a[q]
-        if q == 6:
+        if q == SETTLING_TIME:
             value = settling
-        elif q == 5:
-            value = max(a[5], 0.0)
+        elif q == OPPOSITE_EXCURSION:
+            value = max(a.opposite_excursion, 0.0)
         accumulators[i, arm, q] = value if alive and not probe else math.nan
     unstable[i, arm] = probe or not alive
 
@@ -180,7 +279,8 @@ def _simulate_sample(
     i: int, kinds: np.ndarray, plant: np.ndarray, seed: np.uint64,
     disturbance_profile: np.ndarray, setpoint_profile: np.ndarray,
     direction_profile: np.ndarray, noise: np.ndarray,
-    p: tuple, mp: tuple, ffp: tuple, m_ff: int, limit: float, grid: tuple,
+    p: ControllerParams, mp: MetricParams, ffp: FeedforwardParams, m_ff: int, limit: float,
+    grid: BinGrid,
     envelope_index: np.ndarray, slot: int, ring: np.ndarray, env_buf: np.ndarray,
     trajectories: np.ndarray,
 ) -> tuple:
@@ -188,7 +288,7 @@ def _simulate_sample(
 
     ``noise`` rows: start step, filter pole, innovation scale, state (updated in place).
     """
-    n_steps, h = disturbance_profile.shape[0], mp[0]
+    n_steps, h = disturbance_profile.shape[0], mp.h
     m_p, f_p = split_delay(plant[i, 3], h)
     m_d, f_d = split_delay(plant[i, 7], h)
     m_p, m_d = min(m_p, n_steps), min(m_d, n_steps)  # longer delays only ever read zeros
@@ -200,17 +300,17 @@ def _simulate_sample(
     noise[:, 3] = 0.0
     a_sensor = decay(h, plant[i, 8])
     gain_sensor, direct, noise_std = 1.0 - a_sensor, plant[i, 8] <= 0.0, plant[i, 9]
-    acc0 = acc1 = (0.0, 0.0, 0.0, 0.0, 0.0, 0.0, -1.0, 0.0, 0.0)
-    s0 = s1 = (0.0, 0.0, 0.0, 0.0)
+    acc0 = acc1 = INITIAL_ACCUMULATORS
+    s0 = s1 = ArmState(0.0, 0.0, 0.0, 0.0)
     alive0 = alive1 = True
-    x0 = x1 = xq = xd = (0.0, 0.0)
-    sq = (0.0, 0.0, 0.0, 0.0, 0.0, False)
+    x0 = x1 = xq = xd = (0.0, 0.0)  # path states (x1, x2)
+    sq = ProbeState(0.0, 0.0, 0.0, 0.0, 0.0, False)
     q2, q3 = n_steps // 2, (3 * n_steps) // 4
     sensor = ff_out = ff_in_prev = u0 = u1 = 0.0
     for k in range(n_steps):
         t = k * h
-        weight = max(t - mp[1], 0.0)
-        mpk = (mp[0], mp[1], mp[2], direction_profile[k])
+        weight = max(t - mp.t_start, 0.0)
+        mpk = MetricParams(mp.h, mp.t_start, mp.band, direction_profile[k])
         d = disturbance_profile[k]
         for j in range(noise.shape[0]):
             if k >= noise[j, 0]:
@@ -222,9 +322,9 @@ def _simulate_sample(
             seed, draw = _random_normal(seed)
             measured += noise_std * draw
         ring[4 * size + (k & mask)] = measured
-        ff_in = (ffp[3] * ring[4 * size + ((k - m_ff) & mask)]
-                 + ffp[4] * ring[4 * size + ((k - m_ff - 1) & mask)])
-        ff_out = ffp[0] * ff_out + ffp[2] * (ff_in - ffp[1] * ff_in_prev)
+        ff_in = (ffp.weight_new * ring[4 * size + ((k - m_ff) & mask)]
+                 + ffp.weight_old * ring[4 * size + ((k - m_ff - 1) & mask)])
+        ff_out = ffp.pole * ff_out + ffp.scale * (ff_in - ffp.zero * ff_in_prev)
         ff_in_prev = ff_in
         yd, sp = _output(xd, cd), setpoint_profile[k]
         y0, y1, yq = _output(x0, cp) + yd, _output(x1, cp) + yd, _output(xq, cp)
@@ -252,7 +352,7 @@ def _simulate_sample(
         xd = _path_step(xd, cd, ring[3 * size + ((k - m_d) & mask)],
                         ring[3 * size + ((k - m_d - 1) & mask)])
         sensor = a_sensor * sensor + gain_sensor * d
-    unstable = sq[5] or (sq[4] > 0.995 * sq[3] and sq[4] > 1e-9)
+    unstable = sq.diverged or (sq.late_peak > 0.995 * sq.early_peak and sq.late_peak > 1e-9)
     return acc0, acc1, alive0, alive1, unstable
 
 
@@ -290,17 +390,18 @@ def simulate_kernel(
     n_steps = disturbance_profile.shape[0]
     kc, ti, td, tf, tt = controller[0], controller[1], controller[2], controller[3], controller[4]
     # The textbook expressions, evaluated once in the same operation order.
-    p = (kc, tf / (tf + h), kc * td / (tf + h), kc * h / ti, h / tt, controller[5],
-         controller[6], td > 0.0)
-    mp = (h, metric_setup[0], metric_setup[1], metric_setup[2])
+    p = ControllerParams(kc, tf / (tf + h), kc * td / (tf + h), kc * h / ti, h / tt,
+                         controller[5], controller[6], td > 0.0)
+    # The direction slot is filled per step from direction_profile (metric_setup[2] is unused).
+    mp = MetricParams(h, metric_setup[0], metric_setup[1], metric_setup[2])
     n_bins = envelope_edges.shape[0] - 1
-    grid = (envelope_edges[0], (envelope_edges[-1] - envelope_edges[0]) / n_bins, n_bins)
+    grid = BinGrid(envelope_edges[0], (envelope_edges[-1] - envelope_edges[0]) / n_bins, n_bins)
     # Matched pole-zero compensator: exact inverse of ZOH first-order paths at the samples.
     ff_pole, ff_zero = decay(h, feedforward[2]), decay(h, feedforward[1])
     ff_gain = feedforward[0]
     ff_scale = ff_gain * (1.0 - ff_pole) / (1.0 - ff_zero) if ff_zero < 1.0 else ff_gain
     m_ff, f_ff = split_delay(feedforward[3], h)
-    ffp = (ff_pole, ff_zero, ff_scale, 1.0 - f_ff, f_ff)
+    ffp = FeedforwardParams(ff_pole, ff_zero, ff_scale, 1.0 - f_ff, f_ff)
     noise = np.zeros((noise_events.shape[0], 4))
     for j in range(noise_events.shape[0]):
         pole = decay(h, noise_events[j, 2])
