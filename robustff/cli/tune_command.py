@@ -14,6 +14,7 @@ from robustff import CAUTION
 from robustff.cli.arguments import positive_int, sample_count, seed_value
 from robustff.cli.exit_codes import EXIT_OK
 from robustff.errors import CaseError
+from robustff.jsonvalues import json_float
 
 __all__ = ["register", "execute", "result_to_dict", "robust_case"]
 
@@ -51,17 +52,13 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.set_defaults(func=execute)
 
 
-def _finite(value: float) -> float | None:
-    return float(value) if math.isfinite(value) else None
-
-
 def _design_dict(settings, figures: dict) -> dict:
     return {
         "structure": settings.structure, "gain": settings.gain,
         "gain_factor": settings.gain_factor, "lead": settings.lead, "lag": settings.lag,
         "delay": settings.delay,
-        "objective_value": _finite(figures["optimisation"].objective),
-        "objective_fresh": _finite(figures["fresh"].objective),
+        "objective_value": json_float(figures["optimisation"].objective),
+        "objective_fresh": json_float(figures["fresh"].objective),
         "optimisation": figures["optimisation"].to_dict(),
         "fresh": figures["fresh"].to_dict(),
     }
@@ -75,7 +72,7 @@ def result_to_dict(result, case_file: Path | None = None) -> dict:
         "robust": _design_dict(result.robust, result.figures["robust"]),
         "rule": (_design_dict(result.rule, result.figures["rule"])
                  if result.rule is not None else None),
-        "feedback_only_iae": {label: {"p50": _finite(p50), "p90": _finite(p90)}
+        "feedback_only_iae": {label: {"p50": json_float(p50), "p90": json_float(p90)}
                               for label, (p50, p90) in result.feedback_iae.items()},
         "searched": {name: [float(lo), float(hi)] for name, lo, hi in
                      zip(result.space.names, result.space.low, result.space.high, strict=True)},
@@ -83,7 +80,7 @@ def result_to_dict(result, case_file: Path | None = None) -> dict:
         "evaluations": result.evaluations, "excluded_unstable_feedback": result.excluded,
         "optimiser": result.message,
         "recommended": result.recommended,
-        "improvement_interval90": [_finite(v) for v in result.improvement_interval],
+        "improvement_interval90": [json_float(v) for v in result.improvement_interval],
         "sensitivity": [row.to_dict() for row in result.sensitivity],
         "case_file": str(case_file) if case_file is not None else None,
         "caution": CAUTION,

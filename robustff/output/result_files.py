@@ -23,6 +23,7 @@ from robustff import CAUTION
 from robustff.atomic import write_text_atomic
 from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
+from robustff.jsonvalues import json_safe
 from robustff.study import StudyResult
 from robustff.study.summary_types import ARMS, Summary, percentile_value
 
@@ -105,21 +106,6 @@ def percentiles_markdown(summary: Summary, percentiles: Sequence[float]) -> str:
         "",
     ]
     return "\n".join(lines)
-
-
-def json_safe(value: object) -> object:
-    """A copy with NaN and infinities replaced by None (JSON has neither)."""
-    if isinstance(value, dict):
-        return {key: json_safe(item) for key, item in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [json_safe(item) for item in value]
-    if isinstance(value, (float, np.floating)):
-        return float(value) if np.isfinite(value) else None
-    if isinstance(value, np.integer):
-        return int(value)
-    if isinstance(value, np.bool_):
-        return bool(value)
-    return value
 
 
 def _csv_text(rows: list[list]) -> str:

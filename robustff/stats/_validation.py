@@ -2,18 +2,11 @@
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
 
 import numpy as np
 
 from robustff.errors import DataError
-
-
-def json_float(x: float) -> float | None:
-    """Return ``x`` as a float, or None where it is NaN/inf (JSON has no NaN)."""
-    x = float(x)
-    return x if math.isfinite(x) else None
 
 
 def z_value(confidence: float) -> float:

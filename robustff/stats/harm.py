@@ -12,7 +12,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.errors import DataError
-from robustff.stats._validation import check_confidence, json_float, paired_arrays, z_value
+from robustff.jsonvalues import json_float
+from robustff.stats._validation import check_confidence, paired_arrays, z_value
 
 __all__ = [
     "HarmEstimate",

@@ -15,12 +15,12 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from robustff.errors import DataError
+from robustff.jsonvalues import json_float
 from robustff.stats._validation import (
     as_vector,
     check_confidence,
     check_percentiles,
     finite_values,
-    json_float,
     paired_arrays,
 )
 

@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.errors import DataError
+from robustff.jsonvalues import json_float
 
 __all__ = ["SensitivityRow", "spearman_with_interval", "rank_sensitivity", "sobol_first_total"]
 
@@ -20,10 +21,6 @@ __all__ = ["SensitivityRow", "spearman_with_interval", "rank_sensitivity", "sobo
 # Source: Fieller, Hartley and Pearson, "Tests for rank correlation coefficients. I",
 # Biometrika 44 (1957) 470-481 [from memory].
 _SPEARMAN_SE_FACTOR = 1.06
-
-
-def _json_float(x: float) -> float | None:
-    return float(x) if math.isfinite(x) else None
 
 
 @dataclass(frozen=True)
@@ -61,11 +58,11 @@ class SensitivityRow:
         """JSON-friendly dict; intervals as ``[low, high]`` lists, NaN as None."""
         return {
             "name": self.name,
-            "rho": _json_float(self.rho),
-            "ci95": [_json_float(self.low), _json_float(self.high)],
+            "rho": json_float(self.rho),
+            "ci95": [json_float(self.low), json_float(self.high)],
             "n": self.n,
-            "rho_harm": _json_float(self.rho_harm),
-            "harm_ci95": [_json_float(self.harm_low), _json_float(self.harm_high)],
+            "rho_harm": json_float(self.rho_harm),
+            "harm_ci95": [json_float(self.harm_low), json_float(self.harm_high)],
             "n_harm": self.n_harm,
         }
 

@@ -27,6 +27,7 @@ from robustff.design.feedforward_rule import feedforward_rule
 from robustff.design.tuning import FeedforwardSettings, LoopDesign, design_loop
 from robustff.engine import Scenario, build_scenario
 from robustff.errors import DesignError
+from robustff.jsonvalues import json_float
 from robustff.stats.percentiles import metric_ratio
 from robustff.stats.sensitivity import SensitivityRow, rank_sensitivity
 from robustff.study import CHUNK_SIZE, noise_seeds
@@ -93,7 +94,7 @@ class DesignFigures:
     unstable: int
 
     def to_dict(self) -> dict[str, float | int | None]:
-        return {k: (v if not isinstance(v, float) or math.isfinite(v) else None)
+        return {k: (json_float(v) if isinstance(v, float) else v)
                 for k, v in self.__dict__.items()}
 
 
