@@ -14,12 +14,15 @@ import numpy as np
 
 from robustff.plant.models import PlantBatch
 
-__all__ = ["MarginResult", "MS_LIMIT", "GAIN_MARGIN_LIMIT", "PHASE_MARGIN_LIMIT"]
+__all__ = ["MarginResult", "MS_LIMIT", "GAIN_MARGIN_LIMIT", "PHASE_MARGIN_LIMIT", "LIMITS_NOTE"]
 
 #: Design limits for the "fraction below limits" summary (common practice, no source).
 MS_LIMIT = 2.0
 GAIN_MARGIN_LIMIT = 2.0
 PHASE_MARGIN_LIMIT = 30.0
+#: The limits in words, for reports.
+LIMITS_NOTE = (f"Ms > {MS_LIMIT:g}, GM < {GAIN_MARGIN_LIMIT:g}, PM < {PHASE_MARGIN_LIMIT:g} deg: "
+               "common practice, no source")
 
 
 def _percentile(values: np.ndarray, p: float) -> float | None:

@@ -11,6 +11,7 @@ from typing import cast
 import numpy as np
 
 from robustff import CAUTION
+from robustff.design.margins_result import GAIN_MARGIN_LIMIT, MS_LIMIT, PHASE_MARGIN_LIMIT
 from robustff.output.plots import (
     band_figure,
     margins_figure,
@@ -73,7 +74,8 @@ def _margins_section(summary: Summary) -> str:
         "<h2>Feedback stability margins</h2>"
         + _table(["margin", "P5", "P50", "P95"], rows)
         + f"<ul>{lines}<li>unstable feedback loops: {margins.get('unstable', 0)}</li></ul>"
-        + "<p>Limits Ms &gt; 2, GM &lt; 2, PM &lt; 30 deg are common practice, no source.</p>"
+        + f"<p>Limits Ms &gt; {MS_LIMIT:g}, GM &lt; {GAIN_MARGIN_LIMIT:g}, "
+        f"PM &lt; {PHASE_MARGIN_LIMIT:g} deg are common practice, no source.</p>"
     )
 
 

@@ -10,6 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
+from robustff.design.margins_result import GAIN_MARGIN_LIMIT, MS_LIMIT, PHASE_MARGIN_LIMIT
 from robustff.stats import envelope_from_histogram, metric_ratio, ratio_histogram
 from robustff.study import StudyResult
 from robustff.study.summary_types import Summary
@@ -154,10 +155,10 @@ def margins_figure(margins: dict, values: dict[str, np.ndarray]):
     """
     plt = _pyplot()
     panels = (
-        ("gain_margin", "gain margin [-]", 2.0),
-        ("phase_margin", "phase margin [deg]", 30.0),
+        ("gain_margin", "gain margin [-]", GAIN_MARGIN_LIMIT),
+        ("phase_margin", "phase margin [deg]", PHASE_MARGIN_LIMIT),
         ("delay_margin", f"delay margin [{margins.get('time_unit', 'time')}]", None),
-        ("ms", "maximum sensitivity Ms [-]", 2.0),
+        ("ms", "maximum sensitivity Ms [-]", MS_LIMIT),
     )
     fig, axes = plt.subplots(2, 2, figsize=(8, 5.5))
     for ax, (key, label, limit) in zip(axes.ravel(), panels, strict=True):

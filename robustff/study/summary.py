@@ -14,6 +14,12 @@ import numpy as np
 
 from robustff import CAUTION, __version__
 from robustff.case.sampling import plant_batch
+from robustff.design.margins_result import (
+    GAIN_MARGIN_LIMIT,
+    LIMITS_NOTE,
+    MS_LIMIT,
+    PHASE_MARGIN_LIMIT,
+)
 from robustff.engine.metrics import METRIC_NAMES, METRIC_UNITS
 from robustff.stats import (
     DEFAULT_PERCENTILES,
@@ -109,7 +115,7 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummar
     }
     out["nominal"] = nominal_values
     out["nominal_warnings"] = nominal_margin_warnings(nominal_values)
-    out["limits_note"] = "Ms > 2, GM < 2, PM < 30 deg: common practice, no source"
+    out["limits_note"] = LIMITS_NOTE
     out["note"] = (
         "continuous-time loop with the exact dead time; the simulated digital controller adds "
         "about half a sample of delay (zero-order hold), so a loop within a few percent of the "
@@ -123,12 +129,14 @@ def nominal_margin_warnings(nominal: NominalMargins) -> list[str]:
     warnings = []
     if not nominal["stable"]:
         return ["the nominal feedback loop is unstable"]
-    if nominal["ms"] > 2.0:
-        warnings.append(f"nominal Ms = {nominal['ms']:.2f} > 2: the feedback tuning is not robust")
-    if nominal["gain_margin"] < 2.0:
-        warnings.append(f"nominal gain margin {nominal['gain_margin']:.2f} < 2")
-    if nominal["phase_margin"] < 30.0:
-        warnings.append(f"nominal phase margin {nominal['phase_margin']:.1f} deg < 30 deg")
+    if nominal["ms"] > MS_LIMIT:
+        warnings.append(f"nominal Ms = {nominal['ms']:.2f} > {MS_LIMIT:g}: "
+                        "the feedback tuning is not robust")
+    if nominal["gain_margin"] < GAIN_MARGIN_LIMIT:
+        warnings.append(f"nominal gain margin {nominal['gain_margin']:.2f} < {GAIN_MARGIN_LIMIT:g}")
+    if nominal["phase_margin"] < PHASE_MARGIN_LIMIT:
+        warnings.append(f"nominal phase margin {nominal['phase_margin']:.1f} deg "
+                        f"< {PHASE_MARGIN_LIMIT:g} deg")
     return warnings
 
 
