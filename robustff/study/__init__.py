@@ -2,6 +2,14 @@
 
 from __future__ import annotations
 
-from robustff.study.runner import CHUNK_SIZE, ProgressCallback, StudyResult, noise_seeds, run_study
+from robustff.study.runner import (
+    CHUNK_SIZE,
+    ProgressCallback,
+    StudyResult,
+    chunk_spans,
+    noise_seeds,
+    run_study,
+)
 
-__all__ = ["StudyResult", "run_study", "noise_seeds", "CHUNK_SIZE", "ProgressCallback"]
+__all__ = ["StudyResult", "run_study", "noise_seeds", "chunk_spans", "CHUNK_SIZE",
+           "ProgressCallback"]

@@ -34,7 +34,8 @@ from robustff.engine import (
 from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
 
-__all__ = ["StudyResult", "run_study", "noise_seeds", "CHUNK_SIZE", "ProgressCallback"]
+__all__ = ["StudyResult", "run_study", "noise_seeds", "chunk_spans", "CHUNK_SIZE",
+           "ProgressCallback"]
 
 #: Samples per chunk. Fixed (not derived from the number of jobs) so results never depend on it.
 CHUNK_SIZE = 1000
@@ -122,13 +123,19 @@ def _envelope_grid(scenario: Scenario, nominal: np.ndarray) -> EnvelopeGrid:
     return EnvelopeGrid.spanning(low - 1.5 * span, high + 1.5 * span, scenario)
 
 
+def chunk_spans(n: int, size: int = CHUNK_SIZE) -> list[tuple[int, int]]:
+    """Half-open index ranges ``[(0, size), (size, 2 size), ...]`` covering ``0..n``."""
+    return [(a, min(a + size, n)) for a in range(0, n, size)]
+
+
 def noise_seeds(seed: int, n: int, chunk_size: int = CHUNK_SIZE) -> np.ndarray:
     """Per-sample noise seeds, shape (n,) uint64: chunk ``i`` draws from child ``i`` of
     ``SeedSequence(seed)``, so a sample's seed depends only on the seed and its index."""
-    children = np.random.SeedSequence(seed).spawn(-(-n // chunk_size))
+    spans = chunk_spans(n, chunk_size)
+    children = np.random.SeedSequence(seed).spawn(len(spans))
     parts = [
-        child.generate_state(min(chunk_size, n - i * chunk_size), dtype=np.uint64)
-        for i, child in enumerate(children)
+        child.generate_state(stop - start, dtype=np.uint64)
+        for child, (start, stop) in zip(children, spans, strict=True)
     ]
     return np.concatenate(parts) if parts else np.empty(0, dtype=np.uint64)
 
@@ -151,7 +158,7 @@ def _run_chunk(
 
 
 def _chunks(n: int, size: int) -> list[_Chunk]:
-    return [_Chunk(i, start, min(start + size, n)) for i, start in enumerate(range(0, n, size))]
+    return [_Chunk(i, start, stop) for i, (start, stop) in enumerate(chunk_spans(n, size))]
 
 
 def _parallel_results(tasks: list, jobs: int, cluster: str | None) -> Iterator:

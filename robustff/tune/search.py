@@ -30,7 +30,7 @@ from robustff.errors import DesignError
 from robustff.jsonvalues import json_float
 from robustff.stats.percentiles import metric_ratio
 from robustff.stats.sensitivity import SensitivityRow, rank_sensitivity
-from robustff.study import CHUNK_SIZE, noise_seeds
+from robustff.study import CHUNK_SIZE, chunk_spans, noise_seeds
 from robustff.tune.objectives import (
     OBJECTIVES,
     objective_value,
@@ -38,7 +38,7 @@ from robustff.tune.objectives import (
     search_score,
     unknown_objective,
 )
-from robustff.tune.simulation import chunk_spans, simulate_iae
+from robustff.tune.simulation import simulate_iae
 from robustff.tune.sobol import sobol_sensitivity
 
 __all__ = [

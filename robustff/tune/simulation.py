@@ -1,4 +1,4 @@
-"""IAE of both arms for a batch of plants, simulated in chunks: shared by the robust searches.
+"""IAE of both arms for a batch of plants (one chunk): shared by the robust searches.
 
 Used by :mod:`robustff.tune.search` (the robust feedforward search) and
 :mod:`robustff.tune.sobol` (Sobol indices of the IAE ratio).
@@ -11,14 +11,8 @@ import numpy as np
 from robustff.design.tuning import LoopDesign
 from robustff.engine import Scenario, simulate
 from robustff.plant.models import PlantBatch
-from robustff.study import CHUNK_SIZE
 
-__all__ = ["chunk_spans", "simulate_iae"]
-
-
-def chunk_spans(n: int, size: int = CHUNK_SIZE) -> list[tuple[int, int]]:
-    """Half-open index ranges ``[(0, size), (size, 2 size), ...]`` covering ``0..n``."""
-    return [(a, min(a + size, n)) for a in range(0, n, size)]
+__all__ = ["simulate_iae"]
 
 
 def simulate_iae(batch: PlantBatch, design: LoopDesign, scenario: Scenario,

@@ -22,7 +22,8 @@ from robustff.engine import Scenario, build_scenario
 from robustff.errors import DesignError
 from robustff.stats.percentiles import metric_ratio
 from robustff.stats.sensitivity import sobol_first_total
-from robustff.tune.simulation import chunk_spans, simulate_iae
+from robustff.study import chunk_spans
+from robustff.tune.simulation import simulate_iae
 
 __all__ = ["sobol_sensitivity"]
 
