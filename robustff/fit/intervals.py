@@ -21,17 +21,11 @@ import math
 import numpy as np
 
 from robustff.errors import DataError
-from robustff.fit.least_squares import (
-    FitResult,
-    ParameterEstimate,
-    _Problem,
-    _solve,
-    _to_model,
-    model_parameters,
-    two_point_estimate,
-)
+from robustff.fit.projection import Problem, solve, to_model
 from robustff.fit.records import StepInfo, StepRecord
 from robustff.fit.response import simulate_response
+from robustff.fit.result import FitResult, ParameterEstimate, model_parameters
+from robustff.fit.two_point import two_point_estimate
 from robustff.plant.kinds import model_kind
 from robustff.plant.models import MODEL_PARAMETERS, TransferModel
 
@@ -90,7 +84,7 @@ def _canonical(kind: str, p: np.ndarray) -> np.ndarray:
     return p
 
 
-def _bootstrap(problem: _Problem, fitted: np.ndarray, residuals: np.ndarray, p: np.ndarray,
+def _bootstrap(problem: Problem, fitted: np.ndarray, residuals: np.ndarray, p: np.ndarray,
                low: np.ndarray, high: np.ndarray, resamples: int, seed: int) -> np.ndarray:
     """Refitted (gain, lags..., dead time) per resample: shape (resamples, 1 + len(p))."""
     n = residuals.size
@@ -100,14 +94,14 @@ def _bootstrap(problem: _Problem, fitted: np.ndarray, residuals: np.ndarray, p: 
     out = np.empty((resamples, 1 + p.size))
     for i in range(resamples):
         y_star = fitted + resample_residuals(coefficients, innovations, n, rng)
-        p_star, _ = _solve(problem, y_star, [p], low, high)
+        p_star, _ = solve(problem, y_star, [p], low, high)
         p_star = _canonical(problem.kind, p_star)
         out[i, 0] = problem.linear(p_star, y_star)[0]
         out[i, 1:] = p_star
     return out
 
 
-def _jacobian_ci(problem: _Problem, y: np.ndarray, gain: float, p: np.ndarray,
+def _jacobian_ci(problem: Problem, y: np.ndarray, gain: float, p: np.ndarray,
                  low: np.ndarray, high: np.ndarray) -> list[tuple[float, float]]:
     """Linearised 95 % intervals for (gain, lags..., dead time)."""
     from scipy.stats import t as student
@@ -137,13 +131,13 @@ def _estimates(model: TransferModel, cis: list[tuple[float, float]] | None,
     return {name: ParameterEstimate(v, by_name.get(name)) for name, v in values.items()}
 
 
-def finish_fit(record: StepRecord, step: StepInfo, problem: _Problem, p: np.ndarray,
+def finish_fit(record: StepRecord, step: StepInfo, problem: Problem, p: np.ndarray,
                y: np.ndarray, low: np.ndarray, high: np.ndarray, ci_method: str,
                resamples: int, seed: int, warnings: list[str]) -> FitResult:
     """Build the :class:`FitResult` of a least-squares fit, with intervals."""
     p = _canonical(problem.kind, p)
     gain, base, residuals = problem.linear(p, y)
-    model = _to_model(problem.kind, gain, p)
+    model = to_model(problem.kind, gain, p)
     fitted = y - residuals
     cis: list[tuple[float, float]] | None = None
     if ci_method == "bootstrap" and resamples > 0:

@@ -1,0 +1,66 @@
+"""The result of fitting a model to one step-test record: best values and 95 % intervals.
+
+Shared by the fit (:mod:`robustff.fit.least_squares`) and its confidence intervals
+(:mod:`robustff.fit.intervals`), which builds the result; neither imports the other's internals.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from robustff.fit.records import (
+    StepRecord,
+)
+from robustff.plant.models import MODEL_PARAMETERS, TransferModel
+
+__all__ = ["ParameterEstimate", "FitResult", "model_parameters"]
+
+
+@dataclass(frozen=True)
+class ParameterEstimate:
+    """A fitted parameter: best value and 95 % confidence interval (None if not computed)."""
+
+    value: float
+    ci95: tuple[float, float] | None = None
+
+
+@dataclass(frozen=True)
+class FitResult:
+    """A model fitted to one record.
+
+    Parameters
+    ----------
+    model : TransferModel
+        Best-fit model (times in the data's time unit).
+    estimates : dict of str to ParameterEstimate
+        One entry per name in ``MODEL_PARAMETERS[model.kind]``.
+    method, ci_method : str
+        How the model and the intervals were obtained.
+    output_baseline, input_baseline : float
+        Steady state before the step, signal units (output baseline is fitted).
+    fitted : ndarray, shape (N,)
+        Fitted output on the record's time grid, absolute output units.
+    rmse : float
+        Root-mean-square of data minus fit, output units.
+    record : StepRecord
+    warnings : tuple of str
+    """
+
+    model: TransferModel
+    estimates: dict[str, ParameterEstimate]
+    method: str
+    ci_method: str
+    output_baseline: float
+    input_baseline: float
+    fitted: np.ndarray
+    rmse: float
+    record: StepRecord
+    warnings: tuple[str, ...] = field(default=())
+
+
+def model_parameters(model: TransferModel) -> dict[str, float]:
+    """The fitted parameters in :data:`MODEL_PARAMETERS` order."""
+    return {name: float(getattr(model, name)) for name in MODEL_PARAMETERS[model.kind]}
+
