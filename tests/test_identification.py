@@ -257,8 +257,9 @@ def test_missing_values_are_dropped_with_a_warning(tmp_path) -> None:
     lines[30] = lines[30].rsplit(",", 1)[0] + ",NaN"
     path = _write(tmp_path, "\n".join(lines) + "\n")
     record = read_record(path, "op", "pv", time_column="time")
-    assert record.size == n  # the gap is interpolated back onto the uniform grid
-    assert any("dropped 2 rows with missing values (lines 21, 31)" in w for w in record.warnings)
+    assert record.size == n  # the rows stay: a missing output does not drop the measured input
+    assert np.isnan(record.output[[19, 29]]).all() and np.isfinite(record.input).all()
+    assert any("2 missing output values (lines 21, 31)" in w for w in record.warnings)
 
 
 def test_no_step_in_input(tmp_path) -> None:

@@ -14,6 +14,7 @@ from robustff.plant.models import MODEL_KINDS
 __all__ = ["register", "run_fit", "result_json"]
 
 _TIME_UNITS = ("s", "min", "h")
+_SEPARATORS = {",": ",", ";": ";", "tab": "\t", "\t": "\t"}
 
 
 def register(subparsers: Any) -> None:
@@ -33,6 +34,13 @@ def register(subparsers: Any) -> None:
     timing.add_argument("--time", metavar="COL", help="time column (numbers or ISO timestamps)")
     timing.add_argument("--sample-time", type=float, metavar="DT", help="fixed sample interval")
     parser.add_argument("--time-unit", choices=_TIME_UNITS, help="time unit of the data")
+    parser.add_argument("--separator", choices=tuple(_SEPARATORS), metavar="SEP",
+                        help="field separator: ',' ';' or 'tab' (default: detected)")
+    parser.add_argument("--decimal", choices=(".", ","), metavar="MARK",
+                        help="decimal mark: '.' or ',' (default: detected)")
+    parser.add_argument("--time-format", metavar="FMT",
+                        help="strftime format of the timestamps, e.g. '%%d.%%m.%%Y %%H:%%M:%%S' "
+                        "(default: ISO 8601 or day-first dd.mm.yyyy / dd/mm/yyyy)")
     parser.add_argument("--model", choices=MODEL_KINDS, default="fopdt")
     parser.add_argument("--method", choices=("least-squares", "two-point"), default="least-squares")
     parser.add_argument("--ci", choices=("bootstrap", "jacobian", "none"), default="bootstrap",
@@ -57,7 +65,9 @@ def _fit_files(args: argparse.Namespace) -> list[Any]:
     results = []
     for path in args.data:
         record = read_record(path, args.input, args.output, time_column=args.time,
-                             sample_time=args.sample_time, time_unit=args.time_unit)
+                             sample_time=args.sample_time, time_unit=args.time_unit,
+                             separator=_SEPARATORS.get(args.separator or "", None),
+                             decimal=args.decimal, time_format=args.time_format)
         try:
             results.append(fit_record(record, args.model, args.method, args.ci,
                                       args.resamples, args.seed, args.hold))

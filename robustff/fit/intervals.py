@@ -87,13 +87,15 @@ def _canonical(kind: str, p: np.ndarray) -> np.ndarray:
 def _bootstrap(problem: Problem, fitted: np.ndarray, residuals: np.ndarray, p: np.ndarray,
                low: np.ndarray, high: np.ndarray, resamples: int, seed: int) -> np.ndarray:
     """Refitted (gain, lags..., dead time) per resample: shape (resamples, 1 + len(p))."""
-    n = residuals.size
-    scaled = residuals * math.sqrt(n / max(1, n - p.size - 2))
+    known = np.isfinite(residuals)  # missing outputs stay missing in every resample
+    n = int(np.sum(known))
+    scaled = residuals[known] * math.sqrt(n / max(1, n - p.size - 2))
     coefficients, innovations = fit_autoregression(scaled)
     rng = np.random.default_rng(seed)
     out = np.empty((resamples, 1 + p.size))
     for i in range(resamples):
-        y_star = fitted + resample_residuals(coefficients, innovations, n, rng)
+        y_star = fitted + resample_residuals(coefficients, innovations, residuals.size, rng)
+        y_star[~known] = np.nan
         p_star, _ = solve(problem, y_star, [p], low, high)
         p_star = _canonical(problem.kind, p_star)
         out[i, 0] = problem.linear(p_star, y_star)[0]
@@ -114,9 +116,10 @@ def _jacobian_ci(problem: Problem, y: np.ndarray, gain: float, p: np.ndarray,
         hi[j] = min(p[j] + step, high[j])
         lo[j] = max(p[j] - step, low[j])
         columns.append(gain * (problem.response(hi) - problem.response(lo)) / (hi[j] - lo[j]))
-    jac = np.column_stack(columns + [np.ones_like(y)])
-    _, _, r = problem.linear(p, y)
-    dof = max(1, y.size - jac.shape[1])
+    known = np.isfinite(y)  # missing outputs add no rows
+    jac = np.column_stack(columns + [np.ones_like(y)])[known]
+    r = problem.linear(p, y)[2][known]
+    dof = max(1, r.size - jac.shape[1])
     cov = (r @ r / dof) * np.linalg.pinv(jac.T @ jac)
     half = student.ppf(0.975, dof) * np.sqrt(np.maximum(np.diag(cov), 0.0))
     values = np.concatenate([[gain], p])
@@ -137,8 +140,10 @@ def finish_fit(record: StepRecord, step: StepInfo, problem: Problem, p: np.ndarr
     """Build the :class:`FitResult` of a least-squares fit, with intervals."""
     p = _canonical(problem.kind, p)
     gain, base, residuals = problem.linear(p, y)
+    known = np.isfinite(y)
+    residuals = np.where(known, residuals, np.nan)  # a missing output has no residual
     model = to_model(problem.kind, gain, p)
-    fitted = y - residuals
+    fitted = np.where(known, y - residuals, gain * problem.response(p) + base)
     cis: list[tuple[float, float]] | None = None
     if ci_method == "bootstrap" and resamples > 0:
         cis = _percentile_ci(_bootstrap(problem, fitted, residuals, p, low, high, resamples, seed))
@@ -147,7 +152,7 @@ def finish_fit(record: StepRecord, step: StepInfo, problem: Problem, p: np.ndarr
     _warn_poor_fit(record, model, step, warnings)
     return FitResult(model, _estimates(model, cis, model.spec.parameter_names), "least-squares",
                      ci_method if cis is not None else "none", base, step.input_baseline,
-                     fitted, float(np.sqrt(np.mean(residuals**2))), record, tuple(warnings))
+                     fitted, float(np.sqrt(np.nanmean(residuals**2))), record, tuple(warnings))
 
 
 def _warn_poor_fit(record: StepRecord, model: TransferModel, step: StepInfo,
@@ -185,19 +190,22 @@ def two_point_result(record: StepRecord, step: StepInfo, kind: str, ci_method: s
         cis = _percentile_ci(samples)
     return FitResult(model, _estimates(model, cis, model_kind(kind).parameter_names), "two-point",
                      "bootstrap" if cis is not None else "none", step.output_baseline,
-                     step.input_baseline, fitted, float(np.sqrt(np.mean(residuals**2))),
+                     step.input_baseline, fitted, float(np.sqrt(np.nanmean(residuals**2))),
                      record, tuple(warnings))
 
 
 def _two_point_bootstrap(record: StepRecord, step: StepInfo, kind: str, fitted: np.ndarray,
                          residuals: np.ndarray, resamples: int, seed: int) -> np.ndarray:
     rng = np.random.default_rng(seed)
-    coefficients, innovations = fit_autoregression(residuals)
+    known = np.isfinite(residuals)  # missing outputs stay missing in every resample
+    coefficients, innovations = fit_autoregression(residuals[known])
     out = np.empty((resamples, len(MODEL_PARAMETERS[kind])))
     for i in range(resamples):
         y_star = fitted + resample_residuals(coefficients, innovations, residuals.size, rng)
+        y_star[~known] = np.nan
         rec = dataclasses.replace(record, output=y_star)
-        step_star = dataclasses.replace(step, output_baseline=float(np.mean(y_star[: step.index])))
+        baseline = float(np.nanmean(y_star[: step.index]))
+        step_star = dataclasses.replace(step, output_baseline=baseline)
         try:
             model = two_point_estimate(rec, step_star, kind)
         except DataError:

@@ -14,12 +14,20 @@ correlated) with a fixed seed, or from the Jacobian at the optimum.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from robustff.errors import DataError
 from robustff.fit.intervals import finish_fit, two_point_result
 from robustff.fit.projection import Problem, solve
-from robustff.fit.records import StepInfo, StepRecord, check_settled, locate_step
+from robustff.fit.records import (
+    StepInfo,
+    StepRecord,
+    check_output_coverage,
+    check_settled,
+    locate_step,
+)
 from robustff.fit.result import FitResult, ParameterEstimate
 from robustff.fit.two_point import two_point_estimate, two_point_times
 from robustff.plant.kinds import FOPDT, model_kind
@@ -114,7 +122,8 @@ def fit_record(
     if not model_kind(kind).integrating:
         check_settled(record, step)
     if method == "two-point":
-        return two_point_result(record, step, kind, ci_method, resamples, seed, warnings)
+        return _checked(two_point_result(record, step, kind, ci_method, resamples, seed,
+                                         warnings), step)
     u = _deviation_input(record, step)
     h = record.sample_time
     duration = float(record.times[-1] - record.times[step.index])
@@ -130,7 +139,22 @@ def fit_record(
     if problem.n_lags == 2:
         starts.extend(_sopdt_starts(problem, y, starts, low, high))
     p, _ = solve(problem, y, starts, low, high)
-    return finish_fit(record, step, problem, p, y, low, high, ci_method, resamples, seed, warnings)
+    return _checked(finish_fit(record, step, problem, p, y, low, high, ci_method, resamples, seed,
+                               warnings), step)
+
+
+def _checked(result: FitResult, step: StepInfo) -> FitResult:
+    """Refuse a fit with non-finite numbers or whose response is hidden by output gaps."""
+    values = [result.rmse, *(e.value for e in result.estimates.values())]
+    values += [v for e in result.estimates.values() if e.ci95 is not None for v in e.ci95]
+    if not (all(math.isfinite(v) for v in values) and np.all(np.isfinite(result.fitted))):
+        raise DataError(
+            f"{result.record.source}: the fit gives infinite or undefined numbers (values too "
+            "large or too small for floating point?); scale the signals to engineering units"
+        )
+    model = result.model
+    check_output_coverage(result.record, step, model.dead_time, model.total_lag)
+    return result
 
 
 def _sopdt_starts(problem: Problem, y: np.ndarray, starts: list[np.ndarray], low: np.ndarray,

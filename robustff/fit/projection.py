@@ -13,6 +13,7 @@ import math
 
 import numpy as np
 
+from robustff.errors import DataError
 from robustff.fit.response import unit_response
 from robustff.plant.kinds import model_kind
 from robustff.plant.models import TransferModel
@@ -35,12 +36,23 @@ class Problem:
     def linear(self, p: np.ndarray, y: np.ndarray) -> tuple[float, float, np.ndarray]:
         """Best gain and baseline for the lags/delay ``p``; returns (gain, baseline, residual)."""
         s = self.response(p)
-        s_mean, y_mean = s.mean(), y.mean()
-        sc = s - s_mean
-        denom = float(sc @ sc)
-        gain = float(sc @ (y - y_mean)) / denom if denom > 0 else 0.0
-        base = float(y_mean - gain * s_mean)
-        return gain, base, y - gain * s - base
+        known = np.isfinite(y)
+        if not known.all():  # missing outputs are left out: zero residual there
+            gain, base, r = _gain_and_baseline(s[known], y[known])
+            residual = np.zeros_like(y)
+            residual[known] = r
+            return gain, base, residual
+        return _gain_and_baseline(s, y)
+
+
+def _gain_and_baseline(s: np.ndarray, y: np.ndarray) -> tuple[float, float, np.ndarray]:
+    """Linear least squares of ``y ~ gain * s + baseline``; returns (gain, baseline, residual)."""
+    s_mean, y_mean = s.mean(), y.mean()
+    sc = s - s_mean
+    denom = float(sc @ sc)
+    gain = float(sc @ (y - y_mean)) / denom if denom > 0 else 0.0
+    base = float(y_mean - gain * s_mean)
+    return gain, base, y - gain * s - base
 
 
 def to_model(kind: str, gain: float, p: np.ndarray) -> TransferModel:
@@ -62,8 +74,11 @@ def solve(problem: Problem, y: np.ndarray, starts: list[np.ndarray], low: np.nda
     for start in starts:
         x0 = np.clip(start, low, high)
         x0 = np.minimum(np.maximum(x0, low + 1e-9 * scale), high - 1e-9 * scale)
-        sol = least_squares(lambda p: problem.linear(p, y)[2], x0, bounds=(low, high),
-                            x_scale=np.maximum(np.abs(x0), scale * 10), diff_step=1e-5)
+        try:
+            sol = least_squares(lambda p: problem.linear(p, y)[2], x0, bounds=(low, high),
+                                x_scale=np.maximum(np.abs(x0), scale * 10), diff_step=1e-5)
+        except ValueError as exc:  # residuals or Jacobian not finite (overflow)
+            raise DataError(f"the fit gives infinite or undefined numbers ({exc})") from None
         if sol.cost < best_cost:
             best_p, best_cost = sol.x, float(sol.cost)
     return best_p, best_cost

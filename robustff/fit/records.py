@@ -1,23 +1,23 @@
 """Plant step-test records: reading a historian CSV export, cleaning it, and checking it is usable.
 
 A record is the input (controller output or measured disturbance) and the output (controlled
-variable) of one bump test on a uniform time grid. Reading never guesses silently: missing cells
-drop their row with a warning, an irregular time grid is resampled with a warning, and anything
-that makes the record unusable raises :class:`robustff.errors.DataError` naming the file, the
-column and the bad value.
+variable) of one bump test on a uniform time grid. Reading never guesses silently: a missing time
+or input drops its row with a warning (the input is interpolated across and marked as not
+measured), a missing output stays NaN and is left out of the fit, an irregular time grid is
+resampled with a warning, and anything that makes the record unusable raises
+:class:`robustff.errors.DataError` naming the file, the column and the bad value.
 """
 
 from __future__ import annotations
 
-import csv
 import math
 from dataclasses import dataclass, field
-from datetime import datetime
 from pathlib import Path
 
 import numpy as np
 
 from robustff.errors import DataError
+from robustff.fit.table import MISSING_TOKENS, read_columns
 
 __all__ = [
     "MISSING_TOKENS",
@@ -29,16 +29,17 @@ __all__ = [
     "record_from_arrays",
     "locate_step",
     "check_settled",
+    "check_output_coverage",
+    "filled_output",
     "noise_level",
 ]
 
-#: Cell contents read as "no value" (the row is dropped with a warning).
-MISSING_TOKENS = frozenset({"", "nan", "na", "n/a", "null", "none", "#n/a"})
 #: Fewest samples a record may have.
 MIN_SAMPLES = 20
 #: Fewest samples after the input step.
 MIN_SAMPLES_AFTER_STEP = 10
 _IRREGULAR_TOLERANCE = 0.01  # relative spread of sample intervals accepted as uniform
+_MAX_MAGNITUDE = 1e100  # squares and sums over a record of any length stay finite below this
 
 
 @dataclass(frozen=True)
@@ -52,7 +53,7 @@ class StepRecord:
     input : ndarray, shape (N,)
         Input signal (e.g. controller output, %), absolute values.
     output : ndarray, shape (N,)
-        Output signal (controlled variable), absolute values.
+        Output signal (controlled variable), absolute values; NaN where it was not recorded.
     source : str
         Where the record came from (file name), used in messages.
     input_name, output_name : str
@@ -61,6 +62,8 @@ class StepRecord:
         "s", "min" or "h" when known (timestamps are converted to seconds), else None.
     warnings : tuple of str
         What was done to the data while reading (rows dropped, resampling).
+    input_measured : ndarray of bool, shape (N,), optional
+        False where the input was interpolated across dropped rows; None if all was measured.
     """
 
     times: np.ndarray
@@ -71,6 +74,12 @@ class StepRecord:
     output_name: str = "output"
     time_unit: str | None = None
     warnings: tuple[str, ...] = field(default=())
+    input_measured: np.ndarray | None = None
+
+    @property
+    def output_measured(self) -> np.ndarray:
+        """True where the output was recorded, shape (N,)."""
+        return np.isfinite(self.output)
 
     @property
     def sample_time(self) -> float:
@@ -112,6 +121,7 @@ def noise_level(signal: np.ndarray) -> float:
     Parameters
     ----------
     signal : ndarray, shape (N,)
+        NaN entries (gaps) are skipped.
 
     Returns
     -------
@@ -119,98 +129,11 @@ def noise_level(signal: np.ndarray) -> float:
         ``1.4826 * median|diff - median(diff)| / sqrt(2)``; insensitive to steps and slow trends.
     """
     diffs = np.diff(np.asarray(signal, dtype=float))
+    diffs = diffs[np.isfinite(diffs)]  # differences across a gap in the output are unknown
     if diffs.size == 0:
         return 0.0
     mad = np.median(np.abs(diffs - np.median(diffs)))
     return float(1.4826 * mad / math.sqrt(2.0))
-
-
-def _find_column(header: list[str], wanted: str, path: str) -> int:
-    names = [name.strip() for name in header]
-    if wanted in names:
-        return names.index(wanted)
-    lowered = [name.lower() for name in names]
-    if wanted.strip().lower() in lowered:
-        return lowered.index(wanted.strip().lower())
-    raise DataError(f"{path}: no column '{wanted}'; the columns are: {', '.join(names)}")
-
-
-def _read_rows(path: Path) -> tuple[list[str], list[tuple[int, list[str]]]]:
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise DataError(f"{path}: file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise DataError(f"{path}: cannot read the file ({exc})") from None
-    lines = [(number, line) for number, line in enumerate(text.splitlines(), start=1)]
-    lines = [(n, line) for n, line in lines if line.strip() and not line.lstrip().startswith("#")]
-    if not lines:
-        raise DataError(f"{path}: the file is empty")
-    try:
-        dialect: type[csv.Dialect] | csv.Dialect = csv.Sniffer().sniff(lines[0][1], ",;\t")
-    except csv.Error:
-        dialect = csv.excel
-    rows = list(csv.reader([line for _, line in lines], dialect))
-    numbered = [(lines[i][0], rows[i]) for i in range(1, len(rows))]
-    return rows[0], numbered
-
-
-def _parse_number(cell: str) -> float | None:
-    """A float, or None for a missing value; raises ValueError for anything else."""
-    text = cell.strip()
-    if text.lower() in MISSING_TOKENS:
-        return None
-    value = float(text)
-    return None if math.isnan(value) else value
-
-
-def _parse_time(cell: str) -> float | None:
-    """A number, or an ISO timestamp converted to seconds since the epoch."""
-    try:
-        return _parse_number(cell)
-    except ValueError:
-        return datetime.fromisoformat(cell.strip()).timestamp()
-
-
-def _numeric_columns(
-    path: Path, columns: dict[str, str | None]
-) -> tuple[dict[str, np.ndarray], list[int], bool]:
-    """Parse the named columns: arrays, dropped line numbers, whether times were dates."""
-    header, rows = _read_rows(path)
-    index = {role: _find_column(header, name, str(path)) for role, name in columns.items() if name}
-    values: dict[str, list[float]] = {role: [] for role in index}
-    dropped: list[int] = []
-    dated = False
-    for line_number, row in rows:
-        parsed: dict[str, float] = {}
-        for role, col in index.items():
-            cell = row[col] if col < len(row) else ""
-            try:
-                value = _parse_time(cell) if role == "time" else _parse_number(cell)
-            except ValueError:
-                raise DataError(
-                    f"{path}, line {line_number}: column '{header[col].strip()}' has the "
-                    f"non-numeric value '{cell.strip()}'; clean the export (blank cells are "
-                    "dropped with a warning)"
-                ) from None
-            if value is None:
-                break
-            dated = dated or (role == "time" and not _is_number(cell))
-            parsed[role] = value
-        else:
-            for role, value in parsed.items():
-                values[role].append(value)
-            continue
-        dropped.append(line_number)
-    return {role: np.asarray(v, dtype=float) for role, v in values.items()}, dropped, dated
-
-
-def _is_number(cell: str) -> bool:
-    try:
-        float(cell)
-    except ValueError:
-        return False
-    return True
 
 
 def read_record(
@@ -220,27 +143,38 @@ def read_record(
     time_column: str | None = None,
     sample_time: float | None = None,
     time_unit: str | None = None,
+    *,
+    separator: str | None = None,
+    decimal: str | None = None,
+    time_format: str | None = None,
 ) -> StepRecord:
     """Read one bump-test record from a CSV file with a header row.
 
     Parameters
     ----------
     path : str or Path
-        CSV file; comma, semicolon or tab separated; lines starting with ``#`` are ignored.
+        CSV file; comma, semicolon or tab separated, decimal point or comma, UTF-8 or
+        Windows-1252 (see :func:`robustff.fit.table.read_columns`); lines starting with ``#``
+        are ignored.
     input_column, output_column : str
         Column names (matched exactly, then ignoring case).
     time_column : str, optional
-        Column of sample times: numbers in the data's time unit, or ISO timestamps (then the
-        time unit is seconds). Exactly one of ``time_column`` and ``sample_time`` is needed.
+        Column of sample times: numbers in the data's time unit, or timestamps (ISO 8601 or
+        day-first; then the time unit is seconds). Exactly one of ``time_column`` and
+        ``sample_time`` is needed.
     sample_time : float, optional
-        Fixed sample interval, data time units; row ``i`` of the file is at ``i * sample_time``
-        (rows dropped for missing values leave a gap that is interpolated).
+        Fixed sample interval, data time units; row ``i`` of the file is at ``i * sample_time``.
     time_unit : str, optional
         Time unit of the data, if known.
+    separator, decimal, time_format : str, optional
+        Force the field separator, the decimal mark or the strftime format of the timestamps
+        (all detected when None).
 
     Returns
     -------
     StepRecord
+        Rows with a missing time or input are dropped (the input is interpolated across them,
+        and marked as not measured); a missing output stays NaN and is left out of the fit.
 
     Raises
     ------
@@ -252,32 +186,35 @@ def read_record(
         raise DataError(f"{path}: give either a time column or a fixed sample time (not both)")
     if sample_time is not None and not sample_time > 0:
         raise DataError(f"{path}: the sample time must be positive, got {sample_time}")
-    wanted = {"time": time_column, "input": input_column, "output": output_column}
-    data, dropped, dated = _numeric_columns(path, wanted)
-    warnings: list[str] = []
-    if dropped:
-        shown = ", ".join(str(n) for n in dropped[:8]) + (" ..." if len(dropped) > 8 else "")
-        warnings.append(f"{path}: dropped {len(dropped)} rows with missing values (lines {shown})")
+    table = read_columns(path, [input_column, output_column], time_column=time_column,
+                         separator=separator, decimal=decimal, time_format=time_format)
+    u, y = table.values[input_column], table.values[output_column]
     if time_column is None:
-        rows_kept = _kept_row_positions(path, dropped, data["input"].size)
-        times = rows_kept * float(sample_time)  # type: ignore[arg-type]
+        times = np.arange(u.size) * float(sample_time)  # type: ignore[arg-type]
     else:
-        times = data["time"]
-        if dated:
-            time_unit = "s"
-            times = times - times[0] if times.size else times
+        times = table.values[time_column]
+        time_unit = "s" if table.dated else time_unit
+    warnings = list(table.notes)
+    keep = ~(np.isnan(times) | np.isnan(u))
+    if not np.all(keep):
+        warnings.append(f"{path}: dropped {np.sum(~keep)} rows with missing values "
+                        f"(lines {_lines_shown(table.line_numbers[~keep])})")
+    gaps = np.isnan(y) & keep
+    if np.any(gaps):
+        warnings.append(f"{path}: {np.sum(gaps)} missing output values (lines "
+                        f"{_lines_shown(table.line_numbers[gaps])}) are left out of the fit")
+    times, u, y = times[keep], u[keep], y[keep]
+    if table.dated and times.size:
+        times = times - times[0]
     return record_from_arrays(
-        times, data["input"], data["output"], source=str(path), input_name=input_column,
-        output_name=output_column, time_unit=time_unit, warnings=tuple(warnings),
+        times, u, y, source=str(path), input_name=input_column, output_name=output_column,
+        time_unit=time_unit, warnings=tuple(warnings),
     )
 
 
-def _kept_row_positions(path: Path, dropped: list[int], kept: int) -> np.ndarray:
-    """Row positions (0-based, data rows only) of the rows that were kept."""
-    _, rows = _read_rows(path)
-    gone = set(dropped)
-    positions = [i for i, (line_number, _) in enumerate(rows) if line_number not in gone]
-    return np.asarray(positions[:kept], dtype=float)
+def _lines_shown(lines: np.ndarray) -> str:
+    shown = ", ".join(str(int(n)) for n in lines[:8])
+    return shown + (" ..." if lines.size > 8 else "")
 
 
 def record_from_arrays(
@@ -307,7 +244,8 @@ def record_from_arrays(
     Raises
     ------
     DataError
-        Too few samples, non-finite values, times not strictly increasing.
+        Too few samples, infinite or missing times or inputs, too few recorded outputs, times
+        not strictly increasing.
     """
     t = np.asarray(times, dtype=float)
     u = np.asarray(input_signal, dtype=float)
@@ -319,8 +257,17 @@ def record_from_arrays(
             f"{source}: the record is too short ({t.size} usable samples; at least {MIN_SAMPLES} "
             "are needed)"
         )
-    if not (np.all(np.isfinite(t)) and np.all(np.isfinite(u)) and np.all(np.isfinite(y))):
+    if not (np.all(np.isfinite(t)) and np.all(np.isfinite(u)) and not np.any(np.isinf(y))):
         raise DataError(f"{source}: the record holds infinite or missing values")
+    largest = max(float(np.max(np.abs(u))), float(np.nanmax(np.abs(y), initial=0.0)))
+    if largest > _MAX_MAGNITUDE:
+        raise DataError(
+            f"{source}: values as large as {largest:.3g} cannot be fitted (sums of squares "
+            f"overflow beyond {_MAX_MAGNITUDE:g}); scale the signals to engineering units"
+        )
+    if np.sum(np.isfinite(y)) < MIN_SAMPLES:
+        raise DataError(f"{source}: the output is recorded at only {np.sum(np.isfinite(y))} "
+                        f"samples; at least {MIN_SAMPLES} are needed")
     steps = np.diff(t)
     if np.any(steps <= 0):
         bad = int(np.argmax(steps <= 0)) + 1
@@ -330,10 +277,12 @@ def record_from_arrays(
         )
     warn = list(warnings)
     dt = float(np.median(steps))
+    measured = None
     if np.max(np.abs(steps - dt)) > _IRREGULAR_TOLERANCE * dt:
         n = int(math.floor((t[-1] - t[0]) / dt + 1e-9)) + 1
         grid = t[0] + dt * np.arange(n)
-        u, y = np.interp(grid, t, u), np.interp(grid, t, y)
+        u, y = np.interp(grid, t, u), _interp_with_gaps(grid, t, y)
+        measured = _near_a_sample(grid, t, 0.5 * dt)  # farther than half a sample: a guess
         warn.append(
             f"{source}: irregular sample times (intervals {steps.min():g} to {steps.max():g}); "
             f"resampled to a uniform {dt:g} by linear interpolation"
@@ -341,7 +290,31 @@ def record_from_arrays(
         t = grid
     else:
         t = t[0] + dt * np.arange(t.size)
-    return StepRecord(t, u, y, source, input_name, output_name, time_unit, tuple(warn))
+    return StepRecord(t, u, y, source, input_name, output_name, time_unit, tuple(warn), measured)
+
+
+def _near_a_sample(grid: np.ndarray, t: np.ndarray, distance: float) -> np.ndarray:
+    """True where a grid point lies within ``distance`` of an original sample time."""
+    after = np.clip(np.searchsorted(t, grid), 0, t.size - 1)
+    before = np.clip(after - 1, 0, t.size - 1)
+    return np.minimum(np.abs(t[after] - grid), np.abs(t[before] - grid)) <= distance
+
+
+def _interp_with_gaps(grid: np.ndarray, t: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Linear interpolation of ``y`` onto ``grid``, NaN where a neighbour is missing."""
+    out = np.interp(grid, t, np.nan_to_num(y))
+    known = np.isfinite(y).astype(float)
+    # a grid point between two recorded samples has full weight; anything less touches a gap
+    return np.where(np.interp(grid, t, known) > 1.0 - 1e-9, out, np.nan)
+
+
+def filled_output(record: StepRecord) -> np.ndarray:
+    """The output with its gaps filled by linear interpolation in time (for graphical methods
+    and starting values only, never for the least-squares residuals), shape (N,)."""
+    y, known = record.output, record.output_measured
+    if np.all(known):
+        return y
+    return np.interp(record.times, record.times[known], y[known])
 
 
 def locate_step(record: StepRecord) -> StepInfo:
@@ -368,7 +341,8 @@ def locate_step(record: StepRecord) -> StepInfo:
     if index == 0:
         raise DataError(f"{record.source}: the input changes at the first sample; the record must "
                         "start at steady state before the step")
-    u0, y0 = float(np.mean(u[:index])), float(np.mean(y[:index]))
+    _check_measured_at_step(record, index)
+    u0, y0 = float(np.mean(u[:index])), float(np.nanmean(y[:index]))
     if record.size - index < MIN_SAMPLES_AFTER_STEP:
         raise DataError(
             f"{record.source}: the record is too short after the step ({record.size - index} "
@@ -382,10 +356,59 @@ def locate_step(record: StepRecord) -> StepInfo:
     return StepInfo(index, u0, y0, change, single)
 
 
+def _check_measured_at_step(record: StepRecord, index: int) -> None:
+    """Refuse a step whose time is a guess (input interpolated there) or with no baseline."""
+    if record.input_measured is not None and not np.all(record.input_measured[index - 1:index + 1]):
+        raise DataError(
+            f"{record.source}: the input '{record.input_name}' is missing at the step (near time "
+            f"{record.times[index]:g}), so the step time is unknown; the record cannot be fitted"
+        )
+    if not np.any(record.output_measured[:index]):
+        raise DataError(f"{record.source}: the output '{record.output_name}' is missing before "
+                        "the step, so its steady state is unknown")
+
+
+def check_output_coverage(record: StepRecord, step: StepInfo, dead_time: float,
+                          lag: float) -> None:
+    """Refuse a fit whose output gaps hide the response to the step.
+
+    The response is decided within one dead time plus one time constant after the step; if more
+    than half of the output samples there are missing, the dead time could lie anywhere in the
+    gap (common practice, no source).
+
+    Parameters
+    ----------
+    record : StepRecord
+    step : StepInfo
+    dead_time, lag : float
+        Fitted dead time and total lag, data time units.
+
+    Raises
+    ------
+    DataError
+        Most of the output after the step is missing.
+    """
+    t_step = record.times[step.index]
+    window = (record.times >= t_step) & (record.times <= t_step + dead_time + max(lag, 0.0))
+    window[step.index : step.index + 2] = True  # at least the step sample and the next
+    missing = float(np.mean(~record.output_measured[window]))
+    if missing > 0.5:
+        raise DataError(
+            f"{record.source}: the output '{record.output_name}' is missing for {missing:.0%} of "
+            f"the first dead time + time constant after the step (time {t_step:g} to "
+            f"{t_step + dead_time + lag:.4g}); the gap hides the response, so the dead time "
+            "cannot be identified"
+        )
+
+
 def _check_response(record: StepRecord, output_baseline: float, index: int) -> None:
     y = record.output
     noise_y = noise_level(y)
-    response = float(np.max(np.abs(y[index:] - output_baseline)))
+    after = y[index:][np.isfinite(y[index:])]
+    if after.size == 0:
+        raise DataError(f"{record.source}: the output '{record.output_name}' is missing after "
+                        "the step")
+    response = float(np.max(np.abs(after - output_baseline)))
     if response <= 4.0 * noise_y + 1e-12 * max(1.0, abs(output_baseline)):
         raise DataError(
             f"{record.source}: the output column '{record.output_name}' does not respond to the "
@@ -407,6 +430,8 @@ def check_settled(record: StepRecord, step: StepInfo, fraction: float = 0.25) ->
     """
     start = step.index + int((1.0 - fraction) * (record.size - step.index))
     t, y, u = record.times[start:], record.output[start:], record.input[start:]
+    known = np.isfinite(y)
+    t, y = t[known], y[known]
     if t.size < 5 or np.ptp(u) > 3 * noise_level(record.input) + 1e-12 * abs(step.input_change):
         return
     design = np.column_stack([t - t.mean(), np.ones_like(t)])
@@ -417,7 +442,7 @@ def check_settled(record: StepRecord, step: StepInfo, fraction: float = 0.25) ->
     drift = float(coef[0]) * span
     change = float(np.mean(y) - step.output_baseline)
     # compare with the largest excursion, so a pulse test that returns to baseline passes
-    excursion = float(np.max(np.abs(record.output[step.index:] - step.output_baseline)))
+    excursion = float(np.nanmax(np.abs(record.output[step.index:] - step.output_baseline)))
     if abs(drift) > 0.2 * excursion + 3.0 * stderr * span:
         raise DataError(
             f"{record.source}: the output never settles: over the last {span:g} time units it "

@@ -12,6 +12,7 @@ from robustff.errors import DataError
 from robustff.fit.records import (
     StepInfo,
     StepRecord,
+    filled_output,
 )
 from robustff.plant.kinds import model_kind
 from robustff.plant.models import TransferModel
@@ -78,7 +79,7 @@ def two_point_estimate(record: StepRecord, step: StepInfo, kind: str = "fopdt") 
     DataError
         If the output never reaches the 28.3 % / 63.2 % levels.
     """
-    t, y = record.times, record.output - step.output_baseline
+    t, y = record.times, filled_output(record) - step.output_baseline  # graphical: gaps filled
     t_step = float(t[step.index])  # the new input level is held from this sample
     tail = max(3, (record.size - step.index) // 10)
     spec = model_kind(kind)
@@ -104,7 +105,7 @@ def _slope_line_estimate(record: StepRecord, step: StepInfo, t_step: float,
     """IPDT estimate: a line through the second half of the response; dead time where it
     leaves the baseline."""
     half = step.index + (record.size - step.index) // 2
-    t, y = record.times[half:], record.output[half:] - step.output_baseline
+    t, y = record.times[half:], filled_output(record)[half:] - step.output_baseline
     slope, intercept = np.polyfit(t, y, 1)
     gain = float(slope) / step.input_change
     theta = (-intercept / slope - t_step) if slope != 0 else 0.0

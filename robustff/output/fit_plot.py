@@ -87,7 +87,7 @@ def terminal_fit_plot(
     Parameters
     ----------
     times, data, fitted : ndarray, shape (N,)
-        Sample times (time units), recorded output and fitted output.
+        Sample times (time units), recorded output (NaN where missing) and fitted output.
     width, height : int
         Size in terminal cells.
     colorless : bool
@@ -104,7 +104,10 @@ def terminal_fit_plot(
     figure.clear()
     figure.plot_size(int(width), int(height))
     t = [float(v) for v in np.asarray(times, dtype=float)]
-    figure.draw(figure.signal(t, [float(v) for v in data], marker="dot").label("data"))
+    known = np.isfinite(np.asarray(data, dtype=float))  # missing outputs are not drawn
+    figure.draw(figure.signal([v for v, k in zip(t, known, strict=True) if k],
+                              [float(v) for v in np.asarray(data)[known]],
+                              marker="dot").label("data"))
     figure.draw(figure.signal(t, [float(v) for v in fitted]).lines().label("fit"))
     text = figure.build().string(colorless=colorless)
     figure.clear()
