@@ -61,7 +61,9 @@ def test_run_refuses_bad_arguments_in_one_line(
 
 
 @pytest.mark.parametrize("extra", [["--samples", "5"], ["--seed", str(2**64)], ["--sample", "50"]])
-def test_tune_refuses_the_same_numbers(extra: list[str], capsys: pytest.CaptureFixture[str]) -> None:
+def test_tune_refuses_the_same_numbers(
+    extra: list[str], capsys: pytest.CaptureFixture[str]
+) -> None:
     assert run_cli(["tune", str(DEMO), *extra]) == EXIT_USAGE
     assert "Traceback" not in capsys.readouterr().err
 
