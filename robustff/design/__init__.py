@@ -1,1 +1,4 @@
-"""Design from the nominal models: feedback tuning, feedforward design and rules, stability margins."""
+"""Design from the nominal models.
+
+Feedback tuning, feedforward design and rules, stability margins.
+"""

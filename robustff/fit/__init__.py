@@ -1,1 +1,4 @@
-"""Models from plant records: reading, simulated response, least squares, intervals, spread, writing a case."""
+"""Models from plant records.
+
+Reading, simulated response, least squares, intervals, spread, writing a case.
+"""
