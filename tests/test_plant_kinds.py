@@ -13,10 +13,10 @@ from dataclasses import dataclass
 
 import numpy as np
 import pytest
+from path_stepping import step_path
 
 from robustff.case import FeedbackSpec
 from robustff.design.tuning import tune_feedback
-from robustff.engine.discretise import block_coefficients, split_delay
 from robustff.plant.kinds import kind_names, model_kind, registered_kinds
 from robustff.plant.models import PlantBatch, SensorModel, TransferModel
 
@@ -128,18 +128,8 @@ def test_pade_step_response_matches_python_control(name):
 
 def _block_output(model: TransferModel, h: float, u: np.ndarray) -> np.ndarray:
     """The discretised path stepped by hand: output at the sample instants, from rest."""
-    m, f = split_delay(model.dead_time, h)
-    c = block_coefficients(model.spec.code, model.gain, model.time_constant,
-                           model.time_constant_2, h, f)
-    x1 = x2 = 0.0
-    out = np.empty(u.size)
-    for k in range(u.size):
-        out[k] = x2 if c[7] == 2.0 else x1
-        u_new = u[k - m] if k - m >= 0 else 0.0
-        u_old = u[k - m - 1] if k - m - 1 >= 0 else 0.0
-        x1, x2 = (c[0] * x1 + c[3] * u_new + c[5] * u_old,
-                  c[1] * x1 + c[2] * x2 + c[4] * u_new + c[6] * u_old)
-    return out
+    return step_path(model.kind, model.gain, model.time_constant, model.time_constant_2,
+                     model.dead_time, h, u)
 
 
 @pytest.mark.parametrize("name", KINDS)
