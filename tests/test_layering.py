@@ -373,3 +373,15 @@ def test_run_command_imports_no_slow_or_ui_library(tmp_path: Path) -> None:
     assert (tmp_path / "out" / "summary.json").exists()
     assert "robustff.cli.run_command" in loaded and "robustff.study" in loaded
     assert _offenders(loaded, RUN_FORBIDDEN) == []
+
+
+def test_test_folders_mirror_the_packages() -> None:
+    """Every test folder is named after a robustff package; every test module sits in one."""
+    tests_dir = ROOT / "tests"
+    packages = {path.parent.name for path in PACKAGE_DIR.glob("*/__init__.py")}
+    folders = {path.name for path in tests_dir.iterdir()
+               if path.is_dir() and not path.name.startswith((".", "_")) and path.name != "helpers"}
+    assert folders <= packages, f"test folders with no package of that name: {folders - packages}"
+    loose = sorted(path.name for path in tests_dir.glob("test_*.py")
+                   if path.name != "test_layering.py")
+    assert not loose, f"test modules outside a package folder: {loose}"

@@ -16,7 +16,7 @@ from robustff.atomic import write_text_atomic
 from robustff.case import load_case, save_case
 from robustff.cli import EXIT_OK, EXIT_USAGE, main
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "cases" / "syrup-dilution.toml"
 
 

@@ -44,7 +44,7 @@ from robustff.tui.app import StudioApp  # noqa: E402
 from robustff.tui.fit_screens import FitFormScreen, FitResultScreen  # noqa: E402
 from robustff.tui.messages import field_id  # noqa: E402
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 DATA = ROOT / "cases" / "data"
 BUMP = DATA / "stock-heater-bump-1.csv"
 COLUMNS = {"input": "steam_valve_pct", "output": "stock_temp_degC", "time": "time_min"}

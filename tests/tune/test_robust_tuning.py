@@ -184,7 +184,7 @@ def test_demo_cases_robust_p90_no_worse_than_nominal_on_fresh_samples(name):
     from robustff.case import load_case
     from robustff.study import run_study
 
-    case = load_case(Path(__file__).resolve().parents[1] / "cases" / f"{name}.toml")
+    case = load_case(Path(__file__).resolve().parents[2] / "cases" / f"{name}.toml")
     result = robust_search(case, samples=1000, objective="p90")
     fresh = result.figures
     assert fresh["robust"]["fresh"].iae_p90 <= fresh["nominal"]["fresh"].iae_p90

@@ -21,7 +21,7 @@ from robustff.study import run_study
 from robustff.study import summary_types as types
 from robustff.study.summary import HARM_METRICS, PAIRED_METRICS, summarize_study
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 SCHEMA = json.loads((ROOT / "docs" / "summary.schema.json").read_text())
 CASES = sorted((ROOT / "cases").glob("*.toml"))
 VALIDATOR = jsonschema.Draft202012Validator(SCHEMA)

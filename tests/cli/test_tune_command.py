@@ -11,7 +11,7 @@ from robustff import CAUTION
 from robustff.case import load_case
 from robustff.cli import main
 
-CASES = Path(__file__).resolve().parents[1] / "cases"
+CASES = Path(__file__).resolve().parents[2] / "cases"
 
 SMALL_CASE = """\
 # A small fictional loop for the tune command tests

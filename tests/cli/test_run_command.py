@@ -20,7 +20,7 @@ from robustff.cli import EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE, main, run_comman
 from robustff.cli.run_command import ProgressPrinter as OriginalPrinter
 from robustff.output.result_files import RESULT_FILES
 
-DEMO = Path(__file__).resolve().parents[1] / "cases" / "syrup-dilution.toml"
+DEMO = Path(__file__).resolve().parents[2] / "cases" / "syrup-dilution.toml"
 VOLATILE_KEYS = ("elapsed_seconds", "versions")
 
 

@@ -6,14 +6,14 @@ import filecmp
 from pathlib import Path
 
 import pytest
-from test_case_loader import MALFORMED  # tests/ is on sys.path (rootdir-relative import)
+from case_texts import MALFORMED
 
 from robustff import CAUTION
 from robustff.cli import main
 from robustff.demo import DEMO_CASES, demo_case_path
 from robustff.errors import CaseError
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 
 
 @pytest.mark.parametrize("name", DEMO_CASES)

@@ -10,7 +10,7 @@ import pytest
 
 from robustff.cli import main
 
-DEMO = Path(__file__).resolve().parents[1] / "cases" / "wash-water-heater.toml"
+DEMO = Path(__file__).resolve().parents[2] / "cases" / "wash-water-heater.toml"
 
 
 def _setpoint_case(tmp_path: Path) -> Path:

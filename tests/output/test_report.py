@@ -24,7 +24,7 @@ from robustff.output.result_files import (
 from robustff.study import run_study
 from robustff.study.summary import summarize_study
 
-DEMO = Path(__file__).resolve().parents[1] / "cases" / "syrup-dilution.toml"
+DEMO = Path(__file__).resolve().parents[2] / "cases" / "syrup-dilution.toml"
 PERCENTILES = (5.0, 50.0, 95.0)
 
 

@@ -14,7 +14,7 @@ from robustff.cli import main
 from robustff.fit.response import simulate_response
 from robustff.plant.models import TransferModel
 
-DEMO = Path(__file__).resolve().parents[1] / "cases" / "data"
+DEMO = Path(__file__).resolve().parents[2] / "cases" / "data"
 
 
 def _bump_csv(path: Path, gain: float = 1.2, tau: float = 4.0, theta: float = 1.3,
