@@ -13,12 +13,17 @@ from typing import TYPE_CHECKING
 from robustff import CAUTION
 from robustff.cli.arguments import positive_int, sample_count, seed_value
 from robustff.cli.exit_codes import EXIT_INTERRUPTED, EXIT_OK
+from robustff.cli.interrupts import InterruptGuard
 from robustff.errors import RobustffError
 
 if TYPE_CHECKING:
     from robustff.study.summary_types import MarginsSummary, Summary
 
 __all__ = ["register", "parse_percentiles", "ProgressPrinter"]
+
+#: What an interrupt before the first finished chunk leaves behind (an earlier --out is untouched).
+NOTHING_KEPT = ("robustff: interrupted before any sample finished; nothing was kept "
+                "(no result files written)")
 
 _TABLE_METRICS = ("iae", "peak_deviation", "overshoot", "settling_time", "valve_travel")
 
@@ -175,10 +180,9 @@ def _margin_values(result) -> dict | None:
 
 def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case
-    from robustff.output.result_files import check_output_folder, risk_sentence, write_results
+    from robustff.output.result_files import check_output_folder
     from robustff.stats import DEFAULT_PERCENTILES
     from robustff.study import run_study
-    from robustff.study.summary import summarize_study
 
     case = load_case(args.case)
     percentiles = args.percentiles or DEFAULT_PERCENTILES
@@ -187,18 +191,39 @@ def execute(args: argparse.Namespace) -> int:
     if args.cluster:
         _check_cluster_address(args.cluster)
     cancel = threading.Event()
-    result = run_study(
-        case,
-        samples=args.samples,
-        seed=args.seed,
-        jobs=args.jobs,
-        cluster=args.cluster,
-        progress=ProgressPrinter(),
-        cancel=cancel,
-    )
-    if result.samples == 0:
-        print("robustff: interrupted before any sample finished; nothing written", file=sys.stderr)
-        return EXIT_INTERRUPTED
+    with InterruptGuard() as guard:
+        printer = ProgressPrinter()
+
+        def progress(done: int, total: int) -> None:
+            printer(done, total)
+            if done >= total:
+                guard.keep()  # every sample simulated: an interrupt now would only lose them
+
+        try:
+            result = run_study(
+                case,
+                samples=args.samples,
+                seed=args.seed,
+                jobs=args.jobs,
+                cluster=args.cluster,
+                progress=progress,
+                cancel=cancel,
+            )
+        except KeyboardInterrupt:  # before the first chunk (design, nominal run, compilation)
+            result = None
+        guard.keep()
+        if result is None or result.samples == 0:
+            print(NOTHING_KEPT, file=sys.stderr)
+            return EXIT_INTERRUPTED
+        return _report(args, case, result, out, percentiles)
+
+
+def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> int:
+    """Summarise a finished (or interrupted) study, write its files and print the outcome."""
+    from robustff.case.text import printable_title
+    from robustff.output.result_files import risk_sentence, write_results
+    from robustff.study.summary import summarize_study
+
     if result.partial:
         print(
             f"robustff: interrupted: {result.samples} of {result.requested} samples finished; "
@@ -214,7 +239,7 @@ def execute(args: argparse.Namespace) -> int:
             write_report(result, summary, folder, percentiles, _margin_values(result))
 
     write_results(result, summary, out, percentiles, extra=extra)
-    print(f"{case.title}")
+    print(printable_title(case.title))
     print(
         f"{result.samples} samples"
         + (" (PARTIAL)" if result.partial else "")

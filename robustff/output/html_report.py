@@ -11,6 +11,7 @@ from typing import cast
 import numpy as np
 
 from robustff import CAUTION
+from robustff.case.text import printable_title
 from robustff.design.margins_result import GAIN_MARGIN_LIMIT, MS_LIMIT, PHASE_MARGIN_LIMIT
 from robustff.output.plots import (
     band_figure,
@@ -112,7 +113,7 @@ def write_report(
     header = ["metric", "arm", "unit", *[f"P{p:g}" for p in percentiles]]
     design_lines = result.design.summary_lines(result.case)
     parts = [
-        f"<h1>{html.escape(summary['title'])}</h1>",
+        f"<h1>{html.escape(printable_title(summary['title']))}</h1>",
         f'<p class="caution">{html.escape(CAUTION)}</p>',
         f"<p>{summary['samples']} of {summary['requested']} samples"
         + (" (PARTIAL: interrupted)" if summary["partial"] else "")
@@ -133,7 +134,7 @@ def write_report(
     ]
     page = (
         '<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'
-        f"<title>{html.escape(summary['title'])}</title><style>{_STYLE}</style></head><body>"
+        f"<title>{html.escape(printable_title(summary['title']))}</title><style>{_STYLE}</style></head><body>"
         + "\n".join(parts)
         + "</body></html>\n"
     )

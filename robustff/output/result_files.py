@@ -21,6 +21,7 @@ import numpy as np
 
 from robustff import CAUTION
 from robustff.atomic import write_text_atomic
+from robustff.case.text import printable_title
 from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
 from robustff.jsonvalues import json_safe
@@ -31,6 +32,7 @@ __all__ = [
     "RESULT_FILES",
     "percentile_rows",
     "percentiles_markdown",
+    "percentiles_csv",
     "risk_sentence",
     "write_results",
     "check_output_folder",
@@ -78,11 +80,23 @@ def risk_sentence(summary: Summary, metric: str = "iae") -> str:
     )
 
 
+def percentiles_csv(summary: Summary, percentiles: Sequence[float]) -> str:
+    """``percentiles.csv``: one row per metric and arm, the percentiles, and the run's state.
+
+    Every row ends with ``samples`` (samples simulated) and ``partial`` (``true`` when the run
+    was interrupted), so a table read on its own still tells an interrupted run from a full one.
+    """
+    header = ["metric", "arm", "unit", *[f"p{p:g}" for p in percentiles], "samples", "partial"]
+    state = [str(summary["samples"]), "true" if summary["partial"] else "false"]
+    rows = [[*row, *state] for row in percentile_rows(summary, percentiles)]
+    return _csv_text([header, *rows])
+
+
 def percentiles_markdown(summary: Summary, percentiles: Sequence[float]) -> str:
     """The Markdown report: percentile table, risk lines, unstable counts and the caution."""
     header = ["metric", "arm", "unit", *[f"P{p:g}" for p in percentiles]]
     lines = [
-        f"# {summary['title']}",
+        f"# {printable_title(summary['title'])}",
         "",
         f"Samples: {summary['samples']} of {summary['requested']}"
         + (" (PARTIAL: the run was interrupted)" if summary["partial"] else "")
@@ -197,9 +211,7 @@ def write_results(
         # the swap cannot leave a result folder with empty files.
         write_text_atomic(staging / "summary.json",
                           json.dumps(json_safe(summary), indent=2, allow_nan=False) + "\n")
-        header = ["metric", "arm", "unit", *[f"p{p:g}" for p in percentiles]]
-        write_text_atomic(staging / "percentiles.csv",
-                          _csv_text([header, *percentile_rows(summary, percentiles)]))
+        write_text_atomic(staging / "percentiles.csv", percentiles_csv(summary, percentiles))
         write_text_atomic(staging / "percentiles.md", percentiles_markdown(summary, percentiles))
         write_text_atomic(staging / "samples.csv", _samples_csv(result))
         if extra is not None:

@@ -108,7 +108,8 @@ def test_percentiles_csv_and_markdown(tmp_path: Path, study) -> None:
     out = write_results(result, summary, tmp_path / "out", PERCENTILES)
     rows = _data_rows(out / "percentiles.csv")
     assert len(rows) == 2 * len(METRIC_NAMES)
-    assert list(rows[0]) == ["metric", "arm", "unit", "p5", "p50", "p95"]
+    assert list(rows[0]) == ["metric", "arm", "unit", "p5", "p50", "p95", "samples", "partial"]
+    assert {(r["samples"], r["partial"]) for r in rows} == {("200", "false")}
     first = next(r for r in rows if r["metric"] == "iae" and r["arm"] == "fbff")
     expected = np.percentile(result.metrics["iae"][:, 1], 95)
     assert float(first["p95"]) == pytest.approx(expected, rel=1e-3)  # 4 significant digits
