@@ -10,7 +10,7 @@ import numpy as np
 
 from robustff.errors import DataError
 from robustff.stats._validation import check_confidence, z_value
-from robustff.stats.harm import HarmEstimate
+from robustff.stats.harm import HarmEstimate, wilson_interval
 from robustff.stats.percentiles import (
     PercentileEstimate,
     order_statistic_interval,
@@ -20,6 +20,8 @@ from robustff.stats.percentiles import (
 __all__ = [
     "ConvergenceCheck",
     "samples_for_probability",
+    "wilson_reach",
+    "wilson_samples_needed",
     "zero_failure_bound",
     "convergence_for_probability",
     "convergence_for_percentile",
@@ -81,37 +83,88 @@ def zero_failure_bound(n: int, confidence: float = 0.95) -> float:
     return 1.0 - (1.0 - confidence) ** (1.0 / n)
 
 
-def convergence_for_probability(
-    harm: HarmEstimate, *, half_width: float = 0.02, confidence: float = 0.95
-) -> ConvergenceCheck:
-    """Was N enough to state the probability of harm to ``+- half_width``?
+def wilson_reach(p: float, n: float, confidence: float = 0.95) -> float:
+    """How far the Wilson interval of a proportion ``p`` from ``n`` samples reaches from ``p``.
 
-    Uses ``p`` from the estimate; with zero (or all) harmful samples ``p`` is replaced by the
-    one-sided bound ``1 - (1 - confidence)^(1/N)`` (zero failures in N runs; Wilks 1941
-    [from memory]), so that an all-clear run of few samples is not called precise.
+    ``max(high - p, p - low)`` of the Wilson score interval (Wilson 1927, the interval
+    :func:`robustff.stats.harm.wilson_interval` reports) with ``k = p n`` events; for rare
+    harm (small ``p``) this is the distance from the estimate up to the interval's upper bound.
+    ``n`` may be fractional (the interval is a smooth function of it).
+    """
+    if n <= 0:
+        return 1.0
+    low, high = wilson_interval(p * n, n, confidence)  # type: ignore[arg-type]
+    return max(high - p, p - low)
+
+
+def wilson_samples_needed(p: float, half_width: float, confidence: float = 0.95) -> int:
+    """Smallest sample count whose Wilson interval around ``p`` reaches no further than
+    ``half_width`` from it (see :func:`wilson_reach`).
+
+    With ``p = 0`` the interval is ``[0, z^2 / (n + z^2)]``, so ``n = z^2 (1/E - 1)``: 189 for
+    E = 0.02 at 95 %. Unlike the normal approximation ``z^2 p (1-p) / E^2`` (about 10 samples
+    for p = 0.001, whose Wilson interval is then 0 to 28 %), this never calls a handful of
+    samples enough for a rare event.
+    """
+    if not (0.0 < half_width < 1.0):
+        raise DataError(f"target half-width must lie between 0 and 1, got {half_width!r}")
+    if not (0.0 <= p <= 1.0):
+        raise DataError(f"probability must lie between 0 and 1, got {p!r}")
+    check_confidence(confidence)
+    low, high = 1, 1
+    while wilson_reach(p, high, confidence) > half_width:  # doubling, then bisection
+        low, high = high + 1, 2 * high
+    while low < high:
+        mid = (low + high) // 2
+        low, high = (low, mid) if wilson_reach(p, mid, confidence) <= half_width else (mid + 1,
+                                                                                       high)
+    return high
+
+
+_METHOD_NAMES = {"wilson": "Wilson", "clopper-pearson": "Clopper-Pearson"}
+
+#: Below this estimated probability, harm is "rare" and the advice is phrased as an upper bound.
+RARE_HARM = 0.05
+
+
+def convergence_for_probability(
+    harm: HarmEstimate, *, half_width: float = 0.02, confidence: float | None = None
+) -> ConvergenceCheck:
+    """Was N enough to state the probability of harm within ``half_width`` of the estimate?
+
+    Judged on the interval the estimate reports (``harm.low``, ``harm.high``; Wilson unless
+    asked otherwise): enough when neither end lies further than ``half_width`` from the estimate.
+    The samples needed are :func:`wilson_samples_needed` at the estimated probability (zero harm
+    included: the Wilson interval is not degenerate there). Rare harm (estimate below
+    :data:`RARE_HARM`) is phrased as an upper bound: "at most x % at 95 % confidence".
     """
     n = harm.n
-    if n == 0:
-        p_eff = 0.5
-    else:
-        p_bound = zero_failure_bound(n, confidence)
-        p_eff = harm.probability
-        if harm.count == 0:
-            p_eff = p_bound
-        elif harm.count == n:
-            p_eff = 1.0 - p_bound
-    needed = samples_for_probability(p_eff, half_width, confidence)
-    enough = n >= needed
+    confidence = harm.confidence if confidence is None else confidence
     level = f"{confidence * 100:g} %"
-    prob = "n/a" if n == 0 else f"{harm.probability:.3f}"
-    verdict = "enough" if enough else "not enough"
-    msg = (
-        f"Probability that feedforward is worse: {prob} from {n} samples; {n} samples are "
-        f"{verdict} for +-{half_width:g} at {level} (about {needed} needed)."
-    )
     if n == 0:
         msg = ("Probability that feedforward is worse: no usable samples (unstable in both arms); "
                "more samples will not help: fix the feedback design or the uncertainty ranges.")
+        return ConvergenceCheck(False, wilson_samples_needed(0.5, half_width, confidence), msg, 0)
+    p = harm.probability
+    needed = wilson_samples_needed(p, half_width, confidence)
+    reach = max(harm.high - p, p - harm.low)
+    enough = reach <= half_width
+    verdict = "enough" if enough else "not enough"
+    points = f"{half_width * 100:g} percentage points"
+    method = _METHOD_NAMES.get(harm.method, harm.method)
+    if p < RARE_HARM:
+        msg = (
+            f"Feedforward is worse in {100 * p:.2g} % of plants ({harm.count} of {n} samples); "
+            f"at {level} confidence at most {100 * harm.high:.2g} % (upper end of the "
+            f"{method} interval). {n} samples are {verdict} to bound it within {points} "
+            f"of the estimate (about {needed} needed)."
+        )
+    else:
+        msg = (
+            f"Probability that feedforward is worse: {p:.3f} from {n} samples, {level} "
+            f"{method} interval {harm.low:.3f} to {harm.high:.3f}; {n} samples are "
+            f"{verdict} for +-{points} (about {needed} needed)."
+        )
     return ConvergenceCheck(enough, needed, msg, n)
 
 

@@ -10,11 +10,9 @@ from scipy import stats as sps
 
 from robustff.errors import DataError
 from robustff.stats import (
-    HarmEstimate,
     clopper_pearson_interval,
     convergence_check,
     convergence_for_percentile,
-    convergence_for_probability,
     envelope_from_histogram,
     metric_ratio,
     order_statistic_coverage,
@@ -221,20 +219,6 @@ def test_zero_failure_bound_wilks_59():
     # (two-sided 90 % upper limit = one-sided 95 %), scipy.stats.binomtest as reference.
     cp = sps.binomtest(0, 300).proportion_ci(confidence_level=0.90, method="exact")
     assert zero_failure_bound(300) == pytest.approx(cp.high, rel=1e-9)
-
-
-def test_convergence_for_probability():
-    harm = HarmEstimate(0.2, 0.17, 0.23, 200, 1000)
-    check = convergence_for_probability(harm, half_width=0.02)
-    assert check.samples_needed == samples_for_probability(0.2, 0.02) == 1537
-    assert not check.enough and "1537" in check.message
-    assert convergence_check(HarmEstimate(0.2, 0.19, 0.21, 4000, 20000)).enough
-    # zero failures: p floored by the zero-failure bound, not by p = 0
-    none_100 = convergence_check(HarmEstimate(0.0, 0.0, 0.03, 0, 100))
-    pb = zero_failure_bound(100)
-    assert none_100.samples_needed == samples_for_probability(pb, 0.02)
-    assert not none_100.enough
-    assert convergence_check(HarmEstimate(0.0, 0.0, 0.004, 0, 1000)).enough
 
 
 def test_convergence_for_percentile_predicts_the_sample_size():
