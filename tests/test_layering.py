@@ -42,6 +42,7 @@ LAYERS: Mapping[str, int] = {
     "robustff.errors": 0,
     "robustff.atomic": 0,
     "robustff.jsonvalues": 0,
+    "robustff.percentile": 0,
     "robustff.demo": 0,
     "robustff.plant": 1,
     "robustff.case": 2,

@@ -2,7 +2,8 @@
 
 Every problem in a file is collected, then one :class:`~robustff.errors.CaseError` is raised with
 one line per problem, ``"FILE: key.path: what is wrong (got VALUE)"``. The schema is described in
-``docs/case-format.md``; the uncertainty section is read by :mod:`robustff.case.uncertainty_section`.
+``docs/case-format.md``; the uncertainty section is read by
+:mod:`robustff.case.uncertainty_section`.
 """
 
 from __future__ import annotations

@@ -23,6 +23,7 @@ import math
 
 from robustff.case import Case
 from robustff.design.tuning import FeedforwardSettings, half_rule
+from robustff.plant.kinds import model_kind
 from robustff.plant.models import TransferModel
 
 __all__ = [
@@ -85,11 +86,12 @@ def open_loop_ise(lag: float, disturbance_time_constant: float, shortfall: float
 
 
 def _as_fopdt(model: TransferModel) -> TransferModel | None:
-    if model.kind == "fopdt":
-        return model
-    if model.kind == "sopdt":
-        return half_rule(model)
-    return None
+    # The rule is derived for one lag and a dead time: two lags are first reduced by the half
+    # rule, an integrating path has no such form.
+    kind = model_kind(model.kind)
+    if kind.integrating:
+        return None
+    return half_rule(model) if len(kind.lag_parameters) == 2 else model
 
 
 def feedforward_rule(case: Case) -> FeedforwardSettings | None:

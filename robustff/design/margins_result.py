@@ -1,8 +1,8 @@
 """Stability margins per sample as a result object, with its JSON-friendly summary.
 
-:func:`robustff.design.margins.loop_margins` computes the arrays; this module holds them and turns them
-into the ``margins`` section of ``summary.json``: percentiles over the stable samples, the
-fractions beyond the design limits, the unstable samples and their process parameters.
+:func:`robustff.design.margins.loop_margins` computes the arrays; this module holds them and
+turns them into the ``margins`` section of ``summary.json``: percentiles over the stable
+samples, the fractions beyond the design limits, the unstable samples and their process parameters.
 """
 
 from __future__ import annotations
@@ -12,6 +12,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from robustff.jsonvalues import json_float
+from robustff.percentile import percentile_with_inf
 from robustff.plant.models import PlantBatch
 
 __all__ = ["MarginResult", "MS_LIMIT", "GAIN_MARGIN_LIMIT", "PHASE_MARGIN_LIMIT", "LIMITS_NOTE"]
@@ -27,9 +29,7 @@ LIMITS_NOTE = (f"Ms > {MS_LIMIT:g}, GM < {GAIN_MARGIN_LIMIT:g}, PM < {PHASE_MARG
 
 def _percentile(values: np.ndarray, p: float) -> float | None:
     """Linear-interpolation percentile; None where it is (or leans on) an infinite value."""
-    if np.isinf(np.percentile(values, p, method="higher")):
-        return None
-    return float(np.percentile(values, p, method="linear"))
+    return json_float(percentile_with_inf(values, p))
 
 
 def _distribution(values: np.ndarray, percentiles: Sequence[float]) -> dict[str, object]:

@@ -37,10 +37,12 @@ exp(-delay s)``. See :func:`design_feedforward`.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 from robustff.case import Case, FeedbackSpec, FeedforwardSpec
 from robustff.errors import DesignError
+from robustff.plant.kinds import FOPDT, IPDT, SOPDT
 from robustff.plant.models import TransferModel
 
 __all__ = [
@@ -205,41 +207,58 @@ def half_rule(model: TransferModel) -> TransferModel:
     """
     half = 0.5 * model.time_constant_2
     return TransferModel(
-        "fopdt", model.gain, model.time_constant + half, 0.0, model.dead_time + half
+        FOPDT.name, model.gain, model.time_constant + half, 0.0, model.dead_time + half
     )
 
 
-def _simc(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float, str]:
-    k, theta = model.gain, model.dead_time
-    if model.kind == "ipdt":
-        return 1.0 / (k * (tau_c + theta)), 4.0 * (tau_c + theta), 0.0, ""
-    if model.kind == "sopdt" and form == "pid":
-        tau1 = model.time_constant
-        kc, ti = tau1 / (k * (tau_c + theta)), min(tau1, 4.0 * (tau_c + theta))
-        kc_i, ti_i, td_i = series_to_ideal(kc, ti, model.time_constant_2)
-        return kc_i, ti_i, td_i, ""
-    if model.kind == "sopdt":
-        model = half_rule(model)
-        theta = model.dead_time
-    tau = model.time_constant
-    return tau / (k * (tau_c + theta)), min(tau, 4.0 * (tau_c + theta)), 0.0, ""
+# One rule per registered model kind and method (tests/design/test_tuning.py fails for a kind
+# with no rule). Each returns the ideal-form (Kc, Ti, Td).
+Rule = Callable[[TransferModel, str, float], tuple[float, float, float]]
 
 
-def _imc(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float]:
+def _simc_fopdt(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float]:
+    k, theta, tau = model.gain, model.dead_time, model.time_constant
+    return tau / (k * (tau_c + theta)), min(tau, 4.0 * (tau_c + theta)), 0.0
+
+
+def _simc_sopdt(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float]:
+    if form != "pid":
+        return _simc_fopdt(half_rule(model), form, tau_c)
+    k, theta, tau1 = model.gain, model.dead_time, model.time_constant
+    kc, ti = tau1 / (k * (tau_c + theta)), min(tau1, 4.0 * (tau_c + theta))
+    return series_to_ideal(kc, ti, model.time_constant_2)
+
+
+def _simc_ipdt(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float]:
     k, theta = model.gain, model.dead_time
-    if model.kind == "ipdt":
-        return (2.0 * tau_c + theta) / (k * (tau_c + theta) ** 2), 2.0 * tau_c + theta, 0.0
-    if model.kind == "sopdt" and form == "pid":
-        tau1 = model.time_constant
-        return series_to_ideal(tau1 / (k * (tau_c + theta)), tau1, model.time_constant_2)
-    if model.kind == "sopdt":
-        model = half_rule(model)
-        theta = model.dead_time
-    tau = model.time_constant
+    return 1.0 / (k * (tau_c + theta)), 4.0 * (tau_c + theta), 0.0
+
+
+def _imc_fopdt(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float]:
+    k, theta, tau = model.gain, model.dead_time, model.time_constant
     if form == "pid":
         kc = (tau + theta / 2.0) / (k * (tau_c + theta / 2.0))
         return kc, tau + theta / 2.0, tau * theta / (2.0 * tau + theta)
     return tau / (k * (tau_c + theta)), tau, 0.0
+
+
+def _imc_sopdt(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float]:
+    if form != "pid":
+        return _imc_fopdt(half_rule(model), form, tau_c)
+    k, theta, tau1 = model.gain, model.dead_time, model.time_constant
+    return series_to_ideal(tau1 / (k * (tau_c + theta)), tau1, model.time_constant_2)
+
+
+def _imc_ipdt(model: TransferModel, form: str, tau_c: float) -> tuple[float, float, float]:
+    k, theta = model.gain, model.dead_time
+    return (2.0 * tau_c + theta) / (k * (tau_c + theta) ** 2), 2.0 * tau_c + theta, 0.0
+
+
+#: Tuning rules by method, then by model kind name (:data:`robustff.plant.kinds`).
+TUNING_RULES: dict[str, dict[str, Rule]] = {
+    "simc": {FOPDT.name: _simc_fopdt, SOPDT.name: _simc_sopdt, IPDT.name: _simc_ipdt},
+    "imc": {FOPDT.name: _imc_fopdt, SOPDT.name: _imc_sopdt, IPDT.name: _imc_ipdt},
+}
 
 
 def tune_feedback(
@@ -282,10 +301,7 @@ def tune_feedback(
     else:
         if not process.integrating and process.time_constant <= 0.0:
             raise DesignError("feedback: tuning rules need a process time constant > 0")
-        if spec.tuning == "simc":
-            kc, ti, td, _ = _simc(process, spec.form, tau_c)
-        else:
-            kc, ti, td = _imc(process, spec.form, tau_c)
+        kc, ti, td = TUNING_RULES[spec.tuning][process.kind](process, spec.form, tau_c)
         rule = f"{spec.tuning.upper()}"
         if spec.form == "pid" and td == 0.0:
             notes.append(

@@ -3,8 +3,8 @@ the result (parameters with 95 % intervals, RMSE, notes, a text plot of data aga
 
 Nothing here computes a fit figure: the numbers come from a
 :class:`~robustff.fit.least_squares.FitResult`, the plot from
-:func:`robustff.output.fit_plot.terminal_fit_plot` (always colourless: dots are data, the line is the
-fit, so NO_COLOR terminals lose nothing).
+:func:`robustff.output.fit_plot.terminal_fit_plot` (always colourless: dots are data, the line
+is the fit, so NO_COLOR terminals lose nothing).
 """
 
 from __future__ import annotations

@@ -24,6 +24,7 @@ import math
 import numpy as np
 
 from robustff.errors import DesignError
+from robustff.percentile import percentile_with_inf
 
 __all__ = ["OBJECTIVES", "objective_value", "percentile_with_inf", "search_score",
            "unknown_objective"]
@@ -31,18 +32,6 @@ __all__ = ["OBJECTIVES", "objective_value", "percentile_with_inf", "search_score
 OBJECTIVES: tuple[str, ...] = ("p90", "cvar", "harm")
 _HARM_WIDTH = 0.02
 _HARM_TIE_WEIGHT = 0.01
-
-
-def percentile_with_inf(values: np.ndarray, q: float) -> float:
-    """Linear-interpolation percentile that returns inf when an infinite value takes part."""
-    x = np.sort(values)
-    if x.size == 0:
-        return math.nan
-    position = q / 100.0 * (x.size - 1)
-    lo, hi = int(math.floor(position)), int(math.ceil(position))
-    if not math.isfinite(x[hi]):
-        return math.inf
-    return float(x[lo] + (x[hi] - x[lo]) * (position - lo))
 
 
 def objective_value(objective: str, iae_fb: np.ndarray, iae_fbff: np.ndarray, *,

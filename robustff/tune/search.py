@@ -5,8 +5,8 @@ Every candidate is simulated on the SAME sampled plants with the SAME noise seed
 numbers), so differences between candidates are not sampling noise. The sample-average
 objective is minimised by Nelder-Mead with bounds (``scipy.optimize.minimize``, scipy >= 1.7)
 on parameters scaled to the unit box, started from the better of the nominal design and the
-rule of :mod:`robustff.design.feedforward_rule`. The winner and the nominal design are then simulated
-on FRESH samples (another seed): the optimum's objective on its own samples is biased low
+rule of :mod:`robustff.design.feedforward_rule`. The winner and the nominal design are then
+simulated on FRESH samples (another seed): the optimum's objective on its own samples is biased low
 (it was selected on them), the fresh figure is not. The objectives and the score the search
 minimises are described in :mod:`robustff.tune.objectives`.
 """

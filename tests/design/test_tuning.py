@@ -226,3 +226,12 @@ def test_imc_sopdt_pid_rule():
         0.01,
     )
     assert (no_delay.kc, no_delay.ti, no_delay.td) == pytest.approx((4.666667, 14.0, 2.857143))
+
+
+def test_every_registered_kind_has_a_rule_for_every_method():
+    """Adding a model kind without its tuning rules fails here, not in a user's run."""
+    from robustff.design.tuning import TUNING_RULES
+    from robustff.plant.kinds import kind_names
+
+    for method, rules in TUNING_RULES.items():
+        assert set(rules) == set(kind_names()), method
