@@ -8,12 +8,18 @@ controller and feedforward designed from the nominal models. A bad case raises
 from __future__ import annotations
 
 import argparse
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from robustff import CAUTION
 from robustff.case import Case, load_case
+from robustff.case.text import printable_title
+from robustff.errors import CaseError
 
-__all__ = ["register", "run_check", "check_lines", "parameter_unit"]
+if TYPE_CHECKING:
+    from robustff.design.case_review import CaseReview
+
+__all__ = ["register", "run_check", "check_lines", "parameter_unit", "refuse_errors",
+           "warning_lines"]
 
 
 def register(subparsers: Any) -> None:
@@ -30,21 +36,50 @@ def register(subparsers: Any) -> None:
 
 
 def run_check(args: argparse.Namespace) -> int:
-    """Validate ``args.case`` and print its summary; returns the exit status."""
+    """Validate ``args.case`` and print its summary; returns the exit status.
+
+    A case that cannot run raises :class:`~robustff.errors.CaseError` (exit status 2); one that
+    runs but looks wrong prints ``warning:`` lines and exits 0.
+    """
     case = load_case(args.case)
-    for line in check_lines(case):
+    review = refuse_errors(case)
+    for line in check_lines(case, review):
         print(line)
     return 0
 
 
-def check_lines(case: Case) -> list[str]:
+def refuse_errors(case: Case) -> CaseReview:
+    """The case review; raises CaseError (one line per problem, naming the key) if it cannot run."""
+    from robustff.design.case_review import review_case
+
+    review = review_case(case)
+    if review.errors:
+        where = f"{case.source_path}: " if case.source_path is not None else ""
+        raise CaseError([f"{where}{finding.text()}" for finding in review.errors])
+    return review
+
+
+def warning_lines(review: CaseReview) -> list[str]:
+    """``warning: key: message`` lines of a case review."""
+    return [f"warning: {finding.text()}" for finding in review.warnings]
+
+
+def check_lines(case: Case, review: CaseReview | None = None) -> list[str]:
     """The summary printed by ``robustff check``, one string per line."""
-    lines = [f"Case: {case.title}", f"Time unit: {case.time_unit}"]
+    if review is None:
+        review = refuse_errors(case)
+    lines = [f"Case: {printable_title(case.title)}", f"Time unit: {case.time_unit}"]
     if case.source_path is not None:
         lines.insert(1, f"File: {case.source_path}")
     lines += _signal_lines(case) + _model_lines(case) + _event_lines(case)
-    lines += _uncertainty_lines(case) + _study_lines(case) + _design_lines(case)
-    lines += ["", "OK: the case is valid.", CAUTION]
+    lines += _uncertainty_lines(case) + _study_lines(case) + _design_lines(case, review)
+    warnings = warning_lines(review)
+    verdict = (f"OK: the case is valid and runs ({len(warnings)} warning"
+               f"{'' if len(warnings) == 1 else 's'} above)." if warnings
+               else "OK: the case is valid.")
+    if warnings:
+        lines += ["", *warnings]
+    lines += ["", verdict, CAUTION]
     return lines
 
 
@@ -124,9 +159,10 @@ def _study_lines(case: Case) -> list[str]:
     return ["", f"Study: {study.samples} samples, {study.sampling} sampling, seed {study.seed}"]
 
 
-def _design_lines(case: Case) -> list[str]:
-    from robustff.design.tuning import design_loop
+def _design_lines(case: Case, review: CaseReview) -> list[str]:
+    from robustff.design.case_review import margin_line
 
-    design = design_loop(case)
-    summary = ["  " + line for line in design.summary_lines(case)]
+    summary = ["  " + line for line in review.design.summary_lines(case)]
+    if review.nominal_margins is not None:
+        summary.append("  " + margin_line(review.nominal_margins, case.time_unit))
     return ["", "Design from the nominal models:", *summary]

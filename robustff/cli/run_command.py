@@ -180,11 +180,14 @@ def _margin_values(result) -> dict | None:
 
 def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case
+    from robustff.cli.check_command import refuse_errors, warning_lines
     from robustff.output.result_files import check_output_folder
     from robustff.stats import DEFAULT_PERCENTILES
     from robustff.study import run_study
 
     case = load_case(args.case)
+    for line in warning_lines(refuse_errors(case)):  # the same review as ``robustff check``
+        print(line, file=sys.stderr)
     percentiles = args.percentiles or DEFAULT_PERCENTILES
     out = Path(args.out) if args.out else Path("results") / case.name
     check_output_folder(out)

@@ -14,12 +14,8 @@ import numpy as np
 
 from robustff import CAUTION, __version__
 from robustff.case.sampling import plant_batch
-from robustff.design.margins_result import (
-    GAIN_MARGIN_LIMIT,
-    LIMITS_NOTE,
-    MS_LIMIT,
-    PHASE_MARGIN_LIMIT,
-)
+from robustff.design.case_review import margin_warnings
+from robustff.design.margins_result import LIMITS_NOTE, MarginResult
 from robustff.engine.metrics import METRIC_NAMES, METRIC_UNITS
 from robustff.stats import (
     DEFAULT_PERCENTILES,
@@ -125,19 +121,14 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummar
 
 
 def nominal_margin_warnings(nominal: NominalMargins) -> list[str]:
-    """Warnings when the NOMINAL loop already misses common design limits (common practice)."""
-    warnings = []
-    if not nominal["stable"]:
-        return ["the nominal feedback loop is unstable"]
-    if nominal["ms"] > MS_LIMIT:
-        warnings.append(f"nominal Ms = {nominal['ms']:.2f} > {MS_LIMIT:g}: "
-                        "the feedback tuning is not robust")
-    if nominal["gain_margin"] < GAIN_MARGIN_LIMIT:
-        warnings.append(f"nominal gain margin {nominal['gain_margin']:.2f} < {GAIN_MARGIN_LIMIT:g}")
-    if nominal["phase_margin"] < PHASE_MARGIN_LIMIT:
-        warnings.append(f"nominal phase margin {nominal['phase_margin']:.1f} deg "
-                        f"< {PHASE_MARGIN_LIMIT:g} deg")
-    return warnings
+    """Warnings when the NOMINAL loop already misses common design limits (common practice);
+    the same sentences as ``robustff check`` (``design.case_review.margin_warnings``)."""
+    def one(key: str) -> np.ndarray:
+        return np.array([float(nominal[key])])  # type: ignore[literal-required]
+
+    margins = MarginResult(one("gain_margin"), one("phase_margin"), one("delay_margin"),
+                           one("ms"), np.array([bool(nominal["stable"])]))
+    return margin_warnings(margins)
 
 
 def _paired(
