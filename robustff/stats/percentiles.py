@@ -9,6 +9,7 @@ p-quantile is ``P(r <= B <= s - 1)`` with ``B ~ Binomial(n, p)`` for any continu
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 
@@ -117,6 +118,9 @@ def order_statistic_interval(n: int, p: float, confidence: float = 0.95) -> tupl
 
     Among the pairs with the fewest ranks between them, the one with the most equal tail
     probabilities ``P(B < r)`` and ``P(B >= s)`` is chosen (near-symmetric around ``n p``).
+    The answer depends only on ``(n, p, confidence)`` and costs a binomial distribution function
+    over ``n + 1`` points, so it is remembered for the last few hundred arguments (a study asks
+    the same question for every metric and arm).
 
     Parameters
     ----------
@@ -134,9 +138,15 @@ def order_statistic_interval(n: int, p: float, confidence: float = 0.95) -> tupl
     coverage : float
         Achieved coverage (for ``(0, 0)``: the coverage of ``[X_(1), X_(n)]``, 0 if n < 2).
     """
+    check_confidence(confidence)
+    return _interval_ranks(int(n), float(p), float(confidence))
+
+
+@functools.lru_cache(maxsize=512)
+def _interval_ranks(n: int, p: float, confidence: float) -> tuple[int, int, float]:
+    """:func:`order_statistic_interval` once its arguments are checked (remembered)."""
     from scipy.special import bdtr
 
-    check_confidence(confidence)
     if n < 2:
         return 0, 0, 0.0
     k = np.arange(n + 1)
