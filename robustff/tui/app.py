@@ -26,6 +26,7 @@ from robustff.errors import CaseError, RobustffError
 from robustff.tui import editing
 from robustff.tui.file_actions import FileActions
 from robustff.tui.fit_actions import FitActions
+from robustff.tui.key_order import KeyOrder
 from robustff.tui.messages import DistributionEdited, FieldEdited, KindChanged, RowAdded, RowRemoved
 from robustff.tui.models_pane import ModelsPane
 from robustff.tui.pictures import PicturesPane
@@ -46,7 +47,7 @@ QUICK_SAMPLES = 500
 MARGINS_PENDING = "Margins: computed with the full run..."
 
 
-class StudioApp(FileActions, RobustActions, FitActions, App[None]):
+class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
     """Edit a case and watch the feedforward risk move.
 
     Parameters
@@ -80,6 +81,7 @@ class StudioApp(FileActions, RobustActions, FitActions, App[None]):
                  recovery_folder: Path | None = None, live: bool = True) -> None:
         super().__init__()
         self.live = live
+        self.init_key_order()
         self.init_files(case_path, case, recovery_folder)
         self.results_version = 0
         self.last_view: StudyView | None = None
