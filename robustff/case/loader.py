@@ -8,16 +8,19 @@ one line per problem, ``"FILE: key.path: what is wrong (got VALUE)"``. The schem
 
 from __future__ import annotations
 
+import re
 import tomllib
 from pathlib import Path
 from typing import Any
 
 from robustff.case.fields import REQUIRED, Problems, Table, as_table, join
 from robustff.case.schema import (
+    DESIGN_NAME_CHARACTERS,
     EVENT_KINDS,
     FEEDFORWARD_STRUCTURES,
     TIME_UNITS,
     Case,
+    DesignSpec,
     Event,
     FeedbackSpec,
     FeedforwardSpec,
@@ -43,7 +46,7 @@ MIN_SAMPLES, MAX_SAMPLES = 10, 10_000_000
 MAX_SEED = 2**63 - 1
 TOP_LEVEL_KEYS: tuple[str, ...] = (
     "title", "time_unit", "process", "disturbance", "feedback", "feedforward", "sensor",
-    "event", "signals", "simulation", "uncertainty", "study",
+    "event", "signals", "simulation", "uncertainty", "study", "design",
 )
 _REQUIRED_TABLES = ("process", "disturbance", "simulation")
 
@@ -134,17 +137,18 @@ def _build_case(problems: Problems, raw: dict[str, Any]) -> Case | None:
     simulation = _read_simulation(problems, raw)
     events = _read_events(problems, raw, simulation)
     study = _read_study(problems, raw.get("study", {}))
+    designs = _read_designs(problems, raw)
     models = {"process": process, "disturbance": disturbance, "sensor": sensor}
     uncertainty, correlations = read_uncertainty(problems, raw.get("uncertainty", {}), models)
     parts = (title, time_unit, process, disturbance, feedback, feedforward, sensor, signals,
-             simulation, events, study, uncertainty, correlations)
+             simulation, events, study, uncertainty, correlations, designs)
     if problems.lines or any(part is None for part in parts):
         return None
     return Case(
         title=title, time_unit=time_unit, process=process, disturbance=disturbance,  # type: ignore[arg-type]
         feedback=feedback, feedforward=feedforward, simulation=simulation,  # type: ignore[arg-type]
         events=events, sensor=sensor, signals=signals, uncertainty=uncertainty,  # type: ignore[arg-type]
-        correlations=correlations, study=study,  # type: ignore[arg-type]
+        correlations=correlations, study=study, designs=designs,  # type: ignore[arg-type]
     )
 
 
@@ -225,8 +229,10 @@ def _check_output_range(problems: Problems, table: Table, spec: FeedbackSpec) ->
                      f"({low:g} .. {high:g})", bias)
 
 
-def _read_feedforward(problems: Problems, value: object) -> FeedforwardSpec | None:
-    table = _section(problems, "feedforward", value)
+def _read_feedforward(
+    problems: Problems, value: object, path: str = "feedforward"
+) -> FeedforwardSpec | None:
+    table = _section(problems, path, value)
     if table is None:
         return None
     before = len(problems)
@@ -248,6 +254,50 @@ def _read_feedforward(problems: Problems, value: object) -> FeedforwardSpec | No
         table.forbid("delay", "used only with structure 'lead-lag-delay' "
                               f"(structure is {structure!r})")
     return spec if len(problems) == before else None
+
+
+_DESIGN_NAME = re.compile(r"[A-Za-z0-9._-]{1,40}")
+#: Keys tied to a structure: a design that changes the structure does not inherit them.
+_STRUCTURE_KEYS = {"lead": ("lead-lag", "lead-lag-delay"), "lag": ("lead-lag", "lead-lag-delay"),
+                   "delay": ("lead-lag-delay",)}
+
+
+def _read_designs(problems: Problems, raw: dict[str, Any]) -> tuple[DesignSpec, ...] | None:
+    """``[[design]]`` tables: a name plus ``[feedforward]`` keys overriding the case's."""
+    value = raw.get("design", [])
+    if isinstance(value, dict) or not isinstance(value, list):
+        problems.add("design", "must be written [[design]] (with double brackets), one per "
+                     "design", value)
+        return None
+    base = raw.get("feedforward", {})
+    base = dict(base) if isinstance(base, dict) else {}
+    before, designs, seen = len(problems), [], {"case"}
+    for index, item in enumerate(value):
+        path = f"design[{index + 1}]"
+        if not isinstance(item, dict):
+            problems.add(path, "must be a table with a name and [feedforward] keys", item)
+            continue
+        name = item.get("name")
+        if not isinstance(name, str) or not _DESIGN_NAME.fullmatch(name):
+            problems.add(f"{path}.name", f"required: 1 to 40 {DESIGN_NAME_CHARACTERS}", name)
+            continue
+        if name in seen:
+            problems.add(f"{path}.name", "must be unique (and not 'case', the name of the "
+                         "case's own [feedforward])", name)
+            continue
+        seen.add(name)
+        overrides = {key: sub for key, sub in item.items() if key != "name"}
+        merged = dict(base)
+        if "structure" in overrides:
+            structure = overrides["structure"]
+            for key, structures in _STRUCTURE_KEYS.items():
+                if structure not in structures:
+                    merged.pop(key, None)
+        merged.update(overrides)
+        spec = _read_feedforward(problems, merged, f"design.{name}")
+        if spec is not None:
+            designs.append(DesignSpec(name, spec))
+    return tuple(designs) if len(problems) == before else None
 
 
 def _read_sensor(problems: Problems, value: object) -> SensorModel | None:

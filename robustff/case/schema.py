@@ -19,6 +19,8 @@ __all__ = [
     "DISTRIBUTION_KINDS",
     "FeedbackSpec",
     "FeedforwardSpec",
+    "DesignSpec",
+    "DESIGN_NAME_CHARACTERS",
     "Event",
     "Signal",
     "Signals",
@@ -90,6 +92,26 @@ class FeedforwardSpec:
     lead: float | None = None
     lag: float | None = None
     delay: float | None = None
+
+
+#: Characters a design name may use (it becomes part of column names in ``samples.csv``).
+DESIGN_NAME_CHARACTERS = "letters, digits, '.', '_' and '-'"
+
+
+@dataclass(frozen=True)
+class DesignSpec:
+    """One alternative feedforward design, simulated on the same plants as the case's own.
+
+    Parameters
+    ----------
+    name : str
+        Unique name (not ``"case"``, which names the case's own ``[feedforward]``).
+    feedforward : FeedforwardSpec
+        The case's ``[feedforward]`` with the design's keys overriding it.
+    """
+
+    name: str
+    feedforward: FeedforwardSpec
 
 
 @dataclass(frozen=True)
@@ -224,6 +246,7 @@ class Case:
     uncertainty: tuple[UncertainParameter, ...] = ()
     correlations: tuple[Correlation, ...] = ()
     study: StudySpec = StudySpec()
+    designs: tuple[DesignSpec, ...] = ()
     source_path: Path | None = field(default=None, compare=False)
 
     @property

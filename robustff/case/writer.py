@@ -133,7 +133,8 @@ def _plain(case: Case) -> dict[str, Any]:
         "event": [_event(event) for event in case.events],
         "uncertainty": _uncertainty(case),
         "study": _dataclass(case.study),
-    }
+    } | ({"design": [{"name": design.name} | _dataclass(design.feedforward)
+                     for design in case.designs]} if case.designs else {})
 
 
 def _items(instance: Any) -> list[tuple[str, Any]]:

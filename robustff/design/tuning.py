@@ -49,6 +49,8 @@ __all__ = [
     "FeedbackSettings",
     "FeedforwardSettings",
     "LoopDesign",
+    "NamedFeedforward",
+    "TUNING_RULES",
     "tune_feedback",
     "design_feedforward",
     "design_loop",
@@ -133,12 +135,41 @@ class FeedforwardSettings:
 
 
 @dataclass(frozen=True)
+class NamedFeedforward:
+    """One alternative feedforward design of a case (a ``[[design]]`` table), as designed.
+
+    Parameters
+    ----------
+    name : str
+        The design's name.
+    settings : FeedforwardSettings
+        The designed compensator (gain in output units per disturbance unit, times in the
+        case's time unit).
+    notes : tuple of str
+        The design rule's notes for this design.
+    """
+
+    name: str
+    settings: FeedforwardSettings
+    notes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class LoopDesign:
-    """Feedback and feedforward designs plus notes for the engineer (realizability etc.)."""
+    """Feedback and feedforward designs plus notes for the engineer (realizability etc.).
+
+    ``feedforward`` is the case's own ``[feedforward]``; ``alternatives`` are the case's other
+    designs, simulated on the same plants.
+    """
 
     feedback: FeedbackSettings
     feedforward: FeedforwardSettings
     notes: tuple[str, ...] = field(default=())
+    alternatives: tuple[NamedFeedforward, ...] = ()
+
+    def with_feedforward(self, feedforward: FeedforwardSettings) -> LoopDesign:
+        """The same feedback loop with another feedforward compensator (no alternatives)."""
+        return LoopDesign(self.feedback, feedforward, self.notes)
 
     def to_dict(self) -> dict[str, object]:
         return {
@@ -410,4 +441,13 @@ def design_loop(case: Case) -> LoopDesign:
     )
     if case.sensor.time_constant > 0.0 and feedforward.active:
         ff_notes.append("the transmitter lag is not compensated by the design (it is simulated)")
-    return LoopDesign(feedback, feedforward, tuple(notes + ff_notes))
+    alternatives = []
+    for design in case.designs:
+        try:
+            settings, design_notes = design_feedforward(
+                case.process, case.disturbance, design.feedforward, case.simulation.step
+            )
+        except DesignError as exc:
+            raise DesignError(f"design.{design.name}: {exc}") from None
+        alternatives.append(NamedFeedforward(design.name, settings, tuple(design_notes)))
+    return LoopDesign(feedback, feedforward, tuple(notes + ff_notes), tuple(alternatives))

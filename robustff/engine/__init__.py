@@ -96,12 +96,19 @@ class SimulationResult:
         Histogram counts of the CV at each envelope time point (unstable samples excluded).
     trajectories : ndarray, shape (S, 4, T), or None
         CV fb, CV fbff, output fb, output fbff (deviations) for the kept samples.
+    loop_unstable : ndarray of bool, shape (N,)
+        The linear feedback loop itself is unstable (whatever the feedforward).
+    accumulators : ndarray, shape (N, 2, N_ACCUMULATORS)
+        The kernel's raw per-arm accumulators (NaN where unstable), from which ``metrics``
+        were converted.
     """
 
     metrics: dict[str, np.ndarray]
     unstable: np.ndarray
     envelope_counts: np.ndarray | None
     trajectories: np.ndarray | None
+    loop_unstable: np.ndarray
+    accumulators: np.ndarray
 
 
 def plant_matrix(batch: PlantBatch) -> np.ndarray:
@@ -140,6 +147,7 @@ def simulate(
     seeds: np.ndarray | None = None,
     envelope: EnvelopeGrid | None = None,
     keep: np.ndarray | None = None,
+    reference: SimulationResult | None = None,
 ) -> SimulationResult:
     """Simulate every plant of ``batch`` in both arms.
 
@@ -157,6 +165,12 @@ def simulate(
         Record CV histograms for percentile envelopes (memory 2 x P x B, independent of N).
     keep : ndarray of int, optional
         Indices of samples whose full trajectories are returned.
+    reference : SimulationResult, optional
+        An earlier result for the same plants, feedback design, scenario and seeds: only the
+        feedforward arm is then simulated (another feedforward design on the same plants and
+        noise, common random numbers) and the feedback-only arm and the loop's stability are
+        taken from ``reference``. The result equals a full run of ``design``; the
+        envelope and trajectories are not recorded.
 
     Returns
     -------
@@ -176,8 +190,13 @@ def simulate(
     else:
         edges, index = envelope.edges, envelope.index
         counts = np.zeros((2, envelope.times.size, edges.size - 1), dtype=np.int64)
+    feedback_arm = reference is None
+    if not feedback_arm:
+        slots[:] = -1
+        trajectories, index = np.zeros((0, 4, n_steps)), np.full(n_steps, -1, dtype=np.int64)
     accumulators = np.empty((n, 2, N_ACCUMULATORS))
     unstable = np.zeros((n, 2), dtype=np.bool_)
+    loop_unstable = np.zeros(n, dtype=np.bool_)
     simulate_kernel(
         np.array([model_kind(batch.process_kind).code, model_kind(batch.disturbance_kind).code]),
         plant_matrix(batch),
@@ -197,13 +216,25 @@ def simulate(
         unstable,
         counts,
         trajectories,
+        loop_unstable,
+        feedback_arm,
     )
+    if reference is not None:
+        # The kernel skipped the feedback arm and the stability probe: take both from the
+        # reference, so the result is what a full run of this design gives.
+        loop_unstable = reference.loop_unstable.copy()
+        unstable[:, 0] = reference.unstable[:, 0]
+        unstable[:, 1] |= loop_unstable
+        accumulators[:, 0] = reference.accumulators[:, 0]
+        accumulators[unstable[:, 1], 1] = np.nan
     metrics = metrics_from_accumulators(accumulators, ACCUMULATOR_NAMES, scenario.setpoint_step)
     return SimulationResult(
         metrics,
         unstable,
-        counts if envelope is not None else None,
-        trajectories if keep.size else None,
+        counts if envelope is not None and feedback_arm else None,
+        trajectories if keep.size and feedback_arm else None,
+        loop_unstable,
+        accumulators,
     )
 
 

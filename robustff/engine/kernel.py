@@ -282,11 +282,14 @@ def _simulate_sample(
     p: ControllerParams, mp: MetricParams, ffp: FeedforwardParams, m_ff: int, limit: float,
     grid: BinGrid,
     envelope_index: np.ndarray, slot: int, ring: np.ndarray, env_buf: np.ndarray,
-    trajectories: np.ndarray,
+    trajectories: np.ndarray, feedback_arm: bool,
 ) -> tuple:
     """Simulate sample ``i``; returns ``(acc fb, acc fbff, alive fb, alive fbff, unstable)``.
 
     ``noise`` rows: start step, filter pole, innovation scale, state (updated in place).
+    Without ``feedback_arm`` only the feedforward arm runs (another design on the same plant
+    and noise): the feedback-only arm and the stability probe are skipped, arm 0 keeps its
+    initial values and ``unstable`` is False.
     """
     n_steps, h = disturbance_profile.shape[0], mp.h
     m_p, f_p = split_delay(plant[i, 3], h)
@@ -330,7 +333,7 @@ def _simulate_sample(
         y0, y1, yq = _output(x0, cp) + yd, _output(x1, cp) + yd, _output(xq, cp)
         alive0 = alive0 and math.isfinite(y0) and not abs(y0) > limit
         alive1 = alive1 and math.isfinite(y1) and not abs(y1) > limit
-        if alive0:
+        if feedback_arm and alive0:
             u0, s0, acc0 = _arm_control(s0, acc0, y0, sp, 0.0, k == 0, t, weight, p, mpk)
             ring[k & mask] = u0
             x0 = _path_step(x0, cp, ring[(k - m_p) & mask], ring[(k - m_p - 1) & mask])
@@ -339,10 +342,11 @@ def _simulate_sample(
             ring[size + (k & mask)] = u1
             x1 = _path_step(x1, cp, ring[size + ((k - m_p) & mask)],
                             ring[size + ((k - m_p - 1) & mask)])
-        uq, sq = _probe_control(sq, yq, k, p, q2, q3)
-        ring[2 * size + (k & mask)] = uq + 1.0
-        xq = _path_step(xq, cp, ring[2 * size + ((k - m_p) & mask)],
-                        ring[2 * size + ((k - m_p - 1) & mask)])
+        if feedback_arm:
+            uq, sq = _probe_control(sq, yq, k, p, q2, q3)
+            ring[2 * size + (k & mask)] = uq + 1.0
+            xq = _path_step(xq, cp, ring[2 * size + ((k - m_p) & mask)],
+                            ring[2 * size + ((k - m_p - 1) & mask)])
         if slot >= 0:
             _record(trajectories, slot, k, alive0, alive1, y0, y1, u0, u1)
         if envelope_index[k] >= 0:
@@ -352,7 +356,8 @@ def _simulate_sample(
         xd = _path_step(xd, cd, ring[3 * size + ((k - m_d) & mask)],
                         ring[3 * size + ((k - m_d - 1) & mask)])
         sensor = a_sensor * sensor + gain_sensor * d
-    unstable = sq.diverged or (sq.late_peak > 0.995 * sq.early_peak and sq.late_peak > 1e-9)
+    unstable = feedback_arm and (
+        sq.diverged or (sq.late_peak > 0.995 * sq.early_peak and sq.late_peak > 1e-9))
     return acc0, acc1, alive0, alive1, unstable
 
 
@@ -386,6 +391,8 @@ def simulate_kernel(
     unstable: np.ndarray,         # out (N, 2) bool
     envelope_counts: np.ndarray,  # out (2, P, B) int64, added to
     trajectories: np.ndarray,     # out (S, 4, T): CV fb, CV fbff, output fb, output fbff
+    loop_unstable: np.ndarray,    # out (N,) bool: the feedback loop itself is unstable (probe)
+    feedback_arm: bool,           # False: only the feedforward arm (see _simulate_sample)
 ) -> None:
     n_steps = disturbance_profile.shape[0]
     kc, ti, td, tf, tt = controller[0], controller[1], controller[2], controller[3], controller[4]
@@ -414,7 +421,8 @@ def simulate_kernel(
             i, kinds, plant, seeds[i], disturbance_profile, setpoint_profile, direction_profile,
             noise, p, mp,
             ffp, min(m_ff, n_steps), controller[7], grid, envelope_index, trajectory_slot[i],
-            ring, env_buf, trajectories)
+            ring, env_buf, trajectories, feedback_arm)
+        loop_unstable[i] = probe
         _commit_envelope(env_buf, envelope_counts, not probe)
         _finish(i, 0, acc0, alive0, probe, n_steps * h, mp, accumulators, unstable)
         _finish(i, 1, acc1, alive1, probe, n_steps * h, mp, accumulators, unstable)

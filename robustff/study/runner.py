@@ -16,14 +16,14 @@ import os
 import threading
 import time
 from collections.abc import Callable, Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from robustff.case import Case
 from robustff.case.sampling import plant_batch, sample
 from robustff.design.margins import MarginResult, loop_margins
-from robustff.design.tuning import LoopDesign, design_loop
+from robustff.design.tuning import FeedforwardSettings, LoopDesign, design_loop
 from robustff.engine import (
     EnvelopeGrid,
     Scenario,
@@ -34,7 +34,7 @@ from robustff.engine import (
 from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
 
-__all__ = ["StudyResult", "run_study", "noise_seeds", "chunk_spans", "CHUNK_SIZE",
+__all__ = ["StudyResult", "DesignArm", "run_study", "noise_seeds", "chunk_spans", "CHUNK_SIZE",
            "ProgressCallback"]
 
 #: Samples per chunk. Fixed (not derived from the number of jobs) so results never depend on it.
@@ -46,6 +46,27 @@ KEPT_TRAJECTORIES = 5
 MARGIN_SAMPLES = 2000
 
 ProgressCallback = Callable[[int, int], None]
+
+
+@dataclass
+class DesignArm:
+    """One feedforward design's per-sample results, on the same plants and noise as the rest.
+
+    Attributes
+    ----------
+    name : str
+        ``"case"`` for the case's own ``[feedforward]``, else the ``[[design]]`` name.
+    settings : FeedforwardSettings
+        The designed compensator.
+    metrics : dict of str to ndarray (n,)
+        Per-sample metrics with this feedforward (NaN where the sample is unstable).
+    unstable : ndarray of bool, shape (n,)
+    """
+
+    name: str
+    settings: FeedforwardSettings
+    metrics: dict[str, np.ndarray]
+    unstable: np.ndarray
 
 
 @dataclass
@@ -82,6 +103,8 @@ class StudyResult:
         Feedback stability margins of the first ``MARGIN_SAMPLES`` simulated samples.
     nominal_margins : MarginResult or None
         Margins of the nominal loop.
+    alternatives : list of DesignArm
+        The case's other feedforward designs (``design.alternatives``), same samples.
     """
 
     case: Case
@@ -101,11 +124,19 @@ class StudyResult:
     elapsed: float
     margins: MarginResult | None = None
     nominal_margins: MarginResult | None = None
+    alternatives: list[DesignArm] = field(default_factory=list)
 
     @property
     def samples(self) -> int:
         """Samples actually simulated."""
         return int(self.parameters.shape[0])
+
+    def design_arms(self) -> list[DesignArm]:
+        """Every feedforward design, the case's own first (named ``"case"``)."""
+        own = DesignArm("case", self.design.feedforward,
+                        {name: values[:, 1] for name, values in self.metrics.items()},
+                        self.unstable[:, 1])
+        return [own, *self.alternatives]
 
 
 @dataclass(frozen=True)
@@ -154,7 +185,16 @@ def _run_chunk(
     result = simulate(
         batch, design, scenario, seeds=seeds, envelope=grid, keep=np.arange(min(keep, batch.size))
     )
-    return result
+    # Other designs: the feedforward arm alone, same plants and noise seeds (common random
+    # numbers), so differences between designs are not Monte Carlo noise.
+    alternatives = []
+    for alternative in design.alternatives:
+        arm = simulate(batch, design.with_feedforward(alternative.settings), scenario,
+                       seeds=seeds, reference=result)
+        alternatives.append(({name: values[:, 1] for name, values in arm.metrics.items()},
+                             arm.unstable[:, 1]))
+    result.accumulators = np.empty((0, 2, 0))  # not kept: the metrics hold what is needed
+    return result, alternatives
 
 
 def _chunks(n: int, size: int) -> list[_Chunk]:
@@ -246,7 +286,8 @@ def run_study(
     cancel = cancel or threading.Event()
     generator = _parallel_results(tasks, jobs, cluster)
     try:
-        for chunk, result in zip(chunks, generator, strict=False):
+        for chunk, (result, alternatives) in zip(chunks, generator, strict=False):
+            result.alternatives = alternatives
             counts += result.envelope_counts
             result.envelope_counts = None
             results.append(result)
@@ -265,6 +306,7 @@ def run_study(
     result = StudyResult(
         case, design, scenario, names, values[: unstable.shape[0]], metrics, unstable, grid,
         counts, nominal_traj, kept, seed, n, partial or len(results) < len(chunks), 0.0,
+        alternatives=_alternative_arms(design, results),
     )
     if margins:
         subset = min(result.samples, MARGIN_SAMPLES)
@@ -272,6 +314,19 @@ def run_study(
         result.nominal_margins = loop_margins(nominal_batch(case), design.feedback)
     result.elapsed = time.perf_counter() - started
     return result
+
+
+def _alternative_arms(design: LoopDesign, results: list) -> list[DesignArm]:
+    """The alternative designs' per-sample results of the finished chunks, in order."""
+    arms = []
+    for index, alternative in enumerate(design.alternatives):
+        parts = [r.alternatives[index] for r in results]
+        metrics = {name: np.concatenate([p[0][name] for p in parts]) if parts else np.empty(0)
+                   for name in METRIC_NAMES}
+        unstable = (np.concatenate([p[1] for p in parts]) if parts
+                    else np.empty(0, dtype=bool))
+        arms.append(DesignArm(alternative.name, alternative.settings, metrics, unstable))
+    return arms
 
 
 def _concatenate(

@@ -34,6 +34,8 @@ from robustff.study.summary_types import (
     Convergence,
     ConvergenceDict,
     DesignDict,
+    DesignSummary,
+    FeedforwardDesign,
     HarmEstimateDict,
     MarginsSummary,
     MetricStats,
@@ -132,18 +134,63 @@ def nominal_margin_warnings(nominal: NominalMargins) -> list[str]:
 
 
 def _paired(
-    result: StudyResult, percentiles: Sequence[float]
+    fb: dict[str, np.ndarray], fbff: dict[str, np.ndarray], percentiles: Sequence[float]
 ) -> tuple[dict[str, MetricStats], dict[str, MetricStats]]:
     """Per-sample improvement ``fb - fbff`` and ratio ``fbff / fb`` of the paired metrics."""
     improvement: dict[str, MetricStats] = {}
     ratio: dict[str, MetricStats] = {}
     for name in PAIRED_METRICS:
-        paired = paired_comparison(
-            result.metrics[name][:, 0], result.metrics[name][:, 1], percentiles
-        )
+        paired = paired_comparison(fb[name], fbff[name], percentiles)
         improvement[name] = cast(MetricStats, paired["improvement_summary"].to_dict())
         ratio[name] = cast(MetricStats, paired["ratio_summary"].to_dict())
     return improvement, ratio
+
+
+def _harm(fb: dict[str, np.ndarray], fbff: dict[str, np.ndarray]) -> dict[str, HarmEstimate]:
+    return {name: probability_worse(fb[name], fbff[name]) for name in HARM_METRICS}
+
+
+def _harm_dicts(harm: dict[str, HarmEstimate]) -> dict[str, HarmEstimateDict]:
+    return {name: cast(HarmEstimateDict, estimate.to_dict()) for name, estimate in harm.items()}
+
+
+def _designs(
+    result: StudyResult, metrics: dict[str, ArmStats], percentiles: Sequence[float]
+) -> list[DesignSummary]:
+    """One entry per feedforward design (the case's own first), same form as the top level.
+
+    ``versus_case`` pairs each design with the case's own design on the same plants (common
+    random numbers): the per-sample IAE difference ``IAE(case) - IAE(design)`` (positive: the
+    design does better) and the probability that the design does worse than the case's.
+    """
+    fb = {name: values[:, 0] for name, values in result.metrics.items()}
+    arms = result.design_arms()
+    case_iae = arms[0].metrics["iae"]
+    out: list[DesignSummary] = []
+    for arm in arms:
+        improvement, ratio = _paired(fb, arm.metrics, percentiles)
+        versus = paired_comparison(case_iae, arm.metrics["iae"], percentiles)
+        out.append({
+            "name": arm.name,
+            "feedforward": cast(FeedforwardDesign, arm.settings.to_dict()),
+            "ff_worse": _harm_dicts(_harm(fb, arm.metrics)),
+            "ratio": ratio,
+            "improvement": improvement,
+            "metrics": {
+                name: cast(ArmStats, {
+                    "fb": metrics[name]["fb"],
+                    "fbff": summarize(arm.metrics[name], percentiles).to_dict(),
+                })
+                for name in METRIC_NAMES
+            },
+            "unstable": int(arm.unstable.sum()),
+            "versus_case": {
+                "iae_improvement": cast(MetricStats, versus["improvement_summary"].to_dict()),
+                "worse_than_case": cast(HarmEstimateDict, probability_worse(
+                    case_iae, arm.metrics["iae"]).to_dict()),
+            },
+        })
+    return out
 
 
 def _convergence(result: StudyResult, harm_iae: HarmEstimate) -> Convergence:
@@ -181,11 +228,10 @@ def summarize_study(
         })
         for name in METRIC_NAMES
     }
-    improvement, ratio = _paired(result, percentiles)
-    harm = {
-        name: probability_worse(result.metrics[name][:, 0], result.metrics[name][:, 1])
-        for name in HARM_METRICS
-    }
+    fb = {name: values[:, 0] for name, values in result.metrics.items()}
+    fbff = {name: values[:, 1] for name, values in result.metrics.items()}
+    improvement, ratio = _paired(fb, fbff, percentiles)
+    harm = _harm(fb, fbff)
     iae_ratio = _ratio(result)
     sensitivity: list[SensitivityRow] = []
     if result.names and result.samples > 3:
@@ -207,9 +253,7 @@ def summarize_study(
         "metrics": metrics,
         "improvement": improvement,
         "ratio": ratio,
-        "ff_worse": {
-            name: cast(HarmEstimateDict, estimate.to_dict()) for name, estimate in harm.items()
-        },
+        "ff_worse": _harm_dicts(harm),
         "unstable": {
             "fb": int(result.unstable[:, 0].sum()),
             "fbff": int(result.unstable[:, 1].sum()),
@@ -218,6 +262,7 @@ def summarize_study(
         "sensitivity": sensitivity,
         "margins": _margins(result, percentiles),
         "design": cast(DesignDict, result.design.to_dict()),
+        "designs": _designs(result, metrics, percentiles),
         "settling_band": result.scenario.settling_band,
         "elapsed_seconds": round(result.elapsed, 3),
         "versions": _versions(),

@@ -38,6 +38,8 @@ __all__ = [
     "FeedbackDesign",
     "FeedforwardDesign",
     "DesignDict",
+    "DesignSummary",
+    "VersusCase",
     "Versions",
     "percentile_value",
 ]
@@ -194,6 +196,26 @@ class DesignDict(TypedDict):
     notes: list[str]
 
 
+class VersusCase(TypedDict):
+    """A design against the case's own design, paired on the same plants."""
+
+    iae_improvement: MetricStats  #: IAE(case) - IAE(design) per sample, metric units
+    worse_than_case: HarmEstimateDict  #: P(IAE(design) > IAE(case)), Wilson interval
+
+
+class DesignSummary(TypedDict):
+    """One feedforward design's statistics, in the form of the top-level keys."""
+
+    name: str  #: "case" for the case's own [feedforward], else the [[design]] name
+    feedforward: FeedforwardDesign
+    ff_worse: dict[str, HarmEstimateDict]
+    ratio: dict[str, MetricStats]
+    improvement: dict[str, MetricStats]
+    metrics: dict[str, ArmStats]
+    unstable: int  #: samples unstable (or run away) with this design
+    versus_case: VersusCase
+
+
 class Versions(TypedDict):
     """Versions of robustff and of the numerical libraries that produced the numbers."""
 
@@ -232,6 +254,7 @@ class Summary(TypedDict):
     sensitivity: list[SensitivityRow]  #: ranked; empty without uncertain parameters
     margins: MarginsSummary | None  #: None when margins were not computed
     design: DesignDict
+    designs: list[DesignSummary]  #: every feedforward design, the case's own first
     settling_band: float  #: CV units
     elapsed_seconds: float  #: wall time, seconds
     versions: Versions
