@@ -25,6 +25,9 @@ __all__ = ["register", "parse_percentiles", "ProgressPrinter"]
 NOTHING_KEPT = ("robustff: interrupted before any sample finished; nothing was kept "
                 "(no result files written)")
 
+#: Same as ``robustff.output.samples_file.SAMPLES_FORMATS`` (a test checks), spelled out here so
+#: that parsing the command line does not import the engine.
+SAMPLES_FORMATS = ("csv", "npy")
 _TABLE_METRICS = ("iae", "peak_deviation", "overshoot", "settling_time", "valve_travel")
 
 
@@ -57,6 +60,13 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         "--report",
         action="store_true",
         help="also write report.html and PNG/SVG plots (needs matplotlib)",
+    )
+    parser.add_argument(
+        "--samples-format",
+        choices=SAMPLES_FORMATS,
+        default="csv",
+        help="per-sample table as samples.csv (default) or samples.npy (NumPy binary, one "
+        "named field per column, faster to write and load for large runs)",
     )
     parser.set_defaults(func=execute)
 
@@ -241,7 +251,8 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
         def extra(folder: Path) -> None:
             write_report(result, summary, folder, percentiles, _margin_values(result))
 
-    write_results(result, summary, out, percentiles, extra=extra)
+    write_results(result, summary, out, percentiles, extra=extra,
+                  samples_format=args.samples_format)
     print(printable_title(case.title))
     print(
         f"{result.samples} samples"

@@ -17,14 +17,13 @@ import tempfile
 from collections.abc import Callable, Sequence
 from pathlib import Path
 
-import numpy as np
-
 from robustff import CAUTION
 from robustff.atomic import write_text_atomic
 from robustff.case.text import printable_title
 from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
 from robustff.jsonvalues import json_safe
+from robustff.output.samples_file import sample_columns, samples_file_name, write_samples
 from robustff.study import StudyResult
 from robustff.study.summary_types import ARMS, Summary, percentile_value
 
@@ -40,6 +39,8 @@ __all__ = [
 ]
 
 RESULT_FILES: tuple[str, ...] = ("summary.json", "percentiles.csv", "percentiles.md", "samples.csv")
+#: Written instead of ``samples.csv`` when asked for (``--samples-format npy``).
+OPTIONAL_RESULT_FILES: tuple[str, ...] = ("samples.npy",)
 _ARM_LABELS = {"fb": "feedback only", "fbff": "feedback + feedforward"}
 
 
@@ -128,21 +129,6 @@ def _csv_text(rows: list[list]) -> str:
     return buffer.getvalue()
 
 
-def _samples_csv(result: StudyResult) -> str:
-    header = ["sample", *result.names]
-    columns = [np.arange(result.samples)[:, None], result.parameters]
-    for name in METRIC_NAMES:
-        header += [f"{name}_fb", f"{name}_fbff"]
-        columns.append(result.metrics[name])
-    header += ["unstable_fb", "unstable_fbff"]
-    columns.append(result.unstable.astype(int))
-    table = np.column_stack(columns) if result.samples else np.empty((0, len(header)))
-    buffer = io.StringIO()
-    buffer.write(",".join(header) + "\n")
-    np.savetxt(buffer, table, delimiter=",", fmt="%.10g")
-    return buffer.getvalue()
-
-
 def check_output_folder(folder: Path) -> None:
     """Refuse a destination that exists and holds files robustff did not write.
 
@@ -165,7 +151,8 @@ def check_output_folder(folder: Path) -> None:
         foreign = sorted(
             p.name
             for p in folder.iterdir()
-            if p.name not in RESULT_FILES and not p.name.startswith(("report", "plot-"))
+            if p.name not in RESULT_FILES + OPTIONAL_RESULT_FILES
+            and not p.name.startswith(("report", "plot-"))
         )
         if foreign:
             raise RobustffError(
@@ -180,6 +167,7 @@ def write_results(
     folder: str | Path,
     percentiles: Sequence[float],
     extra: Callable[[Path], None] | None = None,
+    samples_format: str = "csv",
 ) -> Path:
     """Write the result files into ``folder``, replacing an earlier run's files as a whole.
 
@@ -193,6 +181,9 @@ def write_results(
     percentiles : sequence of float
     extra : callable(Path), optional
         Writes further files (plots, HTML report) into the temporary folder before it is moved.
+    samples_format : {"csv", "npy"}
+        The per-sample table as ``samples.csv`` (default) or ``samples.npy``
+        (see :mod:`robustff.output.samples_file`).
 
     Returns
     -------
@@ -200,6 +191,7 @@ def write_results(
         The destination folder.
     """
     folder = Path(folder)
+    samples_file_name(samples_format)  # an unknown format is refused before anything is written
     check_output_folder(folder)
     folder.parent.mkdir(parents=True, exist_ok=True)
     staging = Path(tempfile.mkdtemp(prefix=f".{folder.name}.", dir=folder.parent))
@@ -213,7 +205,7 @@ def write_results(
                           json.dumps(json_safe(summary), indent=2, allow_nan=False) + "\n")
         write_text_atomic(staging / "percentiles.csv", percentiles_csv(summary, percentiles))
         write_text_atomic(staging / "percentiles.md", percentiles_markdown(summary, percentiles))
-        write_text_atomic(staging / "samples.csv", _samples_csv(result))
+        write_samples(staging, sample_columns(result), samples_format)
         if extra is not None:
             extra(staging)
         _replace_folder(staging, folder)

@@ -44,6 +44,7 @@ REFUSED_ARGUMENTS = [
     (["--sample", "100"], ["unrecognized", "--sample"]),  # no silent prefix matching
     (["--cluster", "tcp://127.0.0.1:99999"], ["--cluster", "99999"]),
     (["--cluster", "localhost"], ["--cluster", "tcp://HOST:PORT"]),
+    (["--samples-format", "xlsx"], ["--samples-format", "csv", "npy"]),
 ]
 
 
