@@ -83,6 +83,11 @@ def _check_args(args: argparse.Namespace) -> None:
         raise DataError("--template and --case-out go together: give both to write a case")
     if args.resamples < 0:
         raise DataError(f"--resamples must be >= 0, got {args.resamples}")
+    if args.resamples == 0 and args.ci == "bootstrap":
+        raise DataError(
+            "--resamples 0 computes no bootstrap interval, so no uncertainty could be proposed; "
+            "give --resamples 200 (the default), or --ci none to fit the model alone"
+        )
     if args.sample_time is not None and not args.sample_time > 0:
         raise DataError(f"--sample-time must be positive, got {args.sample_time}")
     if args.plot and not args.plot.lower().endswith((".png", ".svg")):
@@ -108,8 +113,8 @@ def run_fit(args: argparse.Namespace) -> int:
         nominal = _nominal_model(results, proposals)
         notes = write_fitted_case(args.template, args.case_out, args.block, nominal, proposals,
                                   time_unit)
-        notes.append(f"wrote {args.case_out} ([{args.block}] and its [uncertainty] entries)")
-    if len(results) == 1:
+        notes.append(_written_note(args.case_out, args.block, proposals))
+    if len(results) == 1 and any(proposal.has_spread for proposal in proposals.values()):
         notes.append(
             "one test only: the proposed spread is the statistical error of this fit, not the "
             "drift of the plant between operating points; widen it from experience or fit tests "
@@ -120,6 +125,19 @@ def run_fit(args: argparse.Namespace) -> int:
     else:
         print(_human(results, proposals, notes))
     return 0
+
+
+def _written_note(path: str, block: str, proposals: dict[str, Any]) -> str:
+    """What the fitted case holds: the model block, and which parameters got an uncertainty."""
+    spread = [name for name, proposal in proposals.items() if proposal.has_spread]
+    certain = [name for name, proposal in proposals.items() if not proposal.has_spread]
+    if not spread:
+        return (f"wrote {path} ([{block}] only: no [uncertainty] entries for it, the fit gives "
+                "no spread; add the uncertainty by hand before a study)")
+    text = f"wrote {path} ([{block}] and [uncertainty] entries for {', '.join(spread)}"
+    if certain:
+        text += f"; {', '.join(certain)} left certain: the fit gives no spread for them"
+    return text + ")"
 
 
 def _nominal_model(results: list[Any], proposals: dict[str, Any]) -> Any:
@@ -155,6 +173,7 @@ def result_json(results: list[Any], proposals: dict[str, Any], notes: list[str])
     for name, proposal in proposals.items():
         out[name]["uncertainty"] = proposal.to_dict()
     warnings = [w for r in results for w in r.warnings]
+    poor_fit = [w for r in results for w in r.poor_fit]
     out.update({
         "time_unit": first.record.time_unit, "method": first.method, "ci_method": first.ci_method,
         "rmse": _number(max(r.rmse for r in results)),
@@ -163,7 +182,7 @@ def result_json(results: list[Any], proposals: dict[str, Any], notes: list[str])
                    "input_baseline": _number(r.input_baseline),
                    "output_baseline": _number(r.output_baseline), **_estimates_json(r)}
                   for r in results],
-        "warnings": warnings, "notes": notes,
+        "warnings": warnings, "poor_fit": poor_fit, "notes": notes,
     })
     return out
 
@@ -180,8 +199,12 @@ def _human(results: list[Any], proposals: dict[str, Any], notes: list[str]) -> s
             lines.append(f"  {name:<16}{est.value:>12.4g}{ci}")
     lines.append(f"Proposed uncertainty ({len(results)} file(s), times in {unit}):")
     for name, proposal in proposals.items():
-        lines.append(f"  {name:<16}{json.dumps(proposal.to_dict())}")
+        text = (json.dumps(proposal.to_dict()) if proposal.has_spread
+                else "none: no spread from the fit (left certain)")
+        lines.append(f"  {name:<16}{text}")
     for text in [w for r in results for w in r.warnings] + notes:
         lines.append(f"note: {text}")
+    for text in [w for r in results for w in r.poor_fit]:
+        lines.append(f"warning: {text}")
     lines.append(CAUTION)
     return "\n".join(lines)

@@ -14,6 +14,7 @@ correlated) with a fixed seed, or from the Jacobian at the optimum.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -21,6 +22,7 @@ import numpy as np
 from robustff.errors import DataError
 from robustff.fit.intervals import finish_fit, two_point_result
 from robustff.fit.projection import Problem, solve
+from robustff.fit.quality import poor_fit_warnings
 from robustff.fit.records import (
     StepInfo,
     StepRecord,
@@ -122,8 +124,8 @@ def fit_record(
     if not model_kind(kind).integrating:
         check_settled(record, step)
     if method == "two-point":
-        return _checked(two_point_result(record, step, kind, ci_method, resamples, seed,
-                                         warnings), step)
+        return _judged(_checked(two_point_result(record, step, kind, ci_method, resamples, seed,
+                                                 warnings), step), step, None)
     u = _deviation_input(record, step)
     h = record.sample_time
     duration = float(record.times[-1] - record.times[step.index])
@@ -139,8 +141,17 @@ def fit_record(
     if problem.n_lags == 2:
         starts.extend(_sopdt_starts(problem, y, starts, low, high))
     p, _ = solve(problem, y, starts, low, high)
-    return _checked(finish_fit(record, step, problem, p, y, low, high, ci_method, resamples, seed,
-                               warnings), step)
+    result = _checked(finish_fit(record, step, problem, p, y, low, high, ci_method, resamples,
+                                 seed, warnings), step)
+    names = model_kind(kind).time_parameters
+    bounds = {name: (float(lo), float(hi)) for name, lo, hi in zip(names, low, high, strict=True)}
+    return _judged(result, step, bounds)
+
+
+def _judged(result: FitResult, step: StepInfo,
+            bounds: dict[str, tuple[float, float]] | None) -> FitResult:
+    """The result with its poor-fit warnings (:func:`robustff.fit.quality.poor_fit_warnings`)."""
+    return dataclasses.replace(result, poor_fit=tuple(poor_fit_warnings(result, step, bounds)))
 
 
 def _checked(result: FitResult, step: StepInfo) -> FitResult:

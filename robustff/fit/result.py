@@ -46,6 +46,10 @@ class FitResult:
         Root-mean-square of data minus fit, output units.
     record : StepRecord
     warnings : tuple of str
+        Notes on what was done with the data (rows left out, resampling).
+    poor_fit : tuple of str
+        Why the model does not describe the record (:mod:`robustff.fit.quality`); empty when
+        it does.
     """
 
     model: TransferModel
@@ -58,6 +62,7 @@ class FitResult:
     rmse: float
     record: StepRecord
     warnings: tuple[str, ...] = field(default=())
+    poor_fit: tuple[str, ...] = field(default=())
 
 
 def model_parameters(model: TransferModel) -> dict[str, float]:

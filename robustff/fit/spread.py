@@ -31,9 +31,13 @@ class Proposal:
 
     Parameters
     ----------
-    kind : {"uniform", "normal", "lognormal"}
+    kind : {"uniform", "normal", "lognormal", "none"}
+        ``"none"``: the fits give no spread for this parameter (no interval was computed, or
+        every interval has zero width); it is left certain rather than given a degenerate
+        distribution such as ``uniform [x, x]``.
     params : tuple of float
-        ``uniform``: (low, high); ``normal``: (mean, std); ``lognormal``: (median, factor).
+        ``uniform``: (low, high); ``normal``: (mean, std); ``lognormal``: (median, factor);
+        ``none``: ().
     clip : tuple of float or None
         (low, high) bounds for normal and lognormal.
     value : float
@@ -45,8 +49,16 @@ class Proposal:
     clip: tuple[float, float] | None
     value: float
 
+    @property
+    def has_spread(self) -> bool:
+        """False for ``"none"``: nothing to write into ``[uncertainty]``."""
+        return self.kind != "none"
+
     def to_dict(self) -> dict[str, list[float]]:
-        """The inline table of the case file, e.g. ``{"normal": [m, s], "clip": [lo, hi]}``."""
+        """The inline table of the case file, e.g. ``{"normal": [m, s], "clip": [lo, hi]}``;
+        ``{}`` for ``"none"``."""
+        if not self.has_spread:
+            return {}
         out = {self.kind: [_round(v) for v in self.params]}
         if self.clip is not None:
             out["clip"] = [_round(v) for v in self.clip]
@@ -98,10 +110,11 @@ def propose_distribution(values: np.ndarray, cis: np.ndarray, nonnegative: bool)
         else:
             clip, high = (clip[0], min(-floor, clip[1])), min(-floor, high)
     n = values.size
+    # Zero width (no interval computed, or all intervals collapsed on one value): no spread.
+    if not high - low > 1e-9 * max(float(np.max(np.abs(values))), 1e-300):
+        return Proposal("none", (), None, float(np.median(values)))
     if n == 1:
         std = math.sqrt(within_var)
-        if std == 0.0:
-            return Proposal("uniform", (values[0], values[0]), None, float(values[0]))
         return Proposal("normal", (float(values[0]), std), clip, float(values[0]))
     if n < 5:
         return Proposal("uniform", (low, high), None, float(np.median(values)))

@@ -136,7 +136,7 @@ def _set_uncertainty(doc: Any, block: str, proposals: dict[str, Proposal]) -> No
         if key == block or key.startswith(f"{block}."):
             del section[key]
     for name, proposal in proposals.items():
-        if proposal.kind == "uniform" and proposal.params[0] == proposal.params[1]:
+        if not proposal.has_spread:
             continue  # no spread found: leave the parameter certain
         section[f"{block}.{name}"] = _inline(proposal.to_dict())
 
