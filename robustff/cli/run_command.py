@@ -29,6 +29,9 @@ NOTHING_KEPT = ("robustff: interrupted before any sample finished; nothing was k
 #: that parsing the command line does not import the engine.
 SAMPLES_FORMATS = ("csv", "npy")
 _TABLE_METRICS = ("iae", "peak_deviation", "overshoot", "settling_time", "valve_travel")
+#: Same as ``robustff.design.alternatives.DESIGN_SETS`` (a test checks), spelled out here so that
+#: parsing the command line does not import the engine.
+DESIGN_SETS = ("standard",)
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -67,6 +70,12 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         default="csv",
         help="per-sample table as samples.csv (default) or samples.npy (NumPy binary, one "
         "named field per column, faster to write and load for large runs)",
+    )
+    parser.add_argument(
+        "--designs",
+        choices=DESIGN_SETS,
+        help="also simulate a set of feedforward designs on the same plants: 'standard' adds "
+        "static, lead-lag and lead-lag-delay, each at gain factor 1 and 0.8",
     )
     parser.set_defaults(func=execute)
 
@@ -166,9 +175,9 @@ def _print_margins(margins: MarginsSummary) -> None:
     # None only without any margin sample, which a run with at least one sample cannot give.
     share = "n/a" if ms_above is None else f"{100 * ms_above:.1f}"
     print(
-        f"Feedback margins (nominal): GM {nominal['gain_margin']:.3g}, "
+        f"Feedback margins (nominal): GM {nominal['gain_margin']:.3g} (ratio), "
         f"PM {nominal['phase_margin']:.3g} deg, "
-        f"Ms {nominal['ms']:.3g}; across {margins['samples']} samples: "
+        f"Ms {nominal['ms']:.3g} (ratio); across {margins['samples']} samples: "
         f"{share} % with Ms > 2, "
         f"{margins['unstable']} unstable"
     )
@@ -196,6 +205,10 @@ def execute(args: argparse.Namespace) -> int:
     from robustff.study import run_study
 
     case = load_case(args.case)
+    if args.designs:
+        from robustff.design.alternatives import with_design_set
+
+        case = with_design_set(case, args.designs)
     for line in warning_lines(refuse_errors(case)):  # the same review as ``robustff check``
         print(line, file=sys.stderr)
     percentiles = args.percentiles or DEFAULT_PERCENTILES
@@ -260,6 +273,13 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
         + f", seed {result.seed}, {result.elapsed:.2f} s"
     )
     _print_table(summary, percentiles)
+    print(f"settling_time: after each step, ramp or setpoint event, until |e| stays within "
+          f"+-{summary['settling_band']:.3g} {summary['units']['peak_deviation']}; the longest "
+          "over the events")
+    if len(summary["designs"]) > 1:
+        from robustff.output.design_table import design_table_text
+
+        print(design_table_text(summary))
     print(risk_sentence(summary, "iae"))
     print(risk_sentence(summary, "peak_deviation"))
     print(

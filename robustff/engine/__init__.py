@@ -20,6 +20,7 @@ from robustff.engine.scenario import (
     disturbance_direction,
     divergence_limit,
     event_profiles,
+    settling_segments,
 )
 from robustff.plant.kinds import model_kind
 from robustff.plant.models import PlantBatch
@@ -209,6 +210,7 @@ def simulate(
         _feedforward_vector(design),
         np.array([scenario.event_start, scenario.settling_band, 0.0, 0.0]),
         np.ascontiguousarray(scenario.direction, dtype=np.float64),
+        np.ascontiguousarray(scenario.segment_start, dtype=np.float64),
         edges,
         index,
         slots,
@@ -261,6 +263,7 @@ def build_scenario(case: Case, design: LoopDesign, settling_band: float | None =
         setpoint_step,
         np.inf,
         divergence_limit(case, design),
+        settling_segments(case),
     )
     if settling_band is None:
         if setpoint_step:

@@ -48,11 +48,11 @@ ACCUMULATOR_NAMES: tuple[str, ...] = (
 N_ACCUMULATORS = len(ACCUMULATOR_NAMES)
 
 #: Value of each accumulator before the first step. During the run ``settling_time`` holds the
-#: last time the error was outside the settling band (-1: never); the kernel's finishing step
-#: turns it into a duration.
+#: longest settling time of the events already followed by another one (the arm state holds the
+#: last time outside the band since the latest event); the finishing step adds the last event.
 ACCUMULATOR_INIT: dict[str, float] = {
     "ie": 0.0, "iae": 0.0, "ise": 0.0, "itae": 0.0, "peak_deviation": 0.0,
-    "opposite_excursion": 0.0, "settling_time": -1.0, "valve_travel": 0.0,
+    "opposite_excursion": 0.0, "settling_time": 0.0, "valve_travel": 0.0,
     "time_at_limit": 0.0,
 }
 
@@ -82,8 +82,10 @@ SETTLING_TIME = accumulator_slot("settling_time")
 OPPOSITE_EXCURSION = accumulator_slot("opposite_excursion")
 
 #: Controller state of one live arm: integral term, derivative term, CV and output at the
-#: previous step (deviation units).
-ArmState = namedtuple("ArmState", ("integral", "derivative", "previous_cv", "previous_output"))
+#: previous step (deviation units), and the last time the error was outside the settling band
+#: since the latest event (-1: not since then).
+ArmState = namedtuple(
+    "ArmState", ("integral", "derivative", "previous_cv", "previous_output", "last_outside"))
 
 #: Stability probe state: integral and derivative terms, previous CV, max |e| over
 #: ``[T/2, 3T/4)`` and over ``[3T/4, T)``, and whether the probe has diverged.
@@ -102,8 +104,11 @@ ControllerParams = namedtuple(
 )
 
 #: Metric conventions: controller sample time ``h``, event start ``t0`` (time units), settling
-#: band (CV units), and the sign of ``e`` that counts as an opposite excursion at this step.
-MetricParams = namedtuple("MetricParams", ("h", "t_start", "band", "direction"))
+#: band (CV units), the sign of ``e`` that counts as an opposite excursion at this step, and
+#: the start of the settling segment before this step's (equal to it except at the first step
+#: of an event, where the settling time of the previous event is complete).
+MetricParams = namedtuple(
+    "MetricParams", ("h", "t_start", "band", "direction", "segment", "previous_segment"))
 
 #: One path's exact step (see :func:`robustff.engine.discretise.block_coefficients`):
 #: ``x1' = phi11 x1 + g1_new u_new + g1_old u_old``; for second-order paths also
@@ -190,7 +195,8 @@ def _arm_control(s: ArmState, a: Accumulators, y: float, sp: float, ff: float, f
     """Controller and metrics of one live arm at one step; returns ``(u, s, a)``.
 
     ``mp.direction`` is the direction at this step; ``weight = max(t - t_start, 0)``;
-    ``a.settling_time`` holds the last time outside the band (or -1) until :func:`_finish`.
+    ``a.settling_time`` holds the longest settling time of the completed events until
+    :func:`_finish` adds the last one.
     """
     e = sp - y
     deriv = s.derivative
@@ -202,6 +208,13 @@ def _arm_control(s: ArmState, a: Accumulators, y: float, sp: float, ff: float, f
     integral = s.integral + (p.integral_gain * e + p.tracking_gain * (u - v))
     h = mp.h
     ae = abs(e)
+    last, longest = s.last_outside, a.settling_time
+    if mp.segment != mp.previous_segment:  # a new event: the previous one's settling is known
+        if last >= 0.0:
+            longest = max(longest, last + h - mp.previous_segment)
+        last = -1.0
+    if ae > mp.band and t >= mp.t_start:
+        last = t
     # Keyword construction: a name added to ACCUMULATOR_NAMES but not updated here fails to
     # compile instead of being carried along unchanged.
     a = Accumulators(
@@ -209,11 +222,11 @@ def _arm_control(s: ArmState, a: Accumulators, y: float, sp: float, ff: float, f
         itae=a.itae + weight * ae * h,
         peak_deviation=max(a.peak_deviation, ae),
         opposite_excursion=max(a.opposite_excursion, mp.direction * e),
-        settling_time=t if (ae > mp.band and t >= mp.t_start) else a.settling_time,
+        settling_time=longest,
         valve_travel=a.valve_travel + abs(u - s.previous_output),
         time_at_limit=a.time_at_limit + h if u != v else a.time_at_limit,
     )
-    return u, ArmState(integral, deriv, y, u), a
+    return u, ArmState(integral, deriv, y, u, last), a
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -245,15 +258,18 @@ def _envelope_bin(y: float, grid: BinGrid) -> int:
 
 
 @njit(cache=True, nogil=True)
-def _finish(i: int, arm: int, a: Accumulators, alive: bool, probe: bool, t_end: float,
-            mp: MetricParams, accumulators: np.ndarray, unstable: np.ndarray) -> None:
+def _finish(i: int, arm: int, a: Accumulators, last_outside: float, segment: float,
+            alive: bool, probe: bool, t_end: float, mp: MetricParams,
+            accumulators: np.ndarray, unstable: np.ndarray) -> None:
     """Write one arm's accumulators (NaN when unstable) and its unstable flag.
 
     Every column of :data:`ACCUMULATOR_NAMES` is written; only the slots named here are
-    rewritten, the others are the running value as it stands.
+    rewritten, the others are the running value as it stands. ``last_outside`` and
+    ``segment`` (time units) are the arm's last time outside the band and the start of the
+    last event: the settling time is the longest over the events.
     """
-    last_outside = a.settling_time
-    settling = 0.0 if last_outside < 0.0 else min(last_outside + mp.h, t_end) - mp.t_start
+    final = 0.0 if last_outside < 0.0 else min(last_outside + mp.h, t_end) - segment
+    settling = max(a.settling_time, final)
     for q in range(N_ACCUMULATORS):
         value = a[q]
         if q == SETTLING_TIME:
@@ -278,13 +294,14 @@ def _commit_envelope(env_buf: np.ndarray, envelope_counts: np.ndarray, keep: boo
 def _simulate_sample(
     i: int, kinds: np.ndarray, plant: np.ndarray, seed: np.uint64,
     disturbance_profile: np.ndarray, setpoint_profile: np.ndarray,
-    direction_profile: np.ndarray, noise: np.ndarray,
+    direction_profile: np.ndarray, segment_profile: np.ndarray, noise: np.ndarray,
     p: ControllerParams, mp: MetricParams, ffp: FeedforwardParams, m_ff: int, limit: float,
     grid: BinGrid,
     envelope_index: np.ndarray, slot: int, ring: np.ndarray, env_buf: np.ndarray,
     trajectories: np.ndarray, feedback_arm: bool,
 ) -> tuple:
-    """Simulate sample ``i``; returns ``(acc fb, acc fbff, alive fb, alive fbff, unstable)``.
+    """Simulate sample ``i``; returns ``(acc fb, acc fbff, state fb, state fbff, alive fb,
+    alive fbff, unstable)``.
 
     ``noise`` rows: start step, filter pole, innovation scale, state (updated in place).
     Without ``feedback_arm`` only the feedforward arm runs (another design on the same plant
@@ -304,7 +321,7 @@ def _simulate_sample(
     a_sensor = decay(h, plant[i, 8])
     gain_sensor, direct, noise_std = 1.0 - a_sensor, plant[i, 8] <= 0.0, plant[i, 9]
     acc0 = acc1 = INITIAL_ACCUMULATORS
-    s0 = s1 = ArmState(0.0, 0.0, 0.0, 0.0)
+    s0 = s1 = ArmState(0.0, 0.0, 0.0, 0.0, -1.0)
     alive0 = alive1 = True
     x0 = x1 = xq = xd = (0.0, 0.0)  # path states (x1, x2)
     sq = ProbeState(0.0, 0.0, 0.0, 0.0, 0.0, False)
@@ -313,7 +330,8 @@ def _simulate_sample(
     for k in range(n_steps):
         t = k * h
         weight = max(t - mp.t_start, 0.0)
-        mpk = MetricParams(mp.h, mp.t_start, mp.band, direction_profile[k])
+        mpk = MetricParams(mp.h, mp.t_start, mp.band, direction_profile[k], segment_profile[k],
+                           segment_profile[k - 1] if k > 0 else segment_profile[0])
         d = disturbance_profile[k]
         for j in range(noise.shape[0]):
             if k >= noise[j, 0]:
@@ -358,7 +376,7 @@ def _simulate_sample(
         sensor = a_sensor * sensor + gain_sensor * d
     unstable = feedback_arm and (
         sq.diverged or (sq.late_peak > 0.995 * sq.early_peak and sq.late_peak > 1e-9))
-    return acc0, acc1, alive0, alive1, unstable
+    return acc0, acc1, s0, s1, alive0, alive1, unstable
 
 
 @njit(cache=True, nogil=True)
@@ -384,6 +402,7 @@ def simulate_kernel(
     feedforward: np.ndarray,      # (4,): gain, lead, lag, delay
     metric_setup: np.ndarray,     # (4,): event start time, settling band, unused, unused
     direction_profile: np.ndarray,  # (T,): sign of e that counts as an opposite excursion
+    segment_profile: np.ndarray,  # (T,): start time of the latest event (settling segments)
     envelope_edges: np.ndarray,   # (B+1,) CV bin edges
     envelope_index: np.ndarray,   # (T,) int: envelope time point recorded at step k, or -1
     trajectory_slot: np.ndarray,  # (N,) int, -1 = do not keep
@@ -400,7 +419,7 @@ def simulate_kernel(
     p = ControllerParams(kc, tf / (tf + h), kc * td / (tf + h), kc * h / ti, h / tt,
                          controller[5], controller[6], td > 0.0)
     # The direction slot is filled per step from direction_profile (metric_setup[2] is unused).
-    mp = MetricParams(h, metric_setup[0], metric_setup[1], metric_setup[2])
+    mp = MetricParams(h, metric_setup[0], metric_setup[1], metric_setup[2], 0.0, 0.0)
     n_bins = envelope_edges.shape[0] - 1
     grid = BinGrid(envelope_edges[0], (envelope_edges[-1] - envelope_edges[0]) / n_bins, n_bins)
     # Matched pole-zero compensator: exact inverse of ZOH first-order paths at the samples.
@@ -417,12 +436,15 @@ def simulate_kernel(
     ring = np.zeros(_RING_ROWS * _ring_size(n_steps))
     env_buf = np.full((2, envelope_counts.shape[1]), -1, dtype=np.int64)
     for i in range(plant.shape[0]):
-        acc0, acc1, alive0, alive1, probe = _simulate_sample(
+        acc0, acc1, s0, s1, alive0, alive1, probe = _simulate_sample(
             i, kinds, plant, seeds[i], disturbance_profile, setpoint_profile, direction_profile,
-            noise, p, mp,
+            segment_profile, noise, p, mp,
             ffp, min(m_ff, n_steps), controller[7], grid, envelope_index, trajectory_slot[i],
             ring, env_buf, trajectories, feedback_arm)
         loop_unstable[i] = probe
         _commit_envelope(env_buf, envelope_counts, not probe)
-        _finish(i, 0, acc0, alive0, probe, n_steps * h, mp, accumulators, unstable)
-        _finish(i, 1, acc1, alive1, probe, n_steps * h, mp, accumulators, unstable)
+        last_segment = segment_profile[n_steps - 1]
+        _finish(i, 0, acc0, s0.last_outside, last_segment, alive0, probe, n_steps * h, mp,
+                accumulators, unstable)
+        _finish(i, 1, acc1, s1.last_outside, last_segment, alive1, probe, n_steps * h, mp,
+                accumulators, unstable)

@@ -13,10 +13,13 @@ integrals over the simulated window):
   over-compensating feedforward; with several events each one sets the side from its start on),
   in CV units (``overshoot``) and in percent of the same
   sample's feedback-only peak deviation (``overshoot_percent``);
-* ``settling_time``: time from ``t0`` until |e| stays within the settling band for good; the band
-  is 2 % of the setpoint step, or, for disturbance events, 2 % of the feedback-only peak
-  deviation of the NOMINAL plant (one band for every sample and both arms, so that times are
-  comparable). A response still outside the band at the end reports the remaining window;
+* ``settling_time``: the longest, over the step, ramp and setpoint events, of the time from the
+  event until |e| stays within the settling band (until the next such event, or for good
+  after the last one); filtered noise starts no event of its own. The band is 2 % of the
+  setpoint step, or, for disturbance events, 2 % of the feedback-only peak deviation of the
+  NOMINAL plant (one band for every sample and both arms, so that times are comparable). A
+  response still outside the band at the next event reports the time to that event, and at
+  the end of the window the remaining window;
 * ``valve_travel`` = sum |u[k] - u[k-1]| (output units);
 * ``time_at_limit`` = time the controller output spends at a limit (time units).
 
@@ -101,6 +104,7 @@ def trajectory_metrics(
     direction: float | np.ndarray,
     settling_band: float,
     at_limit: np.ndarray | None = None,
+    segment_start: np.ndarray | None = None,
 ) -> dict[str, float]:
     """Metrics of one stored response (reference implementation of the definitions above).
 
@@ -120,6 +124,9 @@ def trajectory_metrics(
         Settling band, CV units.
     at_limit : ndarray of bool, shape (T,), optional
         Where the output was limited.
+    segment_start : ndarray, shape (T,), optional
+        Start time of the latest event at each sample (``Scenario.segment_start``); default:
+        one event at ``event_start``.
 
     Returns
     -------
@@ -128,10 +135,14 @@ def trajectory_metrics(
         time_at_limit``.
     """
     t = np.arange(error.size) * step
-    outside = np.nonzero((np.abs(error) > settling_band) & (t >= event_start))[0]
-    settle = (
-        0.0 if outside.size == 0 else min(t[outside[-1]] + step, error.size * step) - event_start
-    )
+    if segment_start is None:
+        segment_start = np.full(error.size, event_start)
+    is_outside = (np.abs(error) > settling_band) & (t >= event_start)
+    settle = 0.0
+    for start in np.unique(segment_start):
+        outside = np.nonzero(is_outside & (segment_start == start))[0]
+        if outside.size:
+            settle = max(settle, min(t[outside[-1]] + step, error.size * step) - start)
     return {
         "ie": float(np.sum(error) * step),
         "iae": float(np.sum(np.abs(error)) * step),

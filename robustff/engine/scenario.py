@@ -9,7 +9,8 @@ import numpy as np
 from robustff.case import Case, Event
 from robustff.design.tuning import LoopDesign
 
-__all__ = ["Scenario", "event_profiles", "disturbance_direction", "divergence_limit"]
+__all__ = ["Scenario", "event_profiles", "disturbance_direction", "divergence_limit",
+           "settling_segments"]
 
 
 @dataclass(frozen=True)
@@ -37,6 +38,9 @@ class Scenario:
         CV units; see :mod:`robustff.engine.metrics`.
     divergence_limit : float
         |CV| beyond which a sample is declared unstable, CV units.
+    segment_start : ndarray, shape (T,)
+        At each sample, the start time of the latest step, ramp or setpoint event, time
+        units: settling is measured after each of them (see :func:`settling_segments`).
     """
 
     step: float
@@ -48,6 +52,7 @@ class Scenario:
     setpoint_step: float | None
     settling_band: float
     divergence_limit: float
+    segment_start: np.ndarray
 
     @property
     def n_steps(self) -> int:
@@ -88,6 +93,25 @@ def event_profiles(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         elif event.kind == "disturbance-noise":
             noise.append((round(event.at / h), abs(event.size), event.time_constant))
     return disturbance, setpoint, np.array(noise, dtype=np.float64).reshape(-1, 3)
+
+
+def settling_segments(case: Case) -> np.ndarray:
+    """Start time of the settling segment each sample belongs to, shape (T,), time units.
+
+    Every step, ramp and setpoint event starts a segment at its start sample (the value is
+    the event's time as written, as for ``t0`` of the metrics);
+    filtered noise does not (it never ends, so nothing settles after it). Before the first
+    such event, and in a case with noise events only, the start of the first event applies.
+    """
+    h, n = case.simulation.step, case.simulation.n_steps
+    # Times stay as written (like t0 of the metrics); the segment begins at the event's sample.
+    starts = sorted((event.at, min(max(round(event.at / h), 0), n)) for event in case.events
+                    if event.kind != "disturbance-noise")
+    first = min(event.at for event in case.events)
+    segment = np.full(n, starts[0][0] if starts else first)
+    for at, begin in starts:
+        segment[begin:] = at
+    return segment
 
 
 def _event_direction(case: Case, event: Event, previous: float) -> float:

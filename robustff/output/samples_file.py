@@ -45,7 +45,9 @@ def sample_columns(result: StudyResult) -> list[Column]:
 
     ``sample`` (0-based index), the sampled parameters (case units), every metric for both arms
     (``<metric>_fb``, ``<metric>_fbff``, in the metric's unit, see ``summary.json`` ``units``)
-    and the unstable flags (``unstable_fb``, ``unstable_fbff``).
+    and the unstable flags (``unstable_fb``, ``unstable_fbff``); then, for each of the case's
+    other feedforward designs, ``<metric>_fbff.<design>`` and ``unstable_fbff.<design>`` (the
+    same plants and noise, so a row compares the designs on one plant).
     """
     columns: list[Column] = [("sample", np.arange(result.samples, dtype=np.int64))]
     columns += [(name, result.parameters[:, j]) for j, name in enumerate(result.names)]
@@ -53,6 +55,9 @@ def sample_columns(result: StudyResult) -> list[Column]:
         values = result.metrics[name]
         columns += [(f"{name}_fb", values[:, 0]), (f"{name}_fbff", values[:, 1])]
     columns += [("unstable_fb", result.unstable[:, 0]), ("unstable_fbff", result.unstable[:, 1])]
+    for arm in result.alternatives:
+        columns += [(f"{name}_fbff.{arm.name}", arm.metrics[name]) for name in METRIC_NAMES]
+        columns.append((f"unstable_fbff.{arm.name}", arm.unstable))
     return columns
 
 
