@@ -188,15 +188,19 @@ def result_json(results: list[Any], proposals: dict[str, Any], notes: list[str])
 
 
 def _human(results: list[Any], proposals: dict[str, Any], notes: list[str]) -> str:
+    from robustff.fit.result import describe_fit, fit_units
+
     unit = results[0].record.time_unit or "time units"
     lines = []
     for r in results:
-        lines.append(f"{r.record.source}: {r.model.describe(results[0].record.time_unit or '')}")
+        units = fit_units(r)
+        lines.append(f"{r.record.source}: {describe_fit(r)}")
         lines.append(f"  method {r.method}, 95 % intervals by {r.ci_method}, "
-                     f"RMSE {r.rmse:.4g}, sample time {r.record.sample_time:g} {unit}")
+                     f"RMSE {r.rmse:.4g} {units['output']}, sample time "
+                     f"{r.record.sample_time:g} {units['time']}")
         for name, est in r.estimates.items():
             ci = "" if est.ci95 is None else f"   95 % CI [{est.ci95[0]:.4g}, {est.ci95[1]:.4g}]"
-            lines.append(f"  {name:<16}{est.value:>12.4g}{ci}")
+            lines.append(f"  {name:<16}{est.value:>12.4g}{ci}   {units[name]}")
     lines.append(f"Proposed uncertainty ({len(results)} file(s), times in {unit}):")
     for name, proposal in proposals.items():
         text = (json.dumps(proposal.to_dict()) if proposal.has_spread

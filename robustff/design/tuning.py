@@ -55,6 +55,7 @@ __all__ = [
     "design_feedforward",
     "design_loop",
     "series_to_ideal",
+    "per_unit",
     "half_rule",
     "DERIVATIVE_FILTER_FRACTION",
 ]
@@ -181,6 +182,7 @@ class LoopDesign:
     def summary_lines(self, case: Case) -> list[str]:
         """Human-readable lines describing the design, with units from the case."""
         unit = case.time_unit
+        out_unit = case.signals.output.unit or "output units"
         fb, ff = self.feedback, self.feedforward
         lines = [
             f"Feedback ({fb.rule}): {fb.form.upper()} Kc = {fb.kc:.4g} "
@@ -191,7 +193,8 @@ class LoopDesign:
                 if math.isnan(fb.closed_loop_time)
                 else f", tau_c = {fb.closed_loop_time:.4g} {unit}"
             ),
-            f"  output limits {fb.output_low:g} .. {fb.output_high:g}, bias {fb.output_bias:g}; "
+            f"  output limits {fb.output_low:g} .. {fb.output_high:g} {out_unit}, bias "
+            f"{fb.output_bias:g} {out_unit}; "
             f"anti-windup: back-calculation, Tt = {fb.tracking_time:.4g} {unit}",
         ]
         if ff.structure == "none":
@@ -199,11 +202,19 @@ class LoopDesign:
         else:
             lines.append(
                 f"Feedforward ({ff.structure}): gain = {ff.gain:.4g} "
+                f"{per_unit(out_unit, case.signals.disturbance.unit or 'disturbance unit')} "
                 f"(gain factor {ff.gain_factor:g}), lead = {ff.lead:.4g} {unit}, "
                 f"lag = {ff.lag:.4g} {unit}, delay = {ff.delay:.4g} {unit}"
             )
         lines.extend(f"  note: {note}" for note in self.notes)
         return lines
+
+
+def per_unit(numerator: str, denominator: str) -> str:
+    """``"%/(m3/h)"``: a unit per another, the denominator bracketed when it is compound."""
+    if any(mark in denominator for mark in "/* "):
+        denominator = f"({denominator})"
+    return f"{numerator}/{denominator}"
 
 
 def series_to_ideal(kc: float, ti: float, td: float) -> tuple[float, float, float]:
@@ -358,7 +369,8 @@ def tune_feedback(
 
 
 def design_feedforward(
-    process: TransferModel, disturbance: TransferModel, spec: FeedforwardSpec, step: float
+    process: TransferModel, disturbance: TransferModel, spec: FeedforwardSpec, step: float,
+    time_unit: str = "",
 ) -> tuple[FeedforwardSettings, list[str]]:
     """Reduce the ideal compensator ``-Gd/Gp`` to the chosen structure.
 
@@ -373,9 +385,11 @@ def design_feedforward(
       differentiator or an integrator): a :class:`DesignError` unless the structure is "none".
 
     Explicit ``lead``, ``lag`` and ``delay`` in the spec replace the designed values.
+    ``time_unit`` is only written into the notes.
     """
     notes: list[str] = []
     structure = spec.structure
+    unit = f" {time_unit}" if time_unit else ""
     if structure == "none":
         return FeedforwardSettings("none", 0.0, 0.0, 0.0, 0.0, spec.gain_factor), notes
     if process.integrating != disturbance.integrating:
@@ -392,14 +406,15 @@ def design_feedforward(
         if lag <= 0.0 and lead > 0.0:
             lag = max(0.1 * lead, step)
             notes.append(
-                f"disturbance path has no lag: compensator lag set to {lag:g} to keep it proper"
+                f"disturbance path has no lag: compensator lag set to {lag:g}{unit} to keep it "
+                "proper"
             )
     shortfall = process.dead_time - disturbance.dead_time
     if structure == "lead-lag-delay":
         if shortfall > 0.0 and spec.delay is None:
             notes.append(
                 "the disturbance dead time is shorter than the process dead time by "
-                f"{shortfall:g}: "
+                f"{shortfall:g}{unit}: "
                 "the ideal delay is negative, not realizable; delay dropped"
             )
         elif shortfall <= 0.0:
@@ -437,7 +452,7 @@ def design_loop(case: Case) -> LoopDesign:
     """Feedback and feedforward designs for a case, from its nominal models."""
     feedback, notes = tune_feedback(case.process, case.feedback, case.simulation.step)
     feedforward, ff_notes = design_feedforward(
-        case.process, case.disturbance, case.feedforward, case.simulation.step
+        case.process, case.disturbance, case.feedforward, case.simulation.step, case.time_unit
     )
     if case.sensor.time_constant > 0.0 and feedforward.active:
         ff_notes.append("the transmitter lag is not compensated by the design (it is simulated)")

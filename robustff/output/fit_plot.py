@@ -15,6 +15,7 @@ import numpy as np
 
 from robustff.errors import DataError
 from robustff.fit.least_squares import FitResult
+from robustff.fit.result import describe_fit, fit_units
 
 __all__ = ["PLOT_SUFFIXES", "save_fit_plot", "terminal_fit_plot"]
 
@@ -62,9 +63,11 @@ def save_fit_plot(
 def _draw_one(top: Any, bottom: Any, result: FitResult, unit: str) -> None:
     rec, model = result.record, result.model
     top.plot(rec.times, rec.output, ".", ms=3, color="0.45", label="data")
+    units = fit_units(result)
     top.plot(rec.times, result.fitted, "-", lw=1.8, color="C0",
-             label=f"{model.kind.upper()} fit (RMSE {result.rmse:.3g})")
-    top.set_title(f"{Path(rec.source).name}\n{model.describe()}", fontsize=8)
+             label=f"{model.kind.upper()} fit (RMSE {result.rmse:.3g} {units['output']})")
+    description = describe_fit(result).replace("), ", ")\n", 1)  # the gain on its own line
+    top.set_title(f"{Path(rec.source).name}\n{description}", fontsize=8)
     top.set_ylabel(rec.output_name)
     top.legend(fontsize=8)
     top.grid(alpha=0.3)

@@ -1,4 +1,5 @@
-"""Exports of a study: ``summary.json``, ``percentiles.csv``, ``percentiles.md``, ``samples.csv``.
+"""Exports of a study: ``summary.json``, ``percentiles.csv``, ``percentiles.md``, ``samples.csv``
+and ``samples-units.csv`` (the unit of each samples column).
 
 All files of one run are written into a fresh temporary folder beside the destination, which then
 replaces the destination in one rename, so a folder never mixes files of two runs and an
@@ -24,6 +25,7 @@ from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
 from robustff.jsonvalues import json_safe
 from robustff.output.samples_file import sample_columns, samples_file_name, write_samples
+from robustff.output.samples_units import SAMPLES_UNITS_FILE, samples_units_csv
 from robustff.study import StudyResult
 from robustff.study.summary_types import ARMS, Summary, percentile_value
 
@@ -38,7 +40,8 @@ __all__ = [
     "json_safe",
 ]
 
-RESULT_FILES: tuple[str, ...] = ("summary.json", "percentiles.csv", "percentiles.md", "samples.csv")
+RESULT_FILES: tuple[str, ...] = ("summary.json", "percentiles.csv", "percentiles.md", "samples.csv",
+                                 SAMPLES_UNITS_FILE)
 #: Written instead of ``samples.csv`` when asked for (``--samples-format npy``).
 OPTIONAL_RESULT_FILES: tuple[str, ...] = ("samples.npy",)
 _ARM_LABELS = {"fb": "feedback only", "fbff": "feedback + feedforward"}
@@ -206,6 +209,7 @@ def write_results(
         write_text_atomic(staging / "percentiles.csv", percentiles_csv(summary, percentiles))
         write_text_atomic(staging / "percentiles.md", percentiles_markdown(summary, percentiles))
         write_samples(staging, sample_columns(result), samples_format)
+        write_text_atomic(staging / SAMPLES_UNITS_FILE, samples_units_csv(result, summary))
         if extra is not None:
             extra(staging)
         _replace_folder(staging, folder)

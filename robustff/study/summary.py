@@ -104,6 +104,8 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummar
     out = cast(MarginsSummary, result.margins.summary(percentiles, batch=batch))
     nominal = result.nominal_margins
     out["samples"] = subset
+    out["units"] = {"gain_margin": "-", "phase_margin": "deg",
+                    "delay_margin": result.case.time_unit, "ms": "-"}
     nominal_values: NominalMargins = {
         "gain_margin": float(nominal.gain_margin[0]),
         "phase_margin": float(nominal.phase_margin[0]),

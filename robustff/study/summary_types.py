@@ -35,6 +35,7 @@ __all__ = [
     "FractionBelowLimits",
     "NominalMargins",
     "MarginsSummary",
+    "MarginUnits",
     "FeedbackDesign",
     "FeedforwardDesign",
     "DesignDict",
@@ -143,6 +144,15 @@ class NominalMargins(TypedDict):
     stable: bool
 
 
+class MarginUnits(TypedDict):
+    """Unit of each margin, as written in ``summary.json``."""
+
+    gain_margin: str  #: "-" (a ratio)
+    phase_margin: str  #: "deg"
+    delay_margin: str  #: the case's time unit
+    ms: str  #: "-" (a ratio)
+
+
 class MarginsSummary(TypedDict):
     """Feedback stability margins (exact dead time) of the first margin samples."""
 
@@ -150,6 +160,7 @@ class MarginsSummary(TypedDict):
     phase_margin: MarginDistribution  #: degrees
     delay_margin: MarginDistribution  #: time units
     ms: MarginDistribution  #: dimensionless
+    units: MarginUnits
     fraction_below_limits: FractionBelowLimits
     unstable: int  #: unstable feedback loops
     unstable_samples: list[int]  #: indices of the first unstable samples

@@ -192,6 +192,7 @@ def _margins_schema() -> dict[str, Any]:
         (types.NominalMargins, lambda: _margins_schema()["properties"]["nominal"]),
         (types.FractionBelowLimits,
          lambda: _margins_schema()["properties"]["fraction_below_limits"]),
+        (types.MarginUnits, lambda: _margins_schema()["properties"]["units"]),
         (types.DesignDict, lambda: SCHEMA["properties"]["design"]),
         (types.FeedbackDesign, lambda: SCHEMA["properties"]["design"]["properties"]["feedback"]),
         (types.FeedforwardDesign,
