@@ -1,10 +1,11 @@
 """The study runner: a case in, per-sample results of the whole Monte Carlo out.
 
 The samples are drawn once for the whole study (same case and seed, same samples), split into
-chunks of a fixed size, and the chunks are simulated in parallel with joblib (threads locally:
-the compiled kernel releases the GIL; or a Dask cluster through joblib's dask backend). Each
-chunk's noise seeds come from ``numpy.random.SeedSequence(seed).spawn`` by chunk index, so the
-results are bit-identical whatever the number of jobs. Memory per chunk is bounded by the chunk
+chunks of a fixed size, and the chunks are simulated in parallel: joblib threads locally (the
+compiled kernel releases the GIL), or Dask futures on a cluster, which survive a lost worker
+(:mod:`robustff.study.cluster`). Each chunk's noise seeds come from
+``numpy.random.SeedSequence(seed).spawn`` by chunk index, so the results are bit-identical
+whatever the number of jobs. Memory per chunk is bounded by the chunk
 size; only per-sample metrics (a few numbers each) are kept for the whole study.
 
 Progress and cancellation cross to the shells as a plain callable and a ``threading.Event``.
@@ -32,7 +33,7 @@ from robustff.engine import (
     simulate,
 )
 from robustff.engine.metrics import METRIC_NAMES
-from robustff.errors import RobustffError
+from robustff.study.cluster import cluster_results
 
 __all__ = ["StudyResult", "DesignArm", "run_study", "noise_seeds", "chunk_spans", "CHUNK_SIZE",
            "ProgressCallback"]
@@ -208,16 +209,8 @@ def _parallel_results(tasks: list, jobs: int, cluster: str | None) -> Iterator:
     if cluster is None:
         yield from joblib.Parallel(n_jobs=jobs, prefer="threads", return_as="generator")(tasks)
         return
-    from distributed import Client  # the "cluster" extra
-
-    try:
-        client = Client(cluster, timeout=30)
-    except (OSError, ValueError) as exc:
-        raise RobustffError(
-            f"--cluster {cluster}: cannot connect to the scheduler ({exc})"
-        ) from None
-    with client, joblib.parallel_config(backend="dask", wait_for_workers_timeout=30):
-        yield from joblib.Parallel(return_as="generator")(tasks)
+    # Chunks as Dask futures: a lost worker's chunks are rerun elsewhere (robustff.study.cluster).
+    yield from cluster_results(tasks, cluster)
 
 
 def run_study(
