@@ -1,25 +1,43 @@
 """Stability margins of the feedback loop for every perturbed plant, with the exact dead time.
 
-The loop is ``L(jw) = C(jw) Gp(jw)`` with the process ``Gp`` of each sample (FOPDT, SOPDT or
-IPDT, delay ``exp(-j w theta)`` evaluated exactly, no Pade approximation) and the nominal
-controller in ideal form ``C = Kc (1 + 1/(j w Ti) + j w Td / (j w Tf + 1))``. The derivative acts
-on the measurement, which changes the set-point response but not the loop seen by the feedback,
-so the loop is that of an ideal PID with a filtered derivative.
+Two loops can be analysed:
 
-Per sample this module computes
+* the continuous loop ``L(jw) = C(jw) Gp(jw)`` with the process ``Gp`` of each sample (FOPDT,
+  SOPDT or IPDT, delay ``exp(-j w theta)`` evaluated exactly, no Pade approximation) and the
+  nominal controller in ideal form ``C = Kc (1 + 1/(j w Ti) + j w Td / (j w Tf + 1))`` (what a
+  continuous-time tuning rule promises);
+* with ``sample_time`` given, the loop as the simulation runs it: the controller sampled every
+  ``h`` with a zero-order hold on its output, analysed exactly as the discrete-time loop
+  ``L(exp(j w h))``, ``0 < w <= pi/h`` (:mod:`robustff.design.sampled_loop`). The hold and the
+  sampling add about half a sample of delay, so its margins are a little smaller and its
+  stability verdict is that of the simulated loop.
 
-* the gain margin, smallest ``1/|L|`` over the phase crossovers (``inf`` when there is none);
+The derivative acts on the measurement, which changes the set-point response but not the loop
+seen by the feedback. Per sample this module computes
+
+* the gain margin, the smallest ``1/|L|`` over all phase crossovers, the frequencies where ``L``
+  crosses the negative real axis (``arg L = -180 deg`` mod 360; for the sampled loop also
+  ``w = pi/h`` when ``L`` is negative there); ``inf`` only when there is no such crossing. This
+  is the factor by which the loop gain may grow before the Nyquist curve reaches -1 (Astrom and
+  Murray, "Feedback Systems", 2008, section 9.3, from memory, which takes the crossing at the
+  lowest frequency; with several crossings this module takes the smallest ``1/|L|`` of all,
+  the minimum of what python-control's ``stability_margins(..., returnall=True)`` lists);
 * the phase margin in degrees, smallest over the gain crossovers, ``(arg L mod 360) - 180``
   (the convention of python-control's ``stability_margins``);
 * the delay margin, smallest ``PM (rad, in [0, 2 pi)) / w_c`` over the gain crossovers (time
-  units; ``inf`` without crossover, NaN for an unstable loop);
+  units; ``inf`` without crossover, NaN for an unstable loop; for the sampled loop it is exact
+  for an added delay of whole samples);
 * ``Ms = max |1/(1 + L)|`` (``inf`` for an unstable loop: its sensitivity is unbounded);
 * a stability verdict from the Nyquist criterion (see :func:`_closed_loop_rhp_count`).
 
 Method: each sample gets its own log-spaced grid from well below the lowest crossover (where
 ``|L|`` exceeds 100 and its phase sits on its low-frequency asymptote) to where an upper bound of
-``|L|`` has fallen below 0.05. Crossovers found on the grid are refined by vectorised bisection on
-the analytic ``L`` (to ~1e-12 in log frequency) and ``Ms`` by a golden-section search. Samples are
+``|L|`` has fallen below 0.05 (the sampled loop: or ``pi/h``). Crossovers found on the grid are
+refined by vectorised bisection on the analytic ``L`` (to ~1e-12 in log frequency) and ``Ms`` by
+a golden-section search. Phase crossovers above the grid (gain margins above about 20) are
+searched on a second grid above it: with a dead time the phase must pass the next -180 deg level
+before a frequency that follows from a bound of the delay-free phase, and the search goes on
+while the bound of ``|L|`` still exceeds ``|L|`` at the best crossing found. Samples are
 processed in blocks of about 20 MB of complex arrays. Only numpy is imported. The result type
 and its JSON summary live in :mod:`robustff.design.margins_result`.
 """
@@ -37,6 +55,7 @@ from robustff.design.margins_result import (
     PHASE_MARGIN_LIMIT,
     MarginResult,
 )
+from robustff.design.sampled_loop import SampledLoop
 from robustff.design.tuning import FeedbackSettings
 from robustff.errors import DataError, DesignError
 from robustff.plant.kinds import model_kind
@@ -61,6 +80,10 @@ _BISECTIONS = 40
 _GOLDEN_STEPS = 40
 _MAX_DECADES = 14.0
 _MAX_DENSITY = 4000.0
+_FAR_ROUNDS = 4  # extensions of the search for phase crossovers above the grid
+_FAR_DECADES = 3.0  # no dead time: how far above the grid phase crossovers are sought
+_FINE_DECADES = 2.5  # sampled loops: decades below the grid top with the full density
+_COARSE_DENSITY = 40.0  # sampled loops: points per decade further down
 
 
 @dataclass(frozen=True)
@@ -155,6 +178,33 @@ def _high_frequency_gain(loop: _Loop) -> np.ndarray:
     return np.where(no_lag, direct * np.abs(loop.gain), 0.0)
 
 
+def _low_end(loop: _Loop | SampledLoop) -> np.ndarray:
+    """Bottom of each grid, rad per time unit, (n,): with integral action so low that ``|L| > 100``
+    there (the crossovers lie above), else three decades below the loop's slowest time."""
+    total = loop.tau1 + loop.tau2 + loop.theta + loop.td + loop.tf
+    total = total + (loop.ti if math.isfinite(loop.ti) else 0.0)
+    total = np.maximum(total, 1e-300)
+    low = 1e-3 / total
+    m = loop.integrators
+    if m:
+        coefficient = np.abs(loop.gain * loop.kc) / (loop.ti if math.isfinite(loop.ti) else 1.0)
+        coefficient = np.where(coefficient > 0.0, coefficient, 1.0)  # zero gain: open loop
+        low = np.minimum(low, (coefficient / _LOW_GAIN) ** (1.0 / m))
+    return low
+
+
+def _bound_falls_to(bound, log_low: np.ndarray, log_high: np.ndarray,
+                    target: np.ndarray) -> np.ndarray:
+    """Frequency in ``[exp(log_low), exp(log_high)]`` where the monotone ``bound(w)`` falls to
+    ``target``, (n,) (the top where it stays above), by bisection in log frequency."""
+    a, b = log_low.copy(), log_high
+    for _ in range(60):
+        mid = 0.5 * (a + b)
+        above = bound(np.exp(mid)) > target
+        a, b = np.where(above, mid, a), np.where(above, b, mid)
+    return np.exp(b)
+
+
 def _frequency_span(loop: _Loop) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Per-sample grid ends (rad per time unit) and grid densities (points per decade), (n,).
 
@@ -162,29 +212,30 @@ def _frequency_span(loop: _Loop) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     round and round: its grid goes on until the bound is within 1 % of ``h`` (of ``1 - h``) and
     is dense enough for about eight points per radian of delay phase.
     """
-    total = loop.tau1 + loop.tau2 + loop.theta + loop.td + loop.tf
-    total = total + (loop.ti if math.isfinite(loop.ti) else 0.0)
-    total = np.maximum(total, 1e-300)
-    low = 1e-3 / total
-    m = loop.integrators
-    if m:  # low enough that |L| > 100 there: the crossover lies above
-        coefficient = np.abs(loop.gain * loop.kc) / (loop.ti if math.isfinite(loop.ti) else 1.0)
-        coefficient = np.where(coefficient > 0.0, coefficient, 1.0)  # zero gain: open loop
-        low = np.minimum(low, (coefficient / _LOW_GAIN) ** (1.0 / m))
+    low = _low_end(loop)
     h = _high_frequency_gain(loop)
     lag_free = (h > 0.0) & (h < 1.0)
     target = np.where(lag_free, h + 0.01 * (1.0 - h), _HIGH_BOUND)
     log_low = np.log(low)
-    a, b = log_low.copy(), log_low + _MAX_DECADES * math.log(10.0)
-    for _ in range(60):  # bisection on the monotone bound, in log frequency
-        mid = 0.5 * (a + b)
-        above = _gain_bound(loop, np.exp(mid)) > target
-        a, b = np.where(above, mid, a), np.where(above, b, mid)
-    high = np.exp(b)
+    high = _bound_falls_to(lambda w: _gain_bound(loop, w), log_low,
+                           log_low + _MAX_DECADES * math.log(10.0), target)
     turning = 8.0 * math.log(10.0) * high * loop.theta
     density = np.where(lag_free, np.clip(turning, _POINTS_PER_DECADE, _MAX_DENSITY),
                        _POINTS_PER_DECADE)
     return low, high, density
+
+
+def _sampled_span(loop: SampledLoop) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Grid ends and densities of sampled loops: up to where the bound of ``|L|`` falls below
+    0.05 or to ``pi/h``, at least 160 points per decade and two per radian of delay phase at
+    the top (the negative-axis crossings are sign changes of ``Im L``: steps below pi)."""
+    low = np.minimum(_low_end(loop), 1e-3 * loop.nyquist)
+    nyquist = np.full_like(low, loop.nyquist)
+    high = _bound_falls_to(loop.bound, np.log(low), np.log(nyquist),
+                           np.full_like(low, _HIGH_BOUND))
+    high = np.minimum(high, nyquist)
+    turning = 2.0 * math.log(10.0) * high * (loop.theta + loop.h)
+    return low, high, np.clip(turning, _POINTS_PER_DECADE, _MAX_DENSITY)
 
 
 def _bisect(loop: _Loop, rows: np.ndarray, lo: np.ndarray, hi: np.ndarray, fun) -> np.ndarray:
@@ -240,8 +291,10 @@ def _closed_loop_rhp_count(loop: _Loop, angle: np.ndarray) -> np.ndarray:
     return 0.5 * m - (phase[:, -1] - phase[:, 0]) / np.pi
 
 
-def _peak_sensitivity(loop: _Loop, w: np.ndarray, sensitivity: np.ndarray) -> np.ndarray:
-    """``max |1/(1+L)|`` per sample: grid maximum refined by golden-section search in log w."""
+def _peak_sensitivity(loop: _Loop | SampledLoop, w: np.ndarray, sensitivity: np.ndarray,
+                      response, floor: np.ndarray) -> np.ndarray:
+    """``max |1/(1+L)|`` per sample: grid maximum refined by golden-section search in log w,
+    and at least ``floor`` (the limit of ``|S|`` beyond the grid), (n,)."""
     n, points = sensitivity.shape
     top = np.argmax(sensitivity, axis=1)
     log_w = np.log(w)
@@ -251,7 +304,7 @@ def _peak_sensitivity(loop: _Loop, w: np.ndarray, sensitivity: np.ndarray) -> np
     ratio = 0.5 * (math.sqrt(5.0) - 1.0)
 
     def value(x: np.ndarray) -> np.ndarray:
-        return 1.0 / np.abs(1.0 + _response(loop, np.exp(x)))
+        return 1.0 / np.abs(1.0 + response(loop, np.exp(x)))
 
     c, d = b - ratio * (b - a), a + ratio * (b - a)
     fc, fd = value(c), value(d)
@@ -261,8 +314,7 @@ def _peak_sensitivity(loop: _Loop, w: np.ndarray, sensitivity: np.ndarray) -> np
         c, d = b - ratio * (b - a), a + ratio * (b - a)
         fc, fd = value(c), value(d)
     peak = np.maximum(np.max(sensitivity, axis=1), np.maximum(fc, fd))
-    h = _high_frequency_gain(loop)  # |S| tends to up to 1/(1-h) at high frequency
-    return np.maximum(peak, np.where(h < 1.0, 1.0 / np.maximum(1.0 - h, 1e-300), np.inf))
+    return np.maximum(peak, floor)
 
 
 def _reduce_min(rows: np.ndarray, values: np.ndarray, n: int, empty: float) -> np.ndarray:
@@ -284,8 +336,9 @@ def _margins_block(loop: _Loop, w: np.ndarray) -> dict[str, np.ndarray]:
     p_rows, w_pc = _phase_crossovers(loop, w, phase)
     with np.errstate(divide="ignore"):
         gm = 1.0 / _polar(loop.pick(p_rows), w_pc)[0]
-    ms = _peak_sensitivity(loop, w, 1.0 / np.hypot(*one_plus))
     h = _high_frequency_gain(loop)  # lag-free: crossings go on, with |L| falling towards h
+    floor = np.where(h < 1.0, 1.0 / np.maximum(1.0 - h, 1e-300), np.inf)  # |S| -> 1/(1-h)
+    ms = _peak_sensitivity(loop, w, 1.0 / np.hypot(*one_plus), _response, floor)
     out = {
         "gain_margin": np.minimum(_reduce_min(p_rows, gm, n, np.inf),
                                   np.where(h > 0.0, 1.0 / np.where(h > 0.0, h, 1.0), np.inf)),
@@ -297,6 +350,137 @@ def _margins_block(loop: _Loop, w: np.ndarray) -> dict[str, np.ndarray]:
     }
     out["delay_margin"] = np.where(stable, out["delay_margin"], np.nan)
     return out
+
+
+def _phase_upper_bound(loop: _Loop, w: np.ndarray) -> np.ndarray:
+    """Upper bound of the delay-free part of the phase of ``L(jv)`` for all ``v >= w``, rad (n,).
+
+    ``arg C <= atan(Td/(2 Tf))`` (real part >= 1, imaginary part at most ``Td/(2 Tf)``; 0 for
+    a PI), each lag's ``-atan(v tau)`` only falls, the integrator adds -90 deg.
+    """
+    base = np.where(loop.gain * loop.kc > 0.0, 0.0, np.pi)
+    controller = math.atan(loop.td / (2.0 * loop.tf)) if loop.td > 0.0 else 0.0
+    lags = np.arctan(w * loop.tau1) + np.arctan(w * loop.tau2)
+    return base + controller - lags - (0.5 * np.pi if loop.integrating else 0.0)
+
+
+def _far_gain_margin(loop: _Loop, top: np.ndarray, gm: np.ndarray) -> np.ndarray:
+    """Gain margins with the phase crossovers above the grid tops ``top`` included, (n,).
+
+    A crossover above ``top`` has ``|L| <= bound(top)`` (about 0.05), so only samples whose best
+    crossover so far has a smaller ``|L|`` (gain margin above about 20, or none) are searched.
+    With a dead time the phase, at most ``U - w theta`` (:func:`_phase_upper_bound`), falls below
+    the next -180 deg level below its value at ``top`` before ``w = (U - level)/theta``, so that
+    range holds a crossover; the search is extended while the bound of ``|L|`` at its end is
+    above ``|L|`` at the best crossover found. Without dead time the phase settles on its
+    asymptote: the search covers three decades above the grid.
+    """
+    gm = gm.copy()
+    with np.errstate(divide="ignore"):
+        level = np.where(np.isfinite(gm), 1.0 / gm, 0.0)  # |L| at the best crossover
+    rows = np.nonzero((_high_frequency_gain(loop) == 0.0) & (level < _gain_bound(loop, top)))[0]
+    if rows.size == 0:
+        return gm
+    sub, start = loop.pick(rows), top[rows]
+    phase = _phase(sub, start)
+    target = -np.pi + 2.0 * np.pi * np.floor((phase + np.pi) / (2.0 * np.pi))
+    delay = sub.theta > 0.0
+    reach = (_phase_upper_bound(sub, start) - target) / np.where(delay, sub.theta, 1.0)
+    end = np.where(delay, np.maximum(1.01 * reach, 1.001 * start),
+                   start * 10.0 ** _FAR_DECADES)
+    found = gm[rows]
+    active = np.arange(rows.size)
+    for _ in range(_FAR_ROUNDS):
+        part = sub.pick(active)
+        density = np.clip(2.0 * math.log(10.0) * end[active] * part.theta, _POINTS_PER_DECADE,
+                          _MAX_DENSITY)
+        w = _grid(start[active], end[active], density)
+        p_rows, w_pc = _phase_crossovers(part, w, _phase(part, w))
+        with np.errstate(divide="ignore"):
+            far = 1.0 / _polar(part.pick(p_rows), w_pc)[0]
+        found[active] = np.minimum(found[active], _reduce_min(p_rows, far, active.size, np.inf))
+        best = np.where(np.isfinite(found[active]), 1.0 / found[active], 0.0)
+        more = (best > 0.0) & (best < _gain_bound(part, end[active])) & (part.theta > 0.0)
+        if not np.any(more):
+            break
+        active, best = active[more], best[more]
+        start_next = end[active]
+        log_start = np.log(start_next)
+        end[active] = _bound_falls_to(lambda x, a=active: _gain_bound(sub.pick(a), x),
+                                      log_start, log_start + _MAX_DECADES * math.log(10.0), best)
+        start[active] = start_next
+    gm[rows] = found
+    return gm
+
+
+def _axis_crossings(loop: SampledLoop, w: np.ndarray, imag: np.ndarray):
+    """Crossings of the negative real axis between grid points, found as sign changes of
+    ``Im L`` (``imag`` on the grid) where ``Re L < 0``: (rows, frequencies, values of L)."""
+    positive = imag > 0.0
+    rows, cols = np.nonzero(positive[:, :-1] != positive[:, 1:])
+    log_w = np.log(w)
+    freq = _bisect(loop, rows, log_w[rows, cols], log_w[rows, cols + 1],
+                   lambda sub, x: sub.rectangular(x)[1])
+    value = loop.pick(rows).response(freq)
+    negative = value.real < 0.0
+    return rows[negative], freq[negative], value[negative]
+
+
+def _sampled_response(loop: SampledLoop, w: np.ndarray) -> np.ndarray:
+    return loop.response(w)
+
+
+def _sampled_block(loop: SampledLoop, w: np.ndarray) -> dict[str, np.ndarray]:
+    """Margins of sampled loops for one block; ``w`` (n, F) increasing, last column ``pi/h``."""
+    n = loop.gain.shape[0]
+    real, imag = loop.rectangular(w)
+    magnitude = np.sqrt(real * real + imag * imag)
+    rhp = _closed_loop_rhp_count(loop, np.arctan2(imag, 1.0 + real))
+    stable = (np.round(rhp) == 0) & (loop.gain != 0.0)
+    above = magnitude > 1.0
+    g_rows, g_cols = np.nonzero(above[:, :-1] != above[:, 1:])
+    log_w = np.log(w)
+    w_gc = _bisect(loop, g_rows, log_w[g_rows, g_cols], log_w[g_rows, g_cols + 1],
+                   lambda sub, x: np.log(sub.magnitude(x)))
+    pm = np.remainder(np.degrees(loop.pick(g_rows).polar(w_gc)[1]), 360.0) - 180.0
+    delay = np.remainder(np.radians(pm), 2.0 * np.pi) / w_gc
+    p_rows, _, value = _axis_crossings(loop, w, imag)
+    with np.errstate(divide="ignore"):
+        gm = _reduce_min(p_rows, 1.0 / np.abs(value), n, np.inf)
+        # L is real at w = pi/h: a crossing when negative
+        gm = np.minimum(gm, np.where(real[:, -1] < 0.0, 1.0 / magnitude[:, -1], np.inf))
+    one_re = 1.0 + real
+    ms = _peak_sensitivity(loop, w, 1.0 / np.sqrt(one_re * one_re + imag * imag),
+                           _sampled_response,
+                           np.zeros(n))
+    return {
+        "gain_margin": gm,
+        "phase_margin": _reduce_min(g_rows, pm, n, np.inf),
+        "delay_margin": np.where(stable, _reduce_min(g_rows, delay, n, np.inf), np.nan),
+        "ms": np.where(stable, ms, np.inf),
+        "stable": stable,
+        "rhp_count": rhp,
+    }
+
+
+def _far_sampled_gain_margin(loop: SampledLoop, top: np.ndarray, gm: np.ndarray) -> np.ndarray:
+    """Gain margins of sampled loops with the crossings between the grid top and ``pi/h``."""
+    gm = gm.copy()
+    with np.errstate(divide="ignore"):
+        level = np.where(np.isfinite(gm), 1.0 / gm, 0.0)
+    rows = np.nonzero((top < loop.nyquist) & (level < loop.bound(top)))[0]
+    if rows.size == 0:
+        return gm
+    sub, start = loop.pick(rows), top[rows]
+    end = np.full_like(start, loop.nyquist)
+    density = np.clip(4.0 * math.log(10.0) * end * (sub.theta + sub.h), _POINTS_PER_DECADE,
+                      _MAX_DENSITY)
+    w = np.minimum(_grid(start, end, density), loop.nyquist)
+    p_rows, _, value = _axis_crossings(sub, w, sub.rectangular(w)[1])
+    with np.errstate(divide="ignore"):
+        far = _reduce_min(p_rows, 1.0 / np.abs(value), rows.size, np.inf)
+    gm[rows] = np.minimum(gm[rows], far)
+    return gm
 
 
 def _grid_points(low: np.ndarray, high: np.ndarray, density: np.ndarray) -> int:
@@ -325,6 +509,45 @@ def _run_block(loop: _Loop, omega: np.ndarray | None) -> dict[str, np.ndarray]:
         again = _margins_block(loop.pick(rows), fine)
         for key, values in again.items():
             out[key][rows] = values
+    out["gain_margin"] = _far_gain_margin(loop, high, out["gain_margin"])
+    return out
+
+
+def _sampled_grid(loop: SampledLoop, low: np.ndarray, high: np.ndarray,
+                  density: np.ndarray) -> np.ndarray:
+    """Grids (n, F) for sampled loops, the last column ``pi/h``.
+
+    The top :data:`_FINE_DECADES` decades below ``high`` (where the crossovers and the peak of
+    ``|S|`` lie: ``|L|`` is still above 1 there at the lowest crossover of a single or double
+    integrator) get ``density`` points per decade; the decades below, where ``|L| >> 1`` and
+    the phase only follows the slow lag and integral corners (at most about 1.2 rad per decade
+    each), get :data:`_COARSE_DENSITY`.
+    """
+    split = np.maximum(low, high * 10.0 ** -_FINE_DECADES)
+    coarse = _grid_points(low, split, np.full_like(low, _COARSE_DENSITY))
+    fine = _grid_points(split, high, density)
+    w = np.empty((low.shape[0], coarse + fine + 1))
+    t = np.linspace(0.0, 1.0, coarse + 1)[:-1]
+    np.exp(np.log(low)[:, None] + np.outer(np.log(split / low), t), out=w[:, :coarse])
+    t = np.linspace(0.0, 1.0, fine)
+    np.exp(np.log(split)[:, None] + np.outer(np.log(high / split), t), out=w[:, coarse:-1])
+    np.minimum(w, loop.nyquist, out=w)
+    w[:, -1] = loop.nyquist
+    return w
+
+
+def _run_sampled_block(loop: SampledLoop) -> dict[str, np.ndarray]:
+    low, high, density = _sampled_span(loop)
+    out = _sampled_block(loop, _sampled_grid(loop, low, high, density))
+    doubtful = np.abs(out["rhp_count"] - np.round(out["rhp_count"])) > 0.2
+    if np.any(doubtful):
+        rows = np.nonzero(doubtful)[0]
+        sub = loop.pick(rows)
+        again = _sampled_block(sub, _sampled_grid(sub, low[rows], high[rows],
+                                                  4.0 * density[rows]))
+        for key, values in again.items():
+            out[key][rows] = values
+    out["gain_margin"] = _far_sampled_gain_margin(loop, high, out["gain_margin"])
     return out
 
 
@@ -366,8 +589,25 @@ def _block_rows(points: int) -> int:
     return max(1, _BLOCK_BYTES // (_BYTES_PER_POINT * max(points, 1)))
 
 
+def _sampled_from(loop: _Loop, sample_time: float) -> SampledLoop:
+    h = float(sample_time)
+    if not (math.isfinite(h) and h > 0.0):
+        raise DesignError(f"loop margins: the controller sample time must be a positive number "
+                          f"of time units, got {sample_time!r}")
+    return SampledLoop(loop.gain, loop.tau1, loop.tau2, loop.theta, loop.integrating, loop.kc,
+                       loop.ti, loop.td, loop.tf, h)
+
+
+def _joined(parts: list[dict[str, np.ndarray]]) -> MarginResult:
+    joined = {key: np.concatenate([p[key] for p in parts]) for key in parts[0]} if parts else {}
+    keys = ("gain_margin", "phase_margin", "delay_margin", "ms")
+    arrays = {k: joined.get(k, np.zeros(0)) for k in keys}
+    return MarginResult(**arrays, stable=joined.get("stable", np.zeros(0)).astype(bool))
+
+
 def loop_margins(
-    batch: PlantBatch, feedback: FeedbackSettings, *, omega: np.ndarray | None = None
+    batch: PlantBatch, feedback: FeedbackSettings, *, omega: np.ndarray | None = None,
+    sample_time: float | None = None,
 ) -> MarginResult:
     """Gain, phase and delay margins, Ms and stability of the feedback loop of every sample.
 
@@ -380,9 +620,13 @@ def loop_margins(
         and ``filter_time``, time units.
     omega : ndarray, shape (F,), optional
         One increasing frequency grid (rad per time unit) for all samples instead of the
-        adaptive per-sample grids. It must reach below the lowest and above the highest
-        crossover (``|L| >> 1`` at its first point, ``|L| < 1`` from its last point on), or
-        crossovers are missed and the stability count is wrong.
+        adaptive per-sample grids (continuous loop only). It must reach below the lowest and
+        above the highest crossover (``|L| >> 1`` at its first point, ``|L| < 1`` from its last
+        point on), or crossovers are missed and the stability count is wrong.
+    sample_time : float, optional
+        Controller sample time ``h``, time units. Given, the margins are those of the loop as
+        the simulation runs it (controller sampled every ``h``, output held; see
+        :mod:`robustff.design.sampled_loop`); omitted, those of the continuous loop.
 
     Returns
     -------
@@ -392,12 +636,21 @@ def loop_margins(
     Raises
     ------
     DesignError
-        Controller settings that give no proper loop (Kc = 0, Ti <= 0, an unfiltered derivative).
+        Controller settings that give no proper loop (Kc = 0, Ti <= 0, an unfiltered derivative),
+        a sample time that is not a positive number, or ``omega`` with ``sample_time``.
     DataError
         Negative or non-finite time constants or dead times in the batch.
     """
     loop = _loop_from(batch, feedback)
     n = loop.gain.shape[0]
+    if sample_time is not None:
+        if omega is not None:
+            raise DesignError("loop margins: a common frequency grid (omega) is for the "
+                              "continuous loop only; the sampled loop uses its own grids")
+        sampled = _sampled_from(loop, sample_time)
+        step = _block_rows(_grid_points(*_sampled_span(sampled)))
+        return _joined([_run_sampled_block(sampled.pick(slice(i, i + step)))
+                        for i in range(0, n, step)])
     if omega is not None:
         omega = np.asarray(omega, dtype=np.float64)
         if omega.ndim != 1 or omega.size < 2 or np.any(omega <= 0) or np.any(np.diff(omega) <= 0):
@@ -406,20 +659,21 @@ def loop_margins(
         step = _block_rows(omega.size)
     else:
         step = _block_rows(_grid_points(*_frequency_span(loop)))
-    parts = [_run_block(loop.pick(slice(i, i + step)), omega) for i in range(0, n, step)]
-    joined = {key: np.concatenate([p[key] for p in parts]) for key in parts[0]} if parts else {}
-    keys = ("gain_margin", "phase_margin", "delay_margin", "ms")
-    arrays = {k: joined.get(k, np.zeros(0)) for k in keys}
-    return MarginResult(**arrays, stable=joined.get("stable", np.zeros(0)).astype(bool))
+    return _joined([_run_block(loop.pick(slice(i, i + step)), omega) for i in range(0, n, step)])
 
 
-def model_margins(process: TransferModel, feedback: FeedbackSettings) -> MarginResult:
-    """Margins of one loop (e.g. the nominal design); arrays of shape (1,)."""
-    return loop_margins(_single_batch(process), feedback)
+def model_margins(process: TransferModel, feedback: FeedbackSettings,
+                  sample_time: float | None = None) -> MarginResult:
+    """Margins of one loop (e.g. the nominal design); arrays of shape (1,).
+
+    ``sample_time`` (time units): the sampled loop, as in :func:`loop_margins`.
+    """
+    return loop_margins(_single_batch(process), feedback, sample_time=sample_time)
 
 
-def loop_response(batch: PlantBatch, feedback: FeedbackSettings, omega: np.ndarray) -> np.ndarray:
-    """Loop frequency response ``L(jw)`` with the exact dead time.
+def loop_response(batch: PlantBatch, feedback: FeedbackSettings, omega: np.ndarray,
+                  sample_time: float | None = None) -> np.ndarray:
+    """Loop frequency response with the exact dead time.
 
     Parameters
     ----------
@@ -428,7 +682,10 @@ def loop_response(batch: PlantBatch, feedback: FeedbackSettings, omega: np.ndarr
     feedback : FeedbackSettings
         Controller settings.
     omega : ndarray, shape (F,)
-        Frequencies, rad per time unit.
+        Frequencies, rad per time unit (for the sampled loop at most ``pi/h``).
+    sample_time : float, optional
+        Controller sample time ``h``, time units: the sampled loop ``L(exp(j w h))`` instead of
+        the continuous ``L(j w)``.
 
     Returns
     -------
@@ -436,6 +693,8 @@ def loop_response(batch: PlantBatch, feedback: FeedbackSettings, omega: np.ndarr
     """
     loop = _loop_from(batch, feedback)
     w = np.broadcast_to(np.asarray(omega, dtype=np.float64), (loop.gain.shape[0], len(omega)))
+    if sample_time is not None:
+        return _sampled_from(loop, sample_time).response(w)
     return _response(loop, w)
 
 
