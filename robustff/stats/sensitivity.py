@@ -1,7 +1,8 @@
 """Which uncertain parameter drives the result: rank correlations and Sobol indices.
 
-Pure functions on arrays (samples along axis 0); ``scipy.stats`` is imported inside the functions
-because its import is slow (about 0.7 s) and the ``run`` path does not always need it.
+Pure functions on arrays (samples along axis 0); ``scipy.stats`` (slow to import, 0.4 to 0.7 s)
+only inside :func:`sobol_first_total`: the ranks of the ``run`` path's rank correlations are
+computed with numpy (:func:`average_ranks`).
 """
 
 from __future__ import annotations
@@ -15,7 +16,8 @@ import numpy as np
 from robustff.errors import DataError
 from robustff.jsonvalues import json_float
 
-__all__ = ["SensitivityRow", "spearman_with_interval", "rank_sensitivity", "sobol_first_total"]
+__all__ = ["SensitivityRow", "spearman_with_interval", "rank_sensitivity", "sobol_first_total",
+           "average_ranks"]
 
 # Standard error of Fisher's z of a Spearman coefficient: 1.06 / sqrt(n - 3).
 # Source: Fieller, Hartley and Pearson, "Tests for rank correlation coefficients. I",
@@ -86,13 +88,12 @@ def spearman_with_interval(
         ``atanh(rho) +- z * 1.06 / sqrt(n - 3)`` back-transformed with ``tanh``.
     """
     from scipy.special import ndtri
-    from scipy.stats import rankdata
 
     n = x.size
     nan = float("nan")
     if n < 3:
         return nan, nan, nan
-    rx, ry = rankdata(x), rankdata(y)
+    rx, ry = average_ranks(x), average_ranks(y)
     rx, ry = rx - rx.mean(), ry - ry.mean()
     denom = math.sqrt(float(np.dot(rx, rx)) * float(np.dot(ry, ry)))
     if denom == 0.0:
@@ -103,6 +104,26 @@ def spearman_with_interval(
     z = math.atanh(float(np.clip(rho, -1 + 1e-15, 1 - 1e-15)))
     half = float(ndtri(0.5 + confidence / 2)) * _SPEARMAN_SE_FACTOR / math.sqrt(n - 3)
     return rho, math.tanh(z - half), math.tanh(z + half)
+
+
+def average_ranks(values: np.ndarray) -> np.ndarray:
+    """1-based ranks of ``values`` (shape (n,)), ties sharing the mean of their ranks.
+
+    The same numbers as ``scipy.stats.rankdata(values)`` (method "average"; all NaN when any
+    value is NaN), with numpy alone: the ``run`` path then does not import ``scipy.stats``.
+    """
+    data = np.asarray(values, dtype=np.float64).ravel()
+    n = data.size
+    if n and np.isnan(data).any():
+        return np.full(n, np.nan)
+    order = np.argsort(data, kind="mergesort")
+    ordered = data[order]
+    starts = np.flatnonzero(np.r_[True, ordered[1:] != ordered[:-1]]) if n else np.empty(0, int)
+    counts = np.diff(np.r_[starts, n])
+    group = np.repeat(np.arange(starts.size), counts)
+    ranks = np.empty(n, dtype=np.float64)
+    ranks[order] = (starts + (counts + 1) / 2.0)[group]
+    return ranks
 
 
 def _check_inputs(
