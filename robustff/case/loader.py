@@ -245,7 +245,12 @@ def _read_feedforward(
         lead=table.number("lead", None, minimum=0.0),
         lag=table.number("lag", None, minimum=0.0),
         delay=table.number("delay", None, minimum=0.0),
+        input_filter=table.number(
+            "input_filter", None, minimum=0.0,
+            what=f"the filter time constant on the feedforward input, {_UNIT}"),
     )
+    if structure == "none":
+        table.forbid("input_filter", "used only with a feedforward (structure is 'none')")
     if structure is not None and structure not in ("lead-lag", "lead-lag-delay"):
         for key in ("lead", "lag"):
             table.forbid(key, f"used only with structure 'lead-lag' or 'lead-lag-delay' "
@@ -344,9 +349,10 @@ def _read_simulation(problems: Problems, raw: dict[str, Any]) -> SimulationSpec 
     if table is None:
         return None
     before = len(problems)
-    table.check_keys(("duration", "step"))
+    table.check_keys(("duration", "step", "substeps"))
     duration = table.number("duration", positive=True, what=f"the simulated window, {_UNIT}")
-    step = table.number("step", positive=True, what=f"the controller sample time, {_UNIT}")
+    step = table.number("step", positive=True, what=f"the controller's scan period, {_UNIT}")
+    substeps = table.integer("substeps", 1, 1, 1000)
     if duration is not None and step is not None:
         if duration <= step:
             problems.add("simulation.duration", f"must be longer than the step ({step:g})",
@@ -358,9 +364,16 @@ def _read_simulation(problems: Problems, raw: dict[str, Any]) -> SimulationSpec 
                 "allowed (use a longer step or a shorter duration)",
                 step,
             )
-    if len(problems) > before or duration is None or step is None:
+        elif substeps is not None and duration / step * substeps > MAX_STEPS:
+            problems.add(
+                "simulation.substeps",
+                f"gives {duration / step * substeps:,.0f} internal steps in the window; at most "
+                f"{MAX_STEPS:,} are allowed (fewer substeps, or a shorter duration)",
+                substeps,
+            )
+    if len(problems) > before or duration is None or step is None or substeps is None:
         return None
-    return SimulationSpec(duration, step)
+    return SimulationSpec(duration, step, substeps)
 
 
 def _read_events(

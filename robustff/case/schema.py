@@ -85,6 +85,10 @@ class FeedforwardSpec:
     lead, lag, delay : float or None
         Optional explicit lead time, lag time and added delay (time units) that replace the
         model-based design values (written by ``robustff tune``).
+    input_filter : float or None
+        Time constant of a first-order filter on the measured disturbance before the
+        compensator, time units (None: no filter). Keeps transmitter noise off the valve at the
+        cost of a slower feedforward.
     """
 
     structure: str = "none"
@@ -92,6 +96,7 @@ class FeedforwardSpec:
     lead: float | None = None
     lag: float | None = None
     delay: float | None = None
+    input_filter: float | None = None
 
 
 #: Characters a design name may use (it becomes part of column names in ``samples.csv``).
@@ -163,15 +168,34 @@ class Signals:
 
 @dataclass(frozen=True)
 class SimulationSpec:
-    """Simulated window and controller sample time, both in time units."""
+    """Simulated window and the controller's scan period, both in time units.
+
+    Parameters
+    ----------
+    duration : float
+        The simulated window, time units.
+    step : float
+        The controller's scan period (the control system's execution interval), time units:
+        the controller reads the CV and writes its output once per scan.
+    substeps : int
+        Internal steps per scan: the plant between scans is simulated (exactly, input held)
+        at ``step / substeps``, where the metrics integrate the CV and events take effect;
+        raising it refines the accuracy without changing the controller.
+    """
 
     duration: float
     step: float
+    substeps: int = 1
 
     @property
     def n_steps(self) -> int:
-        """Number of controller samples in the window."""
+        """Number of controller scans in the window."""
         return int(round(self.duration / self.step))
+
+    @property
+    def internal_step(self) -> float:
+        """The plant's internal step, time units."""
+        return self.step / self.substeps
 
 
 @dataclass(frozen=True)

@@ -186,6 +186,7 @@ def _defaults() -> dict[str, Any]:
         "signals": {name: _dataclass(signal) for name, signal in _items(Signals())},
         "uncertainty": {},
         "study": _dataclass(StudySpec()),
+        "simulation": {"substeps": 1},
     }
 
 

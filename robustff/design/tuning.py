@@ -118,6 +118,9 @@ class FeedforwardSettings:
         Time units. ``lag`` is > 0 whenever ``lead`` > 0.
     gain_factor : float
         The detuning factor that was applied.
+    input_filter : float
+        Time constant of the first-order filter on the measured disturbance before the
+        compensator, time units (0: none).
     """
 
     structure: str
@@ -126,6 +129,7 @@ class FeedforwardSettings:
     lag: float
     delay: float
     gain_factor: float
+    input_filter: float = 0.0
 
     @property
     def active(self) -> bool:
@@ -205,6 +209,7 @@ class LoopDesign:
                 f"{per_unit(out_unit, case.signals.disturbance.unit or 'disturbance unit')} "
                 f"(gain factor {ff.gain_factor:g}), lead = {ff.lead:.4g} {unit}, "
                 f"lag = {ff.lag:.4g} {unit}, delay = {ff.delay:.4g} {unit}"
+                + (f", input filter = {ff.input_filter:.4g} {unit}" if ff.input_filter else "")
             )
         lines.extend(f"  note: {note}" for note in self.notes)
         return lines
@@ -424,7 +429,8 @@ def design_feedforward(
     delay = spec.delay if spec.delay is not None else delay
     if lead > 0.0 and lag <= 0.0:
         raise DesignError("feedforward: a lead needs a lag > 0 (the compensator must be proper)")
-    return FeedforwardSettings(structure, gain, lead, lag, delay, spec.gain_factor), notes
+    return FeedforwardSettings(structure, gain, lead, lag, delay, spec.gain_factor,
+                               spec.input_filter or 0.0), notes
 
 
 def _lags(model: TransferModel) -> list[float]:

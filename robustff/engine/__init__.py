@@ -136,8 +136,8 @@ def _controller_vector(design: LoopDesign, scenario: Scenario) -> np.ndarray:
 def _feedforward_vector(design: LoopDesign) -> np.ndarray:
     ff = design.feedforward
     if not ff.active:
-        return np.zeros(4)
-    return np.array([ff.gain, ff.lead, ff.lag, ff.delay])
+        return np.zeros(5)
+    return np.array([ff.gain, ff.lead, ff.lag, ff.delay, ff.input_filter])
 
 
 def simulate(
@@ -220,6 +220,7 @@ def simulate(
         trajectories,
         loop_unstable,
         feedback_arm,
+        scenario.substeps,
     )
     if reference is not None:
         # The kernel skipped the feedback arm and the stability probe: take both from the
@@ -264,6 +265,7 @@ def build_scenario(case: Case, design: LoopDesign, settling_band: float | None =
         np.inf,
         divergence_limit(case, design),
         settling_segments(case),
+        case.simulation.substeps,
     )
     if settling_band is None:
         if setpoint_step:

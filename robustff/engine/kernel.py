@@ -6,8 +6,10 @@ simulating; trajectories are written only for samples given a slot.
 
 Signal conventions (all deviation variables from the initial steady state):
 error ``e = setpoint - CV``; controller output ``u`` limited to ``[u_low, u_high]``.
-Per step ``k`` (time ``k h``): measure CV and the disturbance, compute both controllers, update
-metrics, then advance the plant over ``[k h, (k+1) h)`` with ``u[k]`` held.
+Per scan ``k`` (time ``k h``, ``h`` the controller's scan period): measure CV and the
+disturbance, compute both controllers, then advance the plant over ``[k h, (k+1) h)`` with
+``u[k]`` held, in ``S`` internal steps of ``h / S`` (each exact for the held input), the error
+metrics updated at every internal step; events take effect at the nearest internal step.
 
 Speed notes (measured, see the module's benchmark): states live in scalar locals (the named
 tuples below, which LLVM keeps in registers like plain tuples), constants such as ``kc h / ti``
@@ -82,10 +84,8 @@ SETTLING_TIME = accumulator_slot("settling_time")
 OPPOSITE_EXCURSION = accumulator_slot("opposite_excursion")
 
 #: Controller state of one live arm: integral term, derivative term, CV and output at the
-#: previous step (deviation units), and the last time the error was outside the settling band
-#: since the latest event (-1: not since then).
-ArmState = namedtuple(
-    "ArmState", ("integral", "derivative", "previous_cv", "previous_output", "last_outside"))
+#: previous scan (deviation units).
+ArmState = namedtuple("ArmState", ("integral", "derivative", "previous_cv", "previous_output"))
 
 #: Stability probe state: integral and derivative terms, previous CV, max |e| over
 #: ``[T/2, 3T/4)`` and over ``[3T/4, T)``, and whether the probe has diverged.
@@ -191,12 +191,11 @@ def _path_step(x: tuple, c: PathCoefficients, u_new: float,
 
 @njit(cache=True, nogil=True, inline="always")
 def _arm_control(s: ArmState, a: Accumulators, y: float, sp: float, ff: float, first: bool,
-                 t: float, weight: float, p: ControllerParams, mp: MetricParams) -> tuple:
-    """Controller and metrics of one live arm at one step; returns ``(u, s, a)``.
+                 p: ControllerParams, h: float) -> tuple:
+    """Controller of one live arm at one scan; returns ``(u, s, a)``.
 
-    ``mp.direction`` is the direction at this step; ``weight = max(t - t_start, 0)``;
-    ``a.settling_time`` holds the longest settling time of the completed events until
-    :func:`_finish` adds the last one.
+    Updates the accumulators that belong to the controller output (valve travel, time at a
+    limit over the scan period ``h``); the error metrics follow in :func:`_arm_metrics`.
     """
     e = sp - y
     deriv = s.derivative
@@ -206,27 +205,46 @@ def _arm_control(s: ArmState, a: Accumulators, y: float, sp: float, ff: float, f
     v = p.kc * e + s.integral + deriv + ff
     u = min(max(v, p.u_low), p.u_high)
     integral = s.integral + (p.integral_gain * e + p.tracking_gain * (u - v))
+    a = Accumulators(
+        ie=a.ie, iae=a.iae, ise=a.ise, itae=a.itae, peak_deviation=a.peak_deviation,
+        opposite_excursion=a.opposite_excursion, settling_time=a.settling_time,
+        valve_travel=a.valve_travel + abs(u - s.previous_output),
+        time_at_limit=a.time_at_limit + h if u != v else a.time_at_limit,
+    )
+    return u, ArmState(integral, deriv, y, u), a
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _arm_metrics(a: Accumulators, last: float, e: float, t: float, weight: float,
+                 mp: MetricParams) -> tuple:
+    """Error metrics of one live arm over one internal step; returns ``(a, last)``.
+
+    ``mp.h`` is the internal step; ``weight = max(t - t_start, 0)``; ``last`` is the last time
+    outside the settling band since the latest event (-1: not since then), and
+    ``a.settling_time`` the longest settling time of the completed events until
+    :func:`_finish` adds the last one.
+    """
     h = mp.h
     ae = abs(e)
-    last, longest = s.last_outside, a.settling_time
+    longest = a.settling_time
     if mp.segment != mp.previous_segment:  # a new event: the previous one's settling is known
         if last >= 0.0:
             longest = max(longest, last + h - mp.previous_segment)
         last = -1.0
     if ae > mp.band and t >= mp.t_start:
         last = t
-    # Keyword construction: a name added to ACCUMULATOR_NAMES but not updated here fails to
-    # compile instead of being carried along unchanged.
+    # Keyword construction: a name added to ACCUMULATOR_NAMES but updated neither here nor in
+    # _arm_control fails to compile instead of being carried along unchanged.
     a = Accumulators(
         ie=a.ie + e * h, iae=a.iae + ae * h, ise=a.ise + e * e * h,
         itae=a.itae + weight * ae * h,
         peak_deviation=max(a.peak_deviation, ae),
         opposite_excursion=max(a.opposite_excursion, mp.direction * e),
         settling_time=longest,
-        valve_travel=a.valve_travel + abs(u - s.previous_output),
-        time_at_limit=a.time_at_limit + h if u != v else a.time_at_limit,
+        valve_travel=a.valve_travel,
+        time_at_limit=a.time_at_limit,
     )
-    return u, ArmState(integral, deriv, y, u, last), a
+    return a, last
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -298,95 +316,116 @@ def _simulate_sample(
     p: ControllerParams, mp: MetricParams, ffp: FeedforwardParams, m_ff: int, limit: float,
     grid: BinGrid,
     envelope_index: np.ndarray, slot: int, ring: np.ndarray, env_buf: np.ndarray,
-    trajectories: np.ndarray, feedback_arm: bool,
+    trajectories: np.ndarray, feedback_arm: bool, h: float, substeps: int,
 ) -> tuple:
-    """Simulate sample ``i``; returns ``(acc fb, acc fbff, state fb, state fbff, alive fb,
-    alive fbff, unstable)``.
+    """Simulate sample ``i``; returns ``(acc fb, acc fbff, last outside fb, last outside fbff,
+    alive fb, alive fbff, unstable)``.
 
-    ``noise`` rows: start step, filter pole, innovation scale, state (updated in place),
-    stationary standard deviation (the state's draw at the start step).
+    The controller, the transmitter, the feedforward and the stability probe run once per scan
+    ``h`` (``envelope_index`` has one entry per scan); the plant paths, the deterministic
+    disturbance and the error metrics run ``substeps`` times per scan at ``mp.h = h /
+    substeps`` (the profiles have one entry per internal step), the controller output held.
+    ``noise`` rows: start scan, filter pole, innovation scale, state (updated in place),
+    stationary standard deviation (the state's draw at the start scan); filtered noise is
+    drawn once per scan and held, so it does not change with ``substeps``.
     Without ``feedback_arm`` only the feedforward arm runs (another design on the same plant
     and noise): the feedback-only arm and the stability probe are skipped, arm 0 keeps its
     initial values and ``unstable`` is False.
     """
-    n_steps, h = disturbance_profile.shape[0], mp.h
-    m_p, f_p = split_delay(plant[i, 3], h)
-    m_d, f_d = split_delay(plant[i, 7], h)
-    m_p, m_d = min(m_p, n_steps), min(m_d, n_steps)  # longer delays only ever read zeros
-    cp = _coefficients(kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], h, f_p)
-    cd = _coefficients(kinds[1], plant[i, 4], plant[i, 5], plant[i, 6], h, f_d)
-    size = _ring_size(max(m_p, m_d, m_ff))
+    n_steps, hi = envelope_index.shape[0], mp.h
+    n_internal = n_steps * substeps
+    m_p, f_p = split_delay(plant[i, 3], hi)
+    m_d, f_d = split_delay(plant[i, 7], hi)
+    m_q, f_q = split_delay(plant[i, 3], h)
+    # longer delays only ever read zeros
+    m_p, m_d, m_q = min(m_p, n_internal), min(m_d, n_internal), min(m_q, n_steps)
+    cp = _coefficients(kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], hi, f_p)
+    cd = _coefficients(kinds[1], plant[i, 4], plant[i, 5], plant[i, 6], hi, f_d)
+    # The probe runs at the scan: the process stepped exactly over a scan with its input held.
+    cq = cp if substeps == 1 else _coefficients(
+        kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], h, f_q)
+    size = _ring_size(max(m_p, m_d, m_ff, m_q))
     mask = size - 1
     ring[:_RING_ROWS * size] = 0.0  # rows: u fb, u fbff, probe input, disturbance, measured
     noise[:, 3] = 0.0
-    a_sensor = decay(h, plant[i, 8])
+    a_sensor = decay(hi, plant[i, 8])
     gain_sensor, direct, noise_std = 1.0 - a_sensor, plant[i, 8] <= 0.0, plant[i, 9]
     acc0 = acc1 = INITIAL_ACCUMULATORS
-    s0 = s1 = ArmState(0.0, 0.0, 0.0, 0.0, -1.0)
+    s0 = s1 = ArmState(0.0, 0.0, 0.0, 0.0)
+    last0 = last1 = -1.0
     alive0 = alive1 = True
     x0 = x1 = xq = xd = (0.0, 0.0)  # path states (x1, x2)
     sq = ProbeState(0.0, 0.0, 0.0, 0.0, 0.0, False)
     q2, q3 = n_steps // 2, (3 * n_steps) // 4
     sensor = ff_out = ff_in_prev = u0 = u1 = ff_measured = 0.0
     for k in range(n_steps):
-        t = k * h
-        weight = max(t - mp.t_start, 0.0)
-        mpk = MetricParams(mp.h, mp.t_start, mp.band, direction_profile[k], segment_profile[k],
-                           segment_profile[k - 1] if k > 0 else segment_profile[0])
-        d = disturbance_profile[k]
+        held_noise = 0.0
         for j in range(noise.shape[0]):
             if k >= noise[j, 0]:
                 if k == noise[j, 0]:
                     # Start from the stationary distribution: the noise is already running.
                     seed, draw = _random_normal(seed)
                     noise[j, 3] = noise[j, 4] * draw
-                d += noise[j, 3]
+                held_noise += noise[j, 3]
                 seed, draw = _random_normal(seed)
                 noise[j, 3] = noise[j, 1] * noise[j, 3] + noise[j, 2] * draw
-        measured = d if direct else sensor
-        if noise_std > 0.0:
-            seed, draw = _random_normal(seed)
-            measured += noise_std * draw
-        # Feedforward input filter, as a control system's digital first-order filter.
-        ff_measured = ffp.input_pole * ff_measured + (1.0 - ffp.input_pole) * measured
-        ring[4 * size + (k & mask)] = ff_measured
-        ff_in = (ffp.weight_new * ring[4 * size + ((k - m_ff) & mask)]
-                 + ffp.weight_old * ring[4 * size + ((k - m_ff - 1) & mask)])
-        ff_out = ffp.pole * ff_out + ffp.scale * (ff_in - ffp.zero * ff_in_prev)
-        ff_in_prev = ff_in
-        yd, sp = _output(xd, cd), setpoint_profile[k]
-        y0, y1, yq = _output(x0, cp) + yd, _output(x1, cp) + yd, _output(xq, cp)
-        alive0 = alive0 and math.isfinite(y0) and not abs(y0) > limit
-        alive1 = alive1 and math.isfinite(y1) and not abs(y1) > limit
-        if feedback_arm and alive0:
-            u0, s0, acc0 = _arm_control(s0, acc0, y0, sp, 0.0, k == 0, t, weight, p, mpk)
-            ring[k & mask] = u0
-            x0 = _path_step(x0, cp, ring[(k - m_p) & mask], ring[(k - m_p - 1) & mask])
-        if alive1:
-            u1, s1, acc1 = _arm_control(s1, acc1, y1, sp, ff_out, k == 0, t, weight, p, mpk)
-            ring[size + (k & mask)] = u1
-            x1 = _path_step(x1, cp, ring[size + ((k - m_p) & mask)],
-                            ring[size + ((k - m_p - 1) & mask)])
-        if feedback_arm:
-            uq, sq = _probe_control(sq, yq, k, p, q2, q3)
-            ring[2 * size + (k & mask)] = uq + 1.0
-            xq = _path_step(xq, cp, ring[2 * size + ((k - m_p) & mask)],
-                            ring[2 * size + ((k - m_p - 1) & mask)])
-        if slot >= 0:
-            _record(trajectories, slot, k, alive0, alive1, y0, y1, u0, u1)
-        if envelope_index[k] >= 0:
-            env_buf[0, envelope_index[k]] = _envelope_bin(y0, grid) if alive0 else -1
-            env_buf[1, envelope_index[k]] = _envelope_bin(y1, grid) if alive1 else -1
-        ring[3 * size + (k & mask)] = d
-        xd = _path_step(xd, cd, ring[3 * size + ((k - m_d) & mask)],
-                        ring[3 * size + ((k - m_d - 1) & mask)])
-        sensor = a_sensor * sensor + gain_sensor * d
+        for sub in range(substeps):
+            q = k * substeps + sub
+            t = q * hi
+            weight = max(t - mp.t_start, 0.0)
+            mpk = MetricParams(hi, mp.t_start, mp.band, direction_profile[q],
+                               segment_profile[q],
+                               segment_profile[q - 1] if q > 0 else segment_profile[0])
+            d = disturbance_profile[q] + held_noise
+            yd, sp = _output(xd, cd), setpoint_profile[q]
+            y0, y1 = _output(x0, cp) + yd, _output(x1, cp) + yd
+            alive0 = alive0 and math.isfinite(y0) and not abs(y0) > limit
+            alive1 = alive1 and math.isfinite(y1) and not abs(y1) > limit
+            if sub == 0:  # the scan: transmitter, feedforward, controllers, probe
+                measured = d if direct else sensor
+                if noise_std > 0.0:
+                    seed, draw = _random_normal(seed)
+                    measured += noise_std * draw
+                # Feedforward input filter, as a control system's digital first-order filter.
+                ff_measured = ffp.input_pole * ff_measured + (1.0 - ffp.input_pole) * measured
+                ring[4 * size + (k & mask)] = ff_measured
+                ff_in = (ffp.weight_new * ring[4 * size + ((k - m_ff) & mask)]
+                         + ffp.weight_old * ring[4 * size + ((k - m_ff - 1) & mask)])
+                ff_out = ffp.pole * ff_out + ffp.scale * (ff_in - ffp.zero * ff_in_prev)
+                ff_in_prev = ff_in
+                if feedback_arm and alive0:
+                    u0, s0, acc0 = _arm_control(s0, acc0, y0, sp, 0.0, k == 0, p, h)
+                if alive1:
+                    u1, s1, acc1 = _arm_control(s1, acc1, y1, sp, ff_out, k == 0, p, h)
+                if feedback_arm:
+                    uq, sq = _probe_control(sq, _output(xq, cq), k, p, q2, q3)
+                    ring[2 * size + (k & mask)] = uq + 1.0
+                    xq = _path_step(xq, cq, ring[2 * size + ((k - m_q) & mask)],
+                                    ring[2 * size + ((k - m_q - 1) & mask)])
+                if slot >= 0:
+                    _record(trajectories, slot, k, alive0, alive1, y0, y1, u0, u1)
+                if envelope_index[k] >= 0:
+                    env_buf[0, envelope_index[k]] = _envelope_bin(y0, grid) if alive0 else -1
+                    env_buf[1, envelope_index[k]] = _envelope_bin(y1, grid) if alive1 else -1
+            if feedback_arm and alive0:
+                acc0, last0 = _arm_metrics(acc0, last0, sp - y0, t, weight, mpk)
+                ring[q & mask] = u0
+                x0 = _path_step(x0, cp, ring[(q - m_p) & mask], ring[(q - m_p - 1) & mask])
+            if alive1:
+                acc1, last1 = _arm_metrics(acc1, last1, sp - y1, t, weight, mpk)
+                ring[size + (q & mask)] = u1
+                x1 = _path_step(x1, cp, ring[size + ((q - m_p) & mask)],
+                                ring[size + ((q - m_p - 1) & mask)])
+            ring[3 * size + (q & mask)] = d
+            xd = _path_step(xd, cd, ring[3 * size + ((q - m_d) & mask)],
+                            ring[3 * size + ((q - m_d - 1) & mask)])
+            sensor = a_sensor * sensor + gain_sensor * d
     # Unstable only when the probe's error grows from the third to the last quarter of the
     # window: a stable loop that recovers slowly (a very long integral time) decays, however
     # little, and is not flagged; not settling within the window is the settling time's finding.
     unstable = feedback_arm and (
         sq.diverged or (sq.late_peak > sq.early_peak and sq.late_peak > 1e-9))
-    return acc0, acc1, s0, s1, alive0, alive1, unstable
+    return acc0, acc1, last0, last1, alive0, alive1, unstable
 
 
 @njit(cache=True, nogil=True)
@@ -404,17 +443,17 @@ def simulate_kernel(
     plant: np.ndarray,            # (N, 10): Kp, tp1, tp2, thp, Kd, td1, td2, thd, sensor tau,
                                   # noise std
     seeds: np.ndarray,            # (N,) uint64 per-sample random seeds
-    h: float,
-    disturbance_profile: np.ndarray,  # (T,) deterministic disturbance, disturbance units
-    setpoint_profile: np.ndarray,     # (T,) setpoint deviation, CV units
-    noise_events: np.ndarray,     # (E, 3): start index, stationary std, filter time constant
+    h: float,                     # the controller's scan period
+    disturbance_profile: np.ndarray,  # (T S,) deterministic disturbance, disturbance units
+    setpoint_profile: np.ndarray,     # (T S,) setpoint deviation, CV units
+    noise_events: np.ndarray,     # (E, 3): start scan, stationary std, filter time constant
     controller: np.ndarray,       # (8,): kc, ti, td, tf, tt, u_low, u_high, divergence limit
     feedforward: np.ndarray,      # (5,): gain, lead, lag, delay, input filter time constant
     metric_setup: np.ndarray,     # (4,): event start time, settling band, unused, unused
-    direction_profile: np.ndarray,  # (T,): sign of e that counts as an opposite excursion
-    segment_profile: np.ndarray,  # (T,): start time of the latest event (settling segments)
+    direction_profile: np.ndarray,  # (T S,): sign of e that counts as an opposite excursion
+    segment_profile: np.ndarray,  # (T S,): start time of the latest event (settling segments)
     envelope_edges: np.ndarray,   # (B+1,) CV bin edges
-    envelope_index: np.ndarray,   # (T,) int: envelope time point recorded at step k, or -1
+    envelope_index: np.ndarray,   # (T,) int: envelope time point recorded at scan k, or -1
     trajectory_slot: np.ndarray,  # (N,) int, -1 = do not keep
     accumulators: np.ndarray,     # out (N, 2, N_ACCUMULATORS)
     unstable: np.ndarray,         # out (N, 2) bool
@@ -422,14 +461,16 @@ def simulate_kernel(
     trajectories: np.ndarray,     # out (S, 4, T): CV fb, CV fbff, output fb, output fbff
     loop_unstable: np.ndarray,    # out (N,) bool: the feedback loop itself is unstable (probe)
     feedback_arm: bool,           # False: only the feedforward arm (see _simulate_sample)
+    substeps: int,                # S internal steps per scan (profiles: one entry per step)
 ) -> None:
-    n_steps = disturbance_profile.shape[0]
+    n_steps, n_internal = envelope_index.shape[0], disturbance_profile.shape[0]
+    hi = h / substeps
     kc, ti, td, tf, tt = controller[0], controller[1], controller[2], controller[3], controller[4]
     # The textbook expressions, evaluated once in the same operation order.
     p = ControllerParams(kc, tf / (tf + h), kc * td / (tf + h), kc * h / ti, h / tt,
                          controller[5], controller[6], td > 0.0)
     # The direction slot is filled per step from direction_profile (metric_setup[2] is unused).
-    mp = MetricParams(h, metric_setup[0], metric_setup[1], metric_setup[2], 0.0, 0.0)
+    mp = MetricParams(hi, metric_setup[0], metric_setup[1], metric_setup[2], 0.0, 0.0)
     n_bins = envelope_edges.shape[0] - 1
     grid = BinGrid(envelope_edges[0], (envelope_edges[-1] - envelope_edges[0]) / n_bins, n_bins)
     # Matched pole-zero compensator: exact inverse of ZOH first-order paths at the samples.
@@ -445,18 +486,18 @@ def simulate_kernel(
         noise[j, 0], noise[j, 1] = noise_events[j, 0], pole
         noise[j, 2] = noise_events[j, 1] * math.sqrt(1.0 - pole * pole)
         noise[j, 4] = noise_events[j, 1]
-    ring = np.zeros(_RING_ROWS * _ring_size(n_steps))
+    ring = np.zeros(_RING_ROWS * _ring_size(n_internal))
     env_buf = np.full((2, envelope_counts.shape[1]), -1, dtype=np.int64)
     for i in range(plant.shape[0]):
-        acc0, acc1, s0, s1, alive0, alive1, probe = _simulate_sample(
+        acc0, acc1, last0, last1, alive0, alive1, probe = _simulate_sample(
             i, kinds, plant, seeds[i], disturbance_profile, setpoint_profile, direction_profile,
             segment_profile, noise, p, mp,
             ffp, min(m_ff, n_steps), controller[7], grid, envelope_index, trajectory_slot[i],
-            ring, env_buf, trajectories, feedback_arm)
+            ring, env_buf, trajectories, feedback_arm, h, substeps)
         loop_unstable[i] = probe
         _commit_envelope(env_buf, envelope_counts, not probe)
-        last_segment = segment_profile[n_steps - 1]
-        _finish(i, 0, acc0, s0.last_outside, last_segment, alive0, probe, n_steps * h, mp,
+        last_segment = segment_profile[n_internal - 1]
+        _finish(i, 0, acc0, last0, last_segment, alive0, probe, n_steps * h, mp,
                 accumulators, unstable)
-        _finish(i, 1, acc1, s1.last_outside, last_segment, alive1, probe, n_steps * h, mp,
+        _finish(i, 1, acc1, last1, last_segment, alive1, probe, n_steps * h, mp,
                 accumulators, unstable)

@@ -20,17 +20,18 @@ class Scenario:
     Parameters
     ----------
     step : float
-        Controller sample time, time units.
-    disturbance_profile : ndarray, shape (T,)
-        Deterministic disturbance (steps and ramps) at each sample, disturbance units.
-    setpoint_profile : ndarray, shape (T,)
-        Setpoint deviation at each sample, CV units.
+        The controller's scan period, time units.
+    disturbance_profile : ndarray, shape (T S,)
+        Deterministic disturbance (steps and ramps) at each internal step (``S`` per scan,
+        ``T`` scans), disturbance units.
+    setpoint_profile : ndarray, shape (T S,)
+        Setpoint deviation at each internal step, CV units.
     noise_events : ndarray, shape (E, 3)
-        Filtered-noise events: start sample, stationary standard deviation, filter time constant.
+        Filtered-noise events: start scan, stationary standard deviation, filter time constant.
     event_start : float
         Start of the first event, time units (``t0`` of the metrics).
-    direction : ndarray, shape (T,)
-        At each sample, the sign of the error that counts as an opposite-side excursion,
+    direction : ndarray, shape (T S,)
+        At each internal step, the sign of the error that counts as an opposite-side excursion,
         set by the latest event (see :mod:`robustff.engine.metrics`).
     setpoint_step : float or None
         Size of the first event when it is a setpoint step, CV units.
@@ -38,9 +39,11 @@ class Scenario:
         CV units; see :mod:`robustff.engine.metrics`.
     divergence_limit : float
         |CV| beyond which a sample is declared unstable, CV units.
-    segment_start : ndarray, shape (T,)
-        At each sample, the start time of the latest step, ramp or setpoint event, time
+    segment_start : ndarray, shape (T S,)
+        At each internal step, the start time of the latest step, ramp or setpoint event, time
         units: settling is measured after each of them (see :func:`settling_segments`).
+    substeps : int
+        Internal steps per scan, ``S``.
     """
 
     step: float
@@ -53,30 +56,43 @@ class Scenario:
     settling_band: float
     divergence_limit: float
     segment_start: np.ndarray
+    substeps: int = 1
 
     @property
     def n_steps(self) -> int:
-        return int(self.disturbance_profile.shape[0])
+        """Number of controller scans, ``T``."""
+        return int(self.disturbance_profile.shape[0]) // self.substeps
 
     @property
     def times(self) -> np.ndarray:
-        """Sample instants, shape (T,), time units."""
+        """Scan instants, shape (T,), time units."""
         return np.arange(self.n_steps) * self.step
+
+    @property
+    def internal_step(self) -> float:
+        """The plant's internal step, time units."""
+        return self.step / self.substeps
+
+    def at_scans(self, profile: np.ndarray) -> np.ndarray:
+        """A per-internal-step profile (shape (T S,)) at the scan instants, shape (T,)."""
+        return np.asarray(profile)[:: self.substeps]
 
 
 def event_profiles(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Disturbance and setpoint profiles and the noise-event table of a case.
 
-    Event times are placed on the controller sample nearest to them.
+    Event times are placed on the internal step nearest to them (filtered noise: on the
+    nearest scan).
 
     Returns
     -------
-    disturbance : ndarray, shape (T,)
-    setpoint : ndarray, shape (T,)
-    noise_events : ndarray, shape (E, 3)
+    disturbance : ndarray, shape (T S,)
+    setpoint : ndarray, shape (T S,)
+    noise_events : ndarray, shape (E, 3), start as a scan index
     """
-    h = case.simulation.step
-    n = case.simulation.n_steps
+    h = case.simulation.internal_step
+    n = case.simulation.n_steps * case.simulation.substeps
+    scan = case.simulation.step
     t = np.arange(n) * h
     disturbance = np.zeros(n)
     setpoint = np.zeros(n)
@@ -91,7 +107,7 @@ def event_profiles(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
             fraction = np.clip((t - start) / max(event.duration, h), 0.0, 1.0)
             disturbance += event.size * fraction
         elif event.kind == "disturbance-noise":
-            noise.append((round(event.at / h), abs(event.size), event.time_constant))
+            noise.append((round(event.at / scan), abs(event.size), event.time_constant))
     return disturbance, setpoint, np.array(noise, dtype=np.float64).reshape(-1, 3)
 
 
@@ -103,7 +119,8 @@ def settling_segments(case: Case) -> np.ndarray:
     filtered noise does not (it never ends, so nothing settles after it). Before the first
     such event, and in a case with noise events only, the start of the first event applies.
     """
-    h, n = case.simulation.step, case.simulation.n_steps
+    h = case.simulation.internal_step
+    n = case.simulation.n_steps * case.simulation.substeps
     # Times stay as written (like t0 of the metrics); the segment begins at the event's sample.
     starts = sorted((event.at, min(max(round(event.at / h), 0), n)) for event in case.events
                     if event.kind != "disturbance-noise")
@@ -139,7 +156,8 @@ def disturbance_direction(case: Case) -> tuple[np.ndarray, float | None, float]:
         The first event's size when it is a setpoint step.
     event_start : float
     """
-    h, n = case.simulation.step, case.simulation.n_steps
+    h = case.simulation.internal_step
+    n = case.simulation.n_steps * case.simulation.substeps
     ordered = sorted(case.events, key=lambda event: event.at)
     first = ordered[0]
     current = float(np.sign(case.disturbance.gain) or 1.0)
