@@ -287,6 +287,8 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
         f"{summary['unstable']['fbff']} with feedforward"
     )
     print(summary["convergence"]["ff_worse_iae"]["message"])
+    for warning in summary["warnings"]:
+        print(f"warning: {warning}")
     _print_drivers(summary)
     margins = summary.get("margins")
     if margins:

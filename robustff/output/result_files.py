@@ -119,6 +119,7 @@ def percentiles_markdown(summary: Summary, percentiles: Sequence[float]) -> str:
         f"- Unstable samples: {summary['unstable']['fb']} feedback only, "
         f"{summary['unstable']['fbff']} with feedforward (excluded from the percentiles).",
         "- " + summary["convergence"]["ff_worse_iae"]["message"],
+        *[f"- warning: {warning}" for warning in summary["warnings"]],
         "",
         CAUTION,
         "",

@@ -28,6 +28,7 @@ from robustff.stats import (
     summarize,
 )
 from robustff.stats.sensitivity import rank_sensitivity
+from robustff.study.noise_travel import noise_travel_warning
 from robustff.study.runner import StudyResult
 from robustff.study.summary_types import (
     ArmStats,
@@ -266,6 +267,7 @@ def summarize_study(
         "design": cast(DesignDict, result.design.to_dict()),
         "designs": _designs(result, metrics, percentiles),
         "settling_band": result.scenario.settling_band,
+        "warnings": [text for text in (noise_travel_warning(result),) if text],
         "elapsed_seconds": round(result.elapsed, 3),
         "versions": _versions(),
         "caution": CAUTION,

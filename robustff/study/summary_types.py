@@ -197,6 +197,7 @@ class FeedforwardDesign(TypedDict):
     lag: float  #: time units
     delay: float  #: time units
     gain_factor: float  #: detuning factor applied, dimensionless
+    input_filter: float  #: time units; 0 = no filter on the feedforward input
 
 
 class DesignDict(TypedDict):
@@ -267,6 +268,7 @@ class Summary(TypedDict):
     design: DesignDict
     designs: list[DesignSummary]  #: every feedforward design, the case's own first
     settling_band: float  #: CV units
+    warnings: list[str]  #: about the results (e.g. noise passed to the valve), with the remedy
     elapsed_seconds: float  #: wall time, seconds
     versions: Versions
     caution: str
