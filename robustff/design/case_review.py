@@ -21,7 +21,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from robustff.case import Case
+from robustff.case import Case, UncertainParameter
 from robustff.case.sampling import distribution_bounds
 from robustff.case.text import control_characters
 from robustff.design.margins import model_margins
@@ -34,7 +34,8 @@ from robustff.design.margins_result import (
 from robustff.design.tuning import LoopDesign, design_loop
 from robustff.errors import RobustffError
 
-__all__ = ["Finding", "CaseReview", "review_case", "margin_warnings", "margin_line"]
+__all__ = ["Finding", "CaseReview", "review_case", "margin_warnings", "margin_line",
+           "nominal_outside_range"]
 
 #: Relative tolerance when checking that the controller step divides the window.
 _STEP_TOLERANCE = 1e-9
@@ -219,6 +220,19 @@ def _is_time_parameter(key: str) -> bool:
     return name not in ("gain", "noise_std")
 
 
+def nominal_outside_range(case: Case, parameter: UncertainParameter) -> bool:
+    """True when the nominal value of ``parameter`` lies outside its uncertainty range.
+
+    The range is the support of a uniform or triangular distribution, the P0.5 .. P99.5 range
+    (clipped) of a normal or lognormal one; a relative range is centred on the nominal.
+    """
+    if parameter.distribution.kind == "relative":
+        return False
+    nominal = case.nominal_value(parameter.key)
+    low, high = distribution_bounds(parameter, nominal)
+    return not low <= nominal <= high
+
+
 def _uncertainty_warnings(case: Case) -> list[Finding]:
     sim, unit = case.simulation, case.time_unit
     warnings = []
@@ -226,16 +240,13 @@ def _uncertainty_warnings(case: Case) -> list[Finding]:
         key = parameter.key
         nominal = case.nominal_value(key)
         low, high = distribution_bounds(parameter, nominal)
-        if parameter.distribution.kind in ("uniform", "triangular"):
-            outside = not low <= nominal <= high
-        else:  # normal, lognormal: the P0.5 .. P99.5 range (clipped); relative is centred
-            outside = parameter.distribution.kind != "relative" and not low <= nominal <= high
-        if outside:
+        if nominal_outside_range(case, parameter):
+            own = case.parameter_unit(key)
             warnings.append(Finding(
                 f"uncertainty.{key}",
-                f"the nominal value {nominal:g} {case.parameter_unit(key)} lies outside its "
-                f"uncertainty range {low:.4g} .. {high:.4g}: the controller and feedforward are "
-                "designed for a plant that no sample contains"))
+                f"the nominal value {nominal:g} {own} lies outside its "
+                f"uncertainty range {low:.4g} .. {high:.4g} {own}: the controller and "
+                "feedforward are designed for a plant that no sample contains"))
         if _is_time_parameter(key) and high > sim.duration:
             warnings.append(Finding(
                 f"uncertainty.{key}",

@@ -21,14 +21,22 @@ from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.widgets import Footer, Header
 
-from robustff.case import Case
+from robustff.case import Case, UncertainParameter
 from robustff.errors import CaseError, RobustffError
 from robustff.tui import editing
+from robustff.tui.dialogs import ChoiceScreen
 from robustff.tui.file_actions import FileActions
 from robustff.tui.fit_actions import FitActions
 from robustff.tui.key_order import KeyOrder
-from robustff.tui.messages import DistributionEdited, FieldEdited, KindChanged, RowAdded, RowRemoved
-from robustff.tui.models_pane import ModelsPane
+from robustff.tui.messages import (
+    DistributionEdited,
+    FieldEdited,
+    KindChanged,
+    RangeFixAsked,
+    RowAdded,
+    RowRemoved,
+)
+from robustff.tui.models_pane import FieldRow, ModelsPane
 from robustff.tui.pictures import PicturesPane
 from robustff.tui.results_pane import CautionLine, ResultsPane
 from robustff.tui.robust_actions import RobustActions
@@ -177,18 +185,70 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
 
     def rebuild_panes(self) -> None:
         """Recompose the editor panes from the current case (rows added, reload, restore)."""
-        for pane in (self.query_one(ModelsPane), self.query_one(UncertaintyPane)):
-            pane.case = self.case
-            self.call_later(pane.recompose)
+        async def rebuild() -> None:
+            for pane in (self.query_one(ModelsPane), self.query_one(UncertaintyPane)):
+                pane.case = self.case
+                await pane.recompose()
+            self.show_design()  # the new widgets start blank
+
+        # A worker (its own task): awaiting the new widgets' mounting from one of the app's
+        # own messages would hold the app's queue that the mounting goes through.
+        self.run_worker(rebuild(), group="rebuild", exit_on_error=False)
 
     def show_design(self) -> None:
-        from robustff.design.tuning import design_loop
+        """Show the nominal design and the case review's warnings next to what they concern."""
+        from robustff.design.case_review import nominal_outside_range, review_case
 
         try:
-            lines = design_loop(self.case).summary_lines(self.case)
+            review = review_case(self.case)
         except (RobustffError, ArithmeticError) as exc:
-            lines = [f"✗ design: {exc}"]
-        self.query_one(ModelsPane).show_design(lines)
+            self.query_one(ModelsPane).show_design([f"✗ design: {exc}"], {})
+            self.query_one(UncertaintyPane).show_warnings(self.case, {})
+            return
+        lines = review.design.summary_lines(self.case)
+        lines += [f"✗ {finding.text()}" for finding in review.errors]
+        fields: dict[str, str] = {}
+        ranges: dict[str, str] = {}
+        fields_shown = {row.field for row in self.query(FieldRow)}
+        for finding in review.warnings:
+            if finding.key.startswith("uncertainty."):
+                key = finding.key.removeprefix("uncertainty.")
+                ranges[key] = _joined(ranges.get(key), finding.message)
+            elif finding.key in fields_shown:
+                fields[finding.key] = _joined(fields.get(finding.key), finding.message)
+            else:
+                lines.append(f"⚠ {finding.text()}")
+        for parameter in self.case.uncertainty:
+            if parameter.key in fields_shown and nominal_outside_range(self.case, parameter):
+                fields[parameter.key] = _joined(fields.get(parameter.key),
+                                                _outside_note(self.case, parameter))
+        self.query_one(ModelsPane).show_design(lines, fields)
+        self.query_one(UncertaintyPane).show_warnings(self.case, ranges)
+
+    def on_range_fix_asked(self, message: RangeFixAsked) -> None:
+        key = message.key
+        nominal = self.case.nominal_value(key)
+        question = (f"The nominal {key} = {nominal:g} {self.case.parameter_unit(key)} is outside "
+                    "its uncertainty range. Change the range?")
+
+        def answer(choice: str | None) -> None:
+            change = {"w": editing.widen_to_nominal, "m": editing.move_to_nominal}.get(choice or "")
+            if change is not None:
+                self._range_edit(key, lambda: change(self.case, key))
+
+        self.push_screen(ChoiceScreen(question, [("w", "widen it to the nominal"),
+                                                 ("m", "move it onto the nominal"),
+                                                 ("c", "cancel")]), answer)
+
+    def _range_edit(self, key: str, make: Callable[[], Case]) -> None:
+        pane = self.query_one(UncertaintyPane)
+        try:
+            case = make()
+        except CaseError as exc:
+            pane.row(key).show_result(self.case, _reason(exc))
+            return
+        pane.row(key).show_result(case, None)
+        self.accept_edit(case)
 
     # --- runs ---------------------------------------------------------------------------------
 
@@ -287,6 +347,20 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
     def on_unmount(self) -> None:
         self._cancel.set()
         self.stop_robust()
+
+
+def _joined(first: str | None, second: str) -> str:
+    return second if first is None else f"{first}; {second}"
+
+
+def _outside_note(case: Case, parameter: UncertainParameter) -> str:
+    """Under a nominal field: its value is outside the parameter's uncertainty range."""
+    from robustff.case.sampling import distribution_bounds
+
+    low, high = distribution_bounds(parameter, case.nominal_value(parameter.key))
+    return (f"outside its uncertainty range {low:.4g} .. {high:.4g} "
+            f"{case.parameter_unit(parameter.key)}: no simulated plant has this value "
+            "(fix range: under Uncertainty)")
 
 
 def _reason(exc: CaseError) -> str:

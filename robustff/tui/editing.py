@@ -33,6 +33,8 @@ __all__ = [
     "convert_distribution",
     "add_uncertain",
     "remove_uncertain",
+    "widen_to_nominal",
+    "move_to_nominal",
     "uncertain_candidates",
     "params_text",
     "clip_text",
@@ -260,3 +262,90 @@ def remove_uncertain(case: Case, key: str) -> Case:
     correlations = tuple(c for c in case.correlations if key not in (c.first, c.second))
     return validated(replace(case, uncertainty=rows, correlations=correlations))
 
+
+
+#: Standard normal quantile of 0.995: normal and lognormal ranges are P0.5 .. P99.5 (as
+#: :func:`robustff.case.sampling.distribution_bounds`).
+_Z995 = 2.5758293035489004
+
+
+def _row_of(case: Case, key: str) -> UncertainParameter:
+    for row in case.uncertainty:
+        if row.key == key:
+            return row
+    raise CaseError(f"{EDIT_SOURCE}: uncertainty.{key}: not an uncertain parameter of the case")
+
+
+def _outward(value: float, up: bool) -> float:
+    """``value`` to four significant digits, rounded away from the range's inside."""
+    rounded = _round(value)
+    if up and rounded < value or not up and rounded > value:
+        step = 10 ** (math.floor(math.log10(abs(value))) - 3) if value else 0.0
+        rounded = _round(rounded + step if up else rounded - step)
+    return rounded
+
+
+def _clip_with(clip: tuple[float, float] | None, nominal: float) -> tuple[float, float] | None:
+    if clip is None:
+        return None
+    return (min(clip[0], nominal), max(clip[1], nominal))
+
+
+def widen_to_nominal(case: Case, key: str) -> Case:
+    """The case with the range of uncertain parameter ``key`` widened to hold its nominal value.
+
+    The same kind of distribution is kept: a uniform or triangular range is extended to the
+    nominal (the mode stays), a normal spread or a lognormal factor grows until the
+    P0.5 .. P99.5 range reaches the nominal, and clip bounds are moved out to it.
+    """
+    row = _row_of(case, key)
+    nominal = case.nominal_value(key)
+    d = row.distribution
+    kind, params = d.kind, d.params
+    if kind == "uniform":
+        params = (min(params[0], nominal), max(params[1], nominal))
+    elif kind == "triangular":
+        params = (min(params[0], nominal), params[1], max(params[2], nominal))
+    elif kind == "normal":
+        params = (params[0], max(params[1], _outward(abs(nominal - params[0]) / _Z995, True)))
+    elif kind == "lognormal":
+        if nominal <= 0.0:
+            raise CaseError(f"{EDIT_SOURCE}: uncertainty.{key}: a lognormal range cannot hold "
+                            f"the nominal value {nominal:g} (not positive)")
+        ratio = max(nominal / params[0], params[0] / nominal)
+        params = (params[0], max(params[1], _outward(ratio ** (1 / _Z995), True)))
+    return _replace_parameter(case, key, Distribution(kind, params, _clip_with(d.clip, nominal)))
+
+
+def move_to_nominal(case: Case, key: str) -> Case:
+    """The case with the range of uncertain parameter ``key`` moved to centre on its nominal.
+
+    A uniform range keeps its width around the nominal, a triangular one puts its mode there,
+    a normal mean or lognormal median becomes the nominal; clip bounds move (or scale, for a
+    lognormal) with the range.
+    """
+    row = _row_of(case, key)
+    nominal = case.nominal_value(key)
+    d = row.distribution
+    kind, params, clip = d.kind, d.params, d.clip
+    if kind == "uniform":
+        shift = nominal - 0.5 * (params[0] + params[1])
+    elif kind == "triangular":
+        shift = nominal - params[1]
+    elif kind == "normal":
+        shift = nominal - params[0]
+    else:
+        shift = 0.0
+    if kind == "lognormal":
+        if nominal <= 0.0:
+            raise CaseError(f"{EDIT_SOURCE}: uncertainty.{key}: a lognormal range cannot be "
+                            f"centred on {nominal:g} (not positive)")
+        scale = nominal / params[0]
+        params = (nominal, params[1])
+        clip = None if clip is None else (_round(clip[0] * scale), _round(clip[1] * scale))
+    elif kind != "relative":  # relative is centred on the nominal already
+        moved = [_round(value + shift) for value in params]
+        params = tuple(moved) if kind != "normal" else (nominal, params[1])
+        clip = None if clip is None else (_round(clip[0] + shift), _round(clip[1] + shift))
+    distribution = Distribution(kind, tuple(params), _clip_with(clip, nominal))
+    return _replace_parameter(case, key, distribution)

@@ -5,7 +5,7 @@ from __future__ import annotations
 from textual.message import Message
 
 __all__ = ["FieldEdited", "DistributionEdited", "KindChanged", "RowAdded", "RowRemoved",
-           "field_id"]
+           "RangeFixAsked", "field_id"]
 
 
 def field_id(name: str) -> str:
@@ -48,6 +48,14 @@ class RowAdded(Message):
 
 class RowRemoved(Message):
     """An uncertain parameter was removed."""
+
+    def __init__(self, key: str) -> None:
+        super().__init__()
+        self.key = key
+
+
+class RangeFixAsked(Message):
+    """The nominal value lies outside this uncertain parameter's range: offer to fix the range."""
 
     def __init__(self, key: str) -> None:
         super().__init__()

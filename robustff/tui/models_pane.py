@@ -45,6 +45,7 @@ class FieldRow(Vertical):
                             placeholder="blank = rule" if self.field in OPTIONAL_FIELDS
                             else "a number")
         yield Static("", classes="error", id=f"err-{field_id(self.field)}")
+        yield Static("", classes="warning", id=f"warn-{field_id(self.field)}")
 
     def _send(self, text: str) -> None:
         if text != self.applied or self.has_class("invalid"):
@@ -71,6 +72,13 @@ class FieldRow(Vertical):
         line.set_class(error is not None, "shown")
         if error is None:
             self.applied = text
+
+
+    def show_warning(self, warning: str | None) -> None:
+        """A review warning about the value (kept until an edit clears it), or none."""
+        line = self.query_one(".warning", Static)
+        line.update(f"⚠ {warning}" if warning else "")
+        line.set_class(warning is not None, "shown")
 
 
 class ModelsPane(Vertical):
@@ -102,6 +110,16 @@ class ModelsPane(Vertical):
         """The row editing ``field``."""
         return self.query_one(f"#row-{field_id(field)}", FieldRow)
 
-    def show_design(self, lines: list[str]) -> None:
-        """Show the design computed from the nominal models."""
+    def show_design(self, lines: list[str], warnings: dict[str, str]) -> None:
+        """Show the design computed from the nominal models and the review's warnings.
+
+        Parameters
+        ----------
+        lines : list of str
+            The design summary (and warnings that concern no single field).
+        warnings : dict
+            Warning text by field (``"process.dead_time"``), shown under that field.
+        """
         self.query_one("#design-summary", Static).update("\n".join(lines))
+        for row in self.query(FieldRow):
+            row.show_warning(warnings.get(row.field))

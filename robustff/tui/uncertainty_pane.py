@@ -10,7 +10,14 @@ from textual.widgets import Button, Input, Label, Select, Static
 
 from robustff.case import DISTRIBUTION_KINDS, Case, UncertainParameter
 from robustff.tui.editing import clip_text, params_text, uncertain_candidates
-from robustff.tui.messages import DistributionEdited, KindChanged, RowAdded, RowRemoved, field_id
+from robustff.tui.messages import (
+    DistributionEdited,
+    KindChanged,
+    RangeFixAsked,
+    RowAdded,
+    RowRemoved,
+    field_id,
+)
 
 __all__ = ["UncertaintyPane", "UncertainRow"]
 
@@ -41,6 +48,10 @@ class UncertainRow(Vertical):
                         placeholder=_HINTS[self.kind])
             yield Input(self.applied[1], compact=True, classes="uclip", placeholder="clip lo, hi")
         yield Static(self.description, classes="udesc")
+        with Horizontal(classes="uwarn-line"):
+            yield Static("", classes="uwarn")
+            yield Button("fix range", compact=True, classes="ufix",
+                         tooltip=f"widen or move the range of {self.key} to its nominal value")
 
     def _send(self) -> None:
         params = self.query_one(".uparams", Input).value
@@ -63,7 +74,19 @@ class UncertainRow(Vertical):
 
     def on_button_pressed(self, event: Button.Pressed) -> None:
         event.stop()
-        self.post_message(RowRemoved(self.key))
+        if event.button.has_class("ufix"):
+            self.post_message(RangeFixAsked(self.key))
+        else:
+            self.post_message(RowRemoved(self.key))
+
+    def show_warning(self, warning: str | None, offer_fix: bool) -> None:
+        """A review warning about this range (kept until an edit clears it), or none.
+
+        ``offer_fix`` shows the button that widens or moves the range to the nominal value.
+        """
+        self.query_one(".uwarn", Static).update(f"⚠ {warning}" if warning else "")
+        self.set_class(warning is not None, "warned")
+        self.set_class(offer_fix, "fixable")
 
     def show_result(self, case: Case, error: str | None) -> None:
         """Show the applied distribution, or the reason an edit was refused (text kept)."""
@@ -116,6 +139,16 @@ class UncertaintyPane(Vertical):
     def row(self, key: str) -> UncertainRow:
         """The row of uncertain parameter ``key``."""
         return self.query_one(f"#u-{field_id(key)}", UncertainRow)
+
+    def show_warnings(self, case: Case, warnings: dict[str, str]) -> None:
+        """Review warnings by uncertain parameter key (``"process.dead_time"``)."""
+        from robustff.design.case_review import nominal_outside_range
+
+        for parameter in case.uncertainty:
+            rows = self.query(f"#u-{field_id(parameter.key)}").results(UncertainRow)
+            for row in rows:
+                row.show_warning(warnings.get(parameter.key),
+                                 nominal_outside_range(case, parameter))
 
     def show_table_error(self, error: str | None) -> None:
         """An add/remove that was refused."""
