@@ -8,6 +8,7 @@ one line per problem, ``"FILE: key.path: what is wrong (got VALUE)"``. The schem
 
 from __future__ import annotations
 
+import hashlib
 import re
 import tomllib
 from pathlib import Path
@@ -24,6 +25,7 @@ from robustff.case.schema import (
     Event,
     FeedbackSpec,
     FeedforwardSpec,
+    RecommendationSpec,
     Signal,
     Signals,
     SimulationSpec,
@@ -46,7 +48,7 @@ MIN_SAMPLES, MAX_SAMPLES = 10, 10_000_000
 MAX_SEED = 2**63 - 1
 TOP_LEVEL_KEYS: tuple[str, ...] = (
     "title", "time_unit", "process", "disturbance", "feedback", "feedforward", "sensor",
-    "event", "signals", "simulation", "uncertainty", "study", "design",
+    "event", "signals", "simulation", "uncertainty", "study", "design", "recommendation",
 )
 _REQUIRED_TABLES = ("process", "disturbance", "simulation")
 
@@ -71,7 +73,8 @@ def load_case(path: str | Path) -> Case:
     """
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        data = path.read_bytes()  # hashed as read: the SHA-256 is that of the bytes that ran
+        text = data.decode("utf-8")
     except FileNotFoundError:
         raise CaseError(f"{path}: no such case file") from None
     except UnicodeDecodeError as exc:
@@ -79,13 +82,13 @@ def load_case(path: str | Path) -> Case:
     except OSError as exc:
         raise CaseError(f"{path}: cannot read the case file ({exc.strerror or exc})") from None
     case = parse_case(text, source=str(path))
-    return _with_source(case, path)
+    return _with_source(case, path, hashlib.sha256(data).hexdigest())
 
 
-def _with_source(case: Case, path: Path) -> Case:
+def _with_source(case: Case, path: Path, sha256: str) -> Case:
     from dataclasses import replace
 
-    return replace(case, source_path=path)
+    return replace(case, source_path=path, source_sha256=sha256)
 
 
 def parse_case(text: str, source: str = "<text>") -> Case:
@@ -137,11 +140,13 @@ def _build_case(problems: Problems, raw: dict[str, Any]) -> Case | None:
     simulation = _read_simulation(problems, raw)
     events = _read_events(problems, raw, simulation)
     study = _read_study(problems, raw.get("study", {}))
+    recommendation = _read_recommendation(problems, raw.get("recommendation", {}))
     designs = _read_designs(problems, raw)
     models = {"process": process, "disturbance": disturbance, "sensor": sensor}
     uncertainty, correlations = read_uncertainty(problems, raw.get("uncertainty", {}), models)
     parts = (title, time_unit, process, disturbance, feedback, feedforward, sensor, signals,
-             simulation, events, study, uncertainty, correlations, designs)
+             simulation, events, study, uncertainty, correlations, designs,
+             recommendation)
     if problems.lines or any(part is None for part in parts):
         return None
     return Case(
@@ -149,6 +154,7 @@ def _build_case(problems: Problems, raw: dict[str, Any]) -> Case | None:
         feedback=feedback, feedforward=feedforward, simulation=simulation,  # type: ignore[arg-type]
         events=events, sensor=sensor, signals=signals, uncertainty=uncertainty,  # type: ignore[arg-type]
         correlations=correlations, study=study, designs=designs,  # type: ignore[arg-type]
+        recommendation=recommendation,  # type: ignore[arg-type]
     )
 
 
@@ -443,3 +449,23 @@ def _read_study(problems: Problems, value: object) -> StudySpec | None:
     if len(problems) > before:
         return None
     return StudySpec(samples, seed, sampling)  # type: ignore[arg-type]
+
+
+def _read_recommendation(problems: Problems, value: object) -> RecommendationSpec | None:
+    table = _section(problems, "recommendation", value)
+    if table is None:
+        return None
+    before = len(problems)
+    default = RecommendationSpec()
+    table.check_keys(("max_harm", "min_improvement"))
+    values = []
+    for key, fallback in (("max_harm", default.max_harm),
+                          ("min_improvement", default.min_improvement)):
+        value = table.number(key, fallback, minimum=0.0, what="a fraction 0 .. 1")
+        if value is not None and value > 1.0:
+            problems.add(join("recommendation", key),
+                         "must be a fraction 0 .. 1 (0.01 means 1 %)", value)
+        values.append(value)
+    if len(problems) > before:
+        return None
+    return RecommendationSpec(*values)  # type: ignore[arg-type]

@@ -29,6 +29,7 @@ __all__ = [
     "UncertainParameter",
     "Correlation",
     "StudySpec",
+    "RecommendationSpec",
     "Case",
 ]
 
@@ -254,6 +255,26 @@ class StudySpec:
 
 
 @dataclass(frozen=True)
+class RecommendationSpec:
+    """When the report calls a feedforward design recommended (``[recommendation]``).
+
+    The defaults are common practice, not a standard: a site sets its own.
+
+    Parameters
+    ----------
+    max_harm : float
+        Largest acceptable upper end of the 95 % (Wilson) interval of the probability that the
+        design makes the IAE worse than feedback alone, fraction 0..1 (0.01 = 1 %).
+    min_improvement : float
+        Smallest acceptable median (P50) IAE improvement, fraction of the feedback-only IAE:
+        ``1 - P50(IAE fbff / IAE fb)`` (0.20 = 20 %).
+    """
+
+    max_harm: float = 0.01
+    min_improvement: float = 0.20
+
+
+@dataclass(frozen=True)
 class Case:
     """One study: nominal models, controller and feedforward design rules, events, uncertainty."""
 
@@ -271,7 +292,10 @@ class Case:
     correlations: tuple[Correlation, ...] = ()
     study: StudySpec = StudySpec()
     designs: tuple[DesignSpec, ...] = ()
+    recommendation: RecommendationSpec = RecommendationSpec()
     source_path: Path | None = field(default=None, compare=False)
+    #: SHA-256 (hex) of the case file's bytes as read by ``load_case``; None for text cases.
+    source_sha256: str | None = field(default=None, compare=False)
 
     @property
     def name(self) -> str:

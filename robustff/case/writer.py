@@ -25,6 +25,7 @@ from robustff.case.schema import (
     Distribution,
     FeedbackSpec,
     FeedforwardSpec,
+    RecommendationSpec,
     Signals,
     StudySpec,
 )
@@ -133,6 +134,7 @@ def _plain(case: Case) -> dict[str, Any]:
         "event": [_event(event) for event in case.events],
         "uncertainty": _uncertainty(case),
         "study": _dataclass(case.study),
+        "recommendation": _dataclass(case.recommendation),
     } | ({"design": [{"name": design.name} | _dataclass(design.feedforward)
                      for design in case.designs]} if case.designs else {})
 
@@ -186,6 +188,7 @@ def _defaults() -> dict[str, Any]:
         "signals": {name: _dataclass(signal) for name, signal in _items(Signals())},
         "uncertainty": {},
         "study": _dataclass(StudySpec()),
+        "recommendation": _dataclass(RecommendationSpec()),
         "simulation": {"substeps": 1},
     }
 
