@@ -169,18 +169,29 @@ def _print_drivers(summary: Summary, rows: int = 5) -> None:
 
 
 def _print_margins(margins: MarginsSummary) -> None:
-    """The nominal loop's margins, the share of samples with Ms > 2, and the nominal warnings."""
+    """The nominal loop's margins as simulated (and with a continuous controller), the share of
+    samples with Ms > 2, the unstable count, where the simulation judged otherwise, warnings."""
     nominal = margins["nominal"]
     ms_above = margins["fraction_below_limits"]["ms_above_2"]
     # None only without any margin sample, which a run with at least one sample cannot give.
     share = "n/a" if ms_above is None else f"{100 * ms_above:.1f}"
+    continuous = margins["nominal_continuous"]
+    reference = ("" if continuous is None else
+                 f" (continuous controller: GM {continuous['gain_margin']:.3g}, "
+                 f"PM {continuous['phase_margin']:.3g} deg)")
     print(
-        f"Feedback margins (nominal): GM {nominal['gain_margin']:.3g} (ratio), "
+        f"Feedback margins (nominal, as simulated at the {margins['sample_time']:g} "
+        f"{margins['units']['delay_margin']} scan period): "
+        f"GM {nominal['gain_margin']:.3g} (ratio), "
         f"PM {nominal['phase_margin']:.3g} deg, "
-        f"Ms {nominal['ms']:.3g} (ratio); across {margins['samples']} samples: "
+        f"Ms {nominal['ms']:.3g} (ratio){reference}; across {margins['samples']} samples: "
         f"{share} % with Ms > 2, "
         f"{margins['unstable']} unstable"
     )
+    if margins["verdicts_differ"]:
+        print(f"Note: the simulation judged {margins['verdicts_differ']} of these samples "
+              "differently (a loop at the stability limit, or a saturated response beyond the "
+              "divergence limit); summary.json lists them under margins.verdicts_differ_samples")
     for warning in margins["nominal_warnings"]:
         print(f"WARNING: {warning}")
 

@@ -238,7 +238,8 @@ def _sampled_span(loop: SampledLoop) -> tuple[np.ndarray, np.ndarray, np.ndarray
     return low, high, np.clip(turning, _POINTS_PER_DECADE, _MAX_DENSITY)
 
 
-def _bisect(loop: _Loop, rows: np.ndarray, lo: np.ndarray, hi: np.ndarray, fun) -> np.ndarray:
+def _bisect(loop: _Loop | SampledLoop, rows: np.ndarray, lo: np.ndarray, hi: np.ndarray,
+            fun) -> np.ndarray:
     """Roots of ``fun(sub_loop, w)`` bracketed in [lo, hi] (log frequency), one per entry."""
     sub = loop.pick(rows)
     f_lo = fun(sub, np.exp(lo)) > 0.0
@@ -270,7 +271,7 @@ def _phase_crossovers(loop: _Loop, w: np.ndarray, phase: np.ndarray):
     return rows, freq
 
 
-def _closed_loop_rhp_count(loop: _Loop, angle: np.ndarray) -> np.ndarray:
+def _closed_loop_rhp_count(loop: _Loop | SampledLoop, angle: np.ndarray) -> np.ndarray:
     """Closed-loop poles in the right half plane, per sample (float, ~integer), by Nyquist.
 
     The open loop has no right-half-plane poles; its ``m`` poles at the origin are passed on a

@@ -71,10 +71,18 @@ def _margins_section(summary: Summary) -> str:
         for k, v in limits.items()
         if v is not None
     )
+    differ = margins.get("verdicts_differ", 0)
+    differ_line = (f"<li>samples the simulation judged otherwise: {differ} (a loop at the "
+                   "stability limit, or a saturated response beyond the divergence limit)</li>"
+                   if differ else "")
     return (
         "<h2>Feedback stability margins</h2>"
+        + f"<p>The loop as simulated: the controller samples the CV every "
+        f"{margins.get('sample_time', 0.0):g} {html.escape(summary['time_unit'])} (the scan "
+        "period) and holds its output in between.</p>"
         + _table(["margin", "P5", "P50", "P95"], rows)
-        + f"<ul>{lines}<li>unstable feedback loops: {margins.get('unstable', 0)}</li></ul>"
+        + f"<ul>{lines}<li>unstable feedback loops: {margins.get('unstable', 0)}</li>"
+        f"{differ_line}</ul>"
         + f"<p>Limits Ms &gt; {MS_LIMIT:g}, GM &lt; {GAIN_MARGIN_LIMIT:g}, "
         f"PM &lt; {PHASE_MARGIN_LIMIT:g} deg are common practice, no source.</p>"
     )

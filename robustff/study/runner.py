@@ -101,9 +101,13 @@ class StudyResult:
     elapsed : float
         Wall time, seconds.
     margins : MarginResult or None
-        Feedback stability margins of the first ``MARGIN_SAMPLES`` simulated samples.
+        Feedback stability margins of the first ``MARGIN_SAMPLES`` simulated samples, of the
+        loop as simulated (controller sampled at the scan period, output held).
     nominal_margins : MarginResult or None
-        Margins of the nominal loop.
+        Margins of the nominal loop as simulated.
+    nominal_continuous_margins : MarginResult or None
+        Margins of the nominal loop with a continuous-time controller (what continuous tuning
+        rules quote; the hold of the sampled controller adds about half a scan of delay).
     alternatives : list of DesignArm
         The case's other feedforward designs (``design.alternatives``), same samples.
     """
@@ -125,6 +129,7 @@ class StudyResult:
     elapsed: float
     margins: MarginResult | None = None
     nominal_margins: MarginResult | None = None
+    nominal_continuous_margins: MarginResult | None = None
     alternatives: list[DesignArm] = field(default_factory=list)
 
     @property
@@ -245,7 +250,8 @@ def run_study(
         A KeyboardInterrupt does the same.
     margins : bool
         Also compute the feedback stability margins (exact dead time) of the nominal loop and
-        of the first ``MARGIN_SAMPLES`` samples.
+        of the first ``MARGIN_SAMPLES`` samples, as simulated (at the scan period) and, for the
+        nominal loop, with a continuous controller.
 
     Returns
     -------
@@ -303,8 +309,12 @@ def run_study(
     )
     if margins:
         subset = min(result.samples, MARGIN_SAMPLES)
-        result.margins = loop_margins(plant_batch(case, names, values[:subset]), design.feedback)
-        result.nominal_margins = loop_margins(nominal_batch(case), design.feedback)
+        scan = case.simulation.step  # the loop as simulated: sampled controller, output held
+        result.margins = loop_margins(plant_batch(case, names, values[:subset]), design.feedback,
+                                      sample_time=scan)
+        result.nominal_margins = loop_margins(nominal_batch(case), design.feedback,
+                                              sample_time=scan)
+        result.nominal_continuous_margins = loop_margins(nominal_batch(case), design.feedback)
     result.elapsed = time.perf_counter() - started
     return result
 

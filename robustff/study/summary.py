@@ -103,26 +103,42 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummar
     batch = plant_batch(result.case, result.names, result.parameters[:subset])
     # MarginResult.summary gives the distribution keys; the rest is added here.
     out = cast(MarginsSummary, result.margins.summary(percentiles, batch=batch))
-    nominal = result.nominal_margins
     out["samples"] = subset
     out["units"] = {"gain_margin": "-", "phase_margin": "deg",
                     "delay_margin": result.case.time_unit, "ms": "-"}
-    nominal_values: NominalMargins = {
+    out["sample_time"] = result.case.simulation.step
+    out["nominal"] = _nominal_values(result.nominal_margins)
+    out["nominal_continuous"] = (_nominal_values(result.nominal_continuous_margins)
+                                 if result.nominal_continuous_margins is not None else None)
+    out["nominal_warnings"] = nominal_margin_warnings(out["nominal"])
+    # The simulation's own verdict on the same samples (feedback only), and where it differs.
+    simulated = result.unstable[:subset, 0]
+    out["simulation_unstable"] = int(simulated.sum())
+    differ = np.nonzero(simulated == result.margins.stable)[0]  # unstable there, stable here
+    out["verdicts_differ"] = int(differ.size)
+    out["verdicts_differ_samples"] = [int(i) for i in differ[:50]]
+    out["limits_note"] = LIMITS_NOTE
+    out["note"] = (
+        f"the loop as simulated: the controller samples the CV every "
+        f"{result.case.simulation.step:g} {result.case.time_unit} (the scan period) and holds "
+        "its output in between, analysed exactly as a discrete-time loop with the exact dead "
+        "time; the hold adds about half a scan of delay, so these margins are a little smaller "
+        "than those of a continuous controller (nominal_continuous). The simulation judges "
+        "stability from the response to a load within the window: a sample counted in "
+        "verdicts_differ was judged differently there (a loop at the stability limit, or a "
+        "response that ran beyond the divergence limit with the output saturated)"
+    )
+    return out
+
+
+def _nominal_values(nominal: MarginResult) -> NominalMargins:
+    return {
         "gain_margin": float(nominal.gain_margin[0]),
         "phase_margin": float(nominal.phase_margin[0]),
         "delay_margin": float(nominal.delay_margin[0]),
         "ms": float(nominal.ms[0]),
         "stable": bool(nominal.stable[0]),
     }
-    out["nominal"] = nominal_values
-    out["nominal_warnings"] = nominal_margin_warnings(nominal_values)
-    out["limits_note"] = LIMITS_NOTE
-    out["note"] = (
-        "continuous-time loop with the exact dead time; the simulated digital controller adds "
-        "about half a sample of delay (zero-order hold), so a loop within a few percent of the "
-        "stability limit may count as stable here and unstable in the simulation"
-    )
-    return out
 
 
 def nominal_margin_warnings(nominal: NominalMargins) -> list[str]:

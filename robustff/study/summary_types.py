@@ -154,7 +154,8 @@ class MarginUnits(TypedDict):
 
 
 class MarginsSummary(TypedDict):
-    """Feedback stability margins (exact dead time) of the first margin samples."""
+    """Feedback stability margins (exact dead time) of the first margin samples, of the loop as
+    simulated: the controller sampled at the scan period ``sample_time``, output held."""
 
     gain_margin: MarginDistribution  #: dimensionless
     phase_margin: MarginDistribution  #: degrees
@@ -166,8 +167,13 @@ class MarginsSummary(TypedDict):
     unstable_samples: list[int]  #: indices of the first unstable samples
     unstable_parameters: list[dict[str, float]]  #: their process parameters, key without "process."
     samples: int  #: samples whose margins were computed
-    nominal: NominalMargins
+    sample_time: float  #: time units: the controller's scan period the loop was analysed at
+    nominal: NominalMargins  #: the nominal loop as simulated
+    nominal_continuous: NominalMargins | None  #: the nominal loop, continuous controller
     nominal_warnings: list[str]
+    simulation_unstable: int  #: of the margin samples, flagged unstable by the simulation (fb)
+    verdicts_differ: int  #: margin samples where that flag and ``unstable`` disagree
+    verdicts_differ_samples: list[int]  #: indices of the first 50 of them
     limits_note: str
     note: str
 
