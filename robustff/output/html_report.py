@@ -131,7 +131,9 @@ def write_report(
         + f"<li>{html.escape(risk_sentence(summary, 'iae'))}</li>"
         + f"<li>{html.escape(risk_sentence(summary, 'peak_deviation'))}</li>"
         + f"<li>Unstable samples: {summary['unstable']['fb']} feedback only, "
-        + f"{summary['unstable']['fbff']} with feedforward</li></ul>",
+        + f"{summary['unstable']['fbff']} with feedforward</li>"
+        + "".join(f"<li>warning: {html.escape(text)}</li>" for text in summary["warnings"])
+        + "</ul>",
         "<h2>Design (from the nominal models)</h2><pre>"
         + html.escape("\n".join(design_lines))
         + "</pre>",
