@@ -38,9 +38,9 @@ from robustff.tui.messages import (
 )
 from robustff.tui.models_pane import FieldRow, ModelsPane
 from robustff.tui.pictures import PicturesPane
-from robustff.tui.results_pane import CautionLine, ResultsPane
+from robustff.tui.results_pane import CautionLine, ResultsPane, StaleLine
 from robustff.tui.robust_actions import RobustActions
-from robustff.tui.uncertainty_pane import UncertaintyPane
+from robustff.tui.uncertainty_pane import UncertainRow, UncertaintyPane
 from robustff.tui.view import StudyView
 
 if TYPE_CHECKING:
@@ -92,6 +92,10 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
         self.init_key_order()
         self.init_files(case_path, case, recovery_folder)
         self.results_version = 0
+        #: The case the results on screen belong to, and why the latest run of the case on
+        #: screen failed (None when it did not).
+        self.results_case: Case | None = None
+        self.run_failure: str | None = None
         self.last_view: StudyView | None = None
         self.last_result: StudyResult | None = None
         self.last_summary: Summary | None = None
@@ -109,6 +113,7 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
                 yield ModelsPane(self.case, id="models")
                 yield UncertaintyPane(self.case, id="uncertainty")
             with Vertical(id="right"):
+                yield StaleLine()
                 with VerticalScroll(id="results-scroll"):
                     yield ResultsPane(id="results")
                     yield PicturesPane(id="pictures")
@@ -131,6 +136,7 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
             case = editing.edit_field(self.case, message.field, message.text)
         except CaseError as exc:
             row.show_result(_reason(exc), message.text)
+            self.refresh_staleness()
             return
         row.show_result(None, message.text)
         self.accept_edit(case, rebuild=message.field == "feedback.tuning")
@@ -142,6 +148,7 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
                                              message.params, message.clip)
         except CaseError as exc:
             pane.row(message.key).show_result(self.case, _reason(exc))
+            self.refresh_staleness()
             return
         pane.row(message.key).show_result(case, None)
         self.accept_edit(case)
@@ -262,6 +269,8 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
         self._cancel.set()
         self._cancel = threading.Event()
         self._generation += 1
+        self.run_failure = None
+        self.refresh_staleness()
         results = self.query_one(ResultsPane)
         results.show_status("Running a quick pass..." if self.results_version else
                             "Starting: the first run loads the simulator (1-3 s)...")
@@ -297,7 +306,7 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
             except (RobustffError, ArithmeticError, ValueError) as exc:
                 self._from_thread(self._on_failure, generation, str(exc))
                 return
-            self._from_thread(self._on_result, generation, result, summary, view)
+            self._from_thread(self._on_result, generation, case, result, summary, view)
 
     def _from_thread(self, callback: Callable[..., object], *args: object) -> None:
         try:
@@ -311,12 +320,15 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
 
     def _on_failure(self, generation: int, message: str) -> None:
         if generation == self._generation:
+            self.run_failure = message
             self.query_one(ResultsPane).show_status(f"✗ run failed: {message}")
+            self.refresh_staleness()
 
-    def _on_result(self, generation: int, result: StudyResult, summary: Summary,
+    def _on_result(self, generation: int, case: Case, result: StudyResult, summary: Summary,
                    view: StudyView) -> None:
         if generation != self._generation:
             return  # an older case's run finished after an edit
+        self.results_case = case
         self.last_view, self.last_result, self.last_summary = view, result, summary
         self.results_version += 1
         self.result_log.append((time.perf_counter(), view.quick))
@@ -330,6 +342,49 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
             pane.show_progress(view.samples, view.requested)
         pane.show_view(view)
         self.query_one(PicturesPane).show_view(view)
+        self.refresh_staleness()
+
+    # --- stale results ------------------------------------------------------------------------
+
+    def refused_fields(self) -> list[str]:
+        """Fields and uncertain parameters whose text on screen was refused (not in the case)."""
+        fields = [row.field for row in self.query(FieldRow) if row.has_class("invalid")]
+        return fields + [row.key for row in self.query(UncertainRow) if row.has_class("invalid")]
+
+    def stale_reason(self) -> str | None:
+        """Why the results on screen do not belong to the case on screen (None when they do)."""
+        refused = self.refused_fields()
+        if refused:
+            return f"{', '.join(refused)}: refused text (✗); results of the last accepted value"
+        if self.results_case is None or self.results_case == self.case:
+            return None
+        if self.run_failure is not None:
+            return "results of an earlier version: the run of the edited case failed"
+        return "results of the case before the edit; rerunning..."
+
+    def refresh_staleness(self) -> None:
+        """Dim the results and say why when they do not belong to the case on screen."""
+        reason = self.stale_reason()
+        self.query_one("#right").set_class(reason is not None, "stale")
+        self.query_one(StaleLine).show_reason(reason)
+
+    def case_problem(self) -> str | None:
+        """Why the case on screen should not be saved without asking (None when it is fine)."""
+        refused = self.refused_fields()
+        if refused:
+            return (f"{', '.join(refused)} holds refused text; the saved file would keep the "
+                    "last accepted value instead")
+        from robustff.design.case_review import review_case
+
+        try:
+            review = review_case(self.case)
+        except (RobustffError, ArithmeticError) as exc:
+            return f"the design fails: {exc}"
+        if review.errors:
+            return "; ".join(finding.text() for finding in review.errors)
+        if self.run_failure is not None and self.results_case != self.case:
+            return f"its run failed: {self.run_failure}"
+        return None
 
     def screen_text(self) -> str:
         """The screen as plain text (for tests and the benchmark; needs a running app)."""

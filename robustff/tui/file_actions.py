@@ -5,6 +5,7 @@ Kept apart from :mod:`robustff.tui.app` so the app module holds only layout, edi
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import replace
 from pathlib import Path
 
@@ -83,13 +84,29 @@ class FileActions(StudioHost):
     # --- save, export, reload -----------------------------------------------------------------
 
     def action_save(self) -> None:
+        self.unless_invalid(self._save)
+
+    def _save(self) -> None:
         if is_bundled(self.case_path):
             self.notify("the bundled demo case is read-only; choose where to save a copy")
-            self.action_save_as()
+            self._save_as()
             return
         self.save_to(self.case_path)
 
+    def unless_invalid(self, then: Callable[[], None]) -> None:
+        """Run ``then`` now, or after asking when the case on screen does not validate."""
+        problem = self.case_problem()
+        if problem is None:
+            then()
+            return
+        question = f"The case on screen does not validate: {problem}.\nSave it anyway?"
+        self.push_screen(ChoiceScreen(question, [("s", "save anyway"), ("c", "cancel")]),
+                         lambda choice: then() if choice == "s" else None)
+
     def action_save_as(self) -> None:
+        self.unless_invalid(self._save_as)
+
+    def _save_as(self) -> None:
         default = str(self.case_path if not is_bundled(self.case_path)
                       else Path.cwd() / self.case_path.name)
 

@@ -44,6 +44,12 @@ if TYPE_CHECKING:
         def start_run(self) -> None:
             """Cancel the running study (if any) and start a new one."""
 
+        def case_problem(self) -> str | None:
+            """Why the case on screen should not be saved without asking (None: fine)."""
+
+        def refresh_staleness(self) -> None:
+            """Dim the results and say why when they do not belong to the case on screen."""
+
         def _from_thread(self, callback: Callable[..., object], *args: object) -> None:
             """Call ``callback(*args)`` on the app's thread (ignored once the app closes)."""
 else:

@@ -14,7 +14,7 @@ from textual.widgets import ProgressBar, Static
 from robustff import CAUTION
 from robustff.tui.view import TABLE_PERCENTILES, StudyView
 
-__all__ = ["ResultsPane", "MARKS", "percentile_table", "risk_text"]
+__all__ = ["ResultsPane", "StaleLine", "CautionLine", "MARKS", "percentile_table", "risk_text"]
 
 #: Verdict marks: a symbol and a word, so nothing depends on colour.
 MARKS = {"better": ("▼ better", "green"), "worse": ("▲ WORSE", "bold red"), "same": ("= same", "")}
@@ -80,6 +80,18 @@ class ResultsPane(Vertical):
         """Draw a finished pass."""
         self.query_one("#percentiles", Static).update(percentile_table(view))
         self.query_one("#risk", Static).update(risk_text(view))
+
+
+class StaleLine(Static):
+    """Docked above the results: why they do not belong to the case on screen (else hidden)."""
+
+    def __init__(self) -> None:
+        super().__init__("", id="stale")
+
+    def show_reason(self, reason: str | None) -> None:
+        """Show ``reason`` (the results are stale) or hide the line (None: they are current)."""
+        self.update(f"⚠ STALE: {reason}" if reason else "")
+        self.set_class(reason is not None, "shown")
 
 
 class CautionLine(Static):
