@@ -268,6 +268,12 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
             file=sys.stderr,
         )
     summary = summarize_study(result, percentiles)
+    if summary["warnings"]:
+        from robustff.study.noise_travel import filter_trial
+
+        trial = filter_trial(result, jobs=args.jobs)  # the remedy's cost, on the same plants
+        if trial is not None:
+            summary["warnings"].append(trial.sentence(result))
     extra = None
     if args.report:
         from robustff.output.html_report import write_report

@@ -23,6 +23,8 @@ def test_noise_warning_in_printout_markdown_and_html(
     line = next(line for line in printed.splitlines() if line.startswith("warning: valve"))
     text = line.removeprefix("warning: ")
     assert "transmitter noise" in text and "input_filter" in text
+    trial = next(line for line in printed.splitlines() if line.startswith("warning: tried on"))
+    assert "median IAE" in trial and "degC*s" in trial  # the filter's cost, with units
     assert f"- warning: {text}" in (out / "percentiles.md").read_text()
     page = (out / "report.html").read_text()
     assert "<li>warning: valve travel with feedforward is" in page

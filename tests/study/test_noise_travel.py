@@ -14,6 +14,7 @@ from robustff.design.tuning import design_loop
 from robustff.study import run_study
 from robustff.study.noise_travel import (
     TRAVEL_RATIO,
+    filter_trial,
     high_frequency_gain,
     noise_travel_warning,
     suggested_input_filter,
@@ -70,3 +71,22 @@ def test_no_transmitter_noise_no_warning() -> None:
     result = run_study(case, samples=50, seed=1, jobs=1, margins=False)
     assert noise_travel_warning(result) is None
     assert summarize_study(result, (50.0,))["warnings"] == []
+
+
+def test_filter_trial_measures_the_cost_on_the_same_plants(wash_water) -> None:
+    case, result = wash_water  # 200 samples: the trial uses exactly these plants
+    trial = filter_trial(result, samples=500, jobs=1)
+    assert trial is not None and trial.samples == result.samples
+    suggested = suggested_input_filter(result.design.feedforward, case.simulation.step)
+    assert trial.input_filter == suggested
+    assert trial.iae[0] == pytest.approx(float(np.median(result.metrics["iae"][:, 1])))
+    # the filtered design equals a separate study of the case with the filter in [feedforward]
+    filtered_case = dataclasses.replace(case, feedforward=dataclasses.replace(
+        case.feedforward, input_filter=suggested))
+    separate = run_study(filtered_case, samples=result.samples, seed=result.seed, jobs=1,
+                         margins=False)
+    assert trial.iae[1] == pytest.approx(float(np.median(separate.metrics["iae"][:, 1])))
+    assert trial.valve_travel[1] == pytest.approx(
+        float(np.median(separate.metrics["valve_travel"][:, 1])))
+    text = trial.sentence(result)
+    assert "degC*s" in text and "input_filter = 9 s" in text and "%" in text
