@@ -189,9 +189,11 @@ def _print_margins(margins: MarginsSummary) -> None:
         f"{margins['unstable']} unstable"
     )
     if margins["verdicts_differ"]:
+        from robustff.study.summary import VERDICT_REASONS
+
         print(f"Note: the simulation judged {margins['verdicts_differ']} of these samples "
-              "differently (a loop at the stability limit, or a saturated response beyond the "
-              "divergence limit); summary.json lists them under margins.verdicts_differ_samples")
+              f"differently ({VERDICT_REASONS}); summary.json lists them under "
+              "margins.verdicts_differ_samples")
     for warning in margins["nominal_warnings"]:
         print(f"WARNING: {warning}")
 
@@ -289,6 +291,8 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
         + (" (PARTIAL)" if result.partial else "")
         + f", seed {result.seed}, {result.elapsed:.2f} s"
     )
+    for line in result.design.feedback_lines(case):  # the tuning as typed into the controller
+        print(line)
     _print_table(summary, percentiles)
     print(f"settling_time: after each step, ramp or setpoint event, until |e| stays within "
           f"+-{summary['settling_band']:.3g} {summary['units']['peak_deviation']}; the longest "

@@ -22,6 +22,7 @@ from robustff.output.plots import (
 )
 from robustff.output.result_files import percentile_rows, risk_sentence
 from robustff.study import StudyResult
+from robustff.study.summary import VERDICT_REASONS
 from robustff.study.summary_types import MarginName, Summary, percentile_value
 
 __all__ = ["write_report"]
@@ -72,9 +73,8 @@ def _margins_section(summary: Summary) -> str:
         if v is not None
     )
     differ = margins.get("verdicts_differ", 0)
-    differ_line = (f"<li>samples the simulation judged otherwise: {differ} (a loop at the "
-                   "stability limit, or a saturated response beyond the divergence limit)</li>"
-                   if differ else "")
+    differ_line = (f"<li>samples the simulation judged otherwise: {differ} "
+                   f"({html.escape(VERDICT_REASONS)})</li>" if differ else "")
     return (
         "<h2>Feedback stability margins</h2>"
         + f"<p>The loop as simulated: the controller samples the CV every "

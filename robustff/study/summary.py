@@ -29,6 +29,8 @@ from robustff.stats import (
 )
 from robustff.stats.sensitivity import rank_sensitivity
 from robustff.study.noise_travel import noise_travel_warning
+from robustff.study.provenance import not_settled, reproducibility
+from robustff.study.recommendation import recommend
 from robustff.study.runner import StudyResult
 from robustff.study.summary_types import (
     ArmStats,
@@ -41,6 +43,7 @@ from robustff.study.summary_types import (
     MarginsSummary,
     MetricStats,
     NominalMargins,
+    RecommendationDict,
     SensitivityRow,
     Summary,
     Versions,
@@ -51,11 +54,16 @@ __all__ = [
     "metric_unit",
     "nominal_margin_warnings",
     "HARM_METRICS",
+    "VERDICT_REASONS",
     "PAIRED_METRICS",
 ]
 
 #: Metrics for which the probability that feedforward makes things worse is reported.
 HARM_METRICS: tuple[str, ...] = ("iae", "peak_deviation")
+#: Why the simulation's stability verdict can differ from that of the margins (both are of the
+#: same sampled loop; the simulation judges from a finite window of the response).
+VERDICT_REASONS = ("a loop at the stability limit, a stable loop still recovering from the load "
+                   "when the window ends, or a saturated response beyond the divergence limit")
 #: Metrics whose per-sample improvement and ratio are summarised.
 PAIRED_METRICS: tuple[str, ...] = ("iae", "ise", "peak_deviation", "valve_travel")
 
@@ -125,8 +133,7 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummar
         "time; the hold adds about half a scan of delay, so these margins are a little smaller "
         "than those of a continuous controller (nominal_continuous). The simulation judges "
         "stability from the response to a load within the window: a sample counted in "
-        "verdicts_differ was judged differently there (a loop at the stability limit, or a "
-        "response that ran beyond the divergence limit with the output saturated)"
+        f"verdicts_differ was judged differently there ({VERDICT_REASONS})"
     )
     return out
 
@@ -224,7 +231,9 @@ def _convergence(result: StudyResult, harm_iae: HarmEstimate) -> Convergence:
 
 
 def summarize_study(
-    result: StudyResult, percentiles: Sequence[float] = DEFAULT_PERCENTILES
+    result: StudyResult,
+    percentiles: Sequence[float] = DEFAULT_PERCENTILES,
+    command_line: Sequence[str] | None = None,
 ) -> Summary:
     """The study's statistics.
 
@@ -233,6 +242,9 @@ def summarize_study(
     result : StudyResult
     percentiles : sequence of float
         Percentiles to report, in percent.
+    command_line : sequence of str, optional
+        The command that ran the study (the CLI passes ``sys.argv``), kept under
+        ``reproducibility``.
 
     Returns
     -------
@@ -259,7 +271,7 @@ def summarize_study(
             cast(SensitivityRow, row.to_dict())
             for row in rank_sensitivity(result.parameters, result.names, iae_ratio, harmful)
         ]
-    return {
+    summary: Summary = {
         "case": result.case.name,
         "title": result.case.title,
         "samples": result.samples,
@@ -286,5 +298,10 @@ def summarize_study(
         "warnings": [text for text in (noise_travel_warning(result),) if text],
         "elapsed_seconds": round(result.elapsed, 3),
         "versions": _versions(),
+        "not_settled": not_settled(result),
+        "recommendation": cast(RecommendationDict, {}),  # judged below, on the summary itself
+        "reproducibility": reproducibility(result, command_line),
         "caution": CAUTION,
     }
+    summary["recommendation"] = recommend(summary, result.case.recommendation)
+    return summary
