@@ -136,34 +136,53 @@ class FileActions(StudioHost):
         self.refresh_title()
         return True
 
+    def export_problem(self) -> str | None:
+        """Why the results on screen cannot be exported now (None: they are a complete run)."""
+        view = self.last_view
+        if self.last_result is None or view is None:
+            return "no results yet; wait for the first run"
+        if self.stale_reason() is not None:
+            return ("the results on screen are not those of the case on screen "
+                    f"({self.stale_reason()}); export once its run has finished")
+        if view.quick:
+            return (f"only the quick pass of {view.samples} plants has finished; export writes "
+                    f"complete runs only: wait for the {view.requested} plants of the full run")
+        return None
+
     def action_export(self) -> None:
-        if self.last_result is None:
-            self.notify("no results yet; wait for the first run", severity="warning")
+        problem = self.export_problem()
+        if problem is not None:
+            self.notify(f"not exported: {problem}", severity="warning", timeout=8)
             return
+        view = self.last_view
+        assert view is not None  # export_problem checked it
         default = str(Path("results") / self.case.name)
+        state = "PARTIAL run (stopped)" if view.partial else "full run"
+        title = (f"Export the {state} of {view.samples} plants (the files of 'robustff run "
+                 "--out') to folder:")
 
         def chosen(text: str | None) -> None:
             if text:
                 self.export_to(Path(text).expanduser())
 
-        self.push_screen(PathScreen("Export the results to folder:", default), chosen)
+        self.push_screen(PathScreen(title, default), chosen)
 
     def export_to(self, folder: Path) -> bool:
-        """Write the result files (as ``robustff run --out``) of the latest pass."""
+        """Write the result files (as ``robustff run --out``) of the latest complete run."""
         from robustff.output.result_files import write_results
         from robustff.stats import DEFAULT_PERCENTILES
 
-        result, summary, view = self.last_result, self.last_summary, self.last_view
-        if result is None or summary is None or view is None:
-            self.notify("no results yet; wait for the first run", severity="warning")
+        problem = self.export_problem()
+        result, summary = self.last_result, self.last_summary
+        if problem is not None or result is None or summary is None:
+            self.notify(f"not exported: {problem}", severity="warning", timeout=8)
             return False
         try:
             write_results(result, summary, folder, DEFAULT_PERCENTILES)
         except (RobustffError, OSError) as exc:
             self.notify(f"not exported: {exc}", severity="error", timeout=8)
             return False
-        quick = " (quick pass only: the full run had not finished)" if view.quick else ""
-        self.notify(f"results written to {folder}/{quick}")
+        self.notify(f"results of {result.samples} plants written to {folder}/")
         return True
 
     def action_reload(self) -> None:

@@ -47,6 +47,9 @@ if TYPE_CHECKING:
         def case_problem(self) -> str | None:
             """Why the case on screen should not be saved without asking (None: fine)."""
 
+        def stale_reason(self) -> str | None:
+            """Why the results on screen do not belong to the case on screen (None: they do)."""
+
         def refresh_staleness(self) -> None:
             """Dim the results and say why when they do not belong to the case on screen."""
 
