@@ -142,7 +142,8 @@ def margin_lines(summary: Summary) -> tuple[str, ...]:
         return "/".join(_number(percentile_value(margins[name], p)) for p in (5.0, 50.0, 95.0))
 
     lines = [
-        f"Margins nominal: GM {_number(nominal['gain_margin'])}, "
+        f"Margins nominal (as simulated, {margins['sample_time']:g} "
+        f"{margins['units']['delay_margin']} scan): GM {_number(nominal['gain_margin'])}, "
         f"PM {_number(nominal['phase_margin'], '.0f')} deg, Ms {_number(nominal['ms'])}",
         f"  over samples P5/P50/P95: GM {spread('gain_margin')}, Ms {spread('ms')}",
     ]
@@ -150,6 +151,9 @@ def margin_lines(summary: Summary) -> tuple[str, ...]:
     if ms_above is not None:
         lines.append(f"  Ms > 2 in {100 * ms_above:.1f} % of plants; "
                      f"unstable loops {margins['unstable']}")
+    if margins["verdicts_differ"]:
+        lines.append(f"  the simulation judged {margins['verdicts_differ']} of them otherwise "
+                     "(see margins.note in summary.json)")
     lines += [f"⚠ WARNING: {warning}" for warning in margins.get("nominal_warnings", [])]
     return tuple(lines)
 
