@@ -168,18 +168,19 @@ def _interval_ranks(n: int, p: float, confidence: float) -> tuple[int, int, floa
 
 
 def _estimate(
-    sorted_values: np.ndarray, percentile: float, confidence: float
+    ordered: np.ndarray, percentile: float, value: float, confidence: float
 ) -> PercentileEstimate:
-    n = sorted_values.size
+    """One percentile of ``ordered``, whose entries at the ranks needed (the interval ends, the
+    minimum and the maximum) already sit where a full sort would put them."""
+    n = ordered.size
     if n == 0:
         nan = float("nan")
         return PercentileEstimate(percentile, nan, nan, nan, 0.0, False, 0)
-    value = float(np.percentile(sorted_values, percentile, method="linear"))
     r, s, coverage = order_statistic_interval(n, percentile / 100.0, confidence)
     if r == 0:
-        low, high = float(sorted_values[0]), float(sorted_values[-1])
+        low, high = float(ordered[0]), float(ordered[-1])
         return PercentileEstimate(percentile, value, low, high, coverage, False, n)
-    low, high = float(sorted_values[r - 1]), float(sorted_values[s - 1])
+    low, high = float(ordered[r - 1]), float(ordered[s - 1])
     return PercentileEstimate(percentile, value, low, high, coverage, True, n)
 
 
@@ -205,8 +206,21 @@ def percentile_table(
     """
     plist = check_percentiles(percentiles)
     check_confidence(confidence)
-    data = np.sort(finite_values(values, "metric values"))
-    return {percentile_key(p): _estimate(data, p, confidence) for p in plist}
+    data = finite_values(values, "metric values")  # a copy, reordered in place below
+    n = data.size
+    if n == 0:
+        return {percentile_key(p): _estimate(data, p, float("nan"), confidence) for p in plist}
+    # Only a few order statistics are needed: a partial sort (introselect) at those ranks puts
+    # exactly the same numbers there as a full sort, at a fraction of its cost for large n.
+    levels = np.percentile(data, plist, method="linear")
+    ranks = {0, n - 1}
+    for p in plist:
+        r, s, _ = order_statistic_interval(n, p / 100.0, confidence)
+        if r > 0:
+            ranks.update((r - 1, s - 1))
+    data.partition(sorted(ranks))
+    return {percentile_key(p): _estimate(data, p, float(level), confidence)
+            for p, level in zip(plist, levels, strict=True)}
 
 
 @dataclass(frozen=True)

@@ -87,13 +87,22 @@ def spearman_with_interval(
         NaN when either input is constant or ``n < 3``; the interval is NaN for ``n <= 3``.
         ``atanh(rho) +- z * 1.06 / sqrt(n - 3)`` back-transformed with ``tanh``.
     """
+    if x.size < 3:
+        nan = float("nan")
+        return nan, nan, nan
+    return _spearman_of_ranks(average_ranks(x), average_ranks(y), confidence)
+
+
+def _spearman_of_ranks(
+    rx: np.ndarray, ry: np.ndarray, confidence: float
+) -> tuple[float, float, float]:
+    """:func:`spearman_with_interval` from the average ranks of ``x`` and ``y``."""
     from scipy.special import ndtri
 
-    n = x.size
+    n = rx.size
     nan = float("nan")
     if n < 3:
         return nan, nan, nan
-    rx, ry = average_ranks(x), average_ranks(y)
     rx, ry = rx - rx.mean(), ry - ry.mean()
     denom = math.sqrt(float(np.dot(rx, rx)) * float(np.dot(ry, ry)))
     if denom == 0.0:
@@ -176,15 +185,29 @@ def rank_sensitivity(
         ``|rho_harm|``.
     """
     par, resp, flag = _check_inputs(parameters, names, response, harm)
+    # Ranks of a whole column are worked out once and shared by the correlations that use all
+    # of its rows (the usual case: every sample finite); a subset is ranked on its own.
+    whole: dict[str, np.ndarray] = {}
+
+    def ranks(key: str, values: np.ndarray, rows: np.ndarray) -> np.ndarray:
+        if not rows.all():
+            return average_ranks(values[rows])
+        if key not in whole:
+            whole[key] = average_ranks(values)
+        return whole[key]
+
+    finite_response = np.isfinite(resp)
     rows = []
     for j, name in enumerate(names):
         col = par[:, j]
-        ok = np.isfinite(col) & np.isfinite(resp)
-        rho, low, high = spearman_with_interval(col[ok], resp[ok], confidence)
+        okh = np.isfinite(col)
+        ok = okh & finite_response
+        rho, low, high = _spearman_of_ranks(ranks(f"p{j}", col, ok),
+                                            ranks("response", resp, ok), confidence)
         extra: dict = {}
         if flag is not None:
-            okh = np.isfinite(col)
-            rh, lh, hh = spearman_with_interval(col[okh], flag[okh], confidence)
+            rh, lh, hh = _spearman_of_ranks(ranks(f"p{j}", col, okh),
+                                            ranks("harm", flag, okh), confidence)
             extra = {"rho_harm": rh, "harm_low": lh, "harm_high": hh, "n_harm": int(okh.sum())}
         rows.append(SensitivityRow(name, rho, low, high, int(ok.sum()), **extra))
 

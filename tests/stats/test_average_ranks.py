@@ -34,3 +34,26 @@ def test_spearman_equals_scipy_spearmanr() -> None:
     # Reference: scipy.stats.spearmanr (Spearman's rho with average ranks for ties).
     assert rho == pytest.approx(sps.spearmanr(x, y).statistic, rel=1e-12)
     assert low < rho < high
+
+
+@pytest.mark.parametrize("gaps", [False, True])
+def test_shared_ranks_give_the_pairwise_correlations(gaps: bool) -> None:
+    # rank_sensitivity ranks each whole column once; each row must still equal the correlation
+    # of that parameter with the response (finite rows) and with harm, computed pair by pair.
+    from robustff.stats.sensitivity import rank_sensitivity
+
+    rng = np.random.default_rng(3)
+    parameters = rng.normal(size=(400, 3))
+    response = parameters[:, 0] - 0.5 * parameters[:, 2] + rng.normal(scale=0.5, size=400)
+    if gaps:
+        response[[3, 30]] = np.nan  # unstable samples
+    harm = response > 0.8
+    rows = {row.name: row for row in rank_sensitivity(parameters, ["a", "b", "c"], response,
+                                                      harm)}
+    ok = np.isfinite(response)
+    for j, name in enumerate("abc"):
+        expected = spearman_with_interval(parameters[ok, j], response[ok])
+        assert (rows[name].rho, rows[name].low, rows[name].high) == expected
+        harm_rho = spearman_with_interval(parameters[:, j], harm.astype(float))
+        assert (rows[name].rho_harm, rows[name].harm_low, rows[name].harm_high) == harm_rho
+        assert rows[name].n == ok.sum()
