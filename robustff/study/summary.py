@@ -29,6 +29,8 @@ from robustff.stats import (
 )
 from robustff.stats.sensitivity import rank_sensitivity
 from robustff.study.noise_travel import noise_travel_warning
+from robustff.study.provenance import not_settled, reproducibility
+from robustff.study.recommendation import recommend
 from robustff.study.runner import StudyResult
 from robustff.study.summary_types import (
     ArmStats,
@@ -41,6 +43,7 @@ from robustff.study.summary_types import (
     MarginsSummary,
     MetricStats,
     NominalMargins,
+    RecommendationDict,
     SensitivityRow,
     Summary,
     Versions,
@@ -228,7 +231,9 @@ def _convergence(result: StudyResult, harm_iae: HarmEstimate) -> Convergence:
 
 
 def summarize_study(
-    result: StudyResult, percentiles: Sequence[float] = DEFAULT_PERCENTILES
+    result: StudyResult,
+    percentiles: Sequence[float] = DEFAULT_PERCENTILES,
+    command_line: Sequence[str] | None = None,
 ) -> Summary:
     """The study's statistics.
 
@@ -237,6 +242,9 @@ def summarize_study(
     result : StudyResult
     percentiles : sequence of float
         Percentiles to report, in percent.
+    command_line : sequence of str, optional
+        The command that ran the study (the CLI passes ``sys.argv``), kept under
+        ``reproducibility``.
 
     Returns
     -------
@@ -263,7 +271,7 @@ def summarize_study(
             cast(SensitivityRow, row.to_dict())
             for row in rank_sensitivity(result.parameters, result.names, iae_ratio, harmful)
         ]
-    return {
+    summary: Summary = {
         "case": result.case.name,
         "title": result.case.title,
         "samples": result.samples,
@@ -290,5 +298,10 @@ def summarize_study(
         "warnings": [text for text in (noise_travel_warning(result),) if text],
         "elapsed_seconds": round(result.elapsed, 3),
         "versions": _versions(),
+        "not_settled": not_settled(result),
+        "recommendation": cast(RecommendationDict, {}),  # judged below, on the summary itself
+        "reproducibility": reproducibility(result, command_line),
         "caution": CAUTION,
     }
+    summary["recommendation"] = recommend(summary, result.case.recommendation)
+    return summary

@@ -42,6 +42,19 @@ __all__ = [
     "DesignSummary",
     "VersusCase",
     "Versions",
+    "CaseFile",
+    "ModelParameterRow",
+    "EventRow",
+    "UncertaintyRow",
+    "CorrelationRow",
+    "WindowDict",
+    "SamplingDict",
+    "Reproducibility",
+    "NotSettled",
+    "Criteria",
+    "DesignVerdict",
+    "Driver",
+    "RecommendationDict",
     "percentile_value",
 ]
 
@@ -245,6 +258,149 @@ class Versions(TypedDict):
     joblib: str
 
 
+class CaseFile(TypedDict):
+    """The case file the study read."""
+
+    name: str  #: file name
+    path: str  #: as given on the command line
+    sha256: str | None  #: hex SHA-256 of the bytes read
+    bytes: int | None  #: file size, bytes (None when the file is gone)
+
+
+class ModelParameterRow(TypedDict):
+    """One nominal model value (``process.model`` gives the kind, value text, unit empty)."""
+
+    key: str  #: e.g. "process.gain"
+    value: float | str
+    unit: str
+
+
+class EventRow(TypedDict):
+    """One event of the case."""
+
+    kind: str
+    at: float  #: time units
+    size: float  #: disturbance or CV units
+    duration: float  #: time units (ramps)
+    time_constant: float  #: time units (filtered noise)
+    words: str  #: the event in one sentence, with units
+
+
+class UncertaintyRow(TypedDict):
+    """One uncertain parameter: its distribution as in the case and in words."""
+
+    key: str
+    unit: str
+    nominal: float  #: parameter units
+    kind: str  #: "uniform", "relative", "normal", "triangular" or "lognormal"
+    params: list[float]  #: as in the case file
+    clip: list[float] | None
+    words: str  #: e.g. "uniform 1.6 .. 2.4 degC/% (nominal +/- 20 %)"
+    low: float  #: support, or P0.5 for unbounded distributions, parameter units
+    high: float  #: support, or P99.5, parameter units
+
+
+class CorrelationRow(TypedDict):
+    """A rank (Spearman) correlation imposed between two uncertain parameters."""
+
+    first: str
+    second: str
+    rank_correlation: float  #: -1..1
+
+
+class WindowDict(TypedDict):
+    """The simulated window."""
+
+    duration: float  #: time units
+    scan_period: float  #: the controller's scan period, time units
+    substeps: int  #: internal plant steps per scan
+    internal_step: float  #: time units
+    time_unit: str
+
+
+class SamplingDict(TypedDict):
+    """The Monte Carlo plan."""
+
+    plan: str  #: "random", "lhs" or "sobol"
+    seed: int
+    samples: int  #: simulated
+    requested: int
+
+
+class Reproducibility(TypedDict):
+    """Everything needed to reproduce and review the study."""
+
+    case_file: CaseFile | None  #: None for a case built in Python
+    case_as_run: str  #: the case as case-file text, samples and seed as run, designs merged in
+    command_line: list[str] | None  #: None when run from Python
+    created: str  #: ISO 8601 date and time with the UTC offset
+    timezone: str  #: the time zone's name, e.g. "UTC" or "CET"
+    host: str
+    platform: str
+    libraries: dict[str, str]  #: further library versions ("not installed" when absent)
+    models: list[ModelParameterRow]
+    controller_case_form: dict[str, object]  #: the case's [feedback] as written (None left out)
+    events: list[EventRow]
+    window: WindowDict
+    uncertainty: list[UncertaintyRow]
+    correlations: list[CorrelationRow]
+    sampling: SamplingDict
+
+
+class NotSettled(TypedDict):
+    """Samples still outside the settling band at the end of the window (finite metrics)."""
+
+    fb: int
+    fbff: int
+    window_after_last_event: float  #: time units from the last step/ramp/setpoint event
+
+
+class Criteria(TypedDict):
+    """The recommendation criteria applied."""
+
+    max_harm: float  #: fraction 0..1, against the upper 95 % bound
+    min_improvement: float  #: fraction 0..1, median IAE improvement
+    basis: str  #: whether they are the defaults (common practice) or the case's
+
+
+class DesignVerdict(TypedDict):
+    """One design judged against the criteria (fractions 0..1)."""
+
+    name: str
+    structure: str
+    gain_factor: float
+    passes: bool
+    harm_probability: float | None
+    harm_ci95: list[float | None]
+    harm_count: int
+    harm_n: int
+    improvement_p50: float | None  #: 1 - P50(IAE ratio)
+    improvement_p50_ci95: list[float | None]
+    improvement_p90: float | None  #: 1 - P90(IAE ratio): 90 % of plants improve at least this
+    unstable: int
+    reasons: list[str]  #: criteria missed, empty when it passes
+
+
+class Driver(TypedDict):
+    """A parameter that drives the result (Spearman correlation with the IAE ratio)."""
+
+    name: str
+    rho: float | None
+    ci95: list[float | None]
+    rho_harm: float | None  #: with the "feedforward worse" indicator
+
+
+class RecommendationDict(TypedDict):
+    """Which design the study recommends and why (:mod:`robustff.study.recommendation`)."""
+
+    design: str | None  #: None: no design meets the criteria
+    reason: str
+    criteria: Criteria
+    designs: list[DesignVerdict]
+    drivers: list[Driver]
+    conditions: list[str]
+
+
 class Summary(TypedDict):
     """The content of ``summary.json``.
 
@@ -277,6 +433,9 @@ class Summary(TypedDict):
     warnings: list[str]  #: about the results (e.g. noise passed to the valve), with the remedy
     elapsed_seconds: float  #: wall time, seconds
     versions: Versions
+    not_settled: NotSettled
+    recommendation: RecommendationDict
+    reproducibility: Reproducibility
     caution: str
 
 

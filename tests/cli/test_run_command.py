@@ -21,7 +21,8 @@ from robustff.cli.run_command import ProgressPrinter as OriginalPrinter
 from robustff.output.result_files import RESULT_FILES
 
 DEMO = Path(__file__).resolve().parents[2] / "cases" / "syrup-dilution.toml"
-VOLATILE_KEYS = ("elapsed_seconds", "versions")
+# The command line (here --jobs and --out), the time stamp and the host differ between runs.
+VOLATILE_KEYS = ("elapsed_seconds", "versions", "reproducibility")
 
 
 def run_cli(argv: list[str]) -> int:
