@@ -1,8 +1,10 @@
 """Speed of the vectorised loop margins: 10,000 perturbed SOPDT plants under a SIMC PID.
 
-Prints the time for all samples at once and, as baselines measured in the same run, the time per
-sample when samples are computed one by one with the same function, and with python-control's
-``stability_margins`` on a 10th-order Pade model (both extrapolated from a subset).
+Prints the time for all samples at once (the continuous loop, and the loop as simulated with
+the controller sampled every 0.1 time units) and, as baselines measured in the same run, the
+time per sample when samples are computed one by one with the same function, and with
+python-control's ``stability_margins`` on a 10th-order Pade model (both extrapolated from a
+subset).
 
 Run: ``/work/venv/bin/python benchmarks/margins_speed.py [n]``
 """
@@ -19,6 +21,8 @@ import numpy as np
 from robustff.design.margins import loop_margins
 from robustff.design.tuning import FeedbackSettings
 from robustff.plant.models import PlantBatch, SensorModel, TransferModel
+
+SAMPLE_TIME = 0.1  # controller sample time for the sampled-loop timing, time units
 
 
 def fictional_spread(n: int, seed: int = 2024) -> tuple[PlantBatch, FeedbackSettings]:
@@ -55,6 +59,12 @@ def main(n: int = 10_000) -> None:
     start = time.perf_counter()
     result = loop_margins(batch, feedback)
     vectorised = time.perf_counter() - start
+    # The loop as the simulation runs it: controller sampled every 0.1 time units (a tenth of
+    # the nominal dead time), output held.
+    loop_margins(batch.subset(slice(0, 10)), feedback, sample_time=SAMPLE_TIME)  # warm-up
+    start = time.perf_counter()
+    sampled_result = loop_margins(batch, feedback, sample_time=SAMPLE_TIME)
+    sampled = time.perf_counter() - start
 
     subset = 200
     start = time.perf_counter()
@@ -66,6 +76,9 @@ def main(n: int = 10_000) -> None:
     summary = result.summary()
     print(f"loop margins for {n} samples: {vectorised:.2f} s "
           f"({vectorised / n * 1e6:.0f} us per sample)")
+    print(f"  sampled loop (h = {SAMPLE_TIME:g}): {sampled:.2f} s "
+          f"({sampled / n * 1e6:.0f} us per sample, {sampled / vectorised:.2f}x the continuous), "
+          f"{int(np.count_nonzero(~sampled_result.stable))} unstable")
     print(f"  one sample per call (extrapolated from {subset}): {one_by_one:.1f} s, "
           f"ratio {one_by_one / vectorised:.1f}x")
     print(f"  python-control, Pade 10 per sample (extrapolated from 50): {pade:.1f} s, "

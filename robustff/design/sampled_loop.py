@@ -149,7 +149,15 @@ class SampledLoop:
         if not self.coefficients:
             m, f = split_delay(self.theta, self.h)
             c = zoh_coefficients(self.gain, self.tau1, self.tau2, self.integrating, self.h, f)
-            self.coefficients.update(c, m=m)
+            second = c["second"]
+            # Two lags: P z^(m+1) = (b2 z^2 + b1 z + b0)/((z - phi11)(z - phi22)); one lag or
+            # an integrator in the same form, (g1_new z^2 + g1_old z)/((z - phi11) z).
+            b1 = c["phi21"] * c["g1_new"] + c["g2_old"] - c["phi11"] * c["g2_new"]
+            b0 = c["phi21"] * c["g1_old"] - c["phi11"] * c["g2_old"]
+            self.coefficients.update(
+                c, m=m, b2=np.where(second, c["g2_new"], c["g1_new"]),
+                b1=np.where(second, b1, c["g1_old"]), b0=np.where(second, b0, 0.0),
+                p22=np.where(second, c["phi22"], 0.0))
 
     def pick(self, rows: np.ndarray | slice) -> SampledLoop:
         """The loops of the selected rows."""
@@ -226,20 +234,15 @@ class SampledLoop:
     def _process_parts(c: dict[str, np.ndarray], cos: np.ndarray, sin: np.ndarray,
                        versine: np.ndarray):
         """Numerator and denominator (real, imaginary) of ``P(z) z^(m+1)``."""
-        # (g1_new z + g1_old) / (z - phi11)
-        num_re, num_im = c["g1_new"] * cos + c["g1_old"], c["g1_new"] * sin
-        den_re, den_im = (1.0 - c["phi11"]) - versine, sin
-        second = c["second"]
-        if np.any(second):  # (b2 z^2 + b1 z + b0) / ((z - phi11)(z - phi22))
-            b2 = c["g2_new"]
-            b1 = c["phi21"] * c["g1_new"] + c["g2_old"] - c["phi11"] * c["g2_new"]
-            b0 = c["phi21"] * c["g1_old"] - c["phi11"] * c["g2_old"]
-            other_re = (1.0 - c["phi22"]) - versine
-            num_re = np.where(second, b2 * (cos * cos - sin * sin) + b1 * cos + b0, num_re)
-            num_im = np.where(second, (2.0 * b2 * cos + b1) * sin, num_im)
-            den_re, den_im = (np.where(second, den_re * other_re - sin * sin, den_re),
-                              np.where(second, (den_re + other_re) * sin, den_im))
-        return num_re, num_im, den_re, den_im
+        if not np.any(c["second"]):  # (g1_new z + g1_old) / (z - phi11)
+            return (c["g1_new"] * cos + c["g1_old"], c["g1_new"] * sin,
+                    (1.0 - c["phi11"]) - versine, sin)
+        # (b2 z^2 + b1 z + b0) / ((z - phi11)(z - p22)); rows with one lag have p22 = 0 and
+        # the numerator times z (see __post_init__), the same value
+        first_re, other_re = (1.0 - c["phi11"]) - versine, (1.0 - c["p22"]) - versine
+        b2, b1 = c["b2"], c["b1"]
+        return (b2 * (cos * cos - sin * sin) + b1 * cos + c["b0"], (2.0 * b2 * cos + b1) * sin,
+                first_re * other_re - sin * sin, (first_re + other_re) * sin)
 
     def magnitude(self, w: np.ndarray) -> np.ndarray:
         """``|L(exp(j w h))|``, shape of ``w``."""
