@@ -164,5 +164,9 @@ def _design_lines(case: Case, review: CaseReview) -> list[str]:
 
     summary = ["  " + line for line in review.design.summary_lines(case)]
     if review.nominal_margins is not None:
-        summary.append("  " + margin_line(review.nominal_margins, case.time_unit))
+        scan = f"as simulated, {case.simulation.step:g} {case.time_unit} scan period"
+        summary.append("  " + margin_line(review.nominal_margins, case.time_unit, scan))
+    if review.nominal_continuous_margins is not None:
+        summary.append("  " + margin_line(review.nominal_continuous_margins, case.time_unit,
+                                          "continuous controller"))
     return ["", "Design from the nominal models:", *summary]

@@ -66,13 +66,18 @@ class CaseReview:
     design : LoopDesign
         The design from the nominal models.
     nominal_margins : MarginResult or None
-        Margins of the nominal feedback loop (None when the design cannot run).
+        Margins of the nominal feedback loop as simulated: the controller sampled at the scan
+        period (``[simulation] step``), output held (None when the design cannot run). The
+        margin warnings are judged on these, as ``robustff run`` does.
+    nominal_continuous_margins : MarginResult or None
+        The same loop with a continuous-time controller (what continuous tuning rules quote).
     """
 
     errors: tuple[Finding, ...]
     warnings: tuple[Finding, ...]
     design: LoopDesign
     nominal_margins: MarginResult | None
+    nominal_continuous_margins: MarginResult | None = None
 
     @property
     def ok(self) -> bool:
@@ -98,16 +103,18 @@ def margin_warnings(margins: MarginResult) -> list[str]:
     return warnings
 
 
-def margin_line(margins: MarginResult, time_unit: str) -> str:
-    """The nominal margins in one line with units, e.g. ``"gain margin 3.1 (ratio), ..."``."""
+def margin_line(margins: MarginResult, time_unit: str, which: str = "") -> str:
+    """The nominal margins in one line with units, e.g. ``"gain margin 3.1 (ratio), ..."``;
+    ``which`` names the loop, e.g. ``"as simulated, 0.5 s scan period"``."""
+    head = f"Nominal feedback margins ({which})" if which else "Nominal feedback margins"
     if not bool(margins.stable[0]):
-        return "Nominal feedback margins: the nominal loop is unstable (no margins)"
+        return f"{head}: the nominal loop is unstable (no margins)"
 
     def value(x: float, unit: str, digits: str = ".3g") -> str:
         return "none (no crossover)" if math.isinf(x) else f"{x:{digits}} {unit}"
 
     return (
-        "Nominal feedback margins: gain margin "
+        f"{head}: gain margin "
         f"{value(float(margins.gain_margin[0]), '(ratio)')}, phase margin "
         f"{value(float(margins.phase_margin[0]), 'deg', '.1f')}, delay margin "
         f"{value(float(margins.delay_margin[0]), time_unit)}, Ms "
@@ -135,17 +142,19 @@ def review_case(case: Case) -> CaseReview:
     design = design_loop(case)
     errors = _design_errors(case, design)
     warnings: list[Finding] = []
-    margins = None
+    margins = continuous = None
     if not errors:
         try:
-            margins = model_margins(case.process, design.feedback)
+            margins = model_margins(case.process, design.feedback,
+                                    sample_time=case.simulation.step)
+            continuous = model_margins(case.process, design.feedback)
         except RobustffError as exc:
             errors.append(Finding("feedback", f"the nominal loop cannot be analysed ({exc})"))
         else:
             warnings += [Finding("feedback", text) for text in margin_warnings(margins)]
     warnings += _window_warnings(case) + _uncertainty_warnings(case) + _event_warnings(case)
     warnings += _text_warnings(case)
-    return CaseReview(tuple(errors), tuple(warnings), design, margins)
+    return CaseReview(tuple(errors), tuple(warnings), design, margins, continuous)
 
 
 def _finite_nonzero(x: float) -> bool:

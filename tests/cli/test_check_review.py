@@ -45,8 +45,12 @@ def test_check_prints_the_nominal_margins_with_units(
 ) -> None:
     assert main(["check", str(_case(tmp_path, MINIMAL))]) == EXIT_OK
     out = capsys.readouterr().out
-    line = next(line for line in out.splitlines() if "Nominal feedback margins:" in line)
-    assert "(ratio)" in line and " deg" in line and "delay margin" in line
+    lines = [line for line in out.splitlines() if "Nominal feedback margins" in line]
+    assert [line.split(":")[0].strip() for line in lines] == [
+        "Nominal feedback margins (as simulated, 0.5 s scan period)",
+        "Nominal feedback margins (continuous controller)"]
+    for line in lines:
+        assert "(ratio)" in line and " deg" in line and "delay margin" in line
     assert "warning:" not in out and "OK: the case is valid." in out
 
 

@@ -94,9 +94,15 @@ def test_manual_gain_margin_against_the_crossover_by_hand() -> None:
         lo, hi = (mid, hi) if math.atan(mid * 10.0) + mid * 2.0 < math.pi else (lo, mid)
     ku = math.sqrt(1 + (lo * 10.0) ** 2) / 2.0
     aggressive = review_case(parse_case(MINIMAL + _MANUAL.format(kc=0.8 * ku, ti=1e6)))
-    assert aggressive.nominal_margins is not None
-    assert float(aggressive.nominal_margins.gain_margin[0]) == pytest.approx(1.25, rel=1e-3)
-    assert any("gain margin 1.25 < 2" in f.message for f in aggressive.warnings)
+    continuous = aggressive.nominal_continuous_margins
+    assert continuous is not None
+    assert float(continuous.gain_margin[0]) == pytest.approx(1.25, rel=1e-3)
+    # The warning is judged on the loop as simulated (0.5 s scan period, output held), which
+    # the hold's half sample of delay leaves with a little less margin, as robustff run does.
+    simulated = aggressive.nominal_margins
+    assert simulated is not None and 1.0 < float(simulated.gain_margin[0]) < 1.25
+    assert any(f"gain margin {float(simulated.gain_margin[0]):.2f} < 2" in f.message
+               for f in aggressive.warnings)
     calm = review_case(parse_case(MINIMAL + _MANUAL.format(kc=0.4 * ku, ti=1e6)))
     assert not any("gain margin" in f.message for f in calm.warnings)
 
