@@ -10,15 +10,17 @@ from __future__ import annotations
 
 import threading
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import replace
+from functools import partial
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 from textual import work
-from textual.app import App, ComposeResult
+from textual.app import App, ComposeResult, SystemCommand
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.screen import Screen
 from textual.widgets import Footer, Header
 
 from robustff.case import Case, UncertainParameter
@@ -41,6 +43,7 @@ from robustff.tui.pictures import PicturesPane
 from robustff.tui.results_pane import CautionLine, ResultsPane, StaleLine
 from robustff.tui.robust_actions import RobustActions
 from robustff.tui.uncertainty_pane import UncertainRow, UncertaintyPane
+from robustff.tui.undo import UndoActions
 from robustff.tui.view import StudyView
 
 if TYPE_CHECKING:
@@ -55,7 +58,7 @@ QUICK_SAMPLES = 500
 MARGINS_PENDING = "Margins: computed with the full run..."
 
 
-class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
+class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, App[None]):
     """Edit a case and watch the feedforward risk move.
 
     Parameters
@@ -72,24 +75,42 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
 
     CSS_PATH = "studio.tcss"
     TITLE = "robustff studio"
+    #: Priority bindings: they work whatever has focus (a text field does not swallow
+    #: Ctrl+E or Ctrl+Z); while a dialog is open :meth:`check_action` passes the key on to it.
     BINDINGS = [
-        Binding("f1", "help", "Help"),
+        Binding("f1", "help", "Help", priority=True),
         Binding("question_mark", "help", "Help", show=False),
-        Binding("ctrl+s", "save", "Save"),
-        Binding("f2", "save_as", "Save as"),
-        Binding("ctrl+e", "export", "Export"),
-        Binding("ctrl+r", "reload", "Reload"),
-        Binding("f5", "rerun", "Rerun"),
-        Binding("f6", "robust", "Robust"),
-        Binding("f7", "fit_data", "Fit data"),
+        Binding("ctrl+s", "save", "Save", priority=True),
+        Binding("f2", "save_as", "Save as", priority=True),
+        Binding("ctrl+e", "export", "Export", priority=True),
+        Binding("ctrl+z", "undo", "Undo", priority=True),
+        Binding("ctrl+r", "reload", "Reload", priority=True),
+        Binding("f5", "rerun", "Rerun", priority=True),
+        Binding("f6", "robust", "Robust", priority=True),
+        Binding("f7", "fit_data", "Fit", priority=True),
+        Binding("escape", "leave_field", "Leave field", show=False),
         Binding("ctrl+q", "quit", "Quit", priority=True),
     ]
+    #: The studio's own actions (footer and command palette): title, what it does.
+    COMMANDS_TEXT: dict[str, tuple[str, str]] = {
+        "help": ("Help", "keys and how to read the results (F1)"),
+        "save": ("Save", "save the case to its file (Ctrl+S)"),
+        "save_as": ("Save as", "save the case to another file (F2)"),
+        "export": ("Export results", "write the result files of the full run (Ctrl+E)"),
+        "undo": ("Undo", "undo the last applied edit, deletions included (Ctrl+Z)"),
+        "reload": ("Reload", "reload the case from its file (Ctrl+R)"),
+        "rerun": ("Rerun", "run the study again (F5)"),
+        "robust": ("Robust feedforward", "search feedforward settings robust to the "
+                                         "uncertainty (F6)"),
+        "fit_data": ("Fit data", "fit a model to a bump test (F7)"),
+    }
 
     def __init__(self, case_path: Path, case: Case | None = None,
                  recovery_folder: Path | None = None, live: bool = True) -> None:
         super().__init__()
         self.live = live
         self.init_key_order()
+        self.init_undo()
         self.init_files(case_path, case, recovery_folder)
         self.results_version = 0
         #: The case the results on screen belong to, and why the latest run of the case on
@@ -118,7 +139,7 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
                     yield ResultsPane(id="results")
                     yield PicturesPane(id="pictures")
                 yield CautionLine()
-        yield Footer(compact=True, show_command_palette=False)
+        yield Footer(compact=True, show_command_palette=True)
 
     def on_mount(self) -> None:
         self.refresh_title()
@@ -127,6 +148,25 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
         # The first run imports and loads the compiled simulator, which holds the GIL for a
         # while: start it once the first frame is drawn so the screen appears at once.
         self.call_after_refresh(self.start_run)
+
+    # --- keys and commands -----------------------------------------------------------------
+
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        """The studio's actions belong to the main screen: in a dialog its keys are its own."""
+        if action in self.COMMANDS_TEXT or action == "leave_field":
+            return self.screen is self.screen_stack[0]
+        return True
+
+    def action_leave_field(self) -> None:
+        """Escape: leave the text field or list (what was typed is applied as on Tab)."""
+        self.set_focus(None)
+
+    def get_system_commands(self, screen: Screen[object]) -> Iterable[SystemCommand]:
+        yield from super().get_system_commands(screen)
+        if screen is not self.screen_stack[0]:
+            return
+        for action, (title, text) in self.COMMANDS_TEXT.items():
+            yield SystemCommand(title, text, partial(self.run_action, action))
 
     # --- edits ------------------------------------------------------------------------------
 
@@ -139,7 +179,8 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
             self.refresh_staleness()
             return
         row.show_result(None, message.text)
-        self.accept_edit(case, rebuild=message.field == "feedback.tuning")
+        self.accept_edit(case, rebuild=message.field == "feedback.tuning",
+                         what=f"{message.field} = {message.text.strip()}")
 
     def on_distribution_edited(self, message: DistributionEdited) -> None:
         pane = self.query_one(UncertaintyPane)
@@ -151,7 +192,7 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
             self.refresh_staleness()
             return
         pane.row(message.key).show_result(case, None)
-        self.accept_edit(case)
+        self.accept_edit(case, what=f"the range of {message.key}")
 
     def on_kind_changed(self, message: KindChanged) -> None:
         pane = self.query_one(UncertaintyPane)
@@ -164,24 +205,28 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
             pane.row(message.key).show_result(self.case, _reason(exc))
             return
         pane.row(message.key).show_result(case, None)
-        self.accept_edit(case)
+        self.accept_edit(case, what=f"{message.key} made {message.kind}")
 
     def on_row_added(self, message: RowAdded) -> None:
-        self._table_edit(lambda: editing.add_uncertain(self.case, message.key))
+        self._table_edit(lambda: editing.add_uncertain(self.case, message.key),
+                         f"add uncertain {message.key}")
 
     def on_row_removed(self, message: RowRemoved) -> None:
-        self._table_edit(lambda: editing.remove_uncertain(self.case, message.key))
+        self._table_edit(lambda: editing.remove_uncertain(self.case, message.key),
+                         f"remove uncertain {message.key}")
 
-    def _table_edit(self, make: Callable[[], Case]) -> None:
+    def _table_edit(self, make: Callable[[], Case], what: str) -> None:
         try:
             case = make()
         except CaseError as exc:
             self.query_one(UncertaintyPane).show_table_error(_reason(exc))
             return
-        self.accept_edit(case, rebuild=True)
+        self.accept_edit(case, rebuild=True, what=what)
 
-    def accept_edit(self, case: Case, rebuild: bool = False) -> None:
-        """Make ``case`` current: autosave, refresh the design, restart the study."""
+    def accept_edit(self, case: Case, rebuild: bool = False, what: str = "the last edit") -> None:
+        """Make ``case`` current: keep the old one for undo (Ctrl+Z undoes ``what``),
+        autosave, refresh the design, restart the study."""
+        self.remember(what)
         self.case = case
         self.autosave()
         self.refresh_title()
@@ -255,7 +300,7 @@ class StudioApp(KeyOrder, FileActions, RobustActions, FitActions, App[None]):
             pane.row(key).show_result(self.case, _reason(exc))
             return
         pane.row(key).show_result(case, None)
-        self.accept_edit(case)
+        self.accept_edit(case, what=f"the range fix of {key}")
 
     # --- runs ---------------------------------------------------------------------------------
 

@@ -67,6 +67,7 @@ class FileActions(StudioHost):
 
         def answer(choice: str | None) -> None:
             if choice == "r":
+                self.remember("the restored edits")
                 self.case = found.case
                 self.refresh_title()
                 self.rebuild_panes()
@@ -200,6 +201,7 @@ class FileActions(StudioHost):
         except (RobustffError, OSError) as exc:
             self.notify(f"not reloaded: {exc}", severity="error", timeout=8)
             return
+        self.remember("the reload from disk")
         self.case = self.saved_case = replace(case, source_path=self.case_path)
         self.original_text = text
         discard_recovery(self.recovery_file)

@@ -52,7 +52,7 @@ class FitActions(StudioHost):
         except RobustffError as exc:
             self.notify(f"not applied: {exc}", severity="error", timeout=10)
             return
-        self.accept_edit(case, rebuild=True)
+        self.accept_edit(case, rebuild=True, what=f"the fitted {request.block} model")
         self.notify(f"{request.block} model set to the {model.kind.upper()} fit "
                     f"({unit_note}); Ctrl+S saves it", timeout=8)
         for note in notes:

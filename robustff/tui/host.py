@@ -32,7 +32,8 @@ if TYPE_CHECKING:
         last_result: StudyResult | None
         last_summary: Summary | None
 
-        def accept_edit(self, case: Case, rebuild: bool = False) -> None:
+        def accept_edit(self, case: Case, rebuild: bool = False,
+                        what: str = "the last edit") -> None:
             """Make ``case`` current: autosave, refresh the design, restart the study."""
 
         def rebuild_panes(self) -> None:
@@ -43,6 +44,15 @@ if TYPE_CHECKING:
 
         def start_run(self) -> None:
             """Cancel the running study (if any) and start a new one."""
+
+        def autosave(self) -> None:
+            """Write the edits to the recovery file (or remove it when nothing is unsaved)."""
+
+        def refresh_title(self) -> None:
+            """Show the file name and whether the case has unsaved edits."""
+
+        def remember(self, what: str) -> None:
+            """Keep the current case for undo before ``what`` changes it."""
 
         def case_problem(self) -> str | None:
             """Why the case on screen should not be saved without asking (None: fine)."""

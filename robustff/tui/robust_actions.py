@@ -150,5 +150,5 @@ class RobustActions(StudioHost):
             self.notify(f"not applied: {exc}", severity="error", timeout=8)
             return
         values = ", ".join(f"{name} {value:.4g}" for name, value in searched_values(result).items())
-        self.accept_edit(case, rebuild=True)
+        self.accept_edit(case, rebuild=True, what="the robust feedforward")
         self.notify(f"robust feedforward applied ({values}); Ctrl+S saves it")
