@@ -119,9 +119,8 @@ class FileActions(StudioHost):
 
     def save_to(self, path: Path) -> bool:
         """Save atomically; warnings (e.g. comments dropped) are shown. True when written."""
-        same_file = path.resolve() == self.case_path.resolve()
-        try:
-            warnings = save_case(self.case, path, self.original_text if same_file else None)
+        try:  # Save as writes a copy of the same document: its comments are kept too
+            warnings = save_case(self.case, path, self.original_text)
         except RobustffError as exc:
             self.notify(f"not saved: {exc}", severity="error", timeout=8)
             return False
