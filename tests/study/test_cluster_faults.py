@@ -223,6 +223,24 @@ def test_losing_every_worker_keeps_the_finished_chunks_marked_partial(
     np.testing.assert_array_equal(table["iae_fb"], _rounded(local_run.metrics["iae"][:n, 0]))
 
 
+def test_a_cancelled_cluster_run_leaves_no_chunk_on_the_cluster(cluster, local_run):
+    cancel = threading.Event()
+
+    def stop_after_first_chunk(done: int, total: int) -> None:
+        cancel.set()
+
+    result = run_study(parse_case(CASE), cluster=cluster.address, cancel=cancel,
+                       progress=stop_after_first_chunk, margins=False)
+    assert result.partial and result.samples == 1000
+    np.testing.assert_array_equal(result.metrics["iae"], local_run.metrics["iae"][:1000])
+    with distributed.Client(cluster.address, timeout=30) as client:
+        deadline = time.monotonic() + 30
+        # the chunks not read were cancelled: the scheduler forgets them
+        while client.run_on_scheduler(lambda dask_scheduler: len(dask_scheduler.tasks)):
+            assert time.monotonic() < deadline, "chunks left running on the cluster"
+            time.sleep(0.2)
+
+
 def test_a_scheduler_without_workers_is_refused_in_one_line(tmp_path: Path, monkeypatch):
     scheduler = _start([sys.executable, "-m", "distributed.cli.dask_scheduler", "--host",
                         "127.0.0.1", "--port", "0", "--no-dashboard", "--scheduler-file",
