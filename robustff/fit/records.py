@@ -16,8 +16,8 @@ from pathlib import Path
 
 import numpy as np
 
+from robustff.case.table import MISSING_TOKENS, read_columns
 from robustff.errors import DataError
-from robustff.fit.table import MISSING_TOKENS, read_columns
 
 __all__ = [
     "MISSING_TOKENS",
@@ -154,7 +154,7 @@ def read_record(
     ----------
     path : str or Path
         CSV file; comma, semicolon or tab separated, decimal point or comma, UTF-8 or
-        Windows-1252 (see :func:`robustff.fit.table.read_columns`); lines starting with ``#``
+        Windows-1252 (see :func:`robustff.case.table.read_columns`); lines starting with ``#``
         are ignored.
     input_column, output_column : str
         Column names (matched exactly, then ignoring case).

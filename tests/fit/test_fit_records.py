@@ -13,11 +13,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from robustff.case.table import read_columns
 from robustff.errors import DataError
 from robustff.fit.least_squares import fit_record
 from robustff.fit.records import read_record
 from robustff.fit.response import simulate_response
-from robustff.fit.table import read_columns
 from robustff.plant.models import TransferModel
 
 H = 0.1  # sample time, min

@@ -1,4 +1,5 @@
-"""Reading numeric columns from plant-historian CSV exports.
+"""Reading numeric columns from plant-historian CSV exports (bump tests to fit, recorded
+disturbance traces to replay).
 
 Historians export in the conventions of the locale they run in: comma, semicolon or tab
 separated; decimal point or decimal comma; ISO 8601 or day-first timestamps (``dd.mm.yyyy``,
