@@ -14,8 +14,9 @@ import tomllib
 from pathlib import Path
 from typing import Any
 
-from robustff.case.fields import REQUIRED, Problems, Table, as_table, join
+from robustff.case.fields import Problems, Table, as_table, join, show
 from robustff.case.schema import (
+    CONTROLLER_STRUCTURES,
     DESIGN_NAME_CHARACTERS,
     EVENT_KINDS,
     FEEDFORWARD_STRUCTURES,
@@ -137,6 +138,8 @@ def _build_case(problems: Problems, raw: dict[str, Any]) -> Case | None:
     feedforward = _read_feedforward(problems, raw.get("feedforward", {}))
     sensor = _read_sensor(problems, raw.get("sensor", {}))
     signals = _read_signals(problems, raw.get("signals", {}))
+    if feedback is not None and signals is not None:
+        _check_spans(problems, feedback, signals)
     simulation = _read_simulation(problems, raw)
     events = _read_events(problems, raw, simulation)
     study = _read_study(problems, raw.get("study", {}))
@@ -190,6 +193,9 @@ _UNIT = "in the case's time unit"
 _MANUAL = "with tuning = 'manual'"
 
 
+_MANUAL_KEYS = ("kc", "proportional_band", "ti", "repeats", "td", "ki", "kd")
+
+
 def _read_feedback(problems: Problems, value: object) -> FeedbackSpec | None:
     table = _section(problems, "feedback", value)
     if table is None:
@@ -199,29 +205,86 @@ def _read_feedback(problems: Problems, value: object) -> FeedbackSpec | None:
     table.check_keys(tuple(default.__dataclass_fields__))
     form = table.text("form", default.form, ("pi", "pid"))
     tuning = table.text("tuning", default.tuning, ("simc", "imc", "manual"))
+    structure = table.text("structure", default.structure, CONTROLLER_STRUCTURES)
     manual = tuning == "manual"
-    need = REQUIRED if manual else None
+    parallel = structure == "parallel"
     spec = FeedbackSpec(
         form=form or "pi",
         tuning=tuning or "simc",
         closed_loop_time=table.number("closed_loop_time", None, positive=True),
-        kc=table.number("kc", need, nonzero=True, what=f"the controller gain, {_MANUAL}"),
-        ti=table.number("ti", need, positive=True, what=f"the integral time, {_MANUAL}"),
-        td=table.number("td", need if form == "pid" else None, minimum=0.0,
-                        what="the derivative time, with form = 'pid' and tuning = 'manual'"),
+        kc=table.number("kc", None, nonzero=True, what=f"the controller gain, {_MANUAL}"),
+        ti=table.number("ti", None, positive=True),
+        td=table.number("td", None, minimum=0.0),
         output_low=table.number("output_low", default.output_low),  # type: ignore[arg-type]
         output_high=table.number("output_high", default.output_high),  # type: ignore[arg-type]
         output_bias=table.number("output_bias", default.output_bias),  # type: ignore[arg-type]
+        structure=structure or "ideal",
+        proportional_band=table.number("proportional_band", None, positive=True),
+        repeats=table.number("repeats", None, positive=True),
+        ki=table.number("ki", None, nonzero=True),
+        kd=table.number("kd", None),
+        derivative_filter=_fraction(table, "derivative_filter", None),
+        setpoint_weight=_fraction(table, "setpoint_weight", default.setpoint_weight),  # type: ignore[arg-type]
+        derivative_setpoint_weight=_fraction(  # type: ignore[arg-type]
+            table, "derivative_setpoint_weight", default.derivative_setpoint_weight),
     )
     if tuning is not None and not manual:
-        for key in ("kc", "ti", "td"):
+        for key in _MANUAL_KEYS:
             table.forbid(key, f"used only with tuning = 'manual' (tuning is {tuning!r})")
     if manual:
         table.forbid("closed_loop_time", "not used with tuning = 'manual'; remove it")
+        _manual_keys(problems, table, form, structure)
     if form == "pi":
-        table.forbid("td", "a PI controller has no derivative time; use form = 'pid' or remove td")
+        for key in ("td", "kd", "derivative_filter", "derivative_setpoint_weight"):
+            table.forbid(key, "a PI controller has no derivative action; use form = 'pid' or "
+                              f"remove {key}")
     _check_output_range(problems, table, spec)
+    if not parallel and structure is not None:
+        for key in ("ki", "kd"):
+            table.forbid(key, f"gains of the parallel form (structure is {structure!r}); use "
+                              "ti or repeats and td, or structure = 'parallel'")
     return spec if len(problems) == before else None
+
+
+def _fraction(table: Table, key: str, default: float | None) -> float | None:
+    """A dimensionless number in 0 .. 1 (weights, the derivative filter fraction)."""
+    value = table.number(key, default, minimum=0.0)
+    if value is not None and value > 1.0 and table.has(key):
+        table.problems.add(join("feedback", key), "must be between 0 and 1", value)
+        return None
+    return value
+
+
+def _manual_keys(problems: Problems, table: Table, form: str | None,
+                 structure: str | None) -> None:
+    """One gain, one integral and (for a PID) one derivative setting in the case's form."""
+    if not (table.has("kc") or table.has("proportional_band")):
+        problems.add("feedback.kc", f"missing key (the controller gain, {_MANUAL}; or "
+                     "proportional_band, in %)")
+    elif table.has("kc") and table.has("proportional_band"):
+        problems.add("feedback.proportional_band", "give the gain once: kc or "
+                     f"proportional_band, not both (kc = {show(table.raw['kc'])})",
+                     table.raw["proportional_band"])
+    if structure == "parallel":
+        for key in ("ti", "repeats", "td"):
+            table.forbid(key, "not used with structure = 'parallel' (its settings are kc or "
+                              "proportional_band, ki and kd)")
+        if not table.has("ki"):
+            problems.add("feedback.ki", f"missing key (the integral gain of the parallel form, "
+                         f"output units per CV unit per time unit, {_MANUAL})")
+        if form == "pid" and not table.has("kd"):
+            problems.add("feedback.kd", "missing key (the derivative gain of the parallel form, "
+                         "with form = 'pid' and tuning = 'manual')")
+        return
+    if not (table.has("ti") or table.has("repeats")):
+        problems.add("feedback.ti", f"missing key (the integral time, {_MANUAL}; or repeats, "
+                     "repeats per time unit)")
+    elif table.has("ti") and table.has("repeats"):
+        problems.add("feedback.repeats", "give the integral action once: ti or repeats, not "
+                     f"both (ti = {show(table.raw['ti'])})", table.raw["repeats"])
+    if form == "pid" and not table.has("td"):
+        problems.add("feedback.td", "missing key (the derivative time, with form = 'pid' and "
+                     "tuning = 'manual')")
 
 
 def _check_output_range(problems: Problems, table: Table, spec: FeedbackSpec) -> None:
@@ -338,14 +401,45 @@ def _read_signals(problems: Problems, value: object) -> Signals | None:
         sub = _section(problems, f"signals.{name}", table.raw.get(name, {}))
         if sub is None:
             continue
-        sub.check_keys(("name", "unit"))
+        spanned = name in _SPANNED_SIGNALS
+        sub.check_keys(("name", "unit", "range") if spanned else ("name", "unit"))
         label = sub.text("name", fallback.name)
         unit = sub.text("unit", fallback.unit)
+        span = _read_range(problems, sub, name) if spanned and sub.has("range") else None
         if label is not None and not label.strip():
             problems.add(f"signals.{name}.name", "must not be empty", label)
         if label is not None and unit is not None:
-            signals[name] = Signal(label, unit)
+            signals[name] = Signal(label, unit, span)
     return Signals(**signals) if len(problems) == before else None
+
+
+#: Signals with a span (``range``): what a gain in %/% or a proportional band is relative to.
+_SPANNED_SIGNALS = ("controlled", "output")
+
+
+def _read_range(problems: Problems, sub: Table, name: str) -> tuple[float, float] | None:
+    values = sub.numbers("range", 2, "[low, high]")
+    if values is None:
+        return None
+    if not values[0] < values[1]:
+        problems.add(f"signals.{name}.range", "must be [low, high] with low < high (the "
+                     "values at 0 % and 100 % of the span)", list(values))
+        return None
+    return values[0], values[1]
+
+
+def _check_spans(problems: Problems, feedback: FeedbackSpec, signals: Signals) -> None:
+    """A proportional band needs the spans it is relative to."""
+    if feedback.proportional_band is None:
+        return
+    missing = []
+    if signals.controlled.range is None:
+        missing.append("[signals.controlled] range")
+    if signals.output.range is None and signals.output.unit.strip() != "%":
+        missing.append("[signals.output] range (the output is not in %)")
+    if missing:
+        problems.add("feedback.proportional_band", "is relative to the signals' spans: add "
+                     + " and ".join(missing), feedback.proportional_band)
 
 
 def _read_simulation(problems: Problems, raw: dict[str, Any]) -> SimulationSpec | None:

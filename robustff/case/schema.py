@@ -17,6 +17,7 @@ __all__ = [
     "TIME_UNITS",
     "EVENT_KINDS",
     "DISTRIBUTION_KINDS",
+    "CONTROLLER_STRUCTURES",
     "FeedbackSpec",
     "FeedforwardSpec",
     "DesignSpec",
@@ -42,6 +43,8 @@ EVENT_KINDS: tuple[str, ...] = (
 )
 DISTRIBUTION_KINDS: tuple[str, ...] = ("uniform", "relative", "normal", "triangular", "lognormal")
 FEEDFORWARD_STRUCTURES: tuple[str, ...] = ("none", "static", "lead-lag", "lead-lag-delay")
+#: How the control system writes the PID algorithm (see :mod:`robustff.design.controller_forms`).
+CONTROLLER_STRUCTURES: tuple[str, ...] = ("ideal", "series", "parallel")
 
 
 @dataclass(frozen=True)
@@ -55,12 +58,32 @@ class FeedbackSpec:
     closed_loop_time : float or None
         Desired closed-loop time constant tau_c, time units; ``None`` means the process dead time.
     kc, ti, td : float or None
-        Manual settings (ideal/parallel form): gain (output units per CV unit), integral time and
-        derivative time (time units). Used only with ``tuning = "manual"``.
+        Manual settings in the form of ``structure``: gain (output units per CV unit), integral
+        time and derivative time (time units). Used only with ``tuning = "manual"``.
     output_low, output_high : float
         Controller output limits, output units (e.g. % valve).
     output_bias : float
         Controller output at the initial steady state, output units.
+    structure : {"ideal", "series", "parallel"}
+        How the control system writes the algorithm; manual settings are read, and the design
+        is shown, in this form (and in the ideal form the simulator uses).
+    proportional_band : float or None
+        Manual gain as a proportional band, % (``PB = 100 / Kc`` with CV and output in % of
+        their spans, ``[signals.*] range``); instead of ``kc``.
+    repeats : float or None
+        Manual integral action in repeats per time unit (``1 / ti``); instead of ``ti``.
+    ki : float or None
+        Manual integral gain of the parallel form, output units per CV unit per time unit.
+    kd : float or None
+        Manual derivative gain of the parallel form, output units per CV unit times time units.
+    derivative_filter : float or None
+        Time constant of the derivative filter as a fraction of the ideal-form Td,
+        dimensionless (None: the default fraction of :mod:`robustff.design.tuning`).
+    setpoint_weight : float
+        Weight b of the setpoint in the proportional action, dimensionless, 0 .. 1 (1: error).
+    derivative_setpoint_weight : float
+        Weight c of the setpoint in the derivative action, dimensionless, 0 .. 1 (0: derivative
+        on the measurement).
     """
 
     form: str = "pi"
@@ -72,6 +95,14 @@ class FeedbackSpec:
     output_low: float = 0.0
     output_high: float = 100.0
     output_bias: float = 50.0
+    structure: str = "ideal"
+    proportional_band: float | None = None
+    repeats: float | None = None
+    ki: float | None = None
+    kd: float | None = None
+    derivative_filter: float | None = None
+    setpoint_weight: float = 1.0
+    derivative_setpoint_weight: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -148,10 +179,25 @@ class Event:
 
 @dataclass(frozen=True)
 class Signal:
-    """A signal's display name and engineering unit."""
+    """A signal's display name, engineering unit and, optionally, its span.
+
+    Parameters
+    ----------
+    name : str
+    unit : str
+    range : tuple of float or None
+        ``(low, high)``, the engineering values at 0 % and 100 % of the signal's span (the
+        transmitter's or the output's range), signal units; needed to state gains in %/%.
+    """
 
     name: str
     unit: str = ""
+    range: tuple[float, float] | None = None
+
+    @property
+    def span(self) -> float | None:
+        """``high - low`` in signal units, or None without a range."""
+        return None if self.range is None else self.range[1] - self.range[0]
 
     def label(self) -> str:
         """``"name [unit]"`` or just the name."""

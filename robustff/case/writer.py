@@ -126,7 +126,7 @@ def _plain(case: Case) -> dict[str, Any]:
         "time_unit": case.time_unit,
         "process": _model(case.process),
         "disturbance": _model(case.disturbance),
-        "feedback": _dataclass(case.feedback),
+        "feedback": _feedback(case.feedback),
         "feedforward": _dataclass(case.feedforward),
         "sensor": _dataclass(case.sensor),
         "signals": {name: _dataclass(signal) for name, signal in _items(case.signals)},
@@ -144,7 +144,20 @@ def _items(instance: Any) -> list[tuple[str, Any]]:
 
 
 def _dataclass(instance: Any) -> dict[str, Any]:
-    return {name: value for name, value in _items(instance) if value is not None}
+    return {name: list(value) if isinstance(value, tuple) else value
+            for name, value in _items(instance) if value is not None}
+
+
+#: ``[feedback]`` keys written only when they differ from the default: a file without them
+#: means the controller of earlier versions (ideal form, b = 1, derivative on the measurement),
+#: and a PI controller refuses a derivative setpoint weight.
+_FEEDBACK_QUIET = ("structure", "setpoint_weight", "derivative_setpoint_weight")
+
+
+def _feedback(spec: FeedbackSpec) -> dict[str, Any]:
+    default = FeedbackSpec()
+    return {name: value for name, value in _dataclass(spec).items()
+            if name not in _FEEDBACK_QUIET or value != getattr(default, name)}
 
 
 def _model(model: Any) -> dict[str, Any]:
@@ -182,7 +195,7 @@ def _uncertainty(case: Case) -> dict[str, Any]:
 def _defaults() -> dict[str, Any]:
     """Values a file may leave out (the loader fills them in)."""
     return {
-        "feedback": _dataclass(FeedbackSpec()),
+        "feedback": _feedback(FeedbackSpec()),
         "feedforward": _dataclass(FeedforwardSpec()),
         "sensor": _dataclass(SensorModel()),
         "signals": {name: _dataclass(signal) for name, signal in _items(Signals())},

@@ -26,8 +26,11 @@ Feedback rules (ideal/parallel PID form ``u = Kc (e + 1/Ti int e dt - Td dy_f/dt
 Where a rule yields no derivative action (FOPDT or IPDT under SIMC, IPDT under IMC) and a PID was
 asked for, the derivative time is zero and the design says so.
 
-The derivative acts on the measurement through a first-order filter of time constant
-``0.1 Td`` (common practice, no source). Anti-windup is by back-calculation with tracking time
+The derivative acts on the measurement (or on ``c r - y`` with a derivative setpoint weight c)
+through a first-order filter of time constant ``0.1 Td`` unless the case gives another fraction
+(common practice, no source). Manual settings in the series or parallel form, as a proportional
+band or in repeats, are converted to the ideal form by :mod:`robustff.design.controller_forms`.
+Anti-windup is by back-calculation with tracking time
 ``Tt = Ti`` (PI) or ``sqrt(Ti Td)`` (PID) (Astrom and Hagglund, Advanced PID Control, 2006).
 
 Feedforward: the ideal compensator ``Gff = -Gd / Gp`` reduced to ``Kff (lead s + 1) / (lag s + 1)
@@ -40,7 +43,13 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
-from robustff.case import Case, FeedbackSpec, FeedforwardSpec
+from robustff.case import Case, FeedbackSpec, FeedforwardSpec, Signals
+from robustff.design.controller_forms import (
+    form_lines,
+    ideal_notes,
+    manual_ideal,
+    series_to_ideal,
+)
 from robustff.errors import DesignError
 from robustff.plant.kinds import FOPDT, IPDT, SOPDT
 from robustff.plant.models import TransferModel
@@ -86,6 +95,11 @@ class FeedbackSettings:
         tau_c used by the rule, time units (NaN for manual tuning).
     rule : str
         Which rule produced the settings.
+    setpoint_weight : float
+        Weight b of the setpoint in the proportional action, dimensionless.
+    derivative_setpoint_weight : float
+        Weight c of the setpoint in the derivative action, dimensionless (0: derivative on the
+        measurement).
     """
 
     form: str
@@ -99,9 +113,14 @@ class FeedbackSettings:
     output_bias: float
     closed_loop_time: float
     rule: str
+    setpoint_weight: float = 1.0
+    derivative_setpoint_weight: float = 0.0
 
     def to_dict(self) -> dict[str, float | str]:
-        return dict(self.__dict__)
+        """The fields of ``summary.json``'s ``design.feedback`` (setpoint weights not yet in
+        its schema)."""
+        return {key: value for key, value in self.__dict__.items()
+                if key not in ("setpoint_weight", "derivative_setpoint_weight")}
 
 
 @dataclass(frozen=True)
@@ -183,24 +202,35 @@ class LoopDesign:
             "notes": list(self.notes),
         }
 
-    def summary_lines(self, case: Case) -> list[str]:
-        """Human-readable lines describing the design, with units from the case."""
+    def feedback_lines(self, case: Case) -> list[str]:
+        """The feedback controller in ideal form, then in the case's form with the units the
+        engineer types into the control system, its action, weights and limits."""
         unit = case.time_unit
         out_unit = case.signals.output.unit or "output units"
-        fb, ff = self.feedback, self.feedforward
-        lines = [
-            f"Feedback ({fb.rule}): {fb.form.upper()} Kc = {fb.kc:.4g} "
-            f"{case.signals.output.unit or 'output'}/{case.signals.controlled.unit or 'CV'}, "
-            f"Ti = {fb.ti:.4g} {unit}, Td = {fb.td:.4g} {unit}"
+        fb = self.feedback
+        gain_note, integral_note = ideal_notes(fb.kc, fb.ti, case.feedback, case.signals, unit)
+        return [
+            f"Feedback ({fb.rule}): {fb.form.upper()}, ideal form: Kc = {fb.kc:.4g} "
+            f"{case.signals.output.unit or 'output'}/{case.signals.controlled.unit or 'CV'}"
+            f"{gain_note}, Ti = {fb.ti:.4g} {unit}{integral_note}, Td = {fb.td:.4g} {unit}"
             + (
                 ""
                 if math.isnan(fb.closed_loop_time)
                 else f", tau_c = {fb.closed_loop_time:.4g} {unit}"
             ),
+            *("  " + line for line in form_lines(
+                fb.kc, fb.ti, fb.td, fb.filter_time, case.feedback, case.signals, unit)),
             f"  output limits {fb.output_low:g} .. {fb.output_high:g} {out_unit}, bias "
             f"{fb.output_bias:g} {out_unit}; "
             f"anti-windup: back-calculation, Tt = {fb.tracking_time:.4g} {unit}",
         ]
+
+    def summary_lines(self, case: Case) -> list[str]:
+        """Human-readable lines describing the design, with units from the case."""
+        unit = case.time_unit
+        out_unit = case.signals.output.unit or "output units"
+        ff = self.feedforward
+        lines = self.feedback_lines(case)
         if ff.structure == "none":
             lines.append("Feedforward: none")
         else:
@@ -220,23 +250,6 @@ def per_unit(numerator: str, denominator: str) -> str:
     if any(mark in denominator for mark in "/* "):
         denominator = f"({denominator})"
     return f"{numerator}/{denominator}"
-
-
-def series_to_ideal(kc: float, ti: float, td: float) -> tuple[float, float, float]:
-    """Convert series (interacting) PID settings to the ideal (parallel) form.
-
-    Parameters
-    ----------
-    kc, ti, td : float
-        Series gain, integral time and derivative time (time units).
-
-    Returns
-    -------
-    tuple of float
-        ``(Kc (1 + Td/Ti), Ti + Td, Ti Td / (Ti + Td))``.
-    """
-    factor = 1.0 + td / ti
-    return kc * factor, ti + td, ti * td / (ti + td)
 
 
 def half_rule(model: TransferModel) -> TransferModel:
@@ -309,7 +322,7 @@ TUNING_RULES: dict[str, dict[str, Rule]] = {
 
 
 def tune_feedback(
-    process: TransferModel, spec: FeedbackSpec, step: float
+    process: TransferModel, spec: FeedbackSpec, step: float, signals: Signals | None = None
 ) -> tuple[FeedbackSettings, list[str]]:
     """Design the feedback controller from the nominal process model.
 
@@ -321,6 +334,9 @@ def tune_feedback(
         Form, rule, tau_c and limits from the case.
     step : float
         Controller sample time, time units (used as tau_c floor when the model has no dead time).
+    signals : Signals, optional
+        Units and spans of the case (default: :class:`Signals`), for manual settings given as a
+        proportional band.
 
     Returns
     -------
@@ -335,15 +351,15 @@ def tune_feedback(
             tau_c = step
             notes.append(f"process has no dead time: tau_c set to the sample time {step:g}")
     if spec.tuning == "manual":
-        if spec.kc is None or spec.ti is None:
-            raise DesignError("feedback: manual tuning needs kc and ti")
-        kc, ti, td, rule = spec.kc, spec.ti, spec.td or 0.0, "manual"
+        kc, ti, td = manual_ideal(spec, signals or Signals(), process.gain)
+        rule = "manual"
         tau_c = math.nan
         if kc * process.gain <= 0.0:
             # With e = setpoint - CV and u = Kc e, Kc must share the process gain's sign.
             raise DesignError(
-                f"feedback.kc: {kc:g} acts in the wrong direction for a process gain of "
-                f"{process.gain:g} (Kc must have the same sign: the loop would run away)"
+                f"feedback.kc: {spec.kc if spec.kc is not None else kc:g} acts in the wrong "
+                f"direction for a process gain of {process.gain:g} (Kc must have the same sign: "
+                "the loop would run away)"
             )
     else:
         if not process.integrating and process.time_constant <= 0.0:
@@ -357,18 +373,22 @@ def tune_feedback(
     if spec.form == "pi":
         td = 0.0
     tracking = ti if td == 0.0 else math.sqrt(ti * td)
+    fraction = (DERIVATIVE_FILTER_FRACTION if spec.derivative_filter is None
+                else spec.derivative_filter)
     settings = FeedbackSettings(
         spec.form,
         kc,
         ti,
         td,
-        DERIVATIVE_FILTER_FRACTION * td,
+        fraction * td,
         tracking,
         spec.output_low,
         spec.output_high,
         spec.output_bias,
         tau_c,
         rule,
+        spec.setpoint_weight,
+        spec.derivative_setpoint_weight if spec.form == "pid" else 0.0,
     )
     return settings, notes
 
@@ -456,7 +476,8 @@ def _reduced_lead_lag(process: TransferModel, disturbance: TransferModel) -> tup
 
 def design_loop(case: Case) -> LoopDesign:
     """Feedback and feedforward designs for a case, from its nominal models."""
-    feedback, notes = tune_feedback(case.process, case.feedback, case.simulation.step)
+    feedback, notes = tune_feedback(case.process, case.feedback, case.simulation.step,
+                                    case.signals)
     feedforward, ff_notes = design_feedforward(
         case.process, case.disturbance, case.feedforward, case.simulation.step, case.time_unit
     )

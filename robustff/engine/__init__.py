@@ -129,6 +129,8 @@ def _controller_vector(design: LoopDesign, scenario: Scenario) -> np.ndarray:
             fb.output_low - fb.output_bias,
             fb.output_high - fb.output_bias,
             scenario.divergence_limit,
+            fb.setpoint_weight,
+            fb.derivative_setpoint_weight,
         ]
     )
 

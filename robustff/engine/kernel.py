@@ -83,9 +83,10 @@ def accumulator_slot(name: str) -> int:
 SETTLING_TIME = accumulator_slot("settling_time")
 OPPOSITE_EXCURSION = accumulator_slot("opposite_excursion")
 
-#: Controller state of one live arm: integral term, derivative term, CV and output at the
-#: previous scan (deviation units).
-ArmState = namedtuple("ArmState", ("integral", "derivative", "previous_cv", "previous_output"))
+#: Controller state of one live arm: integral term, derivative term, the derivative's input
+#: ``CV - c setpoint`` and the output at the previous scan (deviation units).
+ArmState = namedtuple(
+    "ArmState", ("integral", "derivative", "previous_derivative_input", "previous_output"))
 
 #: Stability probe state: integral and derivative terms, previous CV, max |e| over
 #: ``[T/2, 3T/4)`` and over ``[3T/4, T)``, and whether the probe has diverged.
@@ -96,11 +97,12 @@ ProbeState = namedtuple(
 
 #: Controller constants, computed once: ``kc``; derivative filter pole ``tf / (tf + h)``;
 #: derivative gain ``kc td / (tf + h)``; integral gain ``kc h / ti``; tracking gain ``h / tt``;
-#: output limits (deviation units); whether the controller has a derivative term.
+#: output limits (deviation units); whether the controller has a derivative term; setpoint
+#: weights b (proportional) and c (derivative).
 ControllerParams = namedtuple(
     "ControllerParams",
     ("kc", "derivative_pole", "derivative_gain", "integral_gain", "tracking_gain",
-     "u_low", "u_high", "has_derivative"),
+     "u_low", "u_high", "has_derivative", "setpoint_weight", "derivative_setpoint_weight"),
 )
 
 #: Metric conventions: controller sample time ``h``, event start ``t0`` (time units), settling
@@ -198,11 +200,14 @@ def _arm_control(s: ArmState, a: Accumulators, y: float, sp: float, ff: float, f
     limit over the scan period ``h``); the error metrics follow in :func:`_arm_metrics`.
     """
     e = sp - y
+    # Setpoint weights: proportional action on b sp - y, derivative on y - c sp (b = 1 and
+    # c = 0 give exactly the error and the measurement, the same IEEE operations).
+    yd = y - p.derivative_setpoint_weight * sp
     deriv = s.derivative
     if p.has_derivative:
         deriv = p.derivative_pole * deriv - p.derivative_gain * (
-            y - (y if first else s.previous_cv))
-    v = p.kc * e + s.integral + deriv + ff
+            yd - (yd if first else s.previous_derivative_input))
+    v = p.kc * (p.setpoint_weight * sp - y) + s.integral + deriv + ff
     u = min(max(v, p.u_low), p.u_high)
     integral = s.integral + (p.integral_gain * e + p.tracking_gain * (u - v))
     a = Accumulators(
@@ -211,7 +216,7 @@ def _arm_control(s: ArmState, a: Accumulators, y: float, sp: float, ff: float, f
         valve_travel=a.valve_travel + abs(u - s.previous_output),
         time_at_limit=a.time_at_limit + h if u != v else a.time_at_limit,
     )
-    return u, ArmState(integral, deriv, y, u), a
+    return u, ArmState(integral, deriv, yd, u), a
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -447,7 +452,8 @@ def simulate_kernel(
     disturbance_profile: np.ndarray,  # (T S,) deterministic disturbance, disturbance units
     setpoint_profile: np.ndarray,     # (T S,) setpoint deviation, CV units
     noise_events: np.ndarray,     # (E, 3): start scan, stationary std, filter time constant
-    controller: np.ndarray,       # (8,): kc, ti, td, tf, tt, u_low, u_high, divergence limit
+    controller: np.ndarray,       # (10,): kc, ti, td, tf, tt, u_low, u_high, divergence limit,
+                                  # setpoint weights b and c
     feedforward: np.ndarray,      # (5,): gain, lead, lag, delay, input filter time constant
     metric_setup: np.ndarray,     # (4,): event start time, settling band, unused, unused
     direction_profile: np.ndarray,  # (T S,): sign of e that counts as an opposite excursion
@@ -468,7 +474,7 @@ def simulate_kernel(
     kc, ti, td, tf, tt = controller[0], controller[1], controller[2], controller[3], controller[4]
     # The textbook expressions, evaluated once in the same operation order.
     p = ControllerParams(kc, tf / (tf + h), kc * td / (tf + h), kc * h / ti, h / tt,
-                         controller[5], controller[6], td > 0.0)
+                         controller[5], controller[6], td > 0.0, controller[8], controller[9])
     # The direction slot is filled per step from direction_profile (metric_setup[2] is unused).
     mp = MetricParams(hi, metric_setup[0], metric_setup[1], metric_setup[2], 0.0, 0.0)
     n_bins = envelope_edges.shape[0] - 1

@@ -54,11 +54,49 @@ def feedback(draw):
     low = draw(_finite)
     high = low + draw(_pos)
     bias = draw(st.floats(low, high))
+    structure = draw(st.sampled_from(["ideal", "series", "parallel"]))
+    pid = form == "pid"
+    fraction = st.floats(0.0, 1.0)
+    form_keys = {
+        "structure": structure,
+        "derivative_filter": draw(st.none() | fraction) if pid else None,
+        "setpoint_weight": draw(fraction),
+        "derivative_setpoint_weight": draw(fraction) if pid else 0.0,
+    }
     if tuning == "manual":
-        kc = draw(_pos) * draw(st.sampled_from([-1.0, 1.0]))
-        ti, td = draw(_pos), draw(_nonneg) if form == "pid" else None
-        return FeedbackSpec(form, tuning, None, kc, ti, td, low, high, bias)
-    return FeedbackSpec(form, tuning, draw(st.none() | _pos), None, None, None, low, high, bias)
+        sign = draw(st.sampled_from([-1.0, 1.0]))
+        band = draw(st.booleans())
+        kc, pb = (None, draw(_pos)) if band else (draw(_pos) * sign, None)
+        if structure == "parallel":
+            gains = {"ki": draw(_pos) * sign, "kd": draw(_nonneg) * sign if pid else None}
+            return FeedbackSpec(form, tuning, None, kc, None, None, low, high, bias,
+                                proportional_band=pb, **gains, **form_keys)
+        repeats = draw(st.booleans())
+        ti, reps = (None, draw(_pos)) if repeats else (draw(_pos), None)
+        td = draw(_nonneg) if pid else None
+        return FeedbackSpec(form, tuning, None, kc, ti, td, low, high, bias,
+                            proportional_band=pb, repeats=reps, **form_keys)
+    return FeedbackSpec(form, tuning, draw(st.none() | _pos), None, None, None, low, high, bias,
+                        **form_keys)
+
+
+@st.composite
+def signals(draw, spans: bool):
+    """Names, units and (always when ``spans``) the CV and output ranges."""
+    def span():
+        low = draw(_finite)
+        return (low, low + draw(_pos))
+
+    def text(size: int):
+        return draw(st.text(min_size=1, max_size=size).filter(str.strip))
+
+    return Signals(
+        Signal(text(12), draw(st.text(max_size=6)),
+               span() if spans or draw(st.booleans()) else None),
+        Signal(text(12), draw(st.text(max_size=6)),
+               span() if spans or draw(st.booleans()) else None),
+        Signal(text(12), draw(st.text(max_size=6))),
+    )
 
 
 @st.composite
@@ -119,15 +157,15 @@ def cases(draw):
     sensor = SensorModel(draw(_nonneg), draw(_nonneg))
     step = draw(st.floats(0.01, 10.0))
     duration = step * draw(st.floats(1.5, 10_000.0))
+    control = draw(feedback())
     base = Case(
         title=draw(st.text(min_size=1, max_size=30).filter(str.strip)),
         time_unit=draw(st.sampled_from(["s", "min", "h"])),
         process=process, disturbance=disturbance,
-        feedback=draw(feedback()), feedforward=draw(feedforward()),
+        feedback=control, feedforward=draw(feedforward()),
         simulation=SimulationSpec(duration, step),
         events=draw(events(duration)), sensor=sensor,
-        signals=Signals(*(Signal(draw(st.text(min_size=1, max_size=12).filter(str.strip)),
-                                 draw(st.text(max_size=6))) for _ in range(3))),
+        signals=draw(signals(control.proportional_band is not None)),
         study=StudySpec(draw(st.integers(10, 10_000_000)), draw(st.integers(0, 2**63 - 1)),
                         draw(st.sampled_from(["random", "lhs", "sobol"]))),
     )
