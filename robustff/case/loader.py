@@ -32,7 +32,9 @@ from robustff.case.schema import (
     SimulationSpec,
     StudySpec,
 )
+from robustff.case.secondary_section import read_secondary
 from robustff.case.uncertainty_section import read_uncertainty
+from robustff.case.valve_section import read_valve
 from robustff.errors import CaseError
 from robustff.plant.models import MODEL_KINDS, MODEL_PARAMETERS, SensorModel, TransferModel
 
@@ -49,7 +51,8 @@ MIN_SAMPLES, MAX_SAMPLES = 10, 10_000_000
 MAX_SEED = 2**63 - 1
 TOP_LEVEL_KEYS: tuple[str, ...] = (
     "title", "time_unit", "process", "disturbance", "feedback", "feedforward", "sensor",
-    "event", "signals", "simulation", "uncertainty", "study", "design", "recommendation",
+    "event", "signals", "simulation", "uncertainty", "study", "design", "recommendation", "valve",
+    "secondary",
 )
 _REQUIRED_TABLES = ("process", "disturbance", "simulation")
 
@@ -137,15 +140,19 @@ def _build_case(problems: Problems, raw: dict[str, Any]) -> Case | None:
     feedback = _read_feedback(problems, raw.get("feedback", {}))
     feedforward = _read_feedforward(problems, raw.get("feedforward", {}))
     sensor = _read_sensor(problems, raw.get("sensor", {}))
+    valve = read_valve(problems, raw.get("valve"))
     signals = _read_signals(problems, raw.get("signals", {}))
     if feedback is not None and signals is not None:
         _check_spans(problems, feedback, signals)
     simulation = _read_simulation(problems, raw)
+    secondary = read_secondary(problems, raw.get("secondary"),
+                               simulation.substeps if simulation is not None else None)
     events = _read_events(problems, raw, simulation)
     study = _read_study(problems, raw.get("study", {}))
     recommendation = _read_recommendation(problems, raw.get("recommendation", {}))
     designs = _read_designs(problems, raw)
-    models = {"process": process, "disturbance": disturbance, "sensor": sensor}
+    models = {"process": process, "disturbance": disturbance, "sensor": sensor, "valve": valve,
+              "secondary": secondary.model if secondary is not None else None}
     uncertainty, correlations = read_uncertainty(problems, raw.get("uncertainty", {}), models)
     parts = (title, time_unit, process, disturbance, feedback, feedforward, sensor, signals,
              simulation, events, study, uncertainty, correlations, designs,
@@ -158,6 +165,7 @@ def _build_case(problems: Problems, raw: dict[str, Any]) -> Case | None:
         events=events, sensor=sensor, signals=signals, uncertainty=uncertainty,  # type: ignore[arg-type]
         correlations=correlations, study=study, designs=designs,  # type: ignore[arg-type]
         recommendation=recommendation,  # type: ignore[arg-type]
+        valve=valve, secondary=secondary,
     )
 
 

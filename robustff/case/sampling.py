@@ -317,7 +317,8 @@ def plant_batch(case: Case, names: Sequence[str], values: np.ndarray) -> PlantBa
     values = np.asarray(values, dtype=np.float64)
     if values.ndim != 2 or values.shape[1] != len(names):
         raise ValueError(f"values must have shape (n, {len(names)}), got {values.shape}")
-    batch = PlantBatch.from_nominal(case.process, case.disturbance, case.sensor, values.shape[0])
+    batch = PlantBatch.from_nominal(case.process, case.disturbance, case.sensor, values.shape[0],
+                                    case.valve, case.secondary.model if case.secondary else None)
     for column, name in enumerate(names):
         batch.set_parameter(name, np.ascontiguousarray(values[:, column]))
     return batch

@@ -11,7 +11,9 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from robustff.case.record import DisturbanceRecord
 from robustff.plant.models import SensorModel, TransferModel
+from robustff.plant.valve import VALVE_PARAMETER_UNITS, ValveModel
 
 __all__ = [
     "TIME_UNITS",
@@ -21,6 +23,7 @@ __all__ = [
     "FeedbackSpec",
     "FeedforwardSpec",
     "DesignSpec",
+    "SecondarySpec",
     "DESIGN_NAME_CHARACTERS",
     "Event",
     "Signal",
@@ -40,6 +43,7 @@ EVENT_KINDS: tuple[str, ...] = (
     "disturbance-ramp",
     "disturbance-noise",
     "setpoint-step",
+    "disturbance-record",
 )
 DISTRIBUTION_KINDS: tuple[str, ...] = ("uniform", "relative", "normal", "triangular", "lognormal")
 FEEDFORWARD_STRUCTURES: tuple[str, ...] = ("none", "static", "lead-lag", "lead-lag-delay")
@@ -152,6 +156,36 @@ class DesignSpec:
 
 
 @dataclass(frozen=True)
+class SecondarySpec:
+    """A secondary (flow) loop: the primary output plus the feedforward is its setpoint.
+
+    Parameters
+    ----------
+    model : TransferModel
+        Secondary controller output (%) -> flow; the primary process model then takes the flow
+        as its input (its gain in CV units per flow unit).
+    tuning : {"simc", "manual"}
+        SIMC PI from ``model`` (``closed_loop_time`` or its default), or ``kc`` and ``ti``.
+    closed_loop_time, kc, ti : float or None
+        Time units; ``kc`` in % per flow unit.
+    output_low, output_high, output_bias : float
+        The secondary controller's output range and its output at the initial steady state, %.
+    scans_per_primary : int
+        Secondary scans per primary scan (its scan period is ``step / scans_per_primary``).
+    """
+
+    model: TransferModel
+    tuning: str = "simc"
+    closed_loop_time: float | None = None
+    kc: float | None = None
+    ti: float | None = None
+    output_low: float = 0.0
+    output_high: float = 100.0
+    output_bias: float = 50.0
+    scans_per_primary: int = 1
+
+
+@dataclass(frozen=True)
 class Event:
     """Something that happens during the simulated window.
 
@@ -168,6 +202,9 @@ class Event:
         Ramp duration, time units (ramps only).
     time_constant : float
         Filter time constant of the noise, time units (noise only).
+    record : DisturbanceRecord or None
+        The recorded trace replayed from ``at`` (``disturbance-record`` only; its ``size`` is
+        then the trace's largest deviation from its baseline, read from the file).
     """
 
     kind: str
@@ -175,6 +212,7 @@ class Event:
     size: float
     duration: float = 0.0
     time_constant: float = 0.0
+    record: DisturbanceRecord | None = None
 
 
 @dataclass(frozen=True)
@@ -338,6 +376,8 @@ class Case:
     correlations: tuple[Correlation, ...] = ()
     study: StudySpec = StudySpec()
     designs: tuple[DesignSpec, ...] = ()
+    valve: ValveModel | None = None
+    secondary: SecondarySpec | None = None
     recommendation: RecommendationSpec = RecommendationSpec()
     source_path: Path | None = field(default=None, compare=False)
     #: SHA-256 (hex) of the case file's bytes as read by ``load_case``; None for text cases.
@@ -355,6 +395,12 @@ class Case:
         """Engineering unit of a plant parameter such as ``"process.gain"`` (from ``[signals]``)."""
         block, _, name = key.partition(".")
         signals = self.signals
+        if block == "valve":
+            return VALVE_PARAMETER_UNITS[name].format(time=self.time_unit)
+        if block == "secondary" and self.secondary is not None:
+            if name != "gain":
+                return self.time_unit
+            return f"{signals.output.unit or 'output unit'} per % of secondary output"
         if name == "noise_std":
             return signals.disturbance.unit
         model = self.process if block == "process" else self.disturbance
@@ -368,7 +414,7 @@ class Case:
     def nominal_value(self, key: str) -> float:
         """Nominal value of a plant parameter such as ``"process.gain"``."""
         block, parameter = key.split(".", 1)
-        owner = {"process": self.process, "disturbance": self.disturbance, "sensor": self.sensor}[
-            block
-        ]
+        owner = {"process": self.process, "disturbance": self.disturbance, "sensor": self.sensor,
+                 "valve": self.valve or ValveModel(),
+                 "secondary": self.secondary.model if self.secondary else None}[block]
         return float(getattr(owner, parameter))

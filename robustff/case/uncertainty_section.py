@@ -28,15 +28,21 @@ from robustff.case.schema import (
 )
 from robustff.errors import CaseError
 from robustff.plant.models import MODEL_PARAMETERS, SENSOR_PARAMETERS, SensorModel, TransferModel
+from robustff.plant.valve import VALVE_PARAMETERS, ValveModel
 
 __all__ = ["read_uncertainty", "NON_NEGATIVE_PARAMETERS", "UNCERTAIN_BLOCKS"]
 
-UNCERTAIN_BLOCKS: tuple[str, ...] = ("process", "disturbance", "sensor")
+UNCERTAIN_BLOCKS: tuple[str, ...] = ("process", "disturbance", "sensor", "valve", "secondary")
 NON_NEGATIVE_PARAMETERS: dict[str, str] = {
     "time_constant": "a time constant",
     "time_constant_2": "a time constant",
     "dead_time": "a dead time",
     "noise_std": "a noise standard deviation",
+    "rate_limit": "a rate limit",
+    "deadband": "a deadband",
+    "stiction_s": "a stiction band",
+    "stiction_j": "a slip jump",
+    "rangeability": "a rangeability",
 }
 _SHAPES: dict[str, tuple[int, str]] = {
     "uniform": (2, "[low, high]"),
@@ -50,7 +56,7 @@ _CHOICES = (
 )
 _HOW = 'name it "block.parameter", e.g. "process.gain" = { relative = 0.2 }'
 
-Models = dict[str, TransferModel | SensorModel | None]
+Models = dict[str, TransferModel | SensorModel | ValveModel | None]
 Result = tuple[tuple[UncertainParameter, ...] | None, tuple[Correlation, ...] | None]
 
 
@@ -114,7 +120,20 @@ def _check_key(
                      f"{', '.join(UNCERTAIN_BLOCKS)}; {_HOW}")
         return False, None
     model = models.get(block)
-    if block == "sensor":
+    if block == "secondary" and model is None:
+        problems.add(path, "the case has no [secondary] loop; add one to make its parameters "
+                     "uncertain")
+        return False, None
+    if block == "valve":
+        if model is None:
+            problems.add(path, "the case has no [valve]; add one to make its parameters "
+                         "uncertain")
+            return False, None
+        if name not in VALVE_PARAMETERS:
+            problems.add(path, f"the valve has no parameter {name!r} "
+                         f"(it has {', '.join(VALVE_PARAMETERS)})")
+            return False, None
+    elif block == "sensor":
         if name not in SENSOR_PARAMETERS:
             problems.add(path, f"the sensor has no parameter {name!r} "
                          f"(it has {', '.join(SENSOR_PARAMETERS)})")
@@ -230,6 +249,8 @@ def _check_physical(
         else:
             fix = "keep the range at or above 0"
         problems.add(where, f"{reach}, but {what} cannot be negative: {fix}", value)
+    if key == "valve.rangeability" and low <= 1.0:
+        problems.add(where, f"can give {low:g}, but a rangeability must stay above 1", value)
     if key == "process.gain" and (low <= 0.0 <= high or (low > 0.0) != (nominal > 0.0)):
         sign = "positive" if nominal > 0.0 else "negative"
         if kind == "lognormal" and nominal < 0.0:

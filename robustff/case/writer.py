@@ -26,11 +26,13 @@ from robustff.case.schema import (
     FeedbackSpec,
     FeedforwardSpec,
     RecommendationSpec,
+    SecondarySpec,
     Signals,
     StudySpec,
 )
 from robustff.errors import CaseError
 from robustff.plant.models import MODEL_PARAMETERS, SensorModel
+from robustff.plant.valve import ValveModel
 
 __all__ = ["case_to_toml", "save_case"]
 
@@ -136,7 +138,32 @@ def _plain(case: Case) -> dict[str, Any]:
         "study": _dataclass(case.study),
         "recommendation": _dataclass(case.recommendation),
     } | ({"design": [{"name": design.name} | _dataclass(design.feedforward)
-                     for design in case.designs]} if case.designs else {})
+                     for design in case.designs]} if case.designs else {}) | (
+        {"valve": _valve(case.valve)} if case.valve is not None else {}) | (
+        {"secondary": _secondary(case.secondary)} if case.secondary is not None else {})
+
+
+def _secondary(spec: SecondarySpec) -> dict[str, Any]:
+    """The path model's keys, then the controller's (keys that do not apply left out)."""
+    out = _model(spec.model) | {"tuning": spec.tuning}
+    for name in ("closed_loop_time", "kc", "ti"):
+        if getattr(spec, name) is not None:
+            out[name] = getattr(spec, name)
+    return out | {"output_low": spec.output_low, "output_high": spec.output_high,
+                  "output_bias": spec.output_bias, "scans_per_primary": spec.scans_per_primary}
+
+
+def _valve(valve: ValveModel) -> dict[str, Any]:
+    """Only the keys that apply to the characteristic, and the stem effects that are set."""
+    out: dict[str, Any] = {"characteristic": valve.characteristic}
+    if valve.characteristic == "equal-percentage":
+        out["rangeability"] = valve.rangeability
+    if valve.characteristic == "installed":
+        out["installed"] = [[position, flow] for position, flow in valve.installed]
+    for name in ("rate_limit", "deadband", "stiction_s", "stiction_j", "time_constant"):
+        if getattr(valve, name):
+            out[name] = getattr(valve, name)
+    return out
 
 
 def _items(instance: Any) -> list[tuple[str, Any]]:
@@ -203,6 +230,9 @@ def _defaults() -> dict[str, Any]:
         "study": _dataclass(StudySpec()),
         "recommendation": _dataclass(RecommendationSpec()),
         "simulation": {"substeps": 1},
+        "valve": {"characteristic": "linear"},
+        "secondary": {"tuning": "simc", "output_low": 0.0, "output_high": 100.0,
+                      "output_bias": 50.0, "scans_per_primary": 1},
     }
 
 

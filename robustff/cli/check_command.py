@@ -71,7 +71,8 @@ def check_lines(case: Case, review: CaseReview | None = None) -> list[str]:
     lines = [f"Case: {printable_title(case.title)}", f"Time unit: {case.time_unit}"]
     if case.source_path is not None:
         lines.insert(1, f"File: {case.source_path}")
-    lines += _signal_lines(case) + _model_lines(case) + _event_lines(case)
+    lines += _signal_lines(case) + _model_lines(case) + _installed_lines(case)
+    lines += _event_lines(case)
     lines += _uncertainty_lines(case) + _study_lines(case) + _design_lines(case, review)
     warnings = warning_lines(review)
     verdict = (f"OK: the case is valid and runs ({len(warnings)} warning"
@@ -114,11 +115,23 @@ def _model_lines(case: Case) -> list[str]:
     ]
 
 
+def _installed_lines(case: Case) -> list[str]:
+    from robustff.design.installed_loop import installed_loop_lines
+    from robustff.design.tuning import design_loop
+    from robustff.errors import DesignError
+
+    try:
+        return installed_loop_lines(case, design_loop(case))
+    except DesignError:
+        return []  # the design's problem is reported with the design
+
+
 def _event_lines(case: Case) -> list[str]:
     unit, s = case.time_unit, case.signals
     sim = case.simulation
-    lines = ["", f"Simulation: {sim.duration:g} {unit} window, controller step {sim.step:g} {unit} "
-             f"({sim.n_steps} steps)", "Events:"]
+    internal = (f", plant in {sim.substeps} internal steps per scan" if sim.substeps > 1 else "")
+    lines = ["", f"Simulation: {sim.duration:g} {unit} window, controller scan period "
+             f"{sim.step:g} {unit} ({sim.n_steps} scans{internal})", "Events:"]
     for event in case.events:
         size_unit = s.controlled.unit if event.kind == "setpoint-step" else s.disturbance.unit
         text = f"  at {event.at:g} {unit}: {event.kind}, size {event.size:g} {size_unit}".rstrip()

@@ -12,7 +12,9 @@ from robustff.errors import CaseError
 __all__ = ["DEMO_CASES", "demo_case_path"]
 
 #: Names of the demo cases (file stems).
-DEMO_CASES: tuple[str, ...] = ("wash-water-heater", "syrup-dilution", "surge-tank-level")
+DEMO_CASES: tuple[str, ...] = (
+    "wash-water-heater", "syrup-dilution", "surge-tank-level", "steam-heater-sticky-valve",
+)
 
 
 def demo_case_path(name: str = "wash-water-heater") -> Path:

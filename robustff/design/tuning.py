@@ -190,10 +190,12 @@ class LoopDesign:
     feedforward: FeedforwardSettings
     notes: tuple[str, ...] = field(default=())
     alternatives: tuple[NamedFeedforward, ...] = ()
+    #: The secondary (flow) controller, PI in ideal form, output in % (None without one).
+    secondary: FeedbackSettings | None = None
 
     def with_feedforward(self, feedforward: FeedforwardSettings) -> LoopDesign:
         """The same feedback loop with another feedforward compensator (no alternatives)."""
-        return LoopDesign(self.feedback, feedforward, self.notes)
+        return LoopDesign(self.feedback, feedforward, self.notes, secondary=self.secondary)
 
     def to_dict(self) -> dict[str, object]:
         return {
@@ -492,4 +494,16 @@ def design_loop(case: Case) -> LoopDesign:
         except DesignError as exc:
             raise DesignError(f"design.{design.name}: {exc}") from None
         alternatives.append(NamedFeedforward(design.name, settings, tuple(design_notes)))
-    return LoopDesign(feedback, feedforward, tuple(notes + ff_notes), tuple(alternatives))
+    secondary = None
+    if case.secondary is not None:
+        spec = case.secondary
+        inner = FeedbackSpec(form="pi", tuning=spec.tuning, closed_loop_time=spec.closed_loop_time,
+                             kc=spec.kc, ti=spec.ti, output_low=spec.output_low,
+                             output_high=spec.output_high, output_bias=spec.output_bias)
+        try:
+            secondary, _ = tune_feedback(spec.model, inner,
+                                         case.simulation.step / spec.scans_per_primary)
+        except DesignError as exc:
+            raise DesignError(f"secondary: {exc}") from None
+    return LoopDesign(feedback, feedforward, tuple(notes + ff_notes), tuple(alternatives),
+                      secondary)

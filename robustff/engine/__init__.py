@@ -24,6 +24,7 @@ from robustff.engine.scenario import (
 )
 from robustff.plant.kinds import model_kind
 from robustff.plant.models import PlantBatch
+from robustff.plant.valve import VALVE_PARAMETERS, valve_code
 
 __all__ = [
     "ARMS",
@@ -48,6 +49,11 @@ _PLANT_KEYS = (
     "disturbance.dead_time",
     "sensor.time_constant",
     "sensor.noise_std",
+    *(f"valve.{name}" for name in VALVE_PARAMETERS),
+    "secondary.gain",
+    "secondary.time_constant",
+    "secondary.time_constant_2",
+    "secondary.dead_time",
 )
 
 
@@ -113,7 +119,7 @@ class SimulationResult:
 
 
 def plant_matrix(batch: PlantBatch) -> np.ndarray:
-    """The (N, 10) parameter matrix the kernel reads, from a :class:`PlantBatch`."""
+    """The (N, 16) parameter matrix the kernel reads, from a :class:`PlantBatch`."""
     return np.ascontiguousarray(np.column_stack([batch.values[key] for key in _PLANT_KEYS]))
 
 
@@ -133,6 +139,15 @@ def _controller_vector(design: LoopDesign, scenario: Scenario) -> np.ndarray:
             fb.derivative_setpoint_weight,
         ]
     )
+
+
+def _secondary_vector(design: LoopDesign, scans_per_primary: int) -> np.ndarray:
+    """present, kc, ti, tracking time, output limits (deviation), secondary scans per scan."""
+    sec = design.secondary
+    if sec is None:
+        return np.array([0.0, 0.0, 1.0, 1.0, 0.0, 0.0, 1.0])
+    return np.array([1.0, sec.kc, sec.ti, sec.tracking_time, sec.output_low - sec.output_bias,
+                     sec.output_high - sec.output_bias, float(scans_per_primary)])
 
 
 def _feedforward_vector(design: LoopDesign) -> np.ndarray:
@@ -201,7 +216,8 @@ def simulate(
     unstable = np.zeros((n, 2), dtype=np.bool_)
     loop_unstable = np.zeros(n, dtype=np.bool_)
     simulate_kernel(
-        np.array([model_kind(batch.process_kind).code, model_kind(batch.disturbance_kind).code]),
+        np.array([model_kind(batch.process_kind).code, model_kind(batch.disturbance_kind).code,
+                  model_kind(batch.secondary_kind or "fopdt").code]),
         plant_matrix(batch),
         np.asarray(seeds, dtype=np.uint64),
         scenario.step,
@@ -223,6 +239,9 @@ def simulate(
         loop_unstable,
         feedback_arm,
         scenario.substeps,
+        valve_code(batch.valve),
+        batch.valve.table() if batch.valve is not None else np.zeros((0, 2)),
+        _secondary_vector(design, scenario.secondary_scans),
     )
     if reference is not None:
         # The kernel skipped the feedback arm and the stability probe: take both from the
@@ -245,7 +264,8 @@ def simulate(
 
 def nominal_batch(case: Case, n: int = 1) -> PlantBatch:
     """``n`` copies of the case's nominal plant."""
-    return PlantBatch.from_nominal(case.process, case.disturbance, case.sensor, n)
+    return PlantBatch.from_nominal(case.process, case.disturbance, case.sensor, n, case.valve,
+                                   case.secondary.model if case.secondary else None)
 
 
 def build_scenario(case: Case, design: LoopDesign, settling_band: float | None = None) -> Scenario:
@@ -268,6 +288,7 @@ def build_scenario(case: Case, design: LoopDesign, settling_band: float | None =
         divergence_limit(case, design),
         settling_segments(case),
         case.simulation.substeps,
+        case.secondary.scans_per_primary if case.secondary else 1,
     )
     if settling_band is None:
         if setpoint_step:

@@ -33,7 +33,8 @@ from robustff.engine.discretise import block_coefficients, decay, split_delay
 __all__ = [
     "simulate_kernel", "ACCUMULATOR_NAMES", "N_ACCUMULATORS", "ACCUMULATOR_INIT", "Accumulators",
     "INITIAL_ACCUMULATORS", "accumulator_slot", "ArmState", "ProbeState", "ControllerParams",
-    "MetricParams", "PathCoefficients", "FeedforwardParams", "BinGrid",
+    "MetricParams", "PathCoefficients", "FeedforwardParams", "BinGrid", "ValveParams",
+    "ValveState", "SecondaryParams",
 ]
 
 # Records. The kernel keeps its state in small tuples so that the compiler holds them in
@@ -126,11 +127,39 @@ FeedforwardParams = namedtuple(
     "FeedforwardParams", ("pole", "zero", "scale", "weight_new", "weight_old", "input_pole"),
 )
 
+#: Valve constants of one sample (see :mod:`robustff.plant.valve`): characteristic code (0: no
+#: valve), rangeability and its log, stem travel allowed per internal step (% of travel, inf: no
+#: limit), half the deadband, stiction S and J (% of travel), actuator lag pole per internal
+#: step, nominal position x0 (%), output span (output units), flow fraction and slope at x0.
+ValveParams = namedtuple(
+    "ValveParams",
+    ("kind", "rangeability", "log_rangeability", "max_step", "half_deadband", "stiction_s",
+     "stiction_j", "lag_pole", "nominal", "span", "low", "flow0", "slope0"),
+)
+
+#: Valve state of one arm (all in % of travel): the previous command; whether the stem is
+#: stuck, the command where it stuck and the direction it moved before; its direction of
+#: motion; the position after stiction or deadband, after the rate limit and after the lag.
+ValveState = namedtuple(
+    "ValveState",
+    ("previous_command", "stuck", "stuck_at", "stop_direction", "direction", "held", "stem",
+     "position"),
+)
+
+#: Secondary (flow) controller: whether there is one, gain, integral gain per secondary scan
+#: ``kc hs / ti``, tracking gain ``hs / tt``, output limits (deviation units), and the number of
+#: internal steps per secondary scan.
+SecondaryParams = namedtuple(
+    "SecondaryParams",
+    ("present", "kc", "integral_gain", "tracking_gain", "u_low", "u_high", "every"),
+)
+
 #: Envelope histogram grid: lowest edge and bin width (CV units), number of bins.
 BinGrid = namedtuple("BinGrid", ("low", "width", "n_bins"))
 
-# Ring rows: controller output of arm 0 and arm 1, probe input, disturbance, measured disturbance.
-_RING_ROWS = 5
+# Ring rows: process input of arm 0 and arm 1, probe input, disturbance, measured disturbance,
+# then the secondary path's input of arm 0, arm 1 and the probe.
+_RING_ROWS = 8
 
 
 # Hot helpers take and return scalars and tuples only: an array argument would cost reference
@@ -252,6 +281,139 @@ def _arm_metrics(a: Accumulators, last: float, e: float, t: float, weight: float
     return a, last
 
 
+@njit(cache=True, nogil=True)
+def _flow_fraction(vp: ValveParams, table: np.ndarray, position: float) -> float:
+    """Flow fraction of a stem position (% of travel) for characteristic codes 1-3."""
+    x = min(max(position / 100.0, 0.0), 1.0)
+    if vp.kind == 1:
+        return x
+    if vp.kind == 2:
+        return math.exp(vp.log_rangeability * (x - 1.0))
+    for r in range(table.shape[0] - 1):
+        if x <= table[r + 1, 0] or r == table.shape[0] - 2:
+            span = table[r + 1, 0] - table[r, 0]
+            return table[r, 1] + (table[r + 1, 1] - table[r, 1]) * (x - table[r, 0]) / span
+    return table[0, 1]
+
+
+@njit(cache=True, nogil=True)
+def _valve_params(kind: int, plant: np.ndarray, i: int, hi: float, u_low: float,
+                  u_high: float, table: np.ndarray) -> ValveParams:
+    """Valve constants of sample ``i`` (plant columns 10-15), internal step ``hi``."""
+    span = u_high - u_low
+    nominal = 100.0 * (-u_low) / span
+    rate, rangeability = plant[i, 11], plant[i, 10]
+    vp = ValveParams(kind, rangeability, math.log(max(rangeability, 1.0 + 1e-12)),
+                     rate * hi if rate > 0.0 else math.inf, 0.5 * plant[i, 12], plant[i, 13],
+                     plant[i, 14], decay(hi, plant[i, 15]), nominal, span, u_low, 0.0, 1.0)
+    if kind == 0:
+        return vp
+    x0 = nominal / 100.0
+    if kind == 1:
+        slope = 1.0
+    elif kind == 2:
+        slope = vp.log_rangeability * math.exp(vp.log_rangeability * (x0 - 1.0))
+    else:
+        r = 0
+        while r < table.shape[0] - 2 and x0 >= table[r + 1, 0]:
+            r += 1
+        slope = (table[r + 1, 1] - table[r, 1]) / (table[r + 1, 0] - table[r, 0])
+    return ValveParams(vp.kind, vp.rangeability, vp.log_rangeability, vp.max_step,
+                       vp.half_deadband, vp.stiction_s, vp.stiction_j, vp.lag_pole, nominal,
+                       span, u_low, _flow_fraction(vp, table, nominal), slope)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _valve_at_rest(vp: ValveParams) -> ValveState:
+    x0 = vp.nominal
+    return ValveState(x0, True, x0, 0.0, 0.0, x0, x0, x0)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _valve_scan(vs: ValveState, u: float, vp: ValveParams) -> ValveState:
+    """The stem's response to a new controller output ``u`` (deviation, output units) at a
+    scan: stiction (Choudhury, Thornhill and Shah 2005) or deadband, else the command."""
+    x = min(max(100.0 * (u - vp.low) / vp.span, 0.0), 100.0)
+    held, stuck, stuck_at = vs.held, vs.stuck, vs.stuck_at
+    stop_direction, direction = vs.stop_direction, vs.direction
+    if vp.stiction_s > 0.0:
+        change = x - vs.previous_command
+        moving = 1.0 if change > 0.0 else (-1.0 if change < 0.0 else 0.0)
+        if not stuck and (moving == 0.0 or moving != direction):
+            # The stem stops when the command stops or reverses.
+            stuck, stuck_at, stop_direction = True, vs.previous_command, direction
+        offset = 0.5 * (vp.stiction_s - vp.stiction_j)
+        if stuck:
+            away = x - stuck_at
+            sign = 1.0 if away > 0.0 else -1.0
+            # Moving on in the same direction needs J; a reversal needs S (deadband + stickband).
+            threshold = vp.stiction_j if sign == stop_direction else vp.stiction_s
+            if away != 0.0 and abs(away) > threshold:
+                stuck, direction = False, sign
+                held = x - direction * offset
+        else:
+            held = x - direction * offset
+    elif vp.half_deadband > 0.0:
+        held = min(max(held, x - vp.half_deadband), x + vp.half_deadband)
+    else:
+        held = x
+    return ValveState(x, stuck, stuck_at, stop_direction, direction, held, vs.stem,
+                      vs.position)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _valve_step(vs: ValveState, vp: ValveParams, table: np.ndarray) -> tuple:
+    """Rate limit and actuator lag over one internal step; returns ``(state, w)`` with ``w``
+    the process input (deviation, output units) the stem position gives."""
+    stem = vs.stem + min(max(vs.held - vs.stem, -vp.max_step), vp.max_step)
+    position = vp.lag_pole * vs.position + (1.0 - vp.lag_pole) * stem
+    if vp.kind == 1:
+        w = vp.span * (position - vp.nominal) / 100.0
+    else:
+        w = vp.span * (_flow_fraction(vp, table, position) - vp.flow0) / vp.slope0
+    return ValveState(vs.previous_command, vs.stuck, vs.stuck_at, vs.stop_direction,
+                      vs.direction, vs.held, stem, position), w
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _secondary_control(state: tuple, e: float, sec: SecondaryParams) -> tuple:
+    """Secondary PI (ideal form, back-calculation anti-windup) at its scan; ``state`` and the
+    result are ``(integral, output)``, deviation units."""
+    v = sec.kc * e + state[0]
+    u = min(max(v, sec.u_low), sec.u_high)
+    return state[0] + sec.integral_gain * e + sec.tracking_gain * (u - v), u
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _actuate(u: float, q: int, vs: ValveState, ss: tuple, xs: tuple, ring: np.ndarray,
+             row: int, size: int, mask: int, m_s: int, cs: PathCoefficients, vp: ValveParams,
+             table: np.ndarray, valve_kind: int, sec: SecondaryParams) -> tuple:
+    """The process input over internal step ``q`` from the primary output ``u``; returns
+    ``(w, valve state, secondary state, secondary path state)``.
+
+    Without a secondary loop ``u`` goes through the valve (if any) to the process. With one,
+    ``u`` is the flow setpoint of the secondary controller, whose output goes through the valve
+    to the secondary path (ring row ``row``); the process input is the flow.
+    """
+    if not sec.present:
+        w = u
+        if valve_kind > 0:
+            vs, w = _valve_step(vs, vp, table)
+        return w, vs, ss, xs
+    flow = _output(xs, cs)
+    if q % sec.every == 0:
+        ss = _secondary_control(ss, u - flow, sec)
+        if valve_kind > 0:
+            vs = _valve_scan(vs, ss[1], vp)
+    a = ss[1]
+    if valve_kind > 0:
+        vs, a = _valve_step(vs, vp, table)
+    ring[row * size + (q & mask)] = a
+    xs = _path_step(xs, cs, ring[row * size + ((q - m_s) & mask)],
+                    ring[row * size + ((q - m_s - 1) & mask)])
+    return flow, vs, ss, xs
+
+
 @njit(cache=True, nogil=True, inline="always")
 def _probe_control(s: ProbeState, y: float, k: int, p: ControllerParams, q2: int,
                    q3: int) -> tuple:
@@ -322,6 +484,7 @@ def _simulate_sample(
     grid: BinGrid,
     envelope_index: np.ndarray, slot: int, ring: np.ndarray, env_buf: np.ndarray,
     trajectories: np.ndarray, feedback_arm: bool, h: float, substeps: int,
+    valve_kind: int, valve_table: np.ndarray, sec: SecondaryParams,
 ) -> tuple:
     """Simulate sample ``i``; returns ``(acc fb, acc fbff, last outside fb, last outside fbff,
     alive fb, alive fbff, unstable)``.
@@ -346,15 +509,28 @@ def _simulate_sample(
     m_p, m_d, m_q = min(m_p, n_internal), min(m_d, n_internal), min(m_q, n_steps)
     cp = _coefficients(kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], hi, f_p)
     cd = _coefficients(kinds[1], plant[i, 4], plant[i, 5], plant[i, 6], hi, f_d)
-    # The probe runs at the scan: the process stepped exactly over a scan with its input held.
-    cq = cp if substeps == 1 else _coefficients(
+    # The probe runs at the scan: the process stepped exactly over a scan with its input held
+    # (with a secondary loop it runs with it, at the internal step).
+    cq = cp if substeps == 1 or sec.present else _coefficients(
         kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], h, f_q)
-    size = _ring_size(max(m_p, m_d, m_ff, m_q))
+    m_s, f_s = split_delay(plant[i, 19], hi)
+    m_s = min(m_s, n_internal)
+    cs = _coefficients(kinds[2], plant[i, 16], plant[i, 17], plant[i, 18], hi, f_s)
+    # The probe's secondary loop is linear: no output limits.
+    secq = SecondaryParams(sec.present, sec.kc, sec.integral_gain, 0.0, -math.inf, math.inf,
+                           sec.every)
+    size = _ring_size(max(m_p, m_d, m_ff, m_q, m_s))
     mask = size - 1
     ring[:_RING_ROWS * size] = 0.0  # rows: u fb, u fbff, probe input, disturbance, measured
     noise[:, 3] = 0.0
     a_sensor = decay(hi, plant[i, 8])
     gain_sensor, direct, noise_std = 1.0 - a_sensor, plant[i, 8] <= 0.0, plant[i, 9]
+    vp = _valve_params(valve_kind, plant, i, hi, sec.u_low if sec.present else p.u_low,
+                       sec.u_high if sec.present else p.u_high, valve_table)
+    ss0 = ss1 = ssq = (0.0, 0.0)  # secondary controllers: (integral, output)
+    xs0 = xs1 = xsq = (0.0, 0.0)  # secondary paths
+    v0 = v1 = _valve_at_rest(vp)
+    w0 = w1 = 0.0  # process inputs (the controller outputs through the valve)
     acc0 = acc1 = INITIAL_ACCUMULATORS
     s0 = s1 = ArmState(0.0, 0.0, 0.0, 0.0)
     last0 = last1 = -1.0
@@ -362,7 +538,7 @@ def _simulate_sample(
     x0 = x1 = xq = xd = (0.0, 0.0)  # path states (x1, x2)
     sq = ProbeState(0.0, 0.0, 0.0, 0.0, 0.0, False)
     q2, q3 = n_steps // 2, (3 * n_steps) // 4
-    sensor = ff_out = ff_in_prev = u0 = u1 = ff_measured = 0.0
+    sensor = ff_out = ff_in_prev = u0 = u1 = ff_measured = uq = 0.0
     for k in range(n_steps):
         held_noise = 0.0
         for j in range(noise.shape[0]):
@@ -400,13 +576,18 @@ def _simulate_sample(
                 ff_in_prev = ff_in
                 if feedback_arm and alive0:
                     u0, s0, acc0 = _arm_control(s0, acc0, y0, sp, 0.0, k == 0, p, h)
+                    if valve_kind > 0 and not sec.present:
+                        v0 = _valve_scan(v0, u0, vp)
                 if alive1:
                     u1, s1, acc1 = _arm_control(s1, acc1, y1, sp, ff_out, k == 0, p, h)
+                    if valve_kind > 0 and not sec.present:
+                        v1 = _valve_scan(v1, u1, vp)
                 if feedback_arm:
                     uq, sq = _probe_control(sq, _output(xq, cq), k, p, q2, q3)
-                    ring[2 * size + (k & mask)] = uq + 1.0
-                    xq = _path_step(xq, cq, ring[2 * size + ((k - m_q) & mask)],
-                                    ring[2 * size + ((k - m_q - 1) & mask)])
+                    if not sec.present:
+                        ring[2 * size + (k & mask)] = uq + 1.0
+                        xq = _path_step(xq, cq, ring[2 * size + ((k - m_q) & mask)],
+                                        ring[2 * size + ((k - m_q - 1) & mask)])
                 if slot >= 0:
                     _record(trajectories, slot, k, alive0, alive1, y0, y1, u0, u1)
                 if envelope_index[k] >= 0:
@@ -414,13 +595,23 @@ def _simulate_sample(
                     env_buf[1, envelope_index[k]] = _envelope_bin(y1, grid) if alive1 else -1
             if feedback_arm and alive0:
                 acc0, last0 = _arm_metrics(acc0, last0, sp - y0, t, weight, mpk)
-                ring[q & mask] = u0
+                w0, v0, ss0, xs0 = _actuate(u0, q, v0, ss0, xs0, ring, 5, size, mask, m_s, cs,
+                                            vp, valve_table, valve_kind, sec)
+                ring[q & mask] = w0
                 x0 = _path_step(x0, cp, ring[(q - m_p) & mask], ring[(q - m_p - 1) & mask])
             if alive1:
                 acc1, last1 = _arm_metrics(acc1, last1, sp - y1, t, weight, mpk)
-                ring[size + (q & mask)] = u1
+                w1, v1, ss1, xs1 = _actuate(u1, q, v1, ss1, xs1, ring, 6, size, mask, m_s, cs,
+                                            vp, valve_table, valve_kind, sec)
+                ring[size + (q & mask)] = w1
                 x1 = _path_step(x1, cp, ring[size + ((q - m_p) & mask)],
                                 ring[size + ((q - m_p - 1) & mask)])
+            if feedback_arm and sec.present:  # the probe with its (linear) secondary loop
+                flow, _, ssq, xsq = _actuate(uq + 1.0, q, v0, ssq, xsq, ring, 7, size, mask,
+                                             m_s, cs, vp, valve_table, 0, secq)
+                ring[2 * size + (q & mask)] = flow
+                xq = _path_step(xq, cp, ring[2 * size + ((q - m_p) & mask)],
+                                ring[2 * size + ((q - m_p - 1) & mask)])
             ring[3 * size + (q & mask)] = d
             xd = _path_step(xd, cd, ring[3 * size + ((q - m_d) & mask)],
                             ring[3 * size + ((q - m_d - 1) & mask)])
@@ -444,9 +635,10 @@ def _record(trajectories: np.ndarray, slot: int, k: int, alive0: bool, alive1: b
 
 @njit(cache=True, nogil=True)
 def simulate_kernel(
-    kinds: np.ndarray,            # (2,) int: process kind, disturbance kind
-    plant: np.ndarray,            # (N, 10): Kp, tp1, tp2, thp, Kd, td1, td2, thd, sensor tau,
-                                  # noise std
+    kinds: np.ndarray,            # (3,) int: process, disturbance and secondary path kinds
+    plant: np.ndarray,            # (N, 20): Kp, tp1, tp2, thp, Kd, td1, td2, thd, sensor tau,
+                                  # noise std, valve: rangeability, rate limit, deadband, S, J,
+                                  # actuator lag; secondary path: K, t1, t2, theta
     seeds: np.ndarray,            # (N,) uint64 per-sample random seeds
     h: float,                     # the controller's scan period
     disturbance_profile: np.ndarray,  # (T S,) deterministic disturbance, disturbance units
@@ -468,6 +660,9 @@ def simulate_kernel(
     loop_unstable: np.ndarray,    # out (N,) bool: the feedback loop itself is unstable (probe)
     feedback_arm: bool,           # False: only the feedforward arm (see _simulate_sample)
     substeps: int,                # S internal steps per scan (profiles: one entry per step)
+    valve_kind: int,              # 0: no valve; 1 linear, 2 equal-percentage, 3 installed
+    valve_table: np.ndarray,      # (P, 2): installed characteristic, travel and flow fractions
+    secondary: np.ndarray,        # (7,): present, kc, ti, tt, u_low, u_high, scans per primary
 ) -> None:
     n_steps, n_internal = envelope_index.shape[0], disturbance_profile.shape[0]
     hi = h / substeps
@@ -486,6 +681,13 @@ def simulate_kernel(
     m_ff, f_ff = split_delay(feedforward[3], h)
     ffp = FeedforwardParams(ff_pole, ff_zero, ff_scale, 1.0 - f_ff, f_ff,
                             decay(h, feedforward[4]))
+    scans = max(int(secondary[6]), 1)
+    h_s = h / scans
+    sec = SecondaryParams(
+        secondary[0] > 0.0, secondary[1],
+        secondary[1] * h_s / secondary[2] if secondary[0] > 0.0 else 0.0,
+        h_s / secondary[3] if secondary[0] > 0.0 else 0.0,
+        secondary[4], secondary[5], max(substeps // scans, 1))
     noise = np.zeros((noise_events.shape[0], 5))
     for j in range(noise_events.shape[0]):
         pole = decay(h, noise_events[j, 2])
@@ -499,7 +701,7 @@ def simulate_kernel(
             i, kinds, plant, seeds[i], disturbance_profile, setpoint_profile, direction_profile,
             segment_profile, noise, p, mp,
             ffp, min(m_ff, n_steps), controller[7], grid, envelope_index, trajectory_slot[i],
-            ring, env_buf, trajectories, feedback_arm, h, substeps)
+            ring, env_buf, trajectories, feedback_arm, h, substeps, valve_kind, valve_table, sec)
         loop_unstable[i] = probe
         _commit_envelope(env_buf, envelope_counts, not probe)
         last_segment = segment_profile[n_internal - 1]

@@ -44,6 +44,8 @@ class Scenario:
         units: settling is measured after each of them (see :func:`settling_segments`).
     substeps : int
         Internal steps per scan, ``S``.
+    secondary_scans : int
+        Scans of the secondary (flow) controller per primary scan (1 without one).
     """
 
     step: float
@@ -57,6 +59,7 @@ class Scenario:
     divergence_limit: float
     segment_start: np.ndarray
     substeps: int = 1
+    secondary_scans: int = 1
 
     @property
     def n_steps(self) -> int:

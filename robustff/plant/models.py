@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 
 from robustff.plant.kinds import ALL_PARAMETERS, ModelKind, kind_names, model_kind, registered_kinds
+from robustff.plant.valve import VALVE_PARAMETERS, ValveModel
 
 __all__ = [
     "MODEL_KINDS",
@@ -192,6 +193,11 @@ class PlantBatch:
     process_kind: str
     disturbance_kind: str
     values: dict[str, np.ndarray] = field(default_factory=dict)
+    #: The valve's characteristic (shared); its numbers are the ``valve.*`` values. None: an
+    #: ideal actuator.
+    valve: ValveModel | None = None
+    #: The secondary loop path's kind; None without a secondary loop.
+    secondary_kind: str | None = None
 
     @property
     def size(self) -> int:
@@ -200,18 +206,26 @@ class PlantBatch:
 
     @classmethod
     def from_nominal(
-        cls, process: TransferModel, disturbance: TransferModel, sensor: SensorModel, n: int
+        cls, process: TransferModel, disturbance: TransferModel, sensor: SensorModel, n: int,
+        valve: ValveModel | None = None, secondary: TransferModel | None = None,
     ) -> PlantBatch:
-        """``n`` copies of the nominal plant."""
+        """``n`` copies of the nominal plant (``valve``: None for an ideal actuator;
+        ``secondary``: the secondary loop's path, None without one)."""
         values: dict[str, np.ndarray] = {}
-        for block, model in (("process", process), ("disturbance", disturbance)):
+        blocks = [("process", process), ("disturbance", disturbance)]
+        # Without a secondary loop its columns hold a zero-gain FOPDT (never simulated).
+        blocks.append(("secondary", secondary or TransferModel("fopdt", 0.0, 0.0, 0.0, 0.0)))
+        for block, model in blocks:
             for name in ALL_PARAMETERS:
                 # Parameters the kind does not have are stored as zero ("no lag").
                 used = name in model.spec.parameter_names
                 values[f"{block}.{name}"] = _column(getattr(model, name) if used else 0.0, n)
         values["sensor.time_constant"] = _column(sensor.time_constant, n)
         values["sensor.noise_std"] = _column(sensor.noise_std, n)
-        return cls(process.kind, disturbance.kind, values)
+        for name in VALVE_PARAMETERS:
+            values[f"valve.{name}"] = _column(getattr(valve or ValveModel(), name), n)
+        return cls(process.kind, disturbance.kind, values, valve,
+                   secondary.kind if secondary is not None else None)
 
     def set_parameter(self, key: str, column: np.ndarray) -> None:
         """Overwrite one parameter for all samples.
@@ -234,6 +248,8 @@ class PlantBatch:
             self.process_kind,
             self.disturbance_kind,
             {key: np.ascontiguousarray(col[index]) for key, col in self.values.items()},
+            self.valve,
+            self.secondary_kind,
         )
 
     def model(self, block: str, i: int) -> TransferModel:
