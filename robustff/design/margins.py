@@ -330,19 +330,25 @@ def _margins_block(loop: _Loop, w: np.ndarray) -> dict[str, np.ndarray]:
     magnitude, phase = _polar(loop, w)
     one_plus = (1.0 + magnitude * np.cos(phase), magnitude * np.sin(phase))  # 1 + L
     rhp = _closed_loop_rhp_count(loop, np.arctan2(one_plus[1], one_plus[0]))
-    stable = (np.round(rhp) == 0) & (_high_frequency_gain(loop) < 1.0) & (loop.gain != 0.0)
+    h = _high_frequency_gain(loop)
+    # A lag-free process with a dead time keeps turning L round a circle of radius h at high
+    # frequency (crossings go on, |L| falling towards h, |S| up to 1/(1 - h)); without dead
+    # time L settles on the positive real value h (no crossing, |S| -> 1/(1 + h)).
+    circling = np.where(loop.theta > 0.0, h, 0.0)
+    stable = (np.round(rhp) == 0) & (circling < 1.0) & (loop.gain != 0.0)
     g_rows, w_gc = _gain_crossovers(loop, w, magnitude)
     pm = np.remainder(np.degrees(_phase(loop.pick(g_rows), w_gc)), 360.0) - 180.0
     delay = np.remainder(np.radians(pm), 2.0 * np.pi) / w_gc
     p_rows, w_pc = _phase_crossovers(loop, w, phase)
     with np.errstate(divide="ignore"):
         gm = 1.0 / _polar(loop.pick(p_rows), w_pc)[0]
-    h = _high_frequency_gain(loop)  # lag-free: crossings go on, with |L| falling towards h
-    floor = np.where(h < 1.0, 1.0 / np.maximum(1.0 - h, 1e-300), np.inf)  # |S| -> 1/(1-h)
+    floor = np.where(circling < 1.0, 1.0 / np.maximum(1.0 - circling, 1e-300), np.inf)
+    floor = np.where((h > 0.0) & (loop.theta == 0.0), 1.0 / (1.0 + h), floor)
     ms = _peak_sensitivity(loop, w, 1.0 / np.hypot(*one_plus), _response, floor)
     out = {
         "gain_margin": np.minimum(_reduce_min(p_rows, gm, n, np.inf),
-                                  np.where(h > 0.0, 1.0 / np.where(h > 0.0, h, 1.0), np.inf)),
+                                  np.where(circling > 0.0,
+                                           1.0 / np.where(circling > 0.0, circling, 1.0), np.inf)),
         "phase_margin": _reduce_min(g_rows, pm, n, np.inf),
         "delay_margin": _reduce_min(g_rows, delay, n, np.inf),
         "ms": np.where(stable, ms, np.inf),
@@ -365,8 +371,10 @@ def _phase_upper_bound(loop: _Loop, w: np.ndarray) -> np.ndarray:
     return base + controller - lags - (0.5 * np.pi if loop.integrating else 0.0)
 
 
-def _far_gain_margin(loop: _Loop, top: np.ndarray, gm: np.ndarray) -> np.ndarray:
-    """Gain margins with the phase crossovers above the grid tops ``top`` included, (n,).
+def _far_gain_margin(loop: _Loop, top: np.ndarray,
+                     gm: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Gain margins with the phase crossovers above the grid tops ``top`` included, (n,), and
+    the peak of ``|S|`` over the frequencies searched (0 for samples not searched), (n,).
 
     A crossover above ``top`` has ``|L| <= bound(top)`` (about 0.05), so only samples whose best
     crossover so far has a smaller ``|L|`` (gain margin above about 20, or none) are searched.
@@ -374,34 +382,44 @@ def _far_gain_margin(loop: _Loop, top: np.ndarray, gm: np.ndarray) -> np.ndarray
     the next -180 deg level below its value at ``top`` before ``w = (U - level)/theta``, so that
     range holds a crossover; the search is extended while the bound of ``|L|`` at its end is
     above ``|L|`` at the best crossover found. Without dead time the phase settles on its
-    asymptote: the search covers three decades above the grid.
+    asymptote: the search covers three decades above the grid. A lag-free process with a dead
+    time is searched the same way (its crossings go on for ever, ``|L|`` tending to ``h``: the
+    limit ``1/h`` is already a candidate). The same samples can have their
+    peak of ``|S|`` (below ``1/(1 - bound(top))``, about 1.05) above the grid too.
     """
-    gm = gm.copy()
+    gm, peak = gm.copy(), np.zeros_like(gm)
     with np.errstate(divide="ignore"):
         level = np.where(np.isfinite(gm), 1.0 / gm, 0.0)  # |L| at the best crossover
-    rows = np.nonzero((_high_frequency_gain(loop) == 0.0) & (level < _gain_bound(loop, top)))[0]
+    h = _high_frequency_gain(loop)  # lag-free without dead time: L settles, no crossing
+    rows = np.nonzero(((h == 0.0) | (loop.theta > 0.0)) & (level < _gain_bound(loop, top)))[0]
     if rows.size == 0:
-        return gm
-    sub, start = loop.pick(rows), top[rows]
+        return gm, peak
+    sub, start, h = loop.pick(rows), top[rows], h[rows]
     phase = _phase(sub, start)
     target = -np.pi + 2.0 * np.pi * np.floor((phase + np.pi) / (2.0 * np.pi))
     delay = sub.theta > 0.0
     reach = (_phase_upper_bound(sub, start) - target) / np.where(delay, sub.theta, 1.0)
     end = np.where(delay, np.maximum(1.01 * reach, 1.001 * start),
                    start * 10.0 ** _FAR_DECADES)
-    found = gm[rows]
+    found, far_peak = gm[rows], np.zeros(rows.size)
     active = np.arange(rows.size)
     for _ in range(_FAR_ROUNDS):
         part = sub.pick(active)
         density = np.clip(2.0 * math.log(10.0) * end[active] * part.theta, _POINTS_PER_DECADE,
                           _MAX_DENSITY)
         w = _grid(start[active], end[active], density)
-        p_rows, w_pc = _phase_crossovers(part, w, _phase(part, w))
+        magnitude, phase = _polar(part, w)
+        sensitivity = 1.0 / np.hypot(1.0 + magnitude * np.cos(phase), magnitude * np.sin(phase))
+        far_peak[active] = np.maximum(far_peak[active], _peak_sensitivity(
+            part, w, sensitivity, _response, np.zeros(active.size)))
+        p_rows, w_pc = _phase_crossovers(part, w, phase)
         with np.errstate(divide="ignore"):
             far = 1.0 / _polar(part.pick(p_rows), w_pc)[0]
         found[active] = np.minimum(found[active], _reduce_min(p_rows, far, active.size, np.inf))
         best = np.where(np.isfinite(found[active]), 1.0 / found[active], 0.0)
-        more = (best > 0.0) & (best < _gain_bound(part, end[active])) & (part.theta > 0.0)
+        # (a lag-free process: |L| tends to h; below it the limit 1/h is the margin already)
+        more = ((best > 0.0) & (best < _gain_bound(part, end[active])) & (part.theta > 0.0)
+                & (best > h[active] * (1.0 + 1e-9)))
         if not np.any(more):
             break
         active, best = active[more], best[more]
@@ -410,8 +428,8 @@ def _far_gain_margin(loop: _Loop, top: np.ndarray, gm: np.ndarray) -> np.ndarray
         end[active] = _bound_falls_to(lambda x, a=active: _gain_bound(sub.pick(a), x),
                                       log_start, log_start + _MAX_DECADES * math.log(10.0), best)
         start[active] = start_next
-    gm[rows] = found
-    return gm
+    gm[rows], peak[rows] = found, far_peak
+    return gm, peak
 
 
 def _axis_crossings(loop: SampledLoop, w: np.ndarray, imag: np.ndarray):
@@ -464,24 +482,30 @@ def _sampled_block(loop: SampledLoop, w: np.ndarray) -> dict[str, np.ndarray]:
     }
 
 
-def _far_sampled_gain_margin(loop: SampledLoop, top: np.ndarray, gm: np.ndarray) -> np.ndarray:
-    """Gain margins of sampled loops with the crossings between the grid top and ``pi/h``."""
-    gm = gm.copy()
+def _far_sampled_gain_margin(loop: SampledLoop, top: np.ndarray,
+                             gm: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Gain margins of sampled loops with the crossings between the grid top and ``pi/h``, and
+    the peak of ``|S|`` there (0 for samples not searched), as :func:`_far_gain_margin`."""
+    gm, peak = gm.copy(), np.zeros_like(gm)
     with np.errstate(divide="ignore"):
         level = np.where(np.isfinite(gm), 1.0 / gm, 0.0)
     rows = np.nonzero((top < loop.nyquist) & (level < loop.bound(top)))[0]
     if rows.size == 0:
-        return gm
+        return gm, peak
     sub, start = loop.pick(rows), top[rows]
     end = np.full_like(start, loop.nyquist)
     density = np.clip(4.0 * math.log(10.0) * end * (sub.theta + sub.h), _POINTS_PER_DECADE,
                       _MAX_DENSITY)
     w = np.minimum(_grid(start, end, density), loop.nyquist)
-    p_rows, _, value = _axis_crossings(sub, w, sub.rectangular(w)[1])
+    real, imag = sub.rectangular(w)
+    p_rows, _, value = _axis_crossings(sub, w, imag)
     with np.errstate(divide="ignore"):
         far = _reduce_min(p_rows, 1.0 / np.abs(value), rows.size, np.inf)
     gm[rows] = np.minimum(gm[rows], far)
-    return gm
+    one_re = 1.0 + real
+    peak[rows] = _peak_sensitivity(sub, w, 1.0 / np.sqrt(one_re * one_re + imag * imag),
+                                   _sampled_response, np.zeros(rows.size))
+    return gm, peak
 
 
 def _grid_points(low: np.ndarray, high: np.ndarray, density: np.ndarray) -> int:
@@ -510,7 +534,8 @@ def _run_block(loop: _Loop, omega: np.ndarray | None) -> dict[str, np.ndarray]:
         again = _margins_block(loop.pick(rows), fine)
         for key, values in again.items():
             out[key][rows] = values
-    out["gain_margin"] = _far_gain_margin(loop, high, out["gain_margin"])
+    out["gain_margin"], peak = _far_gain_margin(loop, high, out["gain_margin"])
+    out["ms"] = np.where(out["stable"], np.maximum(out["ms"], peak), np.inf)
     return out
 
 
@@ -548,7 +573,8 @@ def _run_sampled_block(loop: SampledLoop) -> dict[str, np.ndarray]:
                                                   4.0 * density[rows]))
         for key, values in again.items():
             out[key][rows] = values
-    out["gain_margin"] = _far_sampled_gain_margin(loop, high, out["gain_margin"])
+    out["gain_margin"], peak = _far_sampled_gain_margin(loop, high, out["gain_margin"])
+    out["ms"] = np.where(out["stable"], np.maximum(out["ms"], peak), np.inf)
     return out
 
 

@@ -317,3 +317,42 @@ def test_sampled_margins_refuse_a_bad_sample_time():
     for bad in (0.0, -1.0, math.nan, math.inf):
         with pytest.raises(DesignError, match="sample time"):
             model_margins(model, fb, sample_time=bad)
+
+
+def test_a_lag_free_process_under_pi():
+    # Without dead time L = h (1 + 1/(j w Ti)), h = K Kc: phase in (-90, 0] deg, no crossing,
+    # GM inf; |1 + L|^2 = (1 + h)^2 + (h/(w Ti))^2, so Ms = 1/(1 + h), approached as w -> inf
+    # (derivation). With a dead time the crossings go on for ever with |L| falling towards h;
+    # the first, beyond where |L| is within 1 % of h, has the largest |L| and decides.
+    # Source for that one: python-control 0.10 `stability_margins` on a 20th-order Pade model.
+    import control
+
+    h, ti = 0.3, 5.0
+    pure = model_margins(TransferModel("fopdt", 1.0, 0.0, 0.0, 0.0), settings(h, ti))
+    assert pure.stable[0] and math.isinf(pure.gain_margin[0])
+    assert pure.ms[0] == pytest.approx(1.0 / (1.0 + h), rel=1e-9)
+    model, fb = TransferModel("fopdt", 1.0, 0.0, 0.0, 2.0), settings(0.02, 0.2)
+    result = model_margins(model, fb)
+    s = control.tf("s")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        gm, *_ = control.stability_margins(fb.kc * (1 + 1 / (fb.ti * s)) * model.to_control(20),
+                                           returnall=True)
+    assert result.gain_margin[0] == pytest.approx(np.min(gm), rel=1e-5)
+    assert result.gain_margin[0] < 1.0 / fb.kc  # not the high-frequency limit 1/h
+
+
+def test_peak_sensitivity_of_a_low_gain_loop_lies_above_the_first_grid():
+    # |L| < 0.05 there, so |S| < 1.053: the peak was missed before. Reference: the smallest
+    # |1 + L| on a dense sweep of the exact loop (continuous) and of python-control's
+    # evaluation of the sampled loop (whole-sample dead time).
+    model, fb = TransferModel("fopdt", 1.4, 17.0, 0.0, 5.75), settings(0.05, 26.0)
+    omega = np.linspace(1e-3, 3.0, 600_000)
+    jw = 1j * omega
+    response = fb.kc * (1 + 1 / (jw * fb.ti)) * model.frequency_response(omega)
+    assert model_margins(model, fb).ms[0] == pytest.approx(
+        1.0 / np.min(np.abs(1.0 + response)), rel=1e-6)
+    loop = python_control_sampled_loop(model, fb, H)
+    omega = np.linspace(1e-3, math.pi / H, 600_000)
+    sampled = 1.0 / np.min(np.abs(1.0 + loop(np.exp(1j * omega * H))))
+    assert model_margins(model, fb, sample_time=H).ms[0] == pytest.approx(sampled, rel=1e-6)
