@@ -72,6 +72,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help(sys.stderr)
         return EXIT_USAGE
+    # The command as typed, kept in summary.json and the report (the core never reads argv).
+    args.command_line = ["robustff", *(sys.argv[1:] if argv is None else argv)]
     try:
         return int(args.func(args))
     except RobustffError as exc:

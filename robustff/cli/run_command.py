@@ -62,7 +62,15 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument(
         "--report",
         action="store_true",
-        help="also write report.html and PNG/SVG plots (needs matplotlib)",
+        help="also write report.html (print-ready, self-contained), report.pdf (when a "
+        "headless Chromium is installed), report.xlsx (the percentile tables; needs openpyxl) "
+        "and PNG/SVG plots",
+    )
+    parser.add_argument(
+        "--paper",
+        choices=("A4", "Letter"),
+        default="A4",
+        help="paper size of report.html's print layout and of report.pdf (default: A4)",
     )
     parser.add_argument(
         "--samples-format",
@@ -269,7 +277,7 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
             "writing partial results",
             file=sys.stderr,
         )
-    summary = summarize_study(result, percentiles)
+    summary = summarize_study(result, percentiles, getattr(args, "command_line", None))
     if summary["warnings"]:
         from robustff.study.noise_travel import filter_trial
 
@@ -277,11 +285,14 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
         if trial is not None:
             summary["warnings"].append(trial.sentence(result))
     extra = None
+    report_notes: list[str] = []
     if args.report:
-        from robustff.output.html_report import write_report
+        from robustff.output.html_report import write_report_files
 
         def extra(folder: Path) -> None:
-            write_report(result, summary, folder, percentiles, _margin_values(result))
+            files = write_report_files(result, summary, folder, percentiles,
+                                       _margin_values(result), paper=args.paper)
+            report_notes.extend(files.notes)
 
     write_results(result, summary, out, percentiles, extra=extra,
                   samples_format=args.samples_format)
@@ -312,6 +323,13 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
     margins = summary.get("margins")
     if margins:
         _print_margins(margins)
+    for note in report_notes:
+        print(f"note: {note}")
+    if args.report:
+        recommendation = summary["recommendation"]
+        print("Recommendation: " + (f"design {recommendation['design']}"
+                                    if recommendation["design"] else "none")
+              + " (report.html, first page)")
     print(f"Results written to {out}/")
     print(CAUTION)
     return EXIT_INTERRUPTED if result.partial else EXIT_OK

@@ -1,95 +1,245 @@
-"""``report.html``: one self-contained page (images embedded, no network) for a change request."""
+"""``report.html`` for a change-approval package, with ``report.pdf`` and ``report.xlsx``.
+
+One self-contained HTML file (images embedded, no scripts, nothing fetched from a network),
+laid out for print: A4 or US Letter through ``@page``, a page break before every section,
+tables that wrap rather than overflow, and a header with the title and the case file's SHA-256
+on every printed page. The first page answers the question (the recommendation, why in numbers,
+the drivers, the conditions, the caution); then the designs side by side, the statistics with
+their intervals, the margins, the case as run and what is needed to reproduce it.
+
+:func:`write_report_files` is the one entry point for the CLI and the studio.
+"""
 
 from __future__ import annotations
 
 import base64
 import html
 from collections.abc import Sequence
+from dataclasses import dataclass, field
 from pathlib import Path
-from typing import cast
 
 import numpy as np
 
 from robustff import CAUTION
 from robustff.case.text import printable_title
-from robustff.design.margins_result import GAIN_MARGIN_LIMIT, MS_LIMIT, PHASE_MARGIN_LIMIT
+from robustff.errors import RobustffError
+from robustff.output.pdf_print import print_to_pdf
 from robustff.output.plots import (
     band_figure,
+    designs_ratio_figure,
     margins_figure,
     ratio_figure,
     save_figure,
     sensitivity_figure,
 )
-from robustff.output.result_files import percentile_rows, risk_sentence
+from robustff.output.report_sections import (
+    case_section,
+    designs_section,
+    first_page,
+    margins_section,
+    reproducibility_section,
+    statistics_section,
+)
+from robustff.output.workbook import NO_OPENPYXL, openpyxl_available, write_workbook
 from robustff.study import StudyResult
-from robustff.study.summary import VERDICT_REASONS
-from robustff.study.summary_types import MarginName, Summary, percentile_value
+from robustff.study.summary_types import Summary
 
-__all__ = ["write_report"]
+__all__ = ["write_report", "write_report_files", "ReportFiles", "PAPER_SIZES", "report_html"]
+
+#: Paper sizes of the print CSS: name -> (CSS size, width in mm).
+PAPER_SIZES: dict[str, tuple[str, float]] = {"A4": ("A4", 210.0), "Letter": ("letter", 215.9)}
+#: Page margins, mm: the content width is the same on both papers (A4 is the narrower).
+_MARGIN_MM = 14.0
+_CONTENT_MM = 210.0 - 2 * _MARGIN_MM
 
 _STYLE = """
-body { font-family: sans-serif; max-width: 60rem; margin: 2rem auto; color: #111; }
-table { border-collapse: collapse; margin: 1rem 0; font-size: 0.9rem; }
-th, td { border: 1px solid #888; padding: 0.2rem 0.5rem; text-align: right; }
-th:first-child, td:first-child, td:nth-child(2), td:nth-child(3) { text-align: left; }
-.caution { border: 2px solid #000; padding: 0.8rem; font-weight: bold; }
-img { max-width: 100%; }
+html { font-family: "DejaVu Sans", "Liberation Sans", Arial, sans-serif; color: #111; }
+body { max-width: %(content)smm; margin: 1.5rem auto; font-size: 10pt; line-height: 1.3; }
+h1 { font-size: 16pt; margin: 0 0 0.3rem; }
+h2 { font-size: 13pt; margin: 0.6rem 0 0.3rem; border-bottom: 1px solid #444;
+     break-after: avoid; }
+h3 { font-size: 10.5pt; margin: 0.6rem 0 0.2rem; break-after: avoid; }
+p, ul { margin: 0.25rem 0; }
+ul { padding-left: 1.2rem; }
+table { border-collapse: collapse; margin: 0.3rem 0; width: 100%%; table-layout: fixed;
+        font-size: 7.6pt; }
+th, td { border: 1px solid #777; padding: 1px 3px; text-align: right; vertical-align: top;
+         overflow-wrap: anywhere; word-break: break-word; hyphens: auto; }
+th { background: #e6e6e6; font-weight: bold; }
+th:first-child, td:first-child { text-align: left; }
+table.compact td, table.compact th { text-align: left; }
+tr { break-inside: avoid; }
+thead { display: table-header-group; }
+.ci { color: #333; font-size: 6.8pt; }
+.sub { font-size: 9pt; overflow-wrap: anywhere; }
+.verdict { border: 2.5px solid #000; padding: 0.3rem 0.6rem; margin: 0.4rem 0; }
+.verdict h2 { border: none; margin: 0; }
+.answer { font-size: 13pt; font-weight: bold; }
+.caution { border: 2px solid #000; padding: 0.4rem; font-weight: bold; }
+.note { font-size: 8pt; color: #222; }
+code { font-size: 8pt; overflow-wrap: anywhere; }
+pre { white-space: pre-wrap; overflow-wrap: anywhere; font-size: 7.5pt; background: #f4f4f4;
+      padding: 0.3rem; border: 1px solid #bbb; }
+figure { margin: 0.3rem 0; break-inside: avoid; }
+figure img { width: 100%%; height: auto; }
+figcaption { font-size: 8pt; }
+.running { display: none; }
+@page {
+  size: %(paper)s;
+  margin: 16mm %(margin)smm 14mm %(margin)smm;
+  @top-left { content: "%(title)s"; font-size: 7.5pt; font-family: sans-serif; }
+  @top-right { content: "case SHA-256 %(hash)s"; font-size: 6.5pt; font-family: monospace; }
+  @bottom-right { content: "page " counter(page) " of " counter(pages); font-size: 7.5pt; }
+}
+@media print {
+  body { max-width: none; margin: 0; }
+  section { break-before: page; }
+  section.first { break-before: auto; }
+  .running { display: block; font-size: 7pt; color: #333; }
+}
 """
 
 
-def _table(header: Sequence[str], rows: Sequence[Sequence[object]]) -> str:
-    head = "".join(f"<th>{html.escape(str(h))}</th>" for h in header)
-    body = "".join(
-        "<tr>" + "".join(f"<td>{html.escape(str(cell))}</td>" for cell in row) + "</tr>"
-        for row in rows
-    )
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+def _css_string(text: str, limit: int = 90) -> str:
+    """Text for a CSS string: quotes and backslashes escaped, no '<' (the style element)."""
+    text = " ".join(text.split())
+    if len(text) > limit:
+        text = text[: limit - 3] + "..."
+    out = []
+    for char in text:
+        if char in '"\\<>' or ord(char) < 32:
+            out.append(f"\\{ord(char):x} ")
+        else:
+            out.append(char)
+    return "".join(out)
 
 
-def _image(path: Path, alt: str) -> str:
+def _image(path: Path, caption: str) -> str:
     data = base64.b64encode(path.read_bytes()).decode("ascii")
-    return f'<p><img src="data:image/png;base64,{data}" alt="{html.escape(alt)}"></p>'
+    return (f'<figure><img src="data:image/png;base64,{data}" alt="{html.escape(caption)}">'
+            f"<figcaption>{html.escape(caption)}</figcaption></figure>")
 
 
-def _margins_section(summary: Summary) -> str:
+@dataclass
+class ReportFiles:
+    """What the report writer produced: the files and one line each for what was not."""
+
+    html: Path
+    pdf: Path | None = None
+    workbook: Path | None = None
+    figures: list[Path] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+
+def _figures(result: StudyResult, summary: Summary, folder: Path,
+             margin_values: dict[str, np.ndarray] | None) -> dict[str, tuple[Path, str]]:
+    figures = [
+        ("plot-cv-band", band_figure(result),
+         "Controlled variable across the sampled plants: P5-P95 band and median, both arms"),
+        ("plot-iae-ratio", ratio_figure(result),
+         "Histogram of the IAE ratio with the case's design (right of 1: feedforward worse)"),
+        ("plot-designs", designs_ratio_figure(result), "IAE ratio per feedforward design"),
+        ("plot-sensitivity", sensitivity_figure(summary),
+         "Spearman rank correlation of each uncertain parameter with the IAE ratio"),
+    ]
     margins = summary.get("margins")
-    if not margins:
-        return ""
-    rows = []
-    labels: tuple[tuple[MarginName, str], ...] = (
-        ("gain_margin", "gain margin [-]"),
-        ("phase_margin", "phase margin [deg]"),
-        ("delay_margin", f"delay margin [{summary['time_unit']}]"),
-        ("ms", "Ms [-]"),
-    )
-    for key, label in labels:
-        stats = margins.get(key, {})
-        rows.append([label, *[_fmt(percentile_value(stats, p)) for p in (5.0, 50.0, 95.0)]])
-    # Every value of this section is a fraction or None (see FractionBelowLimits).
-    limits = cast("dict[str, float | None]", margins.get("fraction_below_limits", {}))
-    lines = "".join(
-        f"<li>{html.escape(k.replace('_', ' '))}: {100 * v:.1f} % of samples</li>"
-        for k, v in limits.items()
-        if v is not None
-    )
-    differ = margins.get("verdicts_differ", 0)
-    differ_line = (f"<li>samples the simulation judged otherwise: {differ} "
-                   f"({html.escape(VERDICT_REASONS)})</li>" if differ else "")
+    if margin_values is not None and margins:
+        figures.append(("plot-margins",
+                        margins_figure({**margins, "time_unit": summary["time_unit"]},
+                                       margin_values),
+                        "Feedback stability margins across the margin samples"))
+    out = {}
+    for stem, fig, caption in figures:
+        png, _ = save_figure(fig, folder, stem)
+        out[stem] = (png, caption)
+    return out
+
+
+def report_html(result: StudyResult, summary: Summary, percentiles: Sequence[float],
+                images: dict[str, tuple[Path, str]], paper: str = "A4") -> str:
+    """The page as text (see the module docstring)."""
+    if paper not in PAPER_SIZES:
+        raise RobustffError(f"paper size must be one of {', '.join(PAPER_SIZES)}, got {paper!r}")
+    title = printable_title(summary["title"])
+    case_file = summary["reproducibility"]["case_file"]
+    sha = "none (case not read from a file)" if case_file is None else str(case_file["sha256"])
+    style = _STYLE % {"content": f"{_CONTENT_MM:g}", "paper": PAPER_SIZES[paper][0],
+                      "margin": f"{_MARGIN_MM:g}", "title": _css_string(title),
+                      "hash": _css_string(sha, 80)}
+
+    def figure(stem: str) -> str:
+        return _image(*images[stem]) if stem in images else ""
+
+    others = "".join(figure(stem) for stem in
+                     ("plot-cv-band", "plot-iae-ratio", "plot-sensitivity", "plot-margins"))
+    parts = [
+        first_page(summary),
+        designs_section(summary, percentiles, figure("plot-designs")),
+        statistics_section(summary, percentiles),
+        margins_section(summary, percentiles),
+        f"<section><h2>Figures</h2>{others}</section>",
+        case_section(result, summary),
+        reproducibility_section(summary),
+        f'<p class="caution">{html.escape(CAUTION)}</p>',
+    ]
     return (
-        "<h2>Feedback stability margins</h2>"
-        + f"<p>The loop as simulated: the controller samples the CV every "
-        f"{margins.get('sample_time', 0.0):g} {html.escape(summary['time_unit'])} (the scan "
-        "period) and holds its output in between.</p>"
-        + _table(["margin", "P5", "P50", "P95"], rows)
-        + f"<ul>{lines}<li>unstable feedback loops: {margins.get('unstable', 0)}</li>"
-        f"{differ_line}</ul>"
-        + f"<p>Limits Ms &gt; {MS_LIMIT:g}, GM &lt; {GAIN_MARGIN_LIMIT:g}, "
-        f"PM &lt; {PHASE_MARGIN_LIMIT:g} deg are common practice, no source.</p>"
+        '<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'
+        f"<title>{html.escape(title)}</title><style>{style}</style></head><body>"
+        + "\n".join(parts) + "</body></html>\n"
     )
 
 
-def _fmt(value: float | None) -> str:
-    return "n/a" if value is None else f"{float(value):.4g}"
+def write_report_files(
+    result: StudyResult,
+    summary: Summary,
+    folder: Path,
+    percentiles: Sequence[float],
+    margin_values: dict[str, np.ndarray] | None = None,
+    *,
+    paper: str = "A4",
+    pdf: bool = True,
+    workbook: bool = True,
+) -> ReportFiles:
+    """Write the plots (PNG and SVG), ``report.html`` and, where possible, ``report.pdf`` and
+    ``report.xlsx`` into ``folder``.
+
+    Parameters
+    ----------
+    result : StudyResult
+    summary : Summary
+        From :func:`robustff.study.summary.summarize_study` (with ``reproducibility`` and
+        ``recommendation``).
+    folder : Path
+        An existing folder (the CLI passes the staging folder of the result files).
+    percentiles : sequence of float
+        In percent; the tables show these.
+    margin_values : dict of str to ndarray, optional
+        Per-sample margins for the margins figure.
+    paper : {"A4", "Letter"}
+    pdf, workbook : bool
+        Also try ``report.pdf`` (headless Chromium) and ``report.xlsx`` (openpyxl).
+
+    Returns
+    -------
+    ReportFiles
+        ``notes`` has one sentence for each file not written, saying how to get it.
+    """
+    images = _figures(result, summary, folder, margin_values)
+    page = report_html(result, summary, percentiles, images, paper)
+    path = folder / "report.html"
+    path.write_text(page, encoding="utf-8")
+    files = ReportFiles(path, figures=[png for png, _ in images.values()])
+    if workbook:
+        if openpyxl_available():
+            files.workbook = write_workbook(summary, percentiles, folder / "report.xlsx")
+        else:
+            files.notes.append(NO_OPENPYXL)
+    if pdf:
+        outcome = print_to_pdf(path, folder / "report.pdf")
+        files.pdf = outcome.path
+        if outcome.path is None:
+            files.notes.append(outcome.message)
+    return files
 
 
 def write_report(
@@ -99,55 +249,5 @@ def write_report(
     percentiles: Sequence[float],
     margin_values: dict[str, np.ndarray] | None = None,
 ) -> Path:
-    """Write the plots (PNG and SVG) and ``report.html`` into ``folder``; returns the HTML path."""
-    figures = [
-        ("plot-cv-band", band_figure(result), "controlled variable bands"),
-        ("plot-iae-ratio", ratio_figure(result), "histogram of the IAE ratio"),
-        ("plot-sensitivity", sensitivity_figure(summary), "sensitivity ranking"),
-    ]
-    margins = summary.get("margins")
-    if margin_values is not None and margins:
-        figures.append(
-            (
-                "plot-margins",
-                margins_figure({**margins, "time_unit": summary["time_unit"]}, margin_values),
-                "margins",
-            )
-        )
-    images = []
-    for stem, fig, alt in figures:
-        png, _ = save_figure(fig, folder, stem)
-        images.append((png, alt))
-    header = ["metric", "arm", "unit", *[f"P{p:g}" for p in percentiles]]
-    design_lines = result.design.summary_lines(result.case)
-    parts = [
-        f"<h1>{html.escape(printable_title(summary['title']))}</h1>",
-        f'<p class="caution">{html.escape(CAUTION)}</p>',
-        f"<p>{summary['samples']} of {summary['requested']} samples"
-        + (" (PARTIAL: interrupted)" if summary["partial"] else "")
-        + f", seed {summary['seed']}, sampling {html.escape(summary['sampling'])}. "
-        "fb = feedback only; fbff = feedback + feedforward.</p>",
-        "<h2>Risk</h2><ul>"
-        + f"<li>{html.escape(risk_sentence(summary, 'iae'))}</li>"
-        + f"<li>{html.escape(risk_sentence(summary, 'peak_deviation'))}</li>"
-        + f"<li>Unstable samples: {summary['unstable']['fb']} feedback only, "
-        + f"{summary['unstable']['fbff']} with feedforward</li>"
-        + "".join(f"<li>warning: {html.escape(text)}</li>" for text in summary["warnings"])
-        + "</ul>",
-        "<h2>Design (from the nominal models)</h2><pre>"
-        + html.escape("\n".join(design_lines))
-        + "</pre>",
-        "<h2>Percentiles</h2>" + _table(header, percentile_rows(summary, percentiles)),
-        _margins_section(summary),
-        "<h2>Figures</h2>" + "".join(_image(png, alt) for png, alt in images),
-        f'<p class="caution">{html.escape(CAUTION)}</p>',
-    ]
-    page = (
-        '<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'
-        f"<title>{html.escape(printable_title(summary['title']))}</title><style>{_STYLE}</style></head><body>"
-        + "\n".join(parts)
-        + "</body></html>\n"
-    )
-    path = folder / "report.html"
-    path.write_text(page, encoding="utf-8")
-    return path
+    """Write the report files (see :func:`write_report_files`); returns the HTML path."""
+    return write_report_files(result, summary, folder, percentiles, margin_values).html

@@ -20,6 +20,7 @@ __all__ = [
     "ratio_figure",
     "sensitivity_figure",
     "margins_figure",
+    "designs_ratio_figure",
     "save_figure",
     "FIGURES",
 ]
@@ -178,6 +179,41 @@ def margins_figure(margins: dict, values: dict[str, np.ndarray]):
     return fig
 
 
+def designs_ratio_figure(result: StudyResult):
+    """IAE ratio fbff/fb per feedforward design, side by side on the same plants.
+
+    One horizontal box per design: the box spans P25..P75, the whiskers P5..P95, the thick line
+    is the median; right of the dashed line at 1 the design does worse than feedback alone.
+    """
+    plt = _pyplot()
+    arms = result.design_arms()
+    fb = result.metrics["iae"][:, 0]
+    data, labels = [], []
+    for arm in arms:
+        ratio = metric_ratio(fb, arm.metrics["iae"])
+        data.append(ratio[np.isfinite(ratio)])
+        labels.append(f"{arm.name} ({arm.settings.structure}, x{arm.settings.gain_factor:g})")
+    fig, ax = plt.subplots(figsize=(8, 0.45 * len(arms) + 1.6))
+    positions = np.arange(len(arms))[::-1]
+    import matplotlib
+
+    major, minor = (int(part) for part in matplotlib.__version__.split(".")[:2])
+    # matplotlib 3.10 renamed vert=False to orientation="horizontal" (vert deprecated in 3.11).
+    horizontal = ({"orientation": "horizontal"} if (major, minor) >= (3, 10)
+                  else {"vert": False})
+    ax.boxplot(data, positions=positions, **horizontal, whis=(5, 95), showfliers=False,
+               widths=0.55, patch_artist=True,
+               boxprops={"facecolor": "0.8", "edgecolor": "black", "hatch": ".."},
+               medianprops={"color": "black", "linewidth": 2.0})
+    ax.set_yticks(positions, labels, fontsize=8)
+    ax.axvline(1.0, color="black", linewidth=1.3, linestyle="--", label="ratio = 1")
+    ax.set_xlabel("IAE ratio, feedback + feedforward / feedback only [-]")
+    ax.set_title("IAE ratio per design (box P25-P75, whiskers P5-P95; left of 1: better)")
+    ax.legend(fontsize=8, loc="lower right")
+    fig.tight_layout()
+    return fig
+
+
 def save_figure(fig, folder: Path, stem: str) -> list[Path]:
     """Save as PNG and SVG; returns the paths."""
     plt = _pyplot()
@@ -188,4 +224,5 @@ def save_figure(fig, folder: Path, stem: str) -> list[Path]:
     return paths
 
 
-FIGURES = ("plot-cv-band", "plot-iae-ratio", "plot-sensitivity", "plot-margins")
+FIGURES = ("plot-cv-band", "plot-iae-ratio", "plot-sensitivity", "plot-margins",
+           "plot-designs")

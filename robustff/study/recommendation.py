@@ -66,21 +66,20 @@ def _verdict(
     if harm["probability"] is None or harm_high is None:
         reasons.append("harm probability not available (no usable sample)")
     elif harm_high > criteria.max_harm:
-        text = (f"harm probability up to {_percent(harm_high)} (upper 95 % bound) exceeds "
-                f"{_percent(criteria.max_harm)}")
+        text = (f"harm bound {_percent(harm_high)} > {_percent(criteria.max_harm)} (upper "
+                "95 % bound)")
         if harm["count"] == 0 and criteria.max_harm > 0:
-            text += (f" although no harm was seen in {harm['n']} samples: about "
-                     f"{samples_for_bound(criteria.max_harm)} samples without harm would bring "
-                     "the bound within it")
+            text += (f"; none worse of {harm['n']}: about {samples_for_bound(criteria.max_harm)} "
+                     "harm-free samples would pass")
         reasons.append(text)
     if improvement is None:
         reasons.append("median IAE ratio not reported (add 50 to --percentiles)")
     elif improvement < criteria.min_improvement:
-        reasons.append(f"median IAE improvement {_percent(improvement)} is below "
+        reasons.append(f"median IAE improvement {_percent(improvement)} < "
                        f"{_percent(criteria.min_improvement)}")
     if design["unstable"] > fb_unstable:
-        reasons.append(f"{design['unstable']} unstable samples with it against {fb_unstable} "
-                       "with feedback alone")
+        reasons.append(f"{design['unstable']} unstable samples against {fb_unstable} with "
+                       "feedback alone")
     return {
         "name": design["name"],
         "structure": structure,
@@ -152,8 +151,11 @@ def recommend(summary: Summary, criteria: RecommendationSpec) -> RecommendationD
     rule: Criteria = {"max_harm": criteria.max_harm,
                       "min_improvement": criteria.min_improvement, "basis": basis}
     if chosen is None:
-        reason = ("No design meets the criteria: "
-                  + "; ".join(f"{v['name']}: {', '.join(v['reasons'])}" for v in verdicts))
+        grouped: dict[str, list[str]] = {}  # the same shortfall once, with every design it hits
+        for v in verdicts:
+            grouped.setdefault(", ".join(v["reasons"]), []).append(v["name"])
+        reason = "No design meets the criteria: " + "; ".join(
+            f"{', '.join(names)}: {text}" for text, names in grouped.items())
     else:
         low, high = chosen["harm_ci95"]
         reason = (

@@ -45,6 +45,7 @@ REFUSED_ARGUMENTS = [
     (["--cluster", "tcp://127.0.0.1:99999"], ["--cluster", "99999"]),
     (["--cluster", "localhost"], ["--cluster", "tcp://HOST:PORT"]),
     (["--samples-format", "xlsx"], ["--samples-format", "csv", "npy"]),
+    (["--paper", "A3"], ["--paper", "A4", "Letter"]),
 ]
 
 
