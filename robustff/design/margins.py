@@ -32,7 +32,8 @@ seen by the feedback. Per sample this module computes
 
 Method: each sample gets its own log-spaced grid from well below the lowest crossover (where
 ``|L|`` exceeds 100 and its phase sits on its low-frequency asymptote) to where an upper bound of
-``|L|`` has fallen below 0.05 (the sampled loop: or ``pi/h``). Crossovers found on the grid are
+``|L|`` has fallen below 0.05 (the sampled loop: or ``pi/h``, with 40 points per decade more
+than 2.5 decades below the top, where ``|L| >> 1``). Crossovers found on the grid are
 refined by vectorised bisection on the analytic ``L`` (to ~1e-12 in log frequency) and ``Ms`` by
 a golden-section search. Phase crossovers above the grid (gain margins above about 20) are
 searched on a second grid above it: with a dead time the phase must pass the next -180 deg level
