@@ -302,6 +302,8 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
         + (" (PARTIAL)" if result.partial else "")
         + f", seed {result.seed}, {result.elapsed:.2f} s"
     )
+    for line in result.design.feedback_lines(case):  # the tuning as typed into the controller
+        print(line)
     _print_table(summary, percentiles)
     print(f"settling_time: after each step, ramp or setpoint event, until |e| stays within "
           f"+-{summary['settling_band']:.3g} {summary['units']['peak_deviation']}; the longest "
