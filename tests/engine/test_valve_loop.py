@@ -55,3 +55,63 @@ def test_equal_percentage_valve_obeys_the_pi_final_value():
     assert result.metrics["ie"][0, 0] == pytest.approx(ti / kc * du, rel=1e-6)
     # A linear valve would need du = w: the characteristic is what moved the output.
     assert abs(du - w) > 0.2
+
+
+def _backlash_describing_function(amplitude: float, half_width: float) -> complex:
+    """First-harmonic gain of a backlash (play ``2 half_width``, unit slope) driven by
+    ``amplitude sin(wt)``, from its definition: the output follows the input at a distance
+    ``half_width`` and stays put while the input moves back across the play (Gelb and Vander
+    Velde, "Multiple-Input Describing Functions and Nonlinear System Design", McGraw-Hill 1968,
+    ch. 2: the describing function is the complex ratio of the output's first harmonic to the
+    input sine). Evaluated by numerical Fourier projection, independently of the simulator."""
+    t = np.linspace(0.0, 2.0 * np.pi, 20_001)[:-1]
+    x = amplitude * np.sin(t)
+    held, y = amplitude - half_width, np.empty_like(x)
+    for _ in range(2):  # the second period is periodic
+        for i, xi in enumerate(x):
+            held = min(max(held, xi - half_width), xi + half_width)
+            y[i] = held
+    return complex(2.0 * np.mean(y * np.sin(t)), 2.0 * np.mean(y * np.cos(t))) / amplitude
+
+
+def test_a_pi_loop_on_an_integrating_process_with_valve_deadband_cycles_as_predicted():
+    # Harmonic balance (e.g. Slotine and Li, "Applied Nonlinear Control", Prentice Hall 1991,
+    # ch. 5): a limit cycle of amplitude A (at the valve's input) and frequency w satisfies
+    # 1 + N(A) G(jw) = 0, with G the PI controller and the integrating process with its dead
+    # time, plus half a scan period for the sample-and-hold. The prediction is approximate
+    # (first harmonic only); the issue asks for amplitude and period within 20 %.
+    from scipy.optimize import fsolve
+
+    kp, theta, kc, ti, deadband, scan = 0.05, 10.0, 1.0, 60.0, 2.0, 0.1
+
+    def loop(w: float) -> complex:
+        s = 1j * w
+        return kc * (1.0 + 1.0 / (ti * s)) * kp * np.exp(-s * (theta + scan / 2.0)) / s
+
+    def balance(v: np.ndarray) -> list[float]:
+        residual = 1.0 + _backlash_describing_function(v[0], deadband / 2.0) * loop(v[1])
+        return [residual.real, residual.imag]
+
+    (amplitude, omega), _, found, _ = fsolve(balance, (2.0 * deadband, 0.03), full_output=True)
+    assert found == 1 and amplitude > deadband / 2.0
+    feedback = FeedbackSpec(tuning="manual", kc=kc, ti=ti, output_low=0.0, output_high=100.0,
+                            output_bias=50.0)
+    case = Case("cycle", "s", Model("ipdt", kp, 0.0, 0.0, theta),
+                Model("ipdt", kp, 0.0, 0.0, theta), feedback, FeedforwardSpec("none"),
+                SimulationSpec(8000.0, scan), (Event("disturbance-step", 10.0, 0.5),),
+                valve=ValveModel("linear", deadband=deadband))
+    design = design_loop(case)
+    result = simulate(nominal_batch(case), design, build_scenario(case, design, 0.01),
+                      keep=np.array([0]))
+    output = result.trajectories[0, 2]
+    cycle = output[output.size // 2:] - output[output.size // 2:].mean()
+    simulated_amplitude = math.sqrt(2.0) * cycle.std()  # of the first harmonic, near enough
+    upward = np.nonzero((cycle[:-1] < 0.0) & (cycle[1:] >= 0.0))[0]
+    simulated_period = float(np.mean(np.diff(upward))) * scan
+    assert simulated_amplitude == pytest.approx(amplitude, rel=0.2)
+    assert simulated_period == pytest.approx(2.0 * math.pi / omega, rel=0.2)
+    # Without the deadband the same loop settles: the cycle is the valve's.
+    plain = dataclasses.replace(case, valve=ValveModel("linear"))
+    calm = simulate(nominal_batch(plain), design, build_scenario(plain, design, 0.01),
+                    keep=np.array([0])).trajectories[0, 2]
+    assert np.ptp(calm[calm.size // 2:]) < 1e-3 * np.ptp(output[output.size // 2:])
