@@ -257,3 +257,18 @@ def test_tuned_controller_is_shown_in_the_case_form():
     assert (f"parallel form, as the control system takes it: kp = {fb.kc:.4g} %/degC "
             f"({fb.kc * 2.0:.4g} %/%, PB = {100.0 / (fb.kc * 2.0):.4g} %), "
             f"ki = {fb.kc / fb.ti:.4g} %/(degC min), kd = {fb.kc * fb.td:.4g} % min/degC") in text
+
+
+def test_simc_sopdt_pid_shown_in_series_form_is_the_rule_as_published():
+    # Source: Skogestad, "Simple analytic rules for model reduction and PID controller tuning",
+    # J. Process Control 13 (2003) 291-309 (from memory): for a SOPDT model the SIMC PID is the
+    # series controller Kc' = tau1 / (k (tau_c + theta)), Ti' = min(tau1, 4 (tau_c + theta)),
+    # Td' = tau2. k = 0.8, tau1 = 12, tau2 = 3, theta = 1.5, tau_c = 1.5: Kc' = 12 / 2.4 = 5
+    # %/degC, Ti' = min(12, 12) = 12 min, Td' = 3 min; 5 %/degC on 200 degC / 100 % is 10 %/%.
+    text = LOOP.replace("time_constant = 12.0", "time_constant = 12.0\ntime_constant_2 = 3.0", 1)
+    text = text.replace('model = "fopdt"', 'model = "sopdt"', 1)
+    case = parse_case(text + '\n[feedback]\nform = "pid"\nstructure = "series"\n'
+                      + EVENTS["disturbance"])
+    lines = "\n".join(design_loop(case).summary_lines(case))
+    assert ("series form, as the control system takes it: Kc' = 5 %/degC (10 %/%, PB = 10 %), "
+            "Ti' = 12 min (0.08333 repeats/min), Td' = 3 min") in lines
