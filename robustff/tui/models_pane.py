@@ -13,7 +13,15 @@ from robustff.plant.models import MODEL_PARAMETERS
 from robustff.tui.editing import CHOICE_FIELDS, OPTIONAL_FIELDS, field_text
 from robustff.tui.messages import FieldEdited, field_id
 
-__all__ = ["ModelsPane", "FieldRow"]
+__all__ = ["ModelsPane", "FieldRow", "focus_label", "FOCUS_MARK"]
+
+#: Marks the label of the row that has focus (readable without colour).
+FOCUS_MARK = "▸"
+
+
+def focus_label(label: str, focused: bool) -> str:
+    """A row label with the focus marker, or the same width of blank in front."""
+    return f"{FOCUS_MARK if focused else ' '} {label}"
 
 _LABELS = {
     "gain": "gain K", "time_constant": "lag tau", "time_constant_2": "lag tau2",
@@ -35,7 +43,7 @@ class FieldRow(Vertical):
     def compose(self) -> ComposeResult:
         name = self.field.split(".", 1)[1]
         with Horizontal(classes="field"):
-            yield Label(_LABELS.get(name, name), classes="field-label")
+            yield Label(focus_label(_LABELS.get(name, name), False), classes="field-label")
             if self.field in CHOICE_FIELDS:
                 options = [(choice, choice) for choice in CHOICE_FIELDS[self.field]]
                 yield Select(options, value=self.applied, allow_blank=False, compact=True,
@@ -46,6 +54,16 @@ class FieldRow(Vertical):
                             else "a number")
         yield Static("", classes="error", id=f"err-{field_id(self.field)}")
         yield Static("", classes="warning", id=f"warn-{field_id(self.field)}")
+
+    def on_descendant_focus(self) -> None:
+        self.query_one(".field-label", Label).update(focus_label(self._label(), True))
+
+    def on_descendant_blur(self) -> None:
+        self.query_one(".field-label", Label).update(focus_label(self._label(), False))
+
+    def _label(self) -> str:
+        name = self.field.split(".", 1)[1]
+        return _LABELS.get(name, name)
 
     def _send(self, text: str) -> None:
         if text != self.applied or self.has_class("invalid"):

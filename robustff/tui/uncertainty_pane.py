@@ -18,6 +18,7 @@ from robustff.tui.messages import (
     RowRemoved,
     field_id,
 )
+from robustff.tui.models_pane import focus_label
 
 __all__ = ["UncertaintyPane", "UncertainRow"]
 
@@ -39,7 +40,7 @@ class UncertainRow(Vertical):
 
     def compose(self) -> ComposeResult:
         with Horizontal(classes="uline"):
-            yield Label(self.key, classes="ukey")
+            yield Label(focus_label(self.key, False), classes="ukey")
             yield Button("del", compact=True, classes="udel", tooltip=f"remove {self.key}")
         with Horizontal(classes="uline"):
             yield Select([(k, k) for k in DISTRIBUTION_KINDS], value=self.kind, compact=True,
@@ -52,6 +53,12 @@ class UncertainRow(Vertical):
             yield Static("", classes="uwarn")
             yield Button("fix range", compact=True, classes="ufix",
                          tooltip=f"widen or move the range of {self.key} to its nominal value")
+
+    def on_descendant_focus(self) -> None:
+        self.query_one(".ukey", Label).update(focus_label(self.key, True))
+
+    def on_descendant_blur(self) -> None:
+        self.query_one(".ukey", Label).update(focus_label(self.key, False))
 
     def _send(self) -> None:
         params = self.query_one(".uparams", Input).value
