@@ -15,6 +15,7 @@ from robustff.design.margins_result import GAIN_MARGIN_LIMIT, MS_LIMIT, PHASE_MA
 from robustff.design.tuning import per_unit
 from robustff.output.design_table import design_table_header, design_table_rows
 from robustff.output.report_tables import (
+    MARGIN_LABELS,
     design_paired_table,
     estimate,
     harm_table,
@@ -269,9 +270,24 @@ def margins_section(summary: Summary, percentiles: Sequence[float]) -> str:
     if table is None or not margins:
         return ("<section><h2>Feedback stability margins</h2><p>Margins were not computed "
                 "for this run.</p></section>")
-    rows = [[cell if isinstance(cell, str) else ("inf" if cell is None and 2 <= i < len(row) - 2
-                                                  else fmt(cell))
-             for i, cell in enumerate(row)] for row in table.rows]
+    units, nominal, continuous = margins["units"], margins["nominal"], margins["nominal_continuous"]
+
+    def value(number: object) -> str:  # None: infinite, or between a finite and an infinite one
+        return "inf" if number is None else esc(fmt(number))
+
+    def cell(stats, p: float) -> str:
+        number, low, high = estimate(stats, p)
+        return (f"{value(number)}<br><span class=\"ci\">[{value(low)}, {value(high)}]</span>"
+                if low is not None or high is not None else value(number))
+
+    rows = [[esc(label), esc(units[key]), value(nominal[key]),
+             "-" if continuous is None else value(continuous[key]),
+             *[cell(margins[key], p) for p in percentiles],
+             value(margins[key]["min"]), value(margins[key]["max"]), str(margins[key]["n"]),
+             str(margins[key]["infinite"])]
+            for key, label in MARGIN_LABELS]
+    header = [*table.header[:4], *[f"P{p:g} [row unit]" for p in percentiles],
+              *table.header[-4:]]
     limits = margins["fraction_below_limits"]
     limit_lines = "".join(
         f"<li>{esc(key.replace('_', ' '))}: {_percent(value)} % of the margin samples</li>"
@@ -284,9 +300,10 @@ def margins_section(summary: Summary, percentiles: Sequence[float]) -> str:
         f"<p>The loop as simulated: the controller samples the CV every "
         f"{margins['sample_time']:g} {esc(summary['time_unit'])} (the scan period) and holds "
         f"its output in between; the exact dead time. Spread over the first "
-        f"{margins['samples']} samples. 'inf': infinite (no crossover), or a percentile "
-        "between a finite and an infinite margin.</p>"
-        + html_table(table.header, rows, "stats")
+        f"{margins['samples']} samples, each percentile with its 95 % interval in brackets. "
+        "'inf': infinite (no crossover), or a percentile between a finite and an infinite "
+        "margin.</p>"
+        + html_table(header, rows, "stats", raw=True)
         + f"<ul>{limit_lines}<li>unstable feedback loops: {margins['unstable']} [count]</li>"
         + (f"<li>samples the simulation judged otherwise: {differ} [count] (a loop at the "
            "stability limit, or a saturated response beyond the divergence limit)</li>"

@@ -132,12 +132,12 @@ def margins_table(summary: Summary, percentiles: Sequence[float]) -> TableData |
         rows.append([
             label, units[key], _float(nominal[key]),
             None if continuous is None else _float(continuous[key]),
-            *[percentile_value(stats, p) for p in percentiles],
+            *_interval_cells(stats, percentiles),
             stats["min"], stats["max"], stats["n"], stats["infinite"],
         ])
     header = ["margin", "unit (of every value in the row)", "nominal, as simulated [row unit]",
               "nominal, continuous controller [row unit]",
-              *[f"P{p:g} [row unit]" for p in percentiles],
+              *_interval_header(percentiles, "[row unit]"),
               "min [row unit]", "max [row unit]", "samples [count]", "infinite [count]"]
     return TableData("margins", header, rows)
 

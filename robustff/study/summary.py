@@ -23,7 +23,9 @@ from robustff.stats import (
     convergence_for_percentile,
     convergence_for_probability,
     metric_ratio,
+    order_statistic_interval,
     paired_comparison,
+    percentile_key,
     probability_worse,
     summarize,
 )
@@ -111,6 +113,7 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummar
     batch = plant_batch(result.case, result.names, result.parameters[:subset])
     # MarginResult.summary gives the distribution keys; the rest is added here.
     out = cast(MarginsSummary, result.margins.summary(percentiles, batch=batch))
+    _margin_intervals(out, result.margins, percentiles)
     out["samples"] = subset
     out["units"] = {"gain_margin": "-", "phase_margin": "deg",
                     "delay_margin": result.case.time_unit, "ms": "-"}
@@ -136,6 +139,25 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummar
         f"verdicts_differ was judged differently there ({VERDICT_REASONS})"
     )
     return out
+
+
+def _margin_intervals(
+    out: MarginsSummary, margins: MarginResult, percentiles: Sequence[float]
+) -> None:
+    """Add ``p<P>_ci95`` to each margin: the distribution-free 95 % interval of the percentile
+    (order statistics of the stable samples, the same ranks as the metrics' intervals); an
+    infinite end (no crossover) is None."""
+    for name in ("gain_margin", "phase_margin", "delay_margin", "ms"):
+        values = np.asarray(getattr(margins, name), dtype=float)[margins.stable]
+        ordered = np.sort(values[~np.isnan(values)])
+        stats = cast("dict[str, object]", out[name])  # type: ignore[literal-required]
+        for p in percentiles:
+            r, s, _ = order_statistic_interval(ordered.size, p / 100.0)
+            ends: list[float | None] = [None, None]
+            if r > 0:
+                ends = [float(ordered[r - 1]), float(ordered[s - 1])]
+            stats[f"{percentile_key(p)}_ci95"] = [
+                None if end is None or not np.isfinite(end) else end for end in ends]
 
 
 def _nominal_values(nominal: MarginResult) -> NominalMargins:

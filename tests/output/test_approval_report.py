@@ -144,9 +144,12 @@ def test_margins_follow_the_percentiles_and_show_the_nominal(report):
         "P10 [row unit]", "P50 [row unit]", "P90 [row unit]"]
     margins = json.loads((out / "summary.json").read_text())["margins"]
     phase_row = re.search(r"<tr><td>phase margin</td>(.*?)</tr>", section).group(1)
-    cells = re.findall(r"<td>([^<]*)</td>", phase_row)
+    cells = re.findall(r"<td>(.*?)</td>", phase_row)
     assert cells[1] == _g(margins["nominal"]["phase_margin"])
-    assert cells[3] == _g(margins["phase_margin"]["p10"])
+    low, high = margins["phase_margin"]["p10_ci95"]
+    assert cells[3] == (f'{_g(margins["phase_margin"]["p10"])}<br><span class="ci">'
+                        f"[{_g(low)}, {_g(high)}]</span>")
+    assert low <= margins["phase_margin"]["p10"] <= high
     assert "n/a" not in phase_row
 
 

@@ -155,6 +155,7 @@ def test_a_missing_required_key_fails(
         (("recommendation", "criteria", "max_harm"), 1.5),
         (("recommendation", "design"), 3),
         (("not_settled", "fb"), -1),
+        (("margins", "ms", "p50_ci95"), [1.0]),
     ],
 )
 def test_a_wrong_type_fails(
