@@ -89,3 +89,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("robustff: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED
+    except MemoryError:
+        print("robustff: error: out of memory; run fewer samples (--samples) or on a machine "
+              "with more memory", file=sys.stderr)
+        return EXIT_USAGE

@@ -218,6 +218,19 @@ def _margin_values(result) -> dict | None:
     }
 
 
+def _check_memory(case, samples: int) -> None:
+    """Refuse, before any work, a study the machine's free memory cannot hold."""
+    from robustff.study.memory import available_memory_bytes, estimated_study_bytes
+
+    need, free = estimated_study_bytes(case, samples), available_memory_bytes()
+    if free is not None and need > 0.8 * free:
+        raise RobustffError(
+            f"--samples {samples:,}: the study would need about {need / 1e9:.1f} GB of memory "
+            f"and {free / 1e9:.1f} GB is available; use fewer samples (each sample keeps its "
+            "parameters and metrics) or a machine with more memory"
+        )
+
+
 def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case
     from robustff.cli.check_command import refuse_errors, warning_lines
@@ -235,6 +248,7 @@ def execute(args: argparse.Namespace) -> int:
     percentiles = args.percentiles or DEFAULT_PERCENTILES
     out = Path(args.out) if args.out else Path("results") / case.name
     check_output_folder(out)
+    _check_memory(case, args.samples or case.study.samples)
     if args.cluster:
         _check_cluster_address(args.cluster)
     cancel = threading.Event()
