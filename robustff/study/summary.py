@@ -138,6 +138,13 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummar
         "stability from the response to a load within the window: a sample counted in "
         f"verdicts_differ was judged differently there ({VERDICT_REASONS})"
     )
+    left_out = [what for what, present in (
+        ("the secondary loop", result.case.secondary is not None),
+        ("the valve's characteristic, stiction, deadband, rate limit and actuator lag",
+         result.case.valve is not None)) if present]
+    if left_out:
+        out["note"] += (f". Not part of the margins: {' and '.join(left_out)} (the process "
+                        "model stands for the path from the controller output to the CV)")
     return out
 
 

@@ -82,3 +82,19 @@ def test_a_very_slow_integral_is_stable_in_both():
     assert margins["unstable"] == 0 and margins["verdicts_differ"] == 0
     assert margins["simulation_unstable"] == 0
     assert 10.0 < margins["nominal"]["gain_margin"] < margins["nominal_continuous"]["gain_margin"]
+
+
+def test_the_note_says_what_the_margins_leave_out():
+    # The steam-heater demo has a steam-flow secondary loop and a sticky valve; the margins
+    # are of the primary loop on the process model only, and the note says so.
+    from pathlib import Path
+
+    from robustff.case import load_case
+
+    root = Path(__file__).resolve().parents[2]
+    result = run_study(load_case(root / "cases" / "steam-heater-sticky-valve.toml"), samples=20,
+                       jobs=1)
+    note = summarize_study(result)["margins"]["note"]
+    assert "Not part of the margins: the secondary loop and the valve's" in note
+    plain = run_study(load_case(root / "cases" / "wash-water-heater.toml"), samples=20, jobs=1)
+    assert "Not part of the margins" not in summarize_study(plain)["margins"]["note"]
