@@ -54,6 +54,8 @@ __all__ = [
 
 #: Span of an output whose unit is "%" and that has no ``[signals.output] range``, %.
 PERCENT_OUTPUT_SPAN = 100.0
+#: ``1 - 4 Td / Ti`` this far below zero is rounding of ``Ti = 4 Td`` (series ``Ti' = Td'``).
+_DOUBLE_ROOT = 1e-12
 
 
 def series_to_ideal(kc: float, ti: float, td: float) -> tuple[float, float, float]:
@@ -90,6 +92,8 @@ def ideal_to_series(kc: float, ti: float, td: float) -> tuple[float, float, floa
     if td == 0.0:
         return kc, ti, 0.0
     discriminant = 1.0 - 4.0 * td / ti
+    if -_DOUBLE_ROOT < discriminant < 0.0:
+        discriminant = 0.0  # Ti' = Td' rounded: a double zero, not a missing series form
     if discriminant < 0.0:
         return None
     root = math.sqrt(discriminant)

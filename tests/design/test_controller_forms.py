@@ -112,6 +112,15 @@ def test_ideal_to_series_and_back(kc, ti, fraction):
         (kc, ti, td), rel=1e-12, abs=1e-15)
 
 
+@given(st.floats(0.01, 1000.0), st.floats(0.1, 10.0))
+def test_series_with_equal_times_converts_back(time, kc):
+    # Ti' = Td' gives Ti = 4 Td exactly in theory (a double zero); rounding must not make the
+    # series form the engineer entered "not exist".
+    series = ideal_to_series(*series_to_ideal(kc, time, time))
+    assert series is not None
+    assert series == pytest.approx((kc, time, time), rel=1e-6)
+
+
 def test_proportional_band_of_a_gain_in_engineering_units():
     # Source: Seborg, Edgar, Mellichamp and Doyle, Process Dynamics and Control, 4th ed., 2016,
     # chapter 8 (from memory): PB = 100 % / Kc with Kc dimensionless (both signals in % of
