@@ -128,7 +128,10 @@ def first_page(summary: Summary) -> str:
                           "no correlation with harm (no plant made worse)") + "</li>"
         for d in rec["drivers"]
     ) or "<li>no uncertain parameters, or too few samples to rank them</li>"
-    conditions = "".join(f"<li>{esc(c)}</li>" for c in rec["conditions"])
+    # Warnings added to the summary after it was judged (e.g. the input-filter trial) too.
+    later = [f"warning: {w}" for w in summary["warnings"]
+             if f"warning: {w}" not in rec["conditions"]]
+    conditions = "".join(f"<li>{esc(c)}</li>" for c in [*rec["conditions"], *later])
     file_line = ("case built in Python (no file)" if case_file is None else
                  f"case file {esc(case_file['name'])}, SHA-256 "
                  f"<code>{esc(case_file['sha256'])}</code>")

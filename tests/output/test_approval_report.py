@@ -213,3 +213,17 @@ def test_without_openpyxl_the_workbook_is_skipped_with_a_reason(tmp_path, monkey
                                pdf=False)
     assert files.workbook is None and NO_OPENPYXL in files.notes
     assert not (tmp_path / "report.xlsx").exists() and files.html.is_file()
+
+
+def test_warnings_added_after_the_judgement_reach_the_first_page(tmp_path):
+    from robustff.case import load_case
+    from robustff.study import run_study
+    from robustff.study.summary import summarize_study
+
+    result = run_study(load_case(DEMO), samples=30, jobs=1, margins=False)
+    summary = summarize_study(result)
+    summary["warnings"].append("an input filter of 2 s would halve the valve travel")
+    files = write_report_files(result, summary, tmp_path, (5, 50, 95), pdf=False,
+                               workbook=False)
+    first = text_of(files.html.read_text().split("</section>", 1)[0])
+    assert "warning: an input filter of 2 s would halve the valve travel" in first
