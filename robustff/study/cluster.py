@@ -14,6 +14,7 @@ kept and the study is marked partial, as after Ctrl-C, with one warning line say
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import logging
 import time
@@ -68,8 +69,13 @@ def cluster_results(
     from distributed import Client  # the "cluster" extra
 
     grace = NO_WORKER_GRACE if grace is None else float(grace)
+    with _one_line_logs():
+        yield from _results(Client, tasks, address, grace)
+
+
+def _results(client_type, tasks: Sequence[tuple], address: str, grace: float) -> Iterator:
     try:
-        client = Client(address, timeout=CONNECT_TIMEOUT)
+        client = client_type(address, timeout=CONNECT_TIMEOUT)
     except (OSError, ValueError) as exc:
         raise RobustffError(
             f"--cluster {address}: cannot connect to the scheduler ({exc})"
@@ -107,6 +113,38 @@ def cluster_results(
 _STOP = object()
 
 
+class _NoTraceback(logging.Filter):
+    """Dask's own log records on one line: an exception's traceback becomes its last line."""
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        if record.exc_info and record.exc_info[1] is not None:
+            error = record.exc_info[1]
+            text = record.getMessage().strip()
+            record.msg = f"{text} ({type(error).__name__}: {error})" if text else (
+                f"{type(error).__name__}: {error}")
+            record.args = ()
+            record.exc_info = None
+            record.exc_text = None
+        record.stack_info = None
+        return True
+
+
+@contextlib.contextmanager
+def _one_line_logs() -> Iterator[None]:
+    """While the run lasts, Dask's client logs (a lost connection, a rescheduled chunk) reach
+    the user as one line each, without the tracebacks Dask attaches to them."""
+    root = logging.getLogger("distributed")
+    handlers = list(root.handlers) + list(logging.getLogger().handlers)
+    one_line = _NoTraceback()
+    for handler in handlers:
+        handler.addFilter(one_line)
+    try:
+        yield
+    finally:
+        for handler in handlers:
+            handler.removeFilter(one_line)
+
+
 def _await(client, future, address: str, grace: float, index: int, total: int):
     """The chunk's result, or ``_STOP`` (after one warning) when the cluster cannot go on."""
     from distributed.client import FutureCancelledError
@@ -137,6 +175,7 @@ def _await(client, future, address: str, grace: float, index: int, total: int):
 
 
 def _stop(address: str, index: int, total: int, reason: str):
+    reason = " ".join(reason.split())  # Dask's messages may run over several lines
     _log.warning(
         "robustff: --cluster %s: %s; stopping with %d of %d chunks finished (kept, marked "
         "partial)", address, reason, index, total,

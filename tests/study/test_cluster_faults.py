@@ -183,6 +183,31 @@ def _rounded(values: np.ndarray) -> np.ndarray:
     return np.array([float(f"{v:.10g}") for v in values])
 
 
+def test_a_lost_scheduler_ends_the_run_with_the_finished_chunks(cluster, tmp_path: Path):
+    case_file = tmp_path / "lost-scheduler.toml"
+    case_file.write_text(CASE)
+    out = tmp_path / "out"
+    command = subprocess.Popen(
+        [sys.executable, "-m", "robustff", "run", str(case_file), "--cluster", cluster.address,
+         "--out", str(out)],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+    )
+    assert command.stderr is not None
+    lines = []
+    for line in command.stderr:
+        lines.append(line)
+        if line.startswith("progress:"):
+            os.kill(cluster.scheduler.pid, signal.SIGKILL)
+            break
+    _, rest_err = command.communicate(timeout=300)
+    err = "".join(lines) + rest_err
+    assert command.returncode == EXIT_INTERRUPTED, err
+    assert "Traceback" not in err, err  # Dask's own log lines come without their tracebacks
+    assert "stopping with" in err and "kept, marked partial" in err
+    done = json.loads((out / "summary.json").read_text())
+    assert done["partial"] is True and 1000 <= done["samples"] < 30000
+
+
 def test_losing_every_worker_keeps_the_finished_chunks_marked_partial(
     cluster, tmp_path: Path, local_run, monkeypatch, caplog, capsys
 ):
