@@ -9,12 +9,19 @@ one line per problem, ``"FILE: key.path: what is wrong (got VALUE)"``. The schem
 from __future__ import annotations
 
 import hashlib
+import math
 import re
 import tomllib
 from pathlib import Path
 from typing import Any
 
-from robustff.case.fields import Problems, Table, as_table, join, show
+from robustff.case.fields import REQUIRED, Problems, Table, as_table, join, show
+from robustff.case.record_section import (
+    RECORD_KEYS,
+    has_record_events,
+    read_record_event,
+    records_cover,
+)
 from robustff.case.schema import (
     CONTROLLER_STRUCTURES,
     DESIGN_NAME_CHARACTERS,
@@ -85,7 +92,7 @@ def load_case(path: str | Path) -> Case:
         raise CaseError(f"{path}: not a text file in UTF-8 ({exc.reason})") from None
     except OSError as exc:
         raise CaseError(f"{path}: cannot read the case file ({exc.strerror or exc})") from None
-    case = parse_case(text, source=str(path))
+    case = parse_case(text, source=str(path), base_dir=path.parent)
     return _with_source(case, path, hashlib.sha256(data).hexdigest())
 
 
@@ -95,7 +102,7 @@ def _with_source(case: Case, path: Path, sha256: str) -> Case:
     return replace(case, source_path=path, source_sha256=sha256)
 
 
-def parse_case(text: str, source: str = "<text>") -> Case:
+def parse_case(text: str, source: str = "<text>", base_dir: Path | None = None) -> Case:
     """Validate case text and build the :class:`Case`.
 
     Parameters
@@ -104,6 +111,9 @@ def parse_case(text: str, source: str = "<text>") -> Case:
         TOML text.
     source : str
         Name used at the start of every problem line (usually the file path).
+    base_dir : Path, optional
+        Folder that relative record files (``disturbance-record`` events) are read from: the
+        case file's; None: the folder of ``source`` if it names a file, else the working folder.
 
     Raises
     ------
@@ -119,13 +129,16 @@ def parse_case(text: str, source: str = "<text>") -> Case:
     except (ValueError, RecursionError) as exc:  # e.g. arrays nested thousands deep
         raise CaseError(f"{source}: not readable as TOML: {type(exc).__name__}") from None
     problems = Problems(source)
-    case = _build_case(problems, raw)
+    if base_dir is None and Path(source).is_file():
+        base_dir = Path(source).parent
+    case = _build_case(problems, raw, base_dir)
     if problems.lines or case is None:
         raise CaseError(problems.lines or [f"{source}: the case could not be read"])
     return case
 
 
-def _build_case(problems: Problems, raw: dict[str, Any]) -> Case | None:
+def _build_case(problems: Problems, raw: dict[str, Any], base_dir: Path | None = None
+                ) -> Case | None:
     top = Table(problems, "", raw)
     top.check_keys(TOP_LEVEL_KEYS, "at the top level")
     title = top.text("title")
@@ -147,7 +160,9 @@ def _build_case(problems: Problems, raw: dict[str, Any]) -> Case | None:
     simulation = _read_simulation(problems, raw)
     secondary = read_secondary(problems, raw.get("secondary"),
                                simulation.substeps if simulation is not None else None)
-    events = _read_events(problems, raw, simulation)
+    events = _read_events(problems, raw, simulation, base_dir, time_unit)
+    if simulation is not None and events is not None:
+        simulation = records_cover(problems, simulation, events, MAX_STEPS, time_unit or "")
     study = _read_study(problems, raw.get("study", {}))
     recommendation = _read_recommendation(problems, raw.get("recommendation", {}))
     designs = _read_designs(problems, raw)
@@ -410,14 +425,17 @@ def _read_signals(problems: Problems, value: object) -> Signals | None:
         if sub is None:
             continue
         spanned = name in _SPANNED_SIGNALS
-        sub.check_keys(("name", "unit", "range") if spanned else ("name", "unit"))
+        keys = ("name", "unit", "range") if spanned else ("name", "unit")
+        sub.check_keys((*keys, "band") if name == "controlled" else keys)
         label = sub.text("name", fallback.name)
         unit = sub.text("unit", fallback.unit)
         span = _read_range(problems, sub, name) if spanned and sub.has("range") else None
         if label is not None and not label.strip():
             problems.add(f"signals.{name}.name", "must not be empty", label)
+        band = sub.number("band", None, positive=True, what="the allowed deviation from the "
+                          "setpoint, CV units") if name == "controlled" else None
         if label is not None and unit is not None:
-            signals[name] = Signal(label, unit, span)
+            signals[name] = Signal(label, unit, span, band)
     return Signals(**signals) if len(problems) == before else None
 
 
@@ -458,7 +476,9 @@ def _read_simulation(problems: Problems, raw: dict[str, Any]) -> SimulationSpec 
         return None
     before = len(problems)
     table.check_keys(("duration", "step", "substeps"))
-    duration = table.number("duration", positive=True, what=f"the simulated window, {_UNIT}")
+    # with a recorded trace the window may be left out: it then covers the record(s)
+    duration = table.number("duration", math.nan if has_record_events(raw) else REQUIRED,
+                            positive=True, what=f"the simulated window, {_UNIT}")
     step = table.number("step", positive=True, what=f"the controller's scan period, {_UNIT}")
     substeps = table.integer("substeps", 1, 1, 1000)
     if duration is not None and step is not None:
@@ -485,7 +505,8 @@ def _read_simulation(problems: Problems, raw: dict[str, Any]) -> SimulationSpec 
 
 
 def _read_events(
-    problems: Problems, raw: dict[str, Any], simulation: SimulationSpec | None
+    problems: Problems, raw: dict[str, Any], simulation: SimulationSpec | None,
+    base_dir: Path | None = None, time_unit: str | None = None,
 ) -> tuple[Event, ...] | None:
     value = raw.get("event")
     if value is None:
@@ -500,14 +521,16 @@ def _read_events(
         problems.add("event", "must be one or more [[event]] tables", value)
         return None
     before = len(problems)
-    events = [_read_event(problems, index, item, simulation) for index, item in enumerate(value)]
+    events = [_read_event(problems, index, item, simulation, base_dir, time_unit)
+              for index, item in enumerate(value)]
     if len(problems) > before:
         return None
     return tuple(event for event in events if event is not None)
 
 
 def _read_event(
-    problems: Problems, index: int, value: object, simulation: SimulationSpec | None
+    problems: Problems, index: int, value: object, simulation: SimulationSpec | None,
+    base_dir: Path | None = None, time_unit: str | None = None,
 ) -> Event | None:
     path = f"event[{index + 1}]"
     table = _section(problems, path, value)
@@ -515,6 +538,14 @@ def _read_event(
         return None
     before = len(problems)
     kind = table.text("kind", choices=EVENT_KINDS)
+    if kind == "disturbance-record":
+        table.check_keys(RECORD_KEYS, "for kind = 'disturbance-record'")
+        at = table.number("at", 0.0, minimum=0.0, what=f"the start time, {_UNIT}")
+        if at is not None and simulation is not None and at >= simulation.duration:
+            problems.add(join(path, "at"), f"must lie inside the simulated window 0 .. "
+                         f"{simulation.duration:g}", at)
+            return None
+        return read_record_event(problems, table, at, base_dir, time_unit)
     allowed = ["kind", "at", "size"]
     if kind == "disturbance-ramp":
         allowed.append("duration")

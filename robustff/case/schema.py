@@ -226,11 +226,15 @@ class Signal:
     range : tuple of float or None
         ``(low, high)``, the engineering values at 0 % and 100 % of the signal's span (the
         transmitter's or the output's range), signal units; needed to state gains in %/%.
+    band : float or None
+        Controlled variable only: the allowed deviation from the setpoint, signal units (the
+        ``outside_band`` metric is the percentage of the window beyond it).
     """
 
     name: str
     unit: str = ""
     range: tuple[float, float] | None = None
+    band: float | None = None
 
     @property
     def span(self) -> float | None:

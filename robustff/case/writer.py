@@ -80,7 +80,8 @@ def save_case(case: Case, path: str | Path, original_text: str | None = None) ->
     """
     path = Path(path)
     text, warnings = _render(case, original_text)
-    reread = parse_case(text, source=str(path))  # refuses to write a case that would not load
+    # refuses to write a case that would not load (record files are read from the case's folder)
+    reread = parse_case(text, source=str(path), base_dir=_record_folder(case, path))
     if reread != case:
         raise CaseError(f"{path}: the case holds values that a case file cannot express "
                         "(e.g. a ramp duration on a step event); nothing was written")
@@ -111,9 +112,16 @@ def _render(case: Case, original_text: str | None) -> tuple[str, list[str]]:
     return fresh, ["the original layout could not be kept; comments will be dropped"]
 
 
+def _record_folder(case: Case, path: Path | None = None) -> Path | None:
+    """Folder the case's relative record files were read from (that of its source file)."""
+    if case.source_path is not None:
+        return case.source_path.parent
+    return None if path is None else path.parent
+
+
 def _reads_back(text: str, case: Case) -> bool:
     try:
-        return parse_case(text) == case
+        return parse_case(text, base_dir=_record_folder(case)) == case
     except CaseError:
         return False
 
@@ -194,6 +202,12 @@ def _model(model: Any) -> dict[str, Any]:
 
 
 def _event(event: Any) -> dict[str, Any]:
+    if event.record is not None:  # the trace itself stays in its file
+        spec = event.record.spec
+        keys = {"kind": event.kind, "at": event.at, "file": spec.file,
+                "time_column": spec.time_column, "value_column": spec.value_column}
+        return keys | ({"time_unit": spec.time_unit} if spec.time_unit else {}) | {
+            "baseline": spec.baseline, "gaps": spec.gaps}
     result = {"kind": event.kind, "at": event.at, "size": event.size}
     if event.kind == "disturbance-ramp":
         result["duration"] = event.duration

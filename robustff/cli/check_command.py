@@ -139,6 +139,10 @@ def _event_lines(case: Case) -> list[str]:
             text += f" over {event.duration:g} {unit}"
         if event.kind == "disturbance-noise":
             text += f" (standard deviation), filter time constant {event.time_constant:g} {unit}"
+        if event.record is not None:
+            text = (f"  from {event.at:g} {unit}: {event.kind}, {event.record.spec.file} "
+                    f"('{event.record.spec.value_column}', {event.record.length:g} {unit}, "
+                    f"largest deviation {f'{event.size:g} {size_unit}'.rstrip()})")
         lines.append(text)
     return lines
 

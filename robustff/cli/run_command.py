@@ -28,7 +28,8 @@ NOTHING_KEPT = ("robustff: interrupted before any sample finished; nothing was k
 #: Same as ``robustff.output.samples_file.SAMPLES_FORMATS`` (a test checks), spelled out here so
 #: that parsing the command line does not import the engine.
 SAMPLES_FORMATS = ("csv", "npy")
-_TABLE_METRICS = ("iae", "peak_deviation", "overshoot", "settling_time", "valve_travel")
+_TABLE_METRICS = ("iae", "peak_deviation", "overshoot", "settling_time", "valve_travel",
+                  "cv_std", "outside_band")
 #: Same as ``robustff.design.alternatives.DESIGN_SETS`` (a test checks), spelled out here so that
 #: parsing the command line does not import the engine.
 DESIGN_SETS = ("standard",)
@@ -134,6 +135,9 @@ def _print_table(summary: Summary, percentiles: Sequence[float]) -> None:
     from robustff.output.result_files import percentile_rows
 
     rows = percentile_rows(summary, percentiles, _TABLE_METRICS)
+    # outside_band needs [signals.controlled] band: without one its rows hold no number
+    rows = [row for row in rows if row[0] != "outside_band"
+            or any(cell != "n/a" for cell in row[3:])]
     header = ["metric", "arm", "unit", *[f"P{p:g}" for p in percentiles]]
     widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
     for row in [header, *rows]:

@@ -22,6 +22,7 @@ import math
 from dataclasses import dataclass
 
 from robustff.case import Case, UncertainParameter
+from robustff.case.record import record_window_note
 from robustff.case.sampling import distribution_bounds
 from robustff.case.text import control_characters
 from robustff.design.margins import model_margins
@@ -278,6 +279,10 @@ def _event_warnings(case: Case) -> list[Finding]:
                 f"{key}.duration",
                 f"the ramp from {event.at:g} {unit} over {event.duration:g} {unit} runs past the "
                 f"end of the {sim.duration:g} {unit} window: only part of its size is applied"))
+        if event.record is not None:  # what reading and placing the record assumed
+            note = record_window_note(event.record, event.at, sim.duration, sim.step, unit)
+            warnings += [Finding(f"{key}.file", text)
+                         for text in (*event.record.notes, *([note] if note else []))]
     return warnings
 
 

@@ -226,7 +226,8 @@ def simulate(
         scenario.noise_events,
         _controller_vector(design, scenario),
         _feedforward_vector(design),
-        np.array([scenario.event_start, scenario.settling_band, 0.0, 0.0]),
+        np.array([scenario.event_start, scenario.settling_band, 0.0,
+                  np.inf if scenario.cv_band is None else scenario.cv_band]),
         np.ascontiguousarray(scenario.direction, dtype=np.float64),
         np.ascontiguousarray(scenario.segment_start, dtype=np.float64),
         edges,
@@ -251,7 +252,9 @@ def simulate(
         unstable[:, 1] |= loop_unstable
         accumulators[:, 0] = reference.accumulators[:, 0]
         accumulators[unstable[:, 1], 1] = np.nan
-    metrics = metrics_from_accumulators(accumulators, ACCUMULATOR_NAMES, scenario.setpoint_step)
+    metrics = metrics_from_accumulators(accumulators, ACCUMULATOR_NAMES, scenario.setpoint_step,
+                                        window=n_steps * scenario.step,
+                                        cv_band=scenario.cv_band)
     return SimulationResult(
         metrics,
         unstable,
@@ -289,6 +292,7 @@ def build_scenario(case: Case, design: LoopDesign, settling_band: float | None =
         settling_segments(case),
         case.simulation.substeps,
         case.secondary.scans_per_primary if case.secondary else 1,
+        case.signals.controlled.band,
     )
     if settling_band is None:
         if setpoint_step:

@@ -46,7 +46,7 @@ __all__ = [
 #: Per-arm accumulators written by the kernel, in the column order of its output.
 ACCUMULATOR_NAMES: tuple[str, ...] = (
     "ie", "iae", "ise", "itae", "peak_deviation", "opposite_excursion",
-    "settling_time", "valve_travel", "time_at_limit",
+    "settling_time", "valve_travel", "time_at_limit", "outside_band",
 )
 N_ACCUMULATORS = len(ACCUMULATOR_NAMES)
 
@@ -56,7 +56,7 @@ N_ACCUMULATORS = len(ACCUMULATOR_NAMES)
 ACCUMULATOR_INIT: dict[str, float] = {
     "ie": 0.0, "iae": 0.0, "ise": 0.0, "itae": 0.0, "peak_deviation": 0.0,
     "opposite_excursion": 0.0, "settling_time": 0.0, "valve_travel": 0.0,
-    "time_at_limit": 0.0,
+    "time_at_limit": 0.0, "outside_band": 0.0,
 }
 
 #: One arm's running accumulators, fields named and ordered as :data:`ACCUMULATOR_NAMES`.
@@ -107,11 +107,13 @@ ControllerParams = namedtuple(
 )
 
 #: Metric conventions: controller sample time ``h``, event start ``t0`` (time units), settling
-#: band (CV units), the sign of ``e`` that counts as an opposite excursion at this step, and
-#: the start of the settling segment before this step's (equal to it except at the first step
-#: of an event, where the settling time of the previous event is complete).
+#: band (CV units), the sign of ``e`` that counts as an opposite excursion at this step, the
+#: start of the settling segment before this step's (equal to it except at the first step
+#: of an event, where the settling time of the previous event is complete), and the allowed
+#: deviation ``[signals.controlled] band`` (CV units; infinite without one).
 MetricParams = namedtuple(
-    "MetricParams", ("h", "t_start", "band", "direction", "segment", "previous_segment"))
+    "MetricParams",
+    ("h", "t_start", "band", "direction", "segment", "previous_segment", "cv_band"))
 
 #: One path's exact step (see :func:`robustff.engine.discretise.block_coefficients`):
 #: ``x1' = phi11 x1 + g1_new u_new + g1_old u_old``; for second-order paths also
@@ -244,6 +246,7 @@ def _arm_control(s: ArmState, a: Accumulators, y: float, sp: float, ff: float, f
         opposite_excursion=a.opposite_excursion, settling_time=a.settling_time,
         valve_travel=a.valve_travel + abs(u - s.previous_output),
         time_at_limit=a.time_at_limit + h if u != v else a.time_at_limit,
+        outside_band=a.outside_band,
     )
     return u, ArmState(integral, deriv, yd, u), a
 
@@ -277,6 +280,7 @@ def _arm_metrics(a: Accumulators, last: float, e: float, t: float, weight: float
         settling_time=longest,
         valve_travel=a.valve_travel,
         time_at_limit=a.time_at_limit,
+        outside_band=a.outside_band + h if ae > mp.cv_band else a.outside_band,
     )
     return a, last
 
@@ -556,7 +560,8 @@ def _simulate_sample(
             weight = max(t - mp.t_start, 0.0)
             mpk = MetricParams(hi, mp.t_start, mp.band, direction_profile[q],
                                segment_profile[q],
-                               segment_profile[q - 1] if q > 0 else segment_profile[0])
+                               segment_profile[q - 1] if q > 0 else segment_profile[0],
+                               mp.cv_band)
             d = disturbance_profile[q] + held_noise
             yd, sp = _output(xd, cd), setpoint_profile[q]
             y0, y1 = _output(x0, cp) + yd, _output(x1, cp) + yd
@@ -647,7 +652,7 @@ def simulate_kernel(
     controller: np.ndarray,       # (10,): kc, ti, td, tf, tt, u_low, u_high, divergence limit,
                                   # setpoint weights b and c
     feedforward: np.ndarray,      # (5,): gain, lead, lag, delay, input filter time constant
-    metric_setup: np.ndarray,     # (4,): event start time, settling band, unused, unused
+    metric_setup: np.ndarray,     # (4,): event start time, settling band, unused, CV band
     direction_profile: np.ndarray,  # (T S,): sign of e that counts as an opposite excursion
     segment_profile: np.ndarray,  # (T S,): start time of the latest event (settling segments)
     envelope_edges: np.ndarray,   # (B+1,) CV bin edges
@@ -671,7 +676,8 @@ def simulate_kernel(
     p = ControllerParams(kc, tf / (tf + h), kc * td / (tf + h), kc * h / ti, h / tt,
                          controller[5], controller[6], td > 0.0, controller[8], controller[9])
     # The direction slot is filled per step from direction_profile (metric_setup[2] is unused).
-    mp = MetricParams(hi, metric_setup[0], metric_setup[1], metric_setup[2], 0.0, 0.0)
+    mp = MetricParams(hi, metric_setup[0], metric_setup[1], metric_setup[2], 0.0, 0.0,
+                      metric_setup[3])
     n_bins = envelope_edges.shape[0] - 1
     grid = BinGrid(envelope_edges[0], (envelope_edges[-1] - envelope_edges[0]) / n_bins, n_bins)
     # Matched pole-zero compensator: exact inverse of ZOH first-order paths at the samples.

@@ -21,7 +21,12 @@ integrals over the simulated window):
   response still outside the band at the next event reports the time to that event, and at
   the end of the window the remaining window;
 * ``valve_travel`` = sum |u[k] - u[k-1]| (output units);
-* ``time_at_limit`` = time the controller output spends at a limit (time units).
+* ``time_at_limit`` = time the controller output spends at a limit (time units);
+* ``cv_std`` = the standard deviation of the error over the window, ``sqrt(ise / T - (ie / T)^2)``
+  with ``T`` the window (CV units; the CV's own standard deviation when the setpoint is constant,
+  the measure for long recorded windows where one event's IAE means little);
+* ``outside_band`` = percentage of the window with ``|e|`` above ``[signals.controlled] band``
+  (%; NaN when the case gives no band).
 
 The simulator accumulates these while it runs; :func:`trajectory_metrics` computes the same
 numbers from stored trajectories and is used to check it.
@@ -44,6 +49,8 @@ METRIC_NAMES: tuple[str, ...] = (
     "settling_time",
     "valve_travel",
     "time_at_limit",
+    "cv_std",
+    "outside_band",
 )
 
 #: Unit of each metric as a template: {cv}, {u} and {t} are the CV, output and time units.
@@ -58,11 +65,14 @@ METRIC_UNITS: dict[str, str] = {
     "settling_time": "{t}",
     "valve_travel": "{u}",
     "time_at_limit": "{t}",
+    "cv_std": "{cv}",
+    "outside_band": "%",
 }
 
 
 def metrics_from_accumulators(
-    accumulators: np.ndarray, names: tuple[str, ...], setpoint_step: float | None
+    accumulators: np.ndarray, names: tuple[str, ...], setpoint_step: float | None, *,
+    window: float, cv_band: float | None,
 ) -> dict[str, np.ndarray]:
     """Turn the kernel's running sums into named metrics.
 
@@ -74,6 +84,10 @@ def metrics_from_accumulators(
         Names of the A accumulators.
     setpoint_step : float or None
         Size of the first event when it is a setpoint step (CV units), else None.
+    window : float
+        The simulated window the sums ran over, time units.
+    cv_band : float or None
+        ``[signals.controlled] band``, CV units; None: ``outside_band`` is NaN.
 
     Returns
     -------
@@ -92,6 +106,10 @@ def metrics_from_accumulators(
             out["overshoot_percent"] = np.where(peak_fb > 0, 100.0 * excursion / peak_fb, 0.0)
     for name in ("settling_time", "valve_travel", "time_at_limit"):
         out[name] = raw[name]
+    mean = raw["ie"] / window
+    out["cv_std"] = np.sqrt(np.maximum(raw["ise"] / window - mean * mean, 0.0))
+    out["outside_band"] = (100.0 * raw["outside_band"] / window if cv_band is not None
+                           else np.full_like(raw["outside_band"], np.nan))
     return {name: out[name] for name in METRIC_NAMES}
 
 
@@ -105,6 +123,7 @@ def trajectory_metrics(
     settling_band: float,
     at_limit: np.ndarray | None = None,
     segment_start: np.ndarray | None = None,
+    cv_band: float | None = None,
 ) -> dict[str, float]:
     """Metrics of one stored response (reference implementation of the definitions above).
 
@@ -127,12 +146,14 @@ def trajectory_metrics(
     segment_start : ndarray, shape (T,), optional
         Start time of the latest event at each sample (``Scenario.segment_start``); default:
         one event at ``event_start``.
+    cv_band : float, optional
+        ``[signals.controlled] band``, CV units (``outside_band`` is given only with it).
 
     Returns
     -------
     dict of str to float
         ``ie, iae, ise, itae, peak_deviation, opposite_excursion, settling_time, valve_travel,
-        time_at_limit``.
+        time_at_limit, cv_std`` and, with ``cv_band``, ``outside_band``.
     """
     t = np.arange(error.size) * step
     if segment_start is None:
@@ -143,6 +164,9 @@ def trajectory_metrics(
         outside = np.nonzero(is_outside & (segment_start == start))[0]
         if outside.size:
             settle = max(settle, min(t[outside[-1]] + step, error.size * step) - start)
+    extra = {"cv_std": float(np.std(error))}  # population std of the samples: sum over T
+    if cv_band is not None:
+        extra["outside_band"] = float(100.0 * np.mean(np.abs(error) > cv_band))
     return {
         "ie": float(np.sum(error) * step),
         "iae": float(np.sum(np.abs(error)) * step),
@@ -153,4 +177,4 @@ def trajectory_metrics(
         "settling_time": float(settle),
         "valve_travel": float(np.sum(np.abs(np.diff(output, prepend=0.0)))),
         "time_at_limit": float(np.sum(at_limit) * step) if at_limit is not None else 0.0,
-    }
+    } | extra

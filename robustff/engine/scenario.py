@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.case import Case, Event
+from robustff.case.record import record_profile
 from robustff.design.tuning import LoopDesign
 
 __all__ = ["Scenario", "event_profiles", "disturbance_direction", "divergence_limit",
@@ -46,6 +47,9 @@ class Scenario:
         Internal steps per scan, ``S``.
     secondary_scans : int
         Scans of the secondary (flow) controller per primary scan (1 without one).
+    cv_band : float or None
+        Allowed deviation from the setpoint, ``[signals.controlled] band``, CV units (None: no
+        ``outside_band`` metric).
     """
 
     step: float
@@ -60,6 +64,7 @@ class Scenario:
     segment_start: np.ndarray
     substeps: int = 1
     secondary_scans: int = 1
+    cv_band: float | None = None
 
     @property
     def n_steps(self) -> int:
@@ -85,7 +90,8 @@ def event_profiles(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Disturbance and setpoint profiles and the noise-event table of a case.
 
     Event times are placed on the internal step nearest to them (filtered noise: on the
-    nearest scan).
+    nearest scan). A recorded trace is interpolated linearly onto the internal steps from its
+    start (its gaps were bridged when it was read) and its last value held after its end.
 
     Returns
     -------
@@ -109,24 +115,30 @@ def event_profiles(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         elif event.kind == "disturbance-ramp":
             fraction = np.clip((t - start) / max(event.duration, h), 0.0, 1.0)
             disturbance += event.size * fraction
+        elif event.kind == "disturbance-record" and event.record is not None:
+            disturbance += record_profile(event.record, t, start)
         elif event.kind == "disturbance-noise":
             noise.append((round(event.at / scan), abs(event.size), event.time_constant))
     return disturbance, setpoint, np.array(noise, dtype=np.float64).reshape(-1, 3)
+
+
+#: Events that never end, so that nothing settles after them (no settling segment starts).
+_ENDLESS = ("disturbance-noise", "disturbance-record")
 
 
 def settling_segments(case: Case) -> np.ndarray:
     """Start time of the settling segment each sample belongs to, shape (T,), time units.
 
     Every step, ramp and setpoint event starts a segment at its start sample (the value is
-    the event's time as written, as for ``t0`` of the metrics);
-    filtered noise does not (it never ends, so nothing settles after it). Before the first
-    such event, and in a case with noise events only, the start of the first event applies.
+    the event's time as written, as for ``t0`` of the metrics); filtered noise and recorded
+    traces do not (they never end, so nothing settles after them). Before the first such
+    event, and in a case with noise events only, the start of the first event applies.
     """
     h = case.simulation.internal_step
     n = case.simulation.n_steps * case.simulation.substeps
     # Times stay as written (like t0 of the metrics); the segment begins at the event's sample.
     starts = sorted((event.at, min(max(round(event.at / h), 0), n)) for event in case.events
-                    if event.kind != "disturbance-noise")
+                    if event.kind not in _ENDLESS)
     first = min(event.at for event in case.events)
     segment = np.full(n, starts[0][0] if starts else first)
     for at, begin in starts:

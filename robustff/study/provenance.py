@@ -20,7 +20,7 @@ from importlib import metadata
 
 import numpy as np
 
-from robustff.case import Case, StudySpec, case_to_toml
+from robustff.case import Case, Event, StudySpec, case_to_toml
 from robustff.case.sampling import describe_distribution, distribution_bounds
 from robustff.plant.models import MODEL_PARAMETERS
 from robustff.study.runner import StudyResult
@@ -45,6 +45,7 @@ _EVENT_WORDS = {
     "disturbance-ramp": "ramp of the measured disturbance",
     "disturbance-noise": "filtered noise on the measured disturbance",
     "setpoint-step": "setpoint step",
+    "disturbance-record": "recorded trace of the measured disturbance",
 }
 
 
@@ -101,10 +102,24 @@ def _events(case: Case) -> list[EventRow]:
             words += f" over {event.duration:g} {unit}"
         if event.kind == "disturbance-noise":
             words += f" (standard deviation), filter time constant {event.time_constant:g} {unit}"
+        if event.record is not None:
+            words = _record_words(event, unit, size_unit)
         rows.append({"kind": event.kind, "at": event.at, "size": event.size,
                      "duration": event.duration, "time_constant": event.time_constant,
                      "words": words})
     return rows
+
+
+def _record_words(event: Event, unit: str, size_unit: str) -> str:
+    """A replayed record in words: its file, columns, baseline, length and largest deviation."""
+    record = event.record
+    assert record is not None
+    spec = record.spec
+    return (f"{_EVENT_WORDS[event.kind]} from {event.at:g} {unit}: file {spec.file}, column "
+            f"'{spec.value_column}' over '{spec.time_column}', {record.length:g} {unit} long, "
+            f"deviation from its {spec.baseline} value ({record.baseline_value:g}{size_unit}), "
+            f"gaps {'interpolated' if spec.gaps == 'interpolate' else 'held'}; largest deviation "
+            f"{event.size:g}{size_unit}")
 
 
 def _uncertainty(case: Case) -> list[UncertaintyRow]:

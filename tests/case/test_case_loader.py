@@ -313,8 +313,10 @@ def test_examples_in_the_format_document_are_valid():
                 document.setdefault("uncertainty", {}).update(value)
             else:
                 document[key] = value
-    case = parse_case(tomlkit.dumps(document))
-    assert len(case.events) == 5 and len(case.uncertainty) == 4
+    # a record file is named relative to the case file: the examples are cases in cases/
+    case = parse_case(tomlkit.dumps(document), base_dir=doc.parents[1] / "cases")
+    assert len(case.events) == 6 and len(case.uncertainty) == 4
+    assert case.events[-1].record is not None and case.signals.controlled.band == 0.2
     assert case.correlations[0].second == "disturbance.time_constant"
     for line in re.findall(r"robustff: error: heater.toml: (.*)", doc.read_text(encoding="utf-8")):
         key = line.split(":")[0]

@@ -92,7 +92,8 @@ def signals(draw, spans: bool):
 
     return Signals(
         Signal(text(12), draw(st.text(max_size=6)),
-               span() if spans or draw(st.booleans()) else None),
+               span() if spans or draw(st.booleans()) else None,
+               draw(_pos) if draw(st.booleans()) else None),  # the allowed deviation, band
         Signal(text(12), draw(st.text(max_size=6)),
                span() if spans or draw(st.booleans()) else None),
         Signal(text(12), draw(st.text(max_size=6))),

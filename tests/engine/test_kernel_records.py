@@ -64,13 +64,15 @@ def test_every_accumulator_feeds_a_metric(setpoint_step: float | None) -> None:
     # Change one column at a time; a column no metric reads leaves every metric unchanged.
     rng = np.random.default_rng(3)
     base = rng.uniform(0.5, 2.0, size=(4, 2, N_ACCUMULATORS))
-    reference = metrics_from_accumulators(base, ACCUMULATOR_NAMES, setpoint_step)
+    reference = metrics_from_accumulators(base, ACCUMULATOR_NAMES, setpoint_step,
+                                          window=60.0, cv_band=0.5)
     assert tuple(reference) == METRIC_NAMES
     unused = []
     for q, name in enumerate(ACCUMULATOR_NAMES):
         changed = base.copy()
         changed[:, :, q] *= 1.5
-        out = metrics_from_accumulators(changed, ACCUMULATOR_NAMES, setpoint_step)
+        out = metrics_from_accumulators(changed, ACCUMULATOR_NAMES, setpoint_step, window=60.0,
+                                        cv_band=0.5)
         if all(np.array_equal(out[m], reference[m]) for m in METRIC_NAMES):
             unused.append(name)
     assert unused == []
@@ -81,7 +83,8 @@ def test_conversion_reads_columns_by_name_not_position() -> None:
     rng = np.random.default_rng(5)
     base = rng.uniform(0.5, 2.0, size=(3, 2, N_ACCUMULATORS))
     reversed_names = ACCUMULATOR_NAMES[::-1]
-    expected = metrics_from_accumulators(base, ACCUMULATOR_NAMES, None)
-    got = metrics_from_accumulators(base[:, :, ::-1], reversed_names, None)
+    expected = metrics_from_accumulators(base, ACCUMULATOR_NAMES, None, window=60.0, cv_band=0.5)
+    got = metrics_from_accumulators(base[:, :, ::-1], reversed_names, None, window=60.0,
+                                    cv_band=0.5)
     for name in METRIC_NAMES:
         np.testing.assert_array_equal(got[name], expected[name])
