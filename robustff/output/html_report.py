@@ -72,10 +72,11 @@ tr { break-inside: avoid; }
 thead { display: table-header-group; }
 .ci { color: #333; font-size: 6.8pt; }
 .sub { font-size: 9pt; overflow-wrap: anywhere; }
-.verdict { border: 2.5px solid #000; padding: 0.3rem 0.6rem; margin: 0.4rem 0; }
+.verdict { border: 2.5px solid #000; padding: 0.3rem 0.6rem; margin: 0.4rem 0;
+           break-inside: avoid; }
 .verdict h2 { border: none; margin: 0; }
 .answer { font-size: 13pt; font-weight: bold; }
-.caution { border: 2px solid #000; padding: 0.4rem; font-weight: bold; }
+.caution { border: 2px solid #000; padding: 0.4rem; font-weight: bold; break-inside: avoid; }
 .note { font-size: 8pt; color: #222; }
 code { font-size: 8pt; overflow-wrap: anywhere; }
 pre { white-space: pre-wrap; overflow-wrap: anywhere; font-size: 7.5pt; background: #f4f4f4;

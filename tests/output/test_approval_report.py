@@ -112,6 +112,11 @@ def test_every_input_a_reviewer_needs_appears(report, capsys):
     for name, version in summary["versions"].items():
         need(f"{name} version", f"{name} version {version}")
     need("matplotlib version", "matplotlib version")
+    feedback = summary["design"]["feedback"]  # the ideal-form settings as designed
+    need("ideal-form Kc", f"Kc (gain) {_g(feedback['kc'])}")
+    need("ideal-form Ti", f"Ti (integral time) {_g(feedback['ti'])} s")
+    for design in summary["designs"]:
+        need(f"{design['name']} feedforward gain", _g(design["feedforward"]["gain"]))
     created = summary["reproducibility"]["created"]
     assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d[+-]\d\d:\d\d", created), created
     need("date and time with zone", f"date and time {created}")
