@@ -23,7 +23,7 @@ from robustff.output.report_tables import (
 )
 from robustff.output.result_files import risk_sentence
 from robustff.study import StudyResult
-from robustff.study.summary import PAIRED_METRICS
+from robustff.study.summary import PAIRED_METRICS, VERDICT_REASONS
 from robustff.study.summary_types import Summary
 
 __all__ = [
@@ -310,9 +310,8 @@ def margins_section(summary: Summary, percentiles: Sequence[float]) -> str:
         "margin.</p>"
         + html_table(header, rows, "stats", raw=True)
         + f"<ul>{limit_lines}<li>unstable feedback loops: {margins['unstable']} [count]</li>"
-        + (f"<li>samples the simulation judged otherwise: {differ} [count] (a loop at the "
-           "stability limit, or a saturated response beyond the divergence limit)</li>"
-           if differ else "")
+        + (f"<li>samples the simulation judged otherwise: {differ} [count] "
+           f"({esc(VERDICT_REASONS)})</li>" if differ else "")
         + warnings + "</ul>"
         f"<p class=\"note\">Limits Ms &gt; {MS_LIMIT:g}, GM &lt; {GAIN_MARGIN_LIMIT:g}, "
         f"PM &lt; {PHASE_MARGIN_LIMIT:g} deg are common practice, no source.</p></section>"
