@@ -53,6 +53,11 @@ def fmt(value: object, digits: str = ".4g", scale: float = 1.0) -> str:
     return f"{scale * float(value):{digits}}"  # type: ignore[arg-type]
 
 
+def _number(value: object) -> float | None:
+    """A table cell known to hold a number or None, as ``float | None``."""
+    return None if value is None else float(value)  # type: ignore[arg-type]
+
+
 def _percent(value: float | None, digits: str = ".1f") -> str:
     return "n/a" if value is None else f"{100.0 * value:{digits}}"
 
@@ -222,8 +227,9 @@ def statistics_section(summary: Summary, percentiles: Sequence[float]) -> str:
             paired_rows.append([esc(kind), esc(name), esc(unit),
                                 *_estimate_cells(section[name], percentiles)])
     harm = harm_table(summary)
-    harm_rows = [[esc(r[0]), _with_interval(r[1], r[2], r[3], ".2f"), str(r[4]), str(r[5]),
-                  esc(r[6])] for r in harm.rows]  # type: ignore[arg-type]
+    harm_rows = [[esc(r[0]), _with_interval(_number(r[1]), _number(r[2]), _number(r[3]),
+                                            ".2f"), str(r[4]), str(r[5]), esc(r[6])]
+                 for r in harm.rows]
     convergence = summary["convergence"]
     iae_check = convergence["iae_fbff"]
     not_settled = summary["not_settled"]
@@ -295,7 +301,8 @@ def margins_section(summary: Summary, percentiles: Sequence[float]) -> str:
               *table.header[-4:]]
     limits = margins["fraction_below_limits"]
     limit_lines = "".join(
-        f"<li>{esc(key.replace('_', ' '))}: {_percent(value)} % of the margin samples</li>"
+        f"<li>{esc(key.replace('_', ' '))}: {_percent(_number(value))} % of the margin "
+        "samples</li>"
         for key, value in limits.items() if value is not None
     )
     differ = margins["verdicts_differ"]
@@ -414,7 +421,7 @@ def reproducibility_section(summary: Summary) -> str:
     case_file = repro["case_file"]
     command = ("run from Python (no command line)" if repro["command_line"] is None
                else " ".join(repro["command_line"]))
-    rows = [
+    rows: list[Sequence[object]] = [
         ["case file", "-" if case_file is None else case_file["name"]],
         ["case file path", "-" if case_file is None else case_file["path"]],
         ["case file SHA-256", "-" if case_file is None else str(case_file["sha256"])],
