@@ -108,6 +108,9 @@ class SimulationResult:
     accumulators : ndarray, shape (N, 2, N_ACCUMULATORS)
         The kernel's raw per-arm accumulators (NaN where unstable), from which ``metrics``
         were converted.
+    noise : ndarray, shape (N, T, 2), or None
+        With ``record_noise``: the filtered disturbance noise and the transmitter noise of each
+        sample at each scan, for a later run with ``reference`` to replay instead of drawing.
     """
 
     metrics: dict[str, np.ndarray]
@@ -116,6 +119,7 @@ class SimulationResult:
     trajectories: np.ndarray | None
     loop_unstable: np.ndarray
     accumulators: np.ndarray
+    noise: np.ndarray | None = None
 
 
 def plant_matrix(batch: PlantBatch) -> np.ndarray:
@@ -166,6 +170,7 @@ def simulate(
     envelope: EnvelopeGrid | None = None,
     keep: np.ndarray | None = None,
     reference: SimulationResult | None = None,
+    record_noise: bool = False,
 ) -> SimulationResult:
     """Simulate every plant of ``batch`` in both arms.
 
@@ -188,7 +193,10 @@ def simulate(
         feedforward arm is then simulated (another feedforward design on the same plants and
         noise, common random numbers) and the feedback-only arm and the loop's stability are
         taken from ``reference``. The result equals a full run of ``design``; the
-        envelope and trajectories are not recorded.
+        envelope and trajectories are not recorded. The noise is replayed from
+        ``reference.noise`` when it was recorded (same numbers, without drawing them again).
+    record_noise : bool
+        Keep every sample's noise (``SimulationResult.noise``, N x T x 2 numbers).
 
     Returns
     -------
@@ -209,6 +217,10 @@ def simulate(
         edges, index = envelope.edges, envelope.index
         counts = np.zeros((2, envelope.times.size, edges.size - 1), dtype=np.int64)
     feedback_arm = reference is None
+    no_noise = np.zeros((0, 0, 2))
+    recorded = np.zeros((n, n_steps, 2)) if record_noise else no_noise
+    replayed = (reference.noise if reference is not None and reference.noise is not None
+                else no_noise)
     if not feedback_arm:
         slots[:] = -1
         trajectories, index = np.zeros((0, 4, n_steps)), np.full(n_steps, -1, dtype=np.int64)
@@ -243,6 +255,8 @@ def simulate(
         valve_code(batch.valve),
         batch.valve.table() if batch.valve is not None else np.zeros((0, 2)),
         _secondary_vector(design, scenario.secondary_scans),
+        recorded,
+        replayed,
     )
     if reference is not None:
         # The kernel skipped the feedback arm and the stability probe: take both from the
@@ -262,6 +276,7 @@ def simulate(
         trajectories if keep.size and feedback_arm else None,
         loop_unstable,
         accumulators,
+        recorded if record_noise else None,
     )
 
 

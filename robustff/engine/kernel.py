@@ -489,6 +489,7 @@ def _simulate_sample(
     envelope_index: np.ndarray, slot: int, ring: np.ndarray, env_buf: np.ndarray,
     trajectories: np.ndarray, feedback_arm: bool, h: float, substeps: int,
     valve_kind: int, valve_table: np.ndarray, sec: SecondaryParams,
+    noise_record: np.ndarray, noise_replay: np.ndarray,
 ) -> tuple:
     """Simulate sample ``i``; returns ``(acc fb, acc fbff, last outside fb, last outside fbff,
     alive fb, alive fbff, unstable)``.
@@ -543,17 +544,26 @@ def _simulate_sample(
     sq = ProbeState(0.0, 0.0, 0.0, 0.0, 0.0, False)
     q2, q3 = n_steps // 2, (3 * n_steps) // 4
     sensor = ff_out = ff_in_prev = u0 = u1 = ff_measured = uq = 0.0
+    replay, record = noise_replay.shape[1] > 0, noise_record.shape[1] > 0
     for k in range(n_steps):
-        held_noise = 0.0
-        for j in range(noise.shape[0]):
-            if k >= noise[j, 0]:
-                if k == noise[j, 0]:
-                    # Start from the stationary distribution: the noise is already running.
+        held_noise = transmitter_noise = 0.0
+        if replay:  # the draws of an earlier run of this sample (another design, same noise)
+            held_noise, transmitter_noise = noise_replay[i, k, 0], noise_replay[i, k, 1]
+        else:
+            for j in range(noise.shape[0]):
+                if k >= noise[j, 0]:
+                    if k == noise[j, 0]:
+                        # Start from the stationary distribution: the noise is already running.
+                        seed, draw = _random_normal(seed)
+                        noise[j, 3] = noise[j, 4] * draw
+                    held_noise += noise[j, 3]
                     seed, draw = _random_normal(seed)
-                    noise[j, 3] = noise[j, 4] * draw
-                held_noise += noise[j, 3]
+                    noise[j, 3] = noise[j, 1] * noise[j, 3] + noise[j, 2] * draw
+            if noise_std > 0.0:
                 seed, draw = _random_normal(seed)
-                noise[j, 3] = noise[j, 1] * noise[j, 3] + noise[j, 2] * draw
+                transmitter_noise = noise_std * draw
+        if record:
+            noise_record[i, k, 0], noise_record[i, k, 1] = held_noise, transmitter_noise
         for sub in range(substeps):
             q = k * substeps + sub
             t = q * hi
@@ -570,8 +580,7 @@ def _simulate_sample(
             if sub == 0:  # the scan: transmitter, feedforward, controllers, probe
                 measured = d if direct else sensor
                 if noise_std > 0.0:
-                    seed, draw = _random_normal(seed)
-                    measured += noise_std * draw
+                    measured += transmitter_noise
                 # Feedforward input filter, as a control system's digital first-order filter.
                 ff_measured = ffp.input_pole * ff_measured + (1.0 - ffp.input_pole) * measured
                 ring[4 * size + (k & mask)] = ff_measured
@@ -668,6 +677,8 @@ def simulate_kernel(
     valve_kind: int,              # 0: no valve; 1 linear, 2 equal-percentage, 3 installed
     valve_table: np.ndarray,      # (P, 2): installed characteristic, travel and flow fractions
     secondary: np.ndarray,        # (7,): present, kc, ti, tt, u_low, u_high, scans per primary
+    noise_record: np.ndarray,     # out (N, T, 2) or (0, 0, 2): filtered and transmitter noise
+    noise_replay: np.ndarray,     # (N, T, 2) to replay instead of drawing, or (0, 0, 2)
 ) -> None:
     n_steps, n_internal = envelope_index.shape[0], disturbance_profile.shape[0]
     hi = h / substeps
@@ -707,7 +718,8 @@ def simulate_kernel(
             i, kinds, plant, seeds[i], disturbance_profile, setpoint_profile, direction_profile,
             segment_profile, noise, p, mp,
             ffp, min(m_ff, n_steps), controller[7], grid, envelope_index, trajectory_slot[i],
-            ring, env_buf, trajectories, feedback_arm, h, substeps, valve_kind, valve_table, sec)
+            ring, env_buf, trajectories, feedback_arm, h, substeps, valve_kind, valve_table, sec,
+            noise_record, noise_replay)
         loop_unstable[i] = probe
         _commit_envelope(env_buf, envelope_counts, not probe)
         last_segment = segment_profile[n_internal - 1]

@@ -46,6 +46,10 @@ KEPT_TRAJECTORIES = 5
 #: their percentiles and keeps the cost below the simulation's).
 MARGIN_SAMPLES = 2000
 
+#: Largest samples x scans of a chunk whose noise is kept for the other designs to replay
+#: (two numbers each: 64 MB at this limit).
+NOISE_REPLAY_LIMIT = 4_000_000
+
 ProgressCallback = Callable[[int, int], None]
 
 
@@ -188,8 +192,12 @@ def _run_chunk(
     keep: int,
 ):
     batch = plant_batch(case, names, values)
+    # With other designs to run, keep this chunk's noise so that they replay it instead of
+    # drawing it again (drawing dominates the cost of a noisy case), when it stays small.
+    record = bool(design.alternatives) and batch.size * scenario.n_steps <= NOISE_REPLAY_LIMIT
     result = simulate(
-        batch, design, scenario, seeds=seeds, envelope=grid, keep=np.arange(min(keep, batch.size))
+        batch, design, scenario, seeds=seeds, envelope=grid, keep=np.arange(min(keep, batch.size)),
+        record_noise=record,
     )
     # Other designs: the feedforward arm alone, same plants and noise seeds (common random
     # numbers), so differences between designs are not Monte Carlo noise.
@@ -199,7 +207,8 @@ def _run_chunk(
                        seeds=seeds, reference=result)
         alternatives.append(({name: values[:, 1] for name, values in arm.metrics.items()},
                              arm.unstable[:, 1]))
-    result.accumulators = np.empty((0, 2, 0))  # not kept: the metrics hold what is needed
+    # not kept: the metrics hold what is needed
+    result.accumulators, result.noise = np.empty((0, 2, 0)), None
     return result, alternatives
 
 

@@ -227,3 +227,19 @@ def test_run_refuses_a_design_set_clashing_with_a_case_design(tmp_path: Path, ca
     status = main(["run", str(case), "--designs", "standard", "--out", str(tmp_path / "o")])
     assert status == EXIT_USAGE
     assert "static" in capsys.readouterr().err
+
+
+def test_replayed_noise_gives_the_results_of_drawn_noise(monkeypatch):
+    # Extra designs replay the case run's noise when a chunk is small enough; drawing it again
+    # from the same seeds must give the same numbers (the replay only saves the drawing).
+    from robustff.study import runner
+
+    text = (ROOT / "cases" / "wash-water-heater.toml").read_text() + (
+        '\n[[design]]\nname = "gentle"\ngain_factor = 0.6\n')
+    case = parse_case(text)
+    replayed = run_study(case, samples=120, jobs=1, margins=False)
+    monkeypatch.setattr(runner, "NOISE_REPLAY_LIMIT", 0)
+    drawn = run_study(case, samples=120, jobs=1, margins=False)
+    for a, b in zip(replayed.design_arms(), drawn.design_arms(), strict=True):
+        for name in a.metrics:
+            assert np.array_equal(a.metrics[name], b.metrics[name], equal_nan=True), name
