@@ -81,7 +81,7 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         Binding("f1", "help", "Help", priority=True),
         Binding("question_mark", "help", "Help", show=False),
         Binding("ctrl+s", "save", "Save", priority=True),
-        Binding("f2", "save_as", "Save as", priority=True),
+        Binding("f2", "save_as", "Save as", priority=True, show=False),
         Binding("ctrl+e", "export", "Export", priority=True),
         Binding("ctrl+z", "undo", "Undo", priority=True),
         Binding("ctrl+r", "reload", "Reload", priority=True),
@@ -89,6 +89,7 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         Binding("f6", "robust", "Robust", priority=True),
         Binding("f7", "fit_data", "Fit", priority=True),
         Binding("escape", "leave_field", "Leave field", show=False),
+        Binding("f9", "caution", "Caution", show=False, priority=True),
         Binding("ctrl+q", "quit", "Quit", priority=True),
     ]
     #: The studio's own actions (footer and command palette): title, what it does.
@@ -103,6 +104,7 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         "robust": ("Robust feedforward", "search feedforward settings robust to the "
                                          "uncertainty (F6)"),
         "fit_data": ("Fit data", "fit a model to a bump test (F7)"),
+        "caution": ("Caution", "show the full caution, or fold it to one sentence (F9)"),
     }
 
     def __init__(self, case_path: Path, case: Case | None = None,
@@ -139,7 +141,7 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
                     yield ResultsPane(id="results")
                     yield PicturesPane(id="pictures")
                 yield CautionLine()
-        yield Footer(compact=True, show_command_palette=True)
+        yield Footer(compact=True, show_command_palette=False)
 
     def on_mount(self) -> None:
         self.refresh_title()
@@ -156,6 +158,9 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         if action in self.COMMANDS_TEXT or action == "leave_field":
             return self.screen is self.screen_stack[0]
         return True
+
+    def action_caution(self) -> None:
+        self.query_one(CautionLine).toggle()
 
     def action_leave_field(self) -> None:
         """Escape: leave the text field or list (what was typed is applied as on Tab)."""
@@ -388,6 +393,8 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         pane.show_view(view)
         self.query_one(PicturesPane).show_view(view)
         self.refresh_staleness()
+        if self.results_version == 1:  # read once in full: fold it to make room for results
+            self.query_one(CautionLine).fold()
 
     # --- stale results ------------------------------------------------------------------------
 

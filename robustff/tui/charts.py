@@ -28,6 +28,11 @@ def _fmt(value: float) -> str:
     return f"{value:.3g}"
 
 
+#: The histogram's legend, longest first: the first that fits the width is drawn.
+_LEGENDS = ("◀ ff better   ┃ = 1.0 (no change)   ff worse ▶", "◀ ff better  ┃ = 1.0  ff worse ▶",
+            "◀ better ┃=1.0 worse ▶")
+
+
 def histogram_chart(ratio: np.ndarray, width: int, height: int) -> Text:
     """Histogram of the per-sample IAE ratio fbff / fb, the 1.0 line marked ``┃``.
 
@@ -62,7 +67,8 @@ def histogram_chart(ratio: np.ndarray, width: int, height: int) -> Text:
     axis[one] = "┃"
     text.append(" " * (_LABEL - 1) + "└" + "".join(axis) + "\n")
     text.append(" " * _LABEL + _ticks(edges, one, columns) + "\n")
-    text.append(" " * _LABEL + "◀ ff better   ┃ = 1.0 (no change)   ff worse ▶"[:columns])
+    legend = next((line for line in _LEGENDS if len(line) <= columns), _LEGENDS[-1][:columns])
+    text.append(" " * _LABEL + legend)
     return text
 
 
@@ -71,7 +77,7 @@ def _ticks(edges: np.ndarray, one: int, columns: int) -> str:
     line = [" "] * columns
     low, high = _fmt(edges[0]), _fmt(edges[-1])
     placed = [(0, low), (max(columns - len(high), 0), high),
-              (max(one - 1, 0), "1.0")]
+              (min(max(one - 1, 0), max(columns - 3, 0)), "1.0")]  # never cut to "1."
     for start, label in sorted(placed, key=lambda item: item[1] != "1.0"):
         end = min(start + len(label), columns)
         if all(c == " " for c in line[start:end]):

@@ -95,7 +95,26 @@ class StaleLine(Static):
 
 
 class CautionLine(Static):
-    """The model-based-estimate caution (always on screen)."""
+    """The model-based-estimate caution (always on screen).
+
+    Shown in full until the first results have been seen, then folded to one sentence that
+    still names the essentials; F9 (:meth:`toggle`) shows the full text again.
+    """
 
     def __init__(self) -> None:
         super().__init__(f"⚠ {CAUTION}", id="caution")
+        self.folded = False
+
+    def fold(self, folded: bool = True) -> None:
+        """Fold to the short caution (True) or show the full one (False)."""
+        self.folded = folded
+        self.update(f"⚠ {CAUTION_SHORT}" if folded else f"⚠ {CAUTION}")
+
+    def toggle(self) -> None:
+        """Switch between the short and the full caution."""
+        self.fold(not self.folded)
+
+
+#: The folded caution: the essentials of :data:`robustff.CAUTION` in one sentence.
+CAUTION_SHORT = ("Caution: model-based estimates only;\n"
+                 "commission under management-of-change (F9)")

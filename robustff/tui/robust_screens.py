@@ -137,10 +137,11 @@ class RobustResultScreen(ModalScreen[bool]):
         with Vertical(classes="dialog", id="robust-dialog"):
             with VerticalScroll(id="robust-body"):
                 yield Static(head, classes="question")
+                # the verdict first: at 24 rows the table below may need scrolling
+                yield Static(_recommendation(result), classes="hint", id="robust-verdict")
                 yield Static(comparison_table(result, self.time_unit), id="robust-table")
                 yield Static(f"{self.note}Optimisation figures flatter the winner (chosen on "
                              "those plants); compare the fresh ones.", classes="hint")
-                yield Static(_recommendation(result), classes="hint", id="robust-verdict")
             yield Static(f"⚠ {CAUTION}", id="robust-caution")
             with Horizontal(classes="buttons"):
                 yield Button(escape("[a] apply to the case"), id="robust-apply", compact=True)

@@ -20,7 +20,10 @@ from robustff.tui.messages import (
 )
 from robustff.tui.models_pane import focus_label
 
-__all__ = ["UncertaintyPane", "UncertainRow"]
+__all__ = ["UncertaintyPane", "UncertainRow", "BOUNDED_KINDS"]
+
+#: Distributions with bounds of their own: a clip is refused for them, so none is offered.
+BOUNDED_KINDS = frozenset({"uniform", "relative", "triangular"})
 
 _HINTS = {
     "uniform": "low, high", "relative": "r (0.2 = +-20 %)", "normal": "mean, std",
@@ -35,6 +38,7 @@ class UncertainRow(Vertical):
         super().__init__(classes="urow", id=f"u-{field_id(row.key)}")
         self.key = row.key
         self.kind = row.distribution.kind
+        self.set_class(self.kind in BOUNDED_KINDS, "bounded")
         self.applied = (params_text(row.distribution), clip_text(row.distribution))
         self.description = _describe(case, row)
 
@@ -101,6 +105,7 @@ class UncertainRow(Vertical):
         row = next((r for r in case.uncertainty if r.key == self.key), None)
         if error is None and row is not None:
             self.kind = row.distribution.kind
+            self.set_class(self.kind in BOUNDED_KINDS, "bounded")
             self.applied = (params_text(row.distribution), clip_text(row.distribution))
             self.query_one(".uparams", Input).value = self.applied[0]
             self.query_one(".uparams", Input).placeholder = _HINTS[self.kind]

@@ -1,0 +1,75 @@
+"""At 80x24 nothing is clipped: the footer's words, the feedforward structure, the histogram's
+1.0 label; the caution folds to one sentence after the first results (F9 shows it in full);
+clip bounds are offered only on rows whose distribution accepts them."""
+
+from __future__ import annotations
+
+import asyncio
+import shutil
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from robustff import CAUTION
+from robustff.demo import demo_case_path
+
+textual = pytest.importorskip("textual")
+
+from studio_pilot import studio, wait_until  # noqa: E402
+from textual.widgets import Select  # noqa: E402
+
+from robustff.tui.charts import histogram_chart  # noqa: E402
+from robustff.tui.messages import field_id  # noqa: E402
+
+
+@pytest.fixture
+def case_file(tmp_path: Path) -> Path:
+    path = tmp_path / "heater.toml"
+    shutil.copy(demo_case_path("wash-water-heater"), path)
+    return path
+
+
+def test_nothing_is_clipped_at_80x24_and_the_caution_folds(case_file: Path,
+                                                           tmp_path: Path) -> None:
+    async def scenario() -> None:
+        app = studio(case_file, tmp_path / "cache")
+        async with app.run_test(size=(80, 24)) as pilot:
+            caution = app.query_one("#caution")
+            assert caution.region.height >= 5  # in full before the first results
+            await wait_until(pilot, lambda: app.results_version > 0, "first result")
+            await pilot.pause()
+            lines = app.screen_text().splitlines()
+            footer = lines[-1]
+            for word in ("Quit", "Help", "Save", "Export", "Undo", "Rerun", "Robust", "Fit"):
+                assert f" {word}" in footer, (word, footer)
+            assert caution.region.height <= 3  # a border line and the folded sentence
+            text = app.screen_text()
+            assert "model-based estimates" in text and "management-of-change" in text
+            await pilot.press("f9")
+            await pilot.pause()
+            assert caution.region.height >= 5
+            assert str(caution.render()) == f"⚠ {CAUTION}"
+            structure = app.query_one(f"#in-{field_id('feedforward.structure')}", Select)
+            structure.focus()
+            await pilot.pause()
+            assert structure.value == "lead-lag-delay"
+            assert "lead-lag-delay" in app.screen_text()  # shown uncut
+            clip = {row.key: row.query_one(".uclip").display
+                    for row in app.query(".urow")}
+            assert clip == {"process.gain": False, "process.time_constant": False,
+                            "process.dead_time": False, "disturbance.gain": True,
+                            "disturbance.time_constant": True, "sensor.time_constant": False}
+
+    asyncio.run(scenario())
+
+
+def test_the_histograms_one_label_is_never_cut() -> None:
+    # feedforward better on every plant: the 1.0 marker sits in the last column
+    ratio = np.random.default_rng(5).uniform(0.2, 0.99, size=400)
+    for width in (30, 36, 44):
+        lines = histogram_chart(ratio, width, 11).plain.splitlines()
+        ticks, legend = lines[-2], lines[-1]
+        assert "1.0" in ticks, (width, ticks)
+        assert len(ticks) <= width and len(legend) <= width
+        assert "better" in legend and "worse" in legend and legend.rstrip().endswith("▶")
