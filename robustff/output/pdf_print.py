@@ -71,9 +71,12 @@ def print_to_pdf(html_path: Path, pdf_path: Path, chromium: str | None = None,
     if executable is None:
         return PdfOutcome(None, NO_CHROMIUM.format(names=", ".join(CHROMIUM_NAMES)))
     with tempfile.TemporaryDirectory(prefix="robustff-chromium-") as profile:
+        # --no-sandbox: Chromium's sandbox refuses to start as root (CI runs as root); the page
+        # is our own file, without scripts, and nothing is fetched from a network.
         command = [
             executable, "--headless", "--disable-gpu", "--no-sandbox",
             "--no-first-run", "--no-default-browser-check", "--disable-extensions",
+            "--disable-background-networking", "--disable-component-update", "--disable-sync",
             f"--user-data-dir={profile}", "--no-pdf-header-footer",
             f"--print-to-pdf={pdf_path.resolve()}", html_path.resolve().as_uri(),
         ]
