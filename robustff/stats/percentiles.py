@@ -10,6 +10,7 @@ p-quantile is ``P(r <= B <= s - 1)`` with ``B ~ Binomial(n, p)`` for any continu
 from __future__ import annotations
 
 import functools
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 
@@ -142,29 +143,47 @@ def order_statistic_interval(n: int, p: float, confidence: float = 0.95) -> tupl
     return _interval_ranks(int(n), float(p), float(confidence))
 
 
+#: Above this sample size only ranks within ``_WINDOW_SD`` binomial standard deviations of
+#: ``n p`` are searched (see :func:`_interval_ranks`).
+_WINDOW_FROM = 20_000
+_WINDOW_SD = 40.0
+
+
 @functools.lru_cache(maxsize=512)
 def _interval_ranks(n: int, p: float, confidence: float) -> tuple[int, int, float]:
-    """:func:`order_statistic_interval` once its arguments are checked (remembered)."""
+    """:func:`order_statistic_interval` once its arguments are checked (remembered).
+
+    For large ``n`` the search runs over the ranks within 40 standard deviations of ``n p``
+    (the full range below ``_WINDOW_FROM``). The answer is the same: the binomial mass beyond
+    that window is far below the rounding of the coverage, so a pair reaching past it is
+    either short of the confidence or wider than the same pair cut at the window, and every
+    probability is the same ``bdtr`` value the full search would use.
+    """
     from scipy.special import bdtr
 
     if n < 2:
         return 0, 0, 0.0
-    k = np.arange(n + 1)
-    cdf = bdtr(k, n, p)  # cdf[j] = P(B <= j), j = 0..n
-    r = np.arange(1, n + 1)
-    below = np.where(r >= 1, cdf[r - 1], 0.0)  # P(B < r) = P(B <= r-1)
+    lo, hi = 0, n  # ranks j = lo..hi of cdf[j] = P(B <= j)
+    if n > _WINDOW_FROM:
+        centre, spread = n * p, math.sqrt(n * p * (1.0 - p))
+        lo = max(0, math.floor(centre - _WINDOW_SD * spread) - 1)
+        hi = min(n, math.ceil(centre + _WINDOW_SD * spread) + 1)
+    cdf = bdtr(np.arange(lo, hi + 1), n, p)  # cdf[j - lo] = P(B <= j)
+    r = np.arange(lo + 1, min(hi, n - 1) + 2)  # 1-based lower ranks, r - 1 within the window
+    below = cdf[r - 1 - lo]  # P(B < r) = P(B <= r-1)
     # smallest s-1 with cdf[s-1] >= confidence + below (tiny slack for rounding)
     idx = np.searchsorted(cdf, confidence + below - 1e-12, side="left")
-    s = idx + 1
-    valid = (s <= n) & (s > r)
+    s = lo + idx + 1
+    valid = (idx < cdf.size) & (s <= n) & (s > r)
     if not np.any(valid):
-        return 0, 0, float(cdf[n - 1] - cdf[0])
+        ends = bdtr(np.array([0, n - 1]), n, p)
+        return 0, 0, float(ends[1] - ends[0])
     r, s, below = r[valid], s[valid], below[valid]
     width = s - r
-    above = 1.0 - cdf[s - 1]
+    above = 1.0 - cdf[s - 1 - lo]
     order = np.lexsort((np.abs(below - above), width))
     best = order[0]
-    return int(r[best]), int(s[best]), float(cdf[s[best] - 1] - below[best])
+    return int(r[best]), int(s[best]), float(cdf[s[best] - 1 - lo] - below[best])
 
 
 def _estimate(

@@ -39,3 +39,17 @@ def test_bad_confidence_is_refused_even_after_a_good_call():
     order_statistic_interval(100, 0.5, 0.95)
     with pytest.raises(DataError, match="confidence"):
         order_statistic_interval(100, 0.5, 1.5)
+
+
+@pytest.mark.parametrize("n", [20_001, 250_000])
+@pytest.mark.parametrize("p", [0.0, 1e-4, 0.01, 0.05, 0.5, 0.95, 0.99, 1.0])
+@pytest.mark.parametrize("confidence", [0.5, 0.95, 0.999999])
+def test_large_samples_search_a_window_and_find_the_same_pair(
+    n: int, p: float, confidence: float, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from robustff.stats import percentiles
+
+    search = percentiles._interval_ranks.__wrapped__  # the search itself, not remembered
+    windowed = search(n, p, confidence)
+    monkeypatch.setattr(percentiles, "_WINDOW_FROM", 10**12)  # every rank 0..n
+    assert windowed == search(n, p, confidence)
