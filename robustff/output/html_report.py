@@ -231,10 +231,15 @@ def write_report_files(
     path.write_text(page, encoding="utf-8")
     files = ReportFiles(path, figures=[png for png, _ in images.values()])
     if workbook:
-        if openpyxl_available():
-            files.workbook = write_workbook(summary, percentiles, folder / "report.xlsx")
-        else:
+        if not openpyxl_available():
             files.notes.append(NO_OPENPYXL)
+        else:
+            try:
+                files.workbook = write_workbook(summary, percentiles, folder / "report.xlsx")
+            except Exception as exc:  # noqa: BLE001 - an optional file must not cost the run
+                (folder / "report.xlsx").unlink(missing_ok=True)
+                files.notes.append(f"report.xlsx not written: {type(exc).__name__}: {exc}; "
+                                   "the same numbers are in percentiles.csv and report.html")
     if pdf:
         outcome = print_to_pdf(path, folder / "report.pdf")
         files.pdf = outcome.path

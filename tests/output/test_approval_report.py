@@ -232,3 +232,22 @@ def test_warnings_added_after_the_judgement_reach_the_first_page(tmp_path):
                                workbook=False)
     first = text_of(files.html.read_text().split("</section>", 1)[0])
     assert "warning: an input filter of 2 s would halve the valve travel" in first
+
+
+def test_a_failing_workbook_costs_only_the_workbook(tmp_path, monkeypatch):
+    from robustff.case import load_case
+    from robustff.output import html_report
+    from robustff.study import run_study
+    from robustff.study.summary import summarize_study
+
+    def broken(*args, **kwargs):
+        raise ValueError("cannot store a control character")
+
+    monkeypatch.setattr(html_report, "openpyxl_available", lambda: True)
+    monkeypatch.setattr(html_report, "write_workbook", broken)
+    result = run_study(load_case(DEMO), samples=30, jobs=1, margins=False)
+    files = write_report_files(result, summarize_study(result), tmp_path, (5, 50, 95),
+                               pdf=False)
+    assert files.workbook is None and files.html.is_file()
+    assert files.notes == ["report.xlsx not written: ValueError: cannot store a control "
+                           "character; the same numbers are in percentiles.csv and report.html"]
