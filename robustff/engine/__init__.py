@@ -12,6 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.case import Case
+from robustff.design.margins import loop_margins
 from robustff.design.tuning import LoopDesign
 from robustff.engine.kernel import ACCUMULATOR_NAMES, N_ACCUMULATORS, simulate_kernel
 from robustff.engine.metrics import metrics_from_accumulators
@@ -263,9 +264,11 @@ def simulate(
         # reference, so the result is what a full run of this design gives.
         loop_unstable = reference.loop_unstable.copy()
         unstable[:, 0] = reference.unstable[:, 0]
-        unstable[:, 1] |= loop_unstable
         accumulators[:, 0] = reference.accumulators[:, 0]
-        accumulators[unstable[:, 1], 1] = np.nan
+    else:
+        loop_unstable = _confirmed_unstable(batch, design, scenario, loop_unstable)
+    unstable |= loop_unstable[:, None]
+    accumulators[unstable] = np.nan
     metrics = metrics_from_accumulators(accumulators, ACCUMULATOR_NAMES, scenario.setpoint_step,
                                         window=n_steps * scenario.step,
                                         cv_band=scenario.cv_band)
@@ -278,6 +281,26 @@ def simulate(
         accumulators,
         recorded if record_noise else None,
     )
+
+
+def _confirmed_unstable(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
+                        probe: np.ndarray) -> np.ndarray:
+    """The probe's unstable samples that the exact sampled loop confirms.
+
+    The probe judges on the window (its error still growing at the end); a stable loop still
+    recovering when the window ends (a very long integral time, a slow integrating loop) can
+    look the same. The loop as simulated (controller sampled at the scan, output held; see
+    :mod:`robustff.design.sampled_loop`) decides those samples. With a secondary loop, which
+    the margins leave out, the probe's verdict stands.
+    """
+    flagged = np.nonzero(probe)[0]
+    if flagged.size == 0 or batch.secondary_kind is not None:
+        return probe
+    stable = loop_margins(batch.subset(flagged), design.feedback,
+                          sample_time=scenario.step).stable
+    confirmed = probe.copy()
+    confirmed[flagged[np.asarray(stable, dtype=bool)]] = False
+    return confirmed
 
 
 def nominal_batch(case: Case, n: int = 1) -> PlantBatch:

@@ -450,12 +450,13 @@ def _envelope_bin(y: float, grid: BinGrid) -> int:
 def _finish(i: int, arm: int, a: Accumulators, last_outside: float, segment: float,
             alive: bool, probe: bool, t_end: float, mp: MetricParams,
             accumulators: np.ndarray, unstable: np.ndarray) -> None:
-    """Write one arm's accumulators (NaN when unstable) and its unstable flag.
+    """Write one arm's accumulators (NaN when the arm ran away) and whether it ran away.
 
-    Every column of :data:`ACCUMULATOR_NAMES` is written; only the slots named here are
-    rewritten, the others are the running value as it stands. ``last_outside`` and
-    ``segment`` (time units) are the arm's last time outside the band and the start of the
-    last event: the settling time is the longest over the events.
+    The stability probe's verdict is written apart (``loop_unstable``): the caller confirms it
+    and blanks the samples it keeps as unstable. Every column of :data:`ACCUMULATOR_NAMES` is
+    written; only the slots named here are rewritten, the others are the running value as it
+    stands. ``last_outside`` and ``segment`` (time units) are the arm's last time outside the
+    band and the start of the last event: the settling time is the longest over the events.
     """
     final = 0.0 if last_outside < 0.0 else min(last_outside + mp.h, t_end) - segment
     settling = max(a.settling_time, final)
@@ -465,8 +466,8 @@ def _finish(i: int, arm: int, a: Accumulators, last_outside: float, segment: flo
             value = settling
         elif q == OPPOSITE_EXCURSION:
             value = max(a.opposite_excursion, 0.0)
-        accumulators[i, arm, q] = value if alive and not probe else math.nan
-    unstable[i, arm] = probe or not alive
+        accumulators[i, arm, q] = value if alive else math.nan
+    unstable[i, arm] = not alive
 
 
 @njit(cache=True, nogil=True)

@@ -72,3 +72,21 @@ def test_filtered_disturbance_noise_starts_from_its_stationary_state():
     # stationary one; the standard error of a standard deviation from n draws is std/sqrt(2n).
     spread = cv[:, 1:50].std(axis=0)
     assert spread == pytest.approx(np.full(spread.size, std), rel=6.0 / np.sqrt(2 * n))
+
+
+def test_a_slow_integrating_loop_still_building_up_at_the_window_end_is_not_unstable():
+    # K e^{-theta s}/s (K = 0.01 per s) under PI Kc = 0.5, Ti = 1e5 s: gain margin about 139
+    # as sampled (the exact discrete loop, robustff.design.sampled_loop, checked against
+    # python-control in tests/design), but in a 400 s window the load response is still
+    # growing when the window ends, which the window test alone would call unstable.
+    feedback = FeedbackSpec(tuning="manual", kc=0.5, ti=1e5, output_low=-1e6, output_high=1e6,
+                            output_bias=0.0)
+    case = Case("slow", "s", Model("ipdt", 0.01, 0.0, 0.0, 2.0), Model("ipdt", 0.01, 0.0, 0.0,
+                2.0), feedback, FeedforwardSpec("none"), SimulationSpec(400.0, 0.5),
+                (Event("disturbance-step", 10.0, 1.0),))
+    design = design_loop(case)
+    margins = loop_margins(nominal_batch(case), design.feedback, sample_time=0.5)
+    assert bool(margins.stable[0]) and margins.gain_margin[0] > 100.0
+    result = simulate(nominal_batch(case, 3), design, build_scenario(case, design, 0.01))
+    assert not result.unstable.any() and not result.loop_unstable.any()
+    assert np.isfinite(result.metrics["iae"]).all()
