@@ -332,6 +332,7 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
         print(design_table_text(summary))
     print(risk_sentence(summary, "iae"))
     print(risk_sentence(summary, "peak_deviation"))
+    print(f"Where it helps: {summary['frequency']['words']} (frequency.csv)")
     print(
         f"Unstable samples: {summary['unstable']['fb']} feedback only, "
         f"{summary['unstable']['fbff']} with feedforward"

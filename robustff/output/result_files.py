@@ -27,6 +27,8 @@ from robustff.jsonvalues import json_safe
 from robustff.output.samples_file import sample_columns, samples_file_name, write_samples
 from robustff.output.samples_units import SAMPLES_UNITS_FILE, samples_units_csv
 from robustff.study import StudyResult
+from robustff.study.frequency import frequency_csv
+from robustff.study.summary import study_frequency
 from robustff.study.summary_types import ARMS, Summary, percentile_value
 
 __all__ = [
@@ -41,7 +43,7 @@ __all__ = [
 ]
 
 RESULT_FILES: tuple[str, ...] = ("summary.json", "percentiles.csv", "percentiles.md", "samples.csv",
-                                 SAMPLES_UNITS_FILE)
+                                 SAMPLES_UNITS_FILE, "frequency.csv")
 #: Written instead of ``samples.csv`` when asked for (``--samples-format npy``).
 OPTIONAL_RESULT_FILES: tuple[str, ...] = ("samples.npy",)
 _ARM_LABELS = {"fb": "feedback only", "fbff": "feedback + feedforward"}
@@ -211,6 +213,8 @@ def write_results(
         write_text_atomic(staging / "percentiles.md", percentiles_markdown(summary, percentiles))
         write_samples(staging, sample_columns(result), samples_format)
         write_text_atomic(staging / SAMPLES_UNITS_FILE, samples_units_csv(result, summary))
+        write_text_atomic(staging / "frequency.csv",
+                          frequency_csv(study_frequency(result), result.case.time_unit))
         if extra is not None:
             extra(staging)
         _replace_folder(staging, folder)

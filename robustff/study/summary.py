@@ -30,6 +30,7 @@ from robustff.stats import (
     summarize,
 )
 from robustff.stats.sensitivity import rank_sensitivity
+from robustff.study.frequency import FrequencyResult, frequency_study, frequency_summary
 from robustff.study.noise_travel import noise_travel_warning
 from robustff.study.provenance import not_settled, reproducibility
 from robustff.study.recommendation import recommend
@@ -53,6 +54,7 @@ from robustff.study.summary_types import (
 
 __all__ = [
     "summarize_study",
+    "study_frequency",
     "metric_unit",
     "nominal_margin_warnings",
     "HARM_METRICS",
@@ -259,6 +261,12 @@ def _convergence(result: StudyResult, harm_iae: HarmEstimate) -> Convergence:
     }
 
 
+def study_frequency(result: StudyResult) -> FrequencyResult:
+    """The error ratio of the study's feedforward over its sampled plants (frequency.csv)."""
+    batch = plant_batch(result.case, result.names, result.parameters)
+    return frequency_study(result.case, result.design, batch)
+
+
 def summarize_study(
     result: StudyResult,
     percentiles: Sequence[float] = DEFAULT_PERCENTILES,
@@ -330,6 +338,7 @@ def summarize_study(
         "not_settled": not_settled(result),
         "recommendation": cast(RecommendationDict, {}),  # judged below, on the summary itself
         "reproducibility": reproducibility(result, command_line),
+        "frequency": frequency_summary(study_frequency(result), result.case),
         "caution": CAUTION,
     }
     summary["recommendation"] = recommend(summary, result.case.recommendation)

@@ -55,6 +55,8 @@ __all__ = [
     "DesignVerdict",
     "Driver",
     "RecommendationDict",
+    "FrequencyDict",
+    "FrequencyRecordDict",
     "percentile_value",
 ]
 
@@ -401,6 +403,31 @@ class RecommendationDict(TypedDict):
     conditions: list[str]
 
 
+class FrequencyRecordDict(TypedDict):
+    """What share of a recorded disturbance trace's variance feedforward can act on."""
+
+    file: str  #: the record's file as written in the case
+    variance_share_below: float  #: % of the record's variance below the crossover (Welch)
+    std: float  #: standard deviation of the record, disturbance units
+    std_unit: str  #: the disturbance's unit
+
+
+class FrequencyDict(TypedDict):
+    """Where in frequency feedforward helps (see :mod:`robustff.study.frequency`)."""
+
+    disturbance: str  #: the measured disturbance's name
+    unit: str  #: unit of the frequencies, rad per time unit
+    plants: int  #: plants the bands are taken over
+    help_fraction: float  #: fraction of plants in which it must help (0.9)
+    crossover: float | None  #: rad/time unit: helps in help_fraction of plants below it
+    crossover_period: float | None  #: 2 pi / crossover, time units
+    helps_up_to_nyquist: bool  #: the crossover is the scan's Nyquist frequency
+    nyquist: float  #: pi / scan period, rad/time unit
+    lowest: float  #: lowest frequency examined, rad/time unit
+    record: FrequencyRecordDict | None  #: None without a recorded trace
+    words: str  #: the answer in one sentence
+
+
 class Summary(TypedDict):
     """The content of ``summary.json``.
 
@@ -436,6 +463,7 @@ class Summary(TypedDict):
     not_settled: NotSettled
     recommendation: RecommendationDict
     reproducibility: Reproducibility
+    frequency: FrequencyDict  #: where in frequency feedforward helps, and a record's share there
     caution: str
 
 

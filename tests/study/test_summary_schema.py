@@ -121,6 +121,10 @@ def test_a_summary_without_margins_validates() -> None:
         ("recommendation", "criteria", "max_harm"),
         ("recommendation", "designs", 0, "harm_ci95"),
         ("not_settled", "fbff"),
+        ("frequency",),
+        ("frequency", "crossover"),
+        ("metrics", "cv_std"),
+        ("units", "outside_band"),
     ],
 )
 def test_a_missing_required_key_fails(
@@ -156,6 +160,9 @@ def test_a_missing_required_key_fails(
         (("recommendation", "design"), 3),
         (("not_settled", "fb"), -1),
         (("margins", "ms", "p50_ci95"), [1.0]),
+        (("frequency", "crossover"), "0.1"),
+        (("frequency", "record"), "none"),
+        (("frequency", "helps_up_to_nyquist"), 0),
     ],
 )
 def test_a_wrong_type_fails(
@@ -240,6 +247,9 @@ def _margins_schema() -> dict[str, Any]:
          lambda: SCHEMA["properties"]["reproducibility"]["properties"]["correlations"]["items"]),
         (types.SamplingDict,
          lambda: SCHEMA["properties"]["reproducibility"]["properties"]["sampling"]),
+        (types.FrequencyDict, lambda: SCHEMA["$defs"]["frequency"]),
+        (types.FrequencyRecordDict,
+         lambda: SCHEMA["$defs"]["frequency"]["properties"]["record"]["oneOf"][1]),
     ],
 )
 def test_the_types_and_the_schema_name_the_same_keys(typed: type, schema: Any) -> None:
