@@ -40,7 +40,7 @@ from robustff.tui.messages import (
 )
 from robustff.tui.models_pane import FieldRow, ModelsPane
 from robustff.tui.pictures import PicturesPane
-from robustff.tui.results_pane import CautionLine, ResultsPane, StaleLine
+from robustff.tui.results_pane import STARTING, CautionLine, ResultsPane, StaleLine
 from robustff.tui.robust_actions import RobustActions
 from robustff.tui.uncertainty_pane import UncertainRow, UncertaintyPane
 from robustff.tui.undo import UndoActions
@@ -322,8 +322,7 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         self.run_failure = None
         self.refresh_staleness()
         results = self.query_one(ResultsPane)
-        results.show_status("Running a quick pass..." if self.results_version else
-                            "Starting: the first run loads the simulator (1-3 s)...")
+        results.show_status("Running a quick pass..." if self.results_version else STARTING)
         results.show_progress(0, self.case.study.samples)
         self._study(self.case, self._generation, self._cancel)
 

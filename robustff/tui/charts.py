@@ -29,8 +29,8 @@ def _fmt(value: float) -> str:
 
 
 #: The histogram's legend, longest first: the first that fits the width is drawn.
-_LEGENDS = ("◀ ff better   ┃ = 1.0 (no change)   ff worse ▶", "◀ ff better  ┃ = 1.0  ff worse ▶",
-            "◀ better ┃=1.0 worse ▶")
+_LEGENDS = ("◀ fbff better   ┃ = 1.0 (no change)   fbff worse ▶",
+            "◀ fbff better  ┃ = 1.0  fbff worse ▶", "◀ better ┃=1.0 worse ▶")
 
 
 def histogram_chart(ratio: np.ndarray, width: int, height: int) -> Text:
@@ -171,6 +171,6 @@ def band_chart(times: np.ndarray, bands: np.ndarray, width: int, height: int,
     text.append(" " * (_LABEL - 1) + "└" + "─" * columns + "\n")
     text.append(" " * _LABEL + "0" + end.rjust(columns - 1) + "\n")
     g = BAND_GLYPHS
-    text.append(f"{g['fb']} fb only  {g['fbff']} fb+ff  {g['both']} both  "
-                f"{g['fb_median']}/{g['fbff_median']} medians")
+    text.append(f"{g['fb']} fb  {g['fbff']} fbff  {g['both']} both  median: "
+                f"{g['fb_median']} fb, {g['fbff_median']} fbff")
     return text

@@ -18,12 +18,18 @@ robustff studio: edit the case on the left, the study reruns by itself on the ri
 Editing
   Tab / Shift+Tab   move between fields          Enter   apply the field (leaving it also applies)
   Up/Down, Enter    choose in a list              del     remove an uncertain parameter
+  Escape            leave the field               Ctrl+Z  undo the last applied edit (deletions too)
+  The focused field is in reverse video and its label carries ▸.
   Numbers: '-2.6, -1.0' (commas); a blank optional field lets the tuning rule decide.
-  A refused edit keeps your text and shows the reason (✗) under the field.
+  A refused edit keeps your text and shows the reason (✗) under the field; the results are
+  then marked STALE (dimmed, with the reason) until the field holds an accepted value.
+  ⚠ under a field or range: a warning of the case review (e.g. a nominal value outside its
+  uncertainty range; [fix range] widens or moves the range to the nominal).
 
 Runs
   Each edit cancels the running study and starts again: a quick pass of 500 plants first,
   then the case's sample count with a progress bar.   F5  rerun now
+  The first start on a machine compiles the simulator (about 10-30 s); later starts 1-3 s.
 
 Robust feedforward
   F6  search the feedforward gain factor, lead, lag and delay that stay good across the
@@ -39,16 +45,30 @@ Models from plant data
 
 Files
   Ctrl+S  save the case (atomic; comments kept where possible, else you are told)
-  F2      save as...         Ctrl+E  export results (same files as 'robustff run --out')
+  F2      save as... (a copy of the same document, comments kept)
+  Ctrl+E  export results (same files as 'robustff run --out'; complete runs only)
   Ctrl+R  reload from disk   Ctrl+Q  quit (asks first when there are unsaved edits)
   Edits are autosaved to a recovery file; the next start offers to restore them.
 
 Reading the results
-  fb = feedback only, fb+ff = with feedforward.  ▼ better / ▲ WORSE / = same compare medians.
-  Histogram: IAE of fb+ff divided by fb for each plant; ┃ marks 1.0 (right of it ff hurts).
-  Band plot: ░ fb only, ▒ fb+ff, ▓ both; o / x medians.
+  fb = feedback only, fbff = feedback with feedforward (the names of the result files).
+  verdict: ▼ better / ▲ WORSE / = same compare the medians of fbff against fb.
+  P(harm): the fraction of plants whose IAE is worse with feedforward (fbff IAE > fb IAE).
+  Unstable loops: plants whose closed loop is unstable, per arm.
+  Histogram: IAE of fbff divided by fb for each plant; ┃ marks 1.0 (right of it ff hurts).
+  Band plot: ░ fb, ▒ fbff, ▓ both; medians: o fb, x fbff.
+  The caution folds to one sentence after the first results; F9 shows it in full.
 
-F1 or ? opens this help; Escape closes it. Ctrl+P opens the command palette.
+Terms
+  tau_c  closed-loop time constant the tuning rule aims at (blank: the rule's default)
+  Kc, Ti, Td  controller gain, integral time, derivative time
+  Tt     anti-windup tracking time (back-calculation)
+  Ms     maximum sensitivity: the peak of |1/(1+L)|; above 2 the loop is poorly damped
+  GM, PM gain margin (ratio) and phase margin (degrees) of the feedback loop
+  CVaR90 mean IAE of the worst 10 % of plants
+  P5/P50/P95  percentiles over the simulated plants
+
+F1 or ? opens this help; Escape closes it. Ctrl+P opens the command palette (every action).
 """
 
 

@@ -21,7 +21,7 @@ FOCUS_MARK = "▸"
 
 def focus_label(label: str, focused: bool) -> str:
     """A row label with the focus marker, or the same width of blank in front."""
-    return f"{FOCUS_MARK if focused else ' '} {label}"
+    return f"{FOCUS_MARK if focused else ' '}{label}"
 
 _LABELS = {
     "gain": "gain K", "time_constant": "lag tau", "time_constant_2": "lag tau2",

@@ -31,11 +31,11 @@ def percentile_table(view: StudyView) -> Table:
     table.add_column("arm", no_wrap=True)
     for p in TABLE_PERCENTILES:
         table.add_column(f"P{p:g}", justify="right", no_wrap=True)
-    table.add_column("with ff", no_wrap=True)
+    table.add_column("verdict", no_wrap=True)
     for row in view.rows:
         table.add_row(Text(row.label), "fb", *map(_cell, row.fb), "")
         mark, style = MARKS[row.verdict]
-        table.add_row(Text(f" [{row.unit}]"), "+ff", *map(_cell, row.fbff), Text(mark, style))
+        table.add_row(Text(f" [{row.unit}]"), "fbff", *map(_cell, row.fbff), Text(mark, style))
     return table
 
 
@@ -43,27 +43,32 @@ def risk_text(view: StudyView) -> Text:
     """Probability that feedforward makes IAE worse, its 95 % interval, and unstable counts."""
     text = Text()
     if view.harm_probability is None:
-        text.append("P(feedforward worsens IAE): no usable samples\n")
+        text.append("P(harm) (fbff IAE > fb IAE): no usable samples\n")
     else:
         low, high = view.harm_interval
         p = 100 * view.harm_probability
         style = "bold red" if p >= 5.0 else ""
-        text.append("P(feedforward worsens IAE) = ")
+        text.append("P(harm) = ")
         text.append(f"{p:.1f} %", style)
-        text.append(f"  (95 % interval {100 * low:.1f}-{100 * high:.1f} %; "
-                    f"{view.harm_count} of {view.harm_n} plants)\n")
+        text.append(f" of plants have a worse IAE with feedforward (95 % interval "
+                    f"{100 * low:.1f}-{100 * high:.1f} %; {view.harm_count} of {view.harm_n})\n")
     warn = "  ⚠ check" if view.unstable_fb or view.unstable_fbff else ""
-    text.append(f"Unstable plants: fb {view.unstable_fb}, fb+ff {view.unstable_fbff}{warn}")
+    text.append(f"Unstable loops: fb {view.unstable_fb}, fbff {view.unstable_fbff}{warn}")
     for line in (*view.margin_lines, *view.driver_lines):
         text.append("\n" + line, "bold" if line.startswith("⚠") else "")
     return text
+
+
+#: Shown until the first run reports: the simulator is compiled on the first start on a machine.
+STARTING = ("Starting: loading the simulator. The first start on a machine compiles it "
+            "(about 10-30 s, the screen may not respond meanwhile); later starts take 1-3 s.")
 
 
 class ResultsPane(Vertical):
     """Shows the latest :class:`~robustff.tui.view.StudyView` the app hands down."""
 
     def compose(self) -> ComposeResult:
-        yield Static("Starting: the first run loads the simulator...", id="run-status")
+        yield Static(STARTING, id="run-status")
         yield ProgressBar(total=100, show_eta=False, id="run-progress")
         yield Static("", id="percentiles")
         yield Static("", id="risk")

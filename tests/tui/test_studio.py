@@ -88,7 +88,7 @@ def test_widening_disturbance_gain_raises_harm(case_file: Path, tmp_path: Path) 
             assert app.case.uncertainty[3].distribution.params == (-1.8, 0.8)
             assert after.samples == SAMPLES
             assert after.harm_probability > before + 0.05
-            assert "P(feedforward worsens IAE)" in app.screen_text()
+            assert "P(harm) = " in app.screen_text()
             assert app.dirty
 
     asyncio.run(scenario())
@@ -187,7 +187,7 @@ def test_screen_text_at_small_and_large_terminals(case_file: Path, tmp_path: Pat
                               "management-of-change", "P50", "better", "IAE"):
                     assert label in text, (size, label)
                 assert "…" not in text  # nothing truncated in the table
-            assert "P(feedforward worsens IAE)" in text and "▼ better" in text
+            assert "P(harm) = " in text and "▼ better" in text
             await pilot.press("f1")
             await pilot.pause()
             assert isinstance(app.screen, HelpScreen) and "Ctrl+S" in app.screen_text()
@@ -224,6 +224,7 @@ def test_robust_search_key_applies_the_searched_feedforward(
             assert isinstance(app.screen, ChoiceScreen) and "objective" in app.screen_text()
             await pilot.press("p")
             await _wait_screen(app, pilot, RobustResultScreen)
+            await pilot.pause()  # drawn once before its text is read
             result = app.screen.result
             assert result.objective == "p90" and result.samples == SAMPLES
             optimisation = result.figures["robust"]["optimisation"]

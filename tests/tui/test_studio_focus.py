@@ -53,18 +53,18 @@ def test_focus_shows_in_a_16_colour_terminal_without_colour(
             assert app.focused is gain
             assert _reverse(app, gain) and not _reverse(app, lag)
             text = app.screen_text()
-            assert f"{FOCUS_MARK} gain K" in _line_of(text, "gain K")
+            assert f"{FOCUS_MARK}gain K" in _line_of(text, "gain K")
             assert FOCUS_MARK not in _line_of(text, "lag tau")
             await pilot.press("tab")
             await pilot.pause()
             text = app.screen_text()
-            assert f"{FOCUS_MARK} lag tau" in text and f"{FOCUS_MARK} gain K" not in text
+            assert f"{FOCUS_MARK}lag tau" in text and f"{FOCUS_MARK}gain K" not in text
             assert _reverse(app, lag) and not _reverse(app, gain)
             form = app.query_one(f"#in-{field_id('feedback.form')}", Select)
             form.focus()
             await pilot.pause()
             assert _reverse(app, form.query_one("SelectCurrent"))
-            assert f"{FOCUS_MARK} form" in app.screen_text()
+            assert f"{FOCUS_MARK}form" in app.screen_text()
             results = app.query_one("#results-scroll")
             column = results.region.x
             assert all(line[column] == " " for line in app.screen_text().splitlines()[
