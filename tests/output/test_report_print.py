@@ -118,6 +118,25 @@ def test_pdf_size_pages_header_and_first_page(printed, paper):
     assert "common practice, not a standard" in first
 
 
+SECTIONS = ("Designs side by side", "Statistics", "Feedback stability margins", "Figures",
+            "The case as run", "Reproducibility")
+
+
+@pytest.mark.parametrize("paper", list(PAPERS))
+def test_each_section_starts_a_page(printed, paper):
+    _, _, files = printed
+    reader = pypdf.PdfReader(str(files[paper].pdf))
+    bodies = []
+    for number, page in enumerate(reader.pages, start=1):
+        text = page.extract_text()
+        # Header line(s), then "page N of M", then the page's own text.
+        bodies.append(text.split(f"page {number} of {len(reader.pages)}", 1)[1].strip())
+    for heading in SECTIONS:
+        starts = [n for n, body in enumerate(bodies, start=1) if body.startswith(heading)]
+        assert len(starts) == 1, f"{heading!r} does not start exactly one page"
+    assert bodies[0].startswith(files[paper].html.read_text().split("<h1>")[1][:20])
+
+
 @pytest.mark.parametrize("paper", list(PAPERS))
 def test_every_table_fits_the_page_width(printed, paper):
     _, _, files = printed
