@@ -172,14 +172,18 @@ def _timestamps(cells: Any, time_format: str | None) -> np.ndarray | None:
     import pandas as pd
 
     formats = [time_format] if time_format else ["ISO8601", *TIME_FORMATS]
+    stripped = cells.str.strip()
+    filled = int((stripped != "").sum())  # a format parsing all of these cannot be beaten
     best: Any = None
     for fmt in formats:
         try:
-            parsed = pd.to_datetime(cells.str.strip(), format=fmt, errors="coerce", utc=True)
+            parsed = pd.to_datetime(stripped, format=fmt, errors="coerce", utc=True)
         except (ValueError, TypeError):
             continue
         if best is None or parsed.notna().sum() > best.notna().sum():
             best = parsed
+        if int(best.notna().sum()) >= filled:
+            break
     if best is None or not best.notna().any():
         return None
     first = best[best.notna()].iloc[0]
