@@ -69,21 +69,36 @@ def _library_versions() -> dict[str, str]:
 
 def _models(case: Case) -> list[ModelParameterRow]:
     rows: list[ModelParameterRow] = []
-    for block, model in (("process", case.process), ("disturbance", case.disturbance)):
+    blocks = [("process", case.process), ("disturbance", case.disturbance)]
+    secondary = case.secondary
+    if secondary is not None:  # the flow loop's path: secondary output (%) -> flow
+        blocks.append(("secondary", secondary.model))
+    for block, model in blocks:
         rows.append({"key": f"{block}.model", "value": model.kind, "unit": ""})
         for name in MODEL_PARAMETERS[model.kind]:
             key = f"{block}.{name}"
             rows.append({"key": key, "value": float(getattr(model, name)),
                          "unit": case.parameter_unit(key)})
+    if secondary is not None:  # its PI controller, as the case gives it
+        flow = case.signals.output.unit or "output unit"  # the flow is the primary's output
+        units = {"closed_loop_time": case.time_unit, "kc": f"% per {flow}",
+                 "ti": case.time_unit, "output_low": "%", "output_high": "%",
+                 "output_bias": "%", "scans_per_primary": "-"}
+        rows.append({"key": "secondary.tuning", "value": secondary.tuning, "unit": ""})
+        for name, unit in units.items():
+            value = getattr(secondary, name)
+            if value is not None:
+                rows.append({"key": f"secondary.{name}", "value": float(value), "unit": unit})
     for name, value in asdict(case.sensor).items():
         if isinstance(value, int | float) and not isinstance(value, bool):
             key = f"sensor.{name}"
             rows.append({"key": key, "value": float(value), "unit": case.parameter_unit(key)})
-    valve = getattr(case, "valve", None)  # the installed valve, where the case has one
-    if valve is not None:
-        for name, value in asdict(valve).items():
-            if isinstance(value, int | float) and not isinstance(value, bool):
-                key = f"valve.{name}"
+    if case.valve is not None:  # the installed valve, where the case has one
+        for name, value in asdict(case.valve).items():
+            key = f"valve.{name}"
+            if isinstance(value, str):
+                rows.append({"key": key, "value": value, "unit": ""})
+            elif isinstance(value, int | float) and not isinstance(value, bool):
                 rows.append({"key": key, "value": float(value),
                              "unit": case.parameter_unit(key)})
     return rows

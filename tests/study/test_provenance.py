@@ -78,3 +78,17 @@ def test_not_settled_counts_responses_cut_off_by_the_window():
     assert counts == {"fb": 12, "fbff": 12, "window_after_last_event": 5.0}
     early = not_settled(_study_of(MINIMAL))
     assert early["fb"] == 0 and early["window_after_last_event"] == 95.0
+
+
+def test_valve_and_secondary_loop_are_listed_with_units():
+    case_path = DEMO.with_name("steam-heater-sticky-valve.toml")
+    result = run_study(load_case(case_path), samples=10, seed=1, jobs=1, margins=False)
+    rows = {row["key"]: (row["value"], row["unit"])
+            for row in reproducibility(result)["models"]}
+    # The values of the case file's [valve] and [secondary] tables, with their units.
+    assert rows["valve.characteristic"] == ("equal-percentage", "")
+    assert rows["valve.stiction_s"] == (3.0, "%") and rows["valve.rate_limit"] == (10.0, "%/s")
+    assert rows["secondary.gain"] == (8.0, "kg/h per % of secondary output")
+    assert rows["secondary.time_constant"] == (2.0, "s")
+    assert rows["secondary.scans_per_primary"] == (4.0, "-")
+    assert rows["secondary.tuning"] == ("simc", "")
