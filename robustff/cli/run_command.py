@@ -333,6 +333,11 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
     print(risk_sentence(summary, "iae"))
     print(risk_sentence(summary, "peak_deviation"))
     print(f"Where it helps: {summary['frequency']['words']} (frequency.csv)")
+    from robustff.output.record_headline import record_headline
+
+    headline = record_headline(summary, case)
+    if headline:
+        print(headline)
     print(
         f"Unstable samples: {summary['unstable']['fb']} feedback only, "
         f"{summary['unstable']['fbff']} with feedforward"
