@@ -9,7 +9,8 @@ compared with the case; if that fails the canonical form is written instead (wit
 
 from __future__ import annotations
 
-from dataclasses import asdict, fields
+import os
+from dataclasses import asdict, fields, replace
 from pathlib import Path
 from typing import Any
 
@@ -79,6 +80,7 @@ def save_case(case: Case, path: str | Path, original_text: str | None = None) ->
         If the case is not valid (it would not load again) or the file cannot be written.
     """
     path = Path(path)
+    case = _records_from(case, path.parent)
     text, warnings = _render(case, original_text)
     # refuses to write a case that would not load (record files are read from the case's folder)
     reread = parse_case(text, source=str(path), base_dir=_record_folder(case, path))
@@ -114,9 +116,32 @@ def _render(case: Case, original_text: str | None) -> tuple[str, list[str]]:
 
 def _record_folder(case: Case, path: Path | None = None) -> Path | None:
     """Folder the case's relative record files were read from (that of its source file)."""
+    for event in case.events:
+        record = event.record
+        if record is not None and not Path(record.spec.file).is_absolute():
+            # record.path is that folder / spec.file, as the loader joined them
+            return record.path.parents[len(Path(record.spec.file).parts) - 1]
     if case.source_path is not None:
         return case.source_path.parent
     return None if path is None else path.parent
+
+
+def _records_from(case: Case, folder: Path) -> Case:
+    """The case with relative record files named from ``folder`` (where it is being saved).
+
+    Saving a case into another folder keeps its records readable: a relative ``file`` that
+    would not lead from there to the file read is rewritten relative to the new folder.
+    """
+    events = []
+    for event in case.events:
+        record = event.record
+        if (record is not None and not Path(record.spec.file).is_absolute()
+                and (folder / record.spec.file).resolve() != record.path.resolve()):
+            file = Path(os.path.relpath(record.path.resolve(), folder.resolve())).as_posix()
+            record = replace(record, spec=replace(record.spec, file=file), path=folder / file)
+            event = replace(event, record=record)
+        events.append(event)
+    return replace(case, events=tuple(events))
 
 
 def _reads_back(text: str, case: Case) -> bool:

@@ -144,3 +144,17 @@ def test_save_and_reload_keeps_the_record_keys_and_the_file_relative(tmp_path: P
     np.testing.assert_array_equal(again.events[0].record.values, case.events[0].record.values)
     # the text form reads a relative file from the folder it is given
     assert parse_case(text, base_dir=tmp_path).events == case.events
+
+
+def test_saving_into_another_folder_keeps_the_record_readable(tmp_path: Path) -> None:
+    case = load_case(write_case(tmp_path, PLAIN))
+    elsewhere = tmp_path / "copies" / "2026"
+    elsewhere.mkdir(parents=True)
+    target = elsewhere / "tank.toml"
+    save_case(case, target, (tmp_path / "tank.toml").read_text(encoding="utf-8"))
+    assert 'file = "../../feed.csv"' in target.read_text(encoding="utf-8")
+    copy = load_case(target)
+    np.testing.assert_array_equal(copy.events[0].record.values, case.events[0].record.values)
+    # saved back beside its record, the file is named as before
+    save_case(copy, tmp_path / "again.toml")
+    assert 'file = "feed.csv"' in (tmp_path / "again.toml").read_text(encoding="utf-8")
