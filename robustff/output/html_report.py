@@ -84,7 +84,9 @@ pre { white-space: pre-wrap; overflow-wrap: anywhere; font-size: 7.5pt; backgrou
 figure { margin: 0.3rem 0; break-inside: avoid; }
 figure img { width: 100%%; height: auto; }
 figcaption { font-size: 8pt; }
-.running { display: none; }
+.first p, .first li { font-size: 9pt; }
+.first .answer { font-size: 12.5pt; }
+.first h3 { margin-top: 0.4rem; }
 @page {
   size: %(paper)s;
   margin: 16mm %(margin)smm 14mm %(margin)smm;
@@ -96,7 +98,6 @@ figcaption { font-size: 8pt; }
   body { max-width: none; margin: 0; }
   section { break-before: page; }
   section.first { break-before: auto; }
-  .running { display: block; font-size: 7pt; color: #333; }
 }
 """
 
