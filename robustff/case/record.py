@@ -86,6 +86,13 @@ class DisturbanceRecord:
     notes: tuple[str, ...] = ()
 
     @property
+    def folder(self) -> Path | None:
+        """The folder a relative ``spec.file`` was read from (None for an absolute one)."""
+        if Path(self.spec.file).is_absolute():
+            return None
+        return self.path.parents[len(Path(self.spec.file).parts) - 1]  # path = folder / file
+
+    @property
     def length(self) -> float:
         """Time from the first to the last row, case time units."""
         return float(self.times[-1] - self.times[0])

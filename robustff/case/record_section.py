@@ -14,10 +14,11 @@ from robustff.case.record import (
     RecordSpec,
     read_disturbance_record,
 )
-from robustff.case.schema import Event, SimulationSpec
+from robustff.case.schema import Case, Event, SimulationSpec
 from robustff.errors import DataError
 
-__all__ = ["RECORD_KEYS", "read_record_event", "records_cover", "has_record_events"]
+__all__ = ["RECORD_KEYS", "read_record_event", "records_cover", "has_record_events",
+           "records_folder"]
 
 #: Keys of a ``disturbance-record`` event.
 RECORD_KEYS: tuple[str, ...] = ("kind", "at", "file", "time_column", "value_column",
@@ -98,3 +99,14 @@ def records_cover(problems: Problems, simulation: SimulationSpec,
                      f"{max_steps:,} are allowed (use a longer step, or give a shorter duration)")
         return None
     return replace(simulation, duration=duration)
+
+
+def records_folder(case: Case) -> Path | None:
+    """The folder the case's relative record files were read from, else its file's folder.
+
+    Reading the case's text again with this ``base_dir`` finds the same record files.
+    """
+    for event in case.events:
+        if event.record is not None and event.record.folder is not None:
+            return event.record.folder
+    return case.source_path.parent if case.source_path is not None else None

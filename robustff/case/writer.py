@@ -20,6 +20,7 @@ from tomlkit.items import AoT, InlineTable, Item, Table
 
 from robustff.atomic import write_text_atomic
 from robustff.case.loader import parse_case
+from robustff.case.record_section import records_folder
 from robustff.case.schema import (
     DISTRIBUTION_KINDS,
     Case,
@@ -115,15 +116,9 @@ def _render(case: Case, original_text: str | None) -> tuple[str, list[str]]:
 
 
 def _record_folder(case: Case, path: Path | None = None) -> Path | None:
-    """Folder the case's relative record files were read from (that of its source file)."""
-    for event in case.events:
-        record = event.record
-        if record is not None and not Path(record.spec.file).is_absolute():
-            # record.path is that folder / spec.file, as the loader joined them
-            return record.path.parents[len(Path(record.spec.file).parts) - 1]
-    if case.source_path is not None:
-        return case.source_path.parent
-    return None if path is None else path.parent
+    """Folder the case's relative record files were read from (else its file's, or ``path``'s)."""
+    folder = records_folder(case)
+    return folder if folder is not None or path is None else path.parent
 
 
 def _records_from(case: Case, folder: Path) -> Case:

@@ -19,6 +19,7 @@ from robustff.case import (
     case_to_toml,
     parse_case,
 )
+from robustff.case.record_section import records_folder
 from robustff.errors import CaseError
 from robustff.plant.models import MODEL_PARAMETERS, SENSOR_PARAMETERS
 
@@ -78,7 +79,9 @@ def validated(case: Case) -> Case:
         text = case_to_toml(case)
     except (TypeError, ValueError) as exc:  # a value the writer cannot express
         raise CaseError(f"{EDIT_SOURCE}: {exc}") from None
-    return replace(parse_case(text, source=EDIT_SOURCE), source_path=case.source_path)
+    # the record files are found where the case's records were read from
+    return replace(parse_case(text, source=EDIT_SOURCE, base_dir=records_folder(case)),
+                   source_path=case.source_path)
 
 
 def _number(field: str, text: str, optional: bool) -> float | None:

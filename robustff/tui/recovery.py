@@ -107,7 +107,8 @@ def read_recovery(path: Path, case_path: Path) -> Recovery | None:
     first, _, body = raw.partition("\n")
     text = body if first.startswith(_MARK) else raw
     try:
-        case = parse_case(text, source=str(path))
+        # record files are named relative to the case file, not to the recovery file
+        case = parse_case(text, source=str(path), base_dir=Path(case_path).parent)
     except CaseError:
         return None
     return Recovery(path, replace(case, source_path=Path(case_path)), text, saved_at)

@@ -158,3 +158,15 @@ def test_saving_into_another_folder_keeps_the_record_readable(tmp_path: Path) ->
     # saved back beside its record, the file is named as before
     save_case(copy, tmp_path / "again.toml")
     assert 'file = "feed.csv"' in (tmp_path / "again.toml").read_text(encoding="utf-8")
+
+
+def test_the_text_of_a_case_reads_back_from_the_folder_its_records_came_from(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    from robustff.case import case_to_toml
+    from robustff.case.record_section import records_folder
+
+    case = load_case(write_case(tmp_path, PLAIN))
+    assert case.events[0].record.folder == tmp_path
+    monkeypatch.chdir(tmp_path.parent)  # elsewhere: the working folder does not help
+    again = parse_case(case_to_toml(case), source="edit", base_dir=records_folder(case))
+    assert again.events == case.events
