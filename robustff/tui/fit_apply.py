@@ -196,8 +196,8 @@ def csv_columns(path: Path) -> list[str] | None:
 
 
 def _rounded(value: float) -> float:
-    """Six significant digits, as ``robustff fit --json`` prints them."""
-    return float(f"{value:.6g}")
+    """Four significant digits: what is written into the case (the fit is not more precise)."""
+    return float(f"{value:.4g}")
 
 
 def converted_model(model: TransferModel, data_unit: str | None,
@@ -216,7 +216,8 @@ def converted_model(model: TransferModel, data_unit: str | None,
     Returns
     -------
     (TransferModel, str)
-        Times (and an IPDT slope gain, per time unit) converted; values to six significant digits.
+        Times (and an IPDT slope gain, per time unit) converted; values to four significant
+        digits (what an engineer writes in a case file; the fit's intervals are far wider).
     """
     from robustff.fit.write_case import time_factor
 

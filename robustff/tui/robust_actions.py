@@ -137,7 +137,13 @@ class RobustActions(StudioHost):
         if result.samples < case.study.samples:
             note = (f"Searched on {result.samples} of the case's {case.study.samples} plants "
                     "(quicker; 'robustff tune' uses all). ")
-        self.push_screen(RobustResultScreen(result, case.time_unit, note),
+        from robustff.engine.metrics import METRIC_UNITS
+
+        signals = case.signals
+        iae_unit = METRIC_UNITS["iae"].format(cv=signals.controlled.unit or "CV",
+                                              u=signals.output.unit or "output",
+                                              t=case.time_unit)
+        self.push_screen(RobustResultScreen(result, case.time_unit, note, iae_unit),
                          lambda apply: self._apply_robust(case, result) if apply else None)
 
     def _apply_robust(self, searched: Case, result: RobustResult) -> None:

@@ -48,7 +48,7 @@ def searched_values(result: RobustResult) -> dict[str, float]:
     return {name: float(getattr(result.robust, name)) for name in result.space.names}
 
 
-def comparison_table(result: RobustResult, time_unit: str) -> Table:
+def comparison_table(result: RobustResult, time_unit: str, iae_unit: str) -> Table:
     """Nominal against robust: settings, P90 IAE on both sample sets, probability of harm.
 
     Parameters
@@ -56,6 +56,8 @@ def comparison_table(result: RobustResult, time_unit: str) -> Table:
     result : robustff.tune.search.RobustResult
     time_unit : str
         The case's time unit (lead, lag and delay).
+    iae_unit : str
+        Unit of IAE for the case, e.g. ``degC*s``.
     """
     table = Table(box=None, padding=(0, 2, 0, 0), show_edge=False, header_style="bold")
     table.add_column("", no_wrap=True)
@@ -69,13 +71,14 @@ def comparison_table(result: RobustResult, time_unit: str) -> Table:
                       _number(getattr(result.robust, name)))
     nominal, robust = result.figures["nominal"], result.figures["robust"]
     for key, label in (("optimisation", "optimisation"), ("fresh", "fresh")):
-        table.add_row(f"P90 IAE, {label} samples", _number(nominal[key].iae_p90),
+        table.add_row(Text(f"P90 IAE, {label} samples [{iae_unit}]"),
+                      _number(nominal[key].iae_p90),
                       _number(robust[key].iae_p90))
     for key, label in (("optimisation", "optimisation"), ("fresh", "fresh")):
         table.add_row(f"P(harm), {label}", f"{100 * nominal[key].harm:.1f} %",
                       f"{100 * robust[key].harm:.1f} %")
     if result.objective == "cvar":  # p90 and harm are rows above already
-        table.add_row("CVaR90 IAE, fresh", _number(nominal["fresh"].objective),
+        table.add_row(Text(f"CVaR90 IAE, fresh [{iae_unit}]"), _number(nominal["fresh"].objective),
                       _number(result.objective_fresh))
     return table
 
@@ -123,10 +126,12 @@ class RobustResultScreen(ModalScreen[bool]):
 
     BINDINGS = [Binding("a", "apply", "Apply"), Binding("escape,k", "keep", "Keep current")]
 
-    def __init__(self, result: RobustResult, time_unit: str, note: str) -> None:
+    def __init__(self, result: RobustResult, time_unit: str, note: str,
+                 iae_unit: str = "IAE units") -> None:
         super().__init__()
         self.result = result
         self.time_unit = time_unit
+        self.iae_unit = iae_unit
         self.note = note
 
     def compose(self) -> ComposeResult:
@@ -138,8 +143,10 @@ class RobustResultScreen(ModalScreen[bool]):
             with VerticalScroll(id="robust-body"):
                 yield Static(head, classes="question")
                 # the verdict first: at 24 rows the table below may need scrolling
-                yield Static(_recommendation(result), classes="hint", id="robust-verdict")
-                yield Static(comparison_table(result, self.time_unit), id="robust-table")
+                yield Static(_recommendation(result, self.iae_unit), classes="hint",
+                             id="robust-verdict")
+                yield Static(comparison_table(result, self.time_unit, self.iae_unit),
+                             id="robust-table")
                 yield Static(f"{self.note}Optimisation figures flatter the winner (chosen on "
                              "those plants); compare the fresh ones.", classes="hint")
             yield Static(f"⚠ {CAUTION}", id="robust-caution")
@@ -157,11 +164,15 @@ class RobustResultScreen(ModalScreen[bool]):
         self.dismiss(False)
 
 
-def _recommendation(result: RobustResult) -> str:
+def _recommendation(result: RobustResult, iae_unit: str) -> str:
     """Whether the winner beats the nominal design by more than Monte Carlo noise."""
     low, high = result.improvement_interval
+    if result.objective == "harm":  # a difference of probabilities
+        interval = f"{100 * low:.3g} to {100 * high:.3g} percentage points of P(harm)"
+    else:
+        interval = f"{low:.3g} to {high:.3g} {iae_unit}"
     if result.recommended == "robust":
         return (f"Verdict: the improvement is clear of Monte Carlo noise (90 % bootstrap interval "
-                f"{low:.3g} to {high:.3g}); applying it is reasonable.")
+                f"{interval}); applying it is reasonable.")
     return (f"Verdict: the improvement is within Monte Carlo noise (90 % bootstrap interval "
-            f"{low:.3g} to {high:.3g}); keeping the current design is as good.")
+            f"{interval}); keeping the current design is as good.")

@@ -119,7 +119,7 @@ class UncertainRow(Vertical):
 def _describe(case: Case, row: UncertainParameter) -> str:
     from robustff.case.sampling import describe_distribution
 
-    return describe_distribution(row, case.nominal_value(row.key))
+    return describe_distribution(row, case.nominal_value(row.key), case.parameter_unit(row.key))
 
 
 class UncertaintyPane(Vertical):

@@ -234,6 +234,9 @@ def test_robust_search_key_applies_the_searched_feedforward(
                           "P90 IAE, fresh samples", "P(harm), fresh", "apply"):
                 assert label in text, label
             assert f"{result.figures['robust']['fresh'].iae_p90:.4g}" in text
+            assert "P90 IAE, fresh samples [degC*s]" in text  # units on the P90 rows
+            verdict = str(app.screen.query_one("#robust-verdict").render())
+            assert "bootstrap interval" in verdict and "degC*s" in verdict
             before, version = app.case.feedforward, app.results_version
             await pilot.press("a")
             await _wait_results(app, pilot, version)

@@ -1,0 +1,52 @@
+"""One name for one thing, as in the result files and the CLI (fb and fbff arms, P(harm),
+unstable loops), and units on the values shown."""
+
+from __future__ import annotations
+
+import asyncio
+import shutil
+from pathlib import Path
+
+import pytest
+
+from robustff.demo import demo_case_path
+
+textual = pytest.importorskip("textual")
+
+from studio_pilot import studio, wait_until  # noqa: E402
+
+from robustff.tui.dialogs import HELP_TEXT  # noqa: E402
+from robustff.tui.messages import field_id  # noqa: E402
+
+
+@pytest.fixture
+def case_file(tmp_path: Path) -> Path:
+    path = tmp_path / "heater.toml"
+    shutil.copy(demo_case_path("wash-water-heater"), path)
+    return path
+
+
+def test_one_name_each_and_units_on_the_main_screen(case_file: Path, tmp_path: Path) -> None:
+    async def scenario() -> None:
+        app = studio(case_file, tmp_path / "cache")
+        async with app.run_test(size=(160, 90)) as pilot:  # everything on one screen
+            await wait_until(pilot, lambda: app.results_version > 0, "first result")
+            await pilot.pause()
+            text = app.screen_text()
+            for old in ("+ff", "fb+ff", "with ff", "P(feedforward", "Unstable plants"):
+                assert old not in text, old
+            for word in ("fbff", "P(harm) = ", "Unstable loops: fb 0, fbff 0",
+                         "median: o fb, x fbff", "IAE ratio fbff/fb"):
+                assert word in text, word
+            row = app.query_one(f"#u-{field_id('process.time_constant')}")
+            assert str(row.query_one(".udesc").render()) == "uniform 35 .. 60 s"
+            row = app.query_one(f"#u-{field_id('disturbance.gain')}")
+            assert "mean -1.8 degC per m3/h" in str(row.query_one(".udesc").render())
+
+    asyncio.run(scenario())
+
+
+def test_help_explains_the_terms_shown() -> None:
+    for term in ("tau_c ", "Tt ", "Ms ", "CVaR90 ", "P(harm):", "fbff = feedback with feedforward",
+                 "Ctrl+Z", "F9"):
+        assert term in HELP_TEXT, term
