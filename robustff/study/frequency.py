@@ -36,7 +36,7 @@ from robustff.plant.kinds import model_kind
 from robustff.plant.models import PlantBatch
 from robustff.study.summary_types import FrequencyDict, FrequencyRecordDict
 
-__all__ = ["HELP_FRACTION", "FREQUENCY_POINTS", "FrequencyResult", "frequency_study",
+__all__ = ["HELP_FRACTION", "FREQUENCY_POINTS", "MAX_PLANTS", "FrequencyResult", "frequency_study",
            "sampled_path", "compensator_response", "error_ratio", "variance_share_below",
            "frequency_csv", "frequency_summary"]
 
@@ -44,6 +44,10 @@ __all__ = ["HELP_FRACTION", "FREQUENCY_POINTS", "FrequencyResult", "frequency_st
 HELP_FRACTION = 0.9
 #: Points of the logarithmic frequency grid.
 FREQUENCY_POINTS = 160
+#: Plants the bands are taken over at most (the study's first ones): P5 and P95 of 5000 plants
+#: are within a fraction of a percentile of the whole population's, and memory stays
+#: MAX_PLANTS x FREQUENCY_POINTS numbers however large the study.
+MAX_PLANTS = 5000
 _CHUNK = 2000  # plants per block (memory: CHUNK x FREQUENCY_POINTS complex numbers)
 
 

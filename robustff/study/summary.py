@@ -30,7 +30,12 @@ from robustff.stats import (
     summarize,
 )
 from robustff.stats.sensitivity import rank_sensitivity
-from robustff.study.frequency import FrequencyResult, frequency_study, frequency_summary
+from robustff.study.frequency import (
+    MAX_PLANTS,
+    FrequencyResult,
+    frequency_study,
+    frequency_summary,
+)
 from robustff.study.noise_travel import noise_travel_warning
 from robustff.study.provenance import not_settled, reproducibility
 from robustff.study.recommendation import recommend
@@ -262,8 +267,9 @@ def _convergence(result: StudyResult, harm_iae: HarmEstimate) -> Convergence:
 
 
 def study_frequency(result: StudyResult) -> FrequencyResult:
-    """The error ratio of the study's feedforward over its sampled plants (frequency.csv)."""
-    batch = plant_batch(result.case, result.names, result.parameters)
+    """The error ratio of the study's feedforward over its first sampled plants (at most
+    :data:`robustff.study.frequency.MAX_PLANTS`; the bands of frequency.csv)."""
+    batch = plant_batch(result.case, result.names, result.parameters[:MAX_PLANTS])
     return frequency_study(result.case, result.design, batch)
 
 

@@ -217,3 +217,24 @@ value_column = "FI3107_m3h"
     assert rows[0].startswith("omega [rad/s],frequency [1/s],period [s]")
     assert len(rows) == 1 + 160
     assert summary["units"]["cv_std"] == "degC" and summary["units"]["outside_band"] == "%"
+
+
+def test_a_large_study_takes_the_bands_over_its_first_plants_only() -> None:
+    # memory stays MAX_PLANTS x FREQUENCY_POINTS numbers however many plants the study has
+    from types import SimpleNamespace
+
+    from robustff.study.frequency import FREQUENCY_POINTS, MAX_PLANTS
+    from robustff.study.summary import study_frequency
+
+    case = heater(0.5)
+    n = MAX_PLANTS + 1500
+    rng = np.random.default_rng(3)
+    gains = rng.uniform(0.45, 0.75, n)
+    result = SimpleNamespace(case=case, design=design_loop(case), names=["process.gain"],
+                             parameters=gains[:, None])
+    frequency = study_frequency(result)
+    assert frequency.plants == MAX_PLANTS and frequency.omega.size == FREQUENCY_POINTS
+    batch = nominal_batch(case, MAX_PLANTS)
+    batch.set_parameter("process.gain", gains[:MAX_PLANTS])
+    direct = frequency_study(case, result.design, batch)
+    np.testing.assert_array_equal(frequency.bands["p90"], direct.bands["p90"])
