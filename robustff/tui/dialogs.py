@@ -8,9 +8,9 @@ from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.markup import escape
 from textual.screen import ModalScreen
-from textual.widgets import Button, Input, Static
+from textual.widgets import Button, Input, OptionList, Static
 
-__all__ = ["HelpScreen", "ChoiceScreen", "PathScreen", "HELP_TEXT"]
+__all__ = ["HelpScreen", "ChoiceScreen", "PathScreen", "ListScreen", "HELP_TEXT"]
 
 HELP_TEXT = """\
 robustff studio: edit the case on the left, the study reruns by itself on the right.
@@ -133,6 +133,35 @@ class PathScreen(ModalScreen[str | None]):
     def on_input_submitted(self, event: Input.Submitted) -> None:
         event.stop()
         self.dismiss(event.value.strip() or None)
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)
+
+
+class ListScreen(ModalScreen[str | None]):
+    """Choose one of a list (Up/Down and Enter, or a click); Escape cancels.
+
+    A dialog of its own rather than a drop-down, so the whole list is shown in the middle of
+    the screen wherever the control that opened it sits (a drop-down at the bottom of a pane
+    would open as one line over the footer).
+    """
+
+    BINDINGS = [Binding("escape", "cancel", "Cancel")]
+
+    def __init__(self, title: str, choices: list[str]) -> None:
+        super().__init__()
+        self.title_text = title
+        self.choices = choices
+
+    def compose(self) -> ComposeResult:
+        with Vertical(classes="dialog", id="list-dialog"):
+            yield Static(self.title_text, classes="question")
+            yield OptionList(*[escape(choice) for choice in self.choices], id="list-options")
+            yield Static("Up/Down, Enter: choose   Escape: cancel", classes="hint")
+
+    def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
+        event.stop()
+        self.dismiss(self.choices[event.option_index])
 
     def action_cancel(self) -> None:
         self.dismiss(None)

@@ -9,6 +9,7 @@ from textual.containers import Horizontal, Vertical
 from textual.widgets import Button, Input, Label, Select, Static
 
 from robustff.case import DISTRIBUTION_KINDS, Case, UncertainParameter
+from robustff.tui.dialogs import ListScreen
 from robustff.tui.editing import clip_text, params_text, uncertain_candidates
 from robustff.tui.messages import (
     DistributionEdited,
@@ -133,20 +134,22 @@ class UncertaintyPane(Vertical):
         yield Static(f"Uncertainty ({len(self.case.uncertainty)} parameters)", classes="section")
         for row in self.case.uncertainty:
             yield UncertainRow(self.case, row)
-        candidates = uncertain_candidates(self.case)
-        if candidates:
+        if uncertain_candidates(self.case):
             with Horizontal(classes="uline", id="add-line"):
-                yield Select([(k, k) for k in candidates], value=candidates[0], compact=True,
-                             allow_blank=False, id="add-key")
-                yield Button("add", compact=True, id="add-row")
+                yield Button("add an uncertain parameter...", compact=True, id="add-row")
         yield Static("", classes="error", id="table-error")
 
     def on_button_pressed(self, event: Button.Pressed) -> None:
         if event.button.id == "add-row":
             event.stop()
-            value = self.query_one("#add-key", Select).value
-            if isinstance(value, str):
-                self.post_message(RowAdded(value))
+            candidates = uncertain_candidates(self.case)
+
+            def chosen(key: str | None) -> None:
+                if key is not None:
+                    self.post_message(RowAdded(key))
+
+            self.app.push_screen(ListScreen("Make a plant parameter uncertain:", candidates),
+                                 chosen)
 
     def row(self, key: str) -> UncertainRow:
         """The row of uncertain parameter ``key``."""

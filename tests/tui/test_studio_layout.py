@@ -73,3 +73,36 @@ def test_the_histograms_one_label_is_never_cut() -> None:
         assert "1.0" in ticks, (width, ticks)
         assert len(ticks) <= width and len(legend) <= width
         assert "better" in legend and "worse" in legend and legend.rstrip().endswith("▶")
+
+
+def test_adding_a_parameter_lists_every_candidate_in_a_dialog(case_file: Path,
+                                                                tmp_path: Path) -> None:
+    from studio_pilot import burst, keys_handled
+    from textual.widgets import Button, OptionList
+
+    from robustff.tui.dialogs import ListScreen
+    from robustff.tui.editing import uncertain_candidates
+
+    async def scenario() -> None:
+        app = studio(case_file, tmp_path / "cache", live=False)
+        async with app.run_test(size=(80, 24)) as pilot:
+            await pilot.pause()
+            candidates = uncertain_candidates(app.case)
+            app.query_one("#add-row", Button).focus()
+            await pilot.pause()
+            burst(app, "<enter>")
+            await keys_handled(pilot, app)
+            assert isinstance(app.screen, ListScreen)
+            options = app.screen.query_one(OptionList)
+            # every candidate on screen at once, clear of the footer (the last line)
+            assert options.option_count == len(candidates)
+            assert options.region.height >= len(candidates) and options.region.bottom <= 23
+            for key in candidates:
+                assert key in app.screen_text(), key
+            burst(app, "<down><enter>")
+            await keys_handled(pilot, app)
+            await wait_until(pilot, lambda: not app.workers, "panes rebuilt")
+            assert app.case.uncertainty[-1].key == candidates[1]
+            assert app.query_one(f"#u-{field_id(candidates[1])}")
+
+    asyncio.run(scenario())
