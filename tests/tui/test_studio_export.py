@@ -30,7 +30,7 @@ def case_file(tmp_path: Path) -> Path:
 def test_the_quick_pass_is_not_exported(case_file: Path, tmp_path: Path) -> None:
     async def scenario() -> None:
         # many plants: the full run is still going when the quick pass is on screen
-        app = studio(case_file, tmp_path / "cache", samples=40 * QUICK_SAMPLES)
+        app = studio(case_file, tmp_path / "cache", samples=400 * QUICK_SAMPLES)
         async with app.run_test(size=(100, 30)) as pilot:
             await wait_until(pilot, lambda: app.results_version > 0, "quick pass")
             assert app.last_view.quick and app.last_view.samples == QUICK_SAMPLES
