@@ -14,14 +14,23 @@ from textual.widgets import ProgressBar, Static
 from robustff import CAUTION
 from robustff.tui.view import TABLE_PERCENTILES, StudyView
 
-__all__ = ["ResultsPane", "StaleLine", "CautionLine", "MARKS", "percentile_table", "risk_text"]
+__all__ = ["ResultsPane", "StaleLine", "CautionLine", "MARKS", "percentile_table", "risk_text",
+           "table_cell"]
 
 #: Verdict marks: a symbol and a word, so nothing depends on colour.
 MARKS = {"better": ("▼ better", "green"), "worse": ("▲ WORSE", "bold red"), "same": ("= same", "")}
 
 
-def _cell(value: float) -> str:
-    return "n/a" if not math.isfinite(value) else f"{value:.3g}"
+def table_cell(value: float) -> str:
+    """Three significant digits in at most 6 characters (the table fits 80 columns)."""
+    if not math.isfinite(value):
+        return "n/a"
+    if 1e3 <= abs(value) < 1e5:
+        return f"{value:.0f}"  # 1031 rather than 1.03e+03
+    if abs(value) >= 1e5:
+        mantissa, exponent = f"{value:.2e}".split("e")
+        return f"{float(mantissa):.3g}e{int(exponent)}"  # 1.23e5
+    return f"{value:.3g}"
 
 
 def percentile_table(view: StudyView) -> Table:
@@ -33,9 +42,9 @@ def percentile_table(view: StudyView) -> Table:
         table.add_column(f"P{p:g}", justify="right", no_wrap=True)
     table.add_column("verdict", no_wrap=True)
     for row in view.rows:
-        table.add_row(Text(row.label), "fb", *map(_cell, row.fb), "")
+        table.add_row(Text(row.label), "fb", *map(table_cell, row.fb), "")
         mark, style = MARKS[row.verdict]
-        table.add_row(Text(f" [{row.unit}]"), "fbff", *map(_cell, row.fbff), Text(mark, style))
+        table.add_row(Text(f" [{row.unit}]"), "fbff", *map(table_cell, row.fbff), Text(mark, style))
     return table
 
 

@@ -5,6 +5,7 @@ clip bounds are offered only on rows whose distribution accepts them."""
 from __future__ import annotations
 
 import asyncio
+import math
 import shutil
 from pathlib import Path
 
@@ -106,3 +107,14 @@ def test_adding_a_parameter_lists_every_candidate_in_a_dialog(case_file: Path,
             assert app.query_one(f"#u-{field_id(candidates[1])}")
 
     asyncio.run(scenario())
+
+
+def test_table_cells_stay_short() -> None:
+    from robustff.tui.results_pane import table_cell
+
+    cells = {0.000123: "0.000123", 0.5: "0.5", 87.44: "87.4", 1031.4: "1031", 86912.0: "86912",
+             123456.0: "1.23e5", -2.5e7: "-2.5e7", float("inf"): "n/a"}
+    for value, text in cells.items():
+        assert table_cell(value) == text and len(text) <= 8
+        if math.isfinite(value):  # three significant digits at least
+            assert float(text) == pytest.approx(value, rel=5e-3)
