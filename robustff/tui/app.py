@@ -219,6 +219,8 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
     def on_row_removed(self, message: RowRemoved) -> None:
         self._table_edit(lambda: editing.remove_uncertain(self.case, message.key),
                          f"remove uncertain {message.key}")
+        if message.key not in {row.key for row in self.case.uncertainty}:
+            self.notify(f"removed the uncertainty of {message.key}; Ctrl+Z brings it back")
 
     def _table_edit(self, make: Callable[[], Case], what: str) -> None:
         try:
