@@ -237,6 +237,12 @@ def test_robust_search_key_applies_the_searched_feedforward(
             assert "P90 IAE, fresh samples [degC*s]" in text  # units on the P90 rows
             verdict = str(app.screen.query_one("#robust-verdict").render())
             assert "bootstrap interval" in verdict and "degC*s" in verdict
+            await pilot.resize_terminal(80, 24)  # verdict and buttons above the fold
+            await pilot.pause(0.3)
+            small = app.screen_text()
+            assert "Verdict:" in small and "[a] apply" in small and "Caution" in small
+            await pilot.resize_terminal(100, 30)
+            await pilot.pause(0.3)
             before, version = app.case.feedforward, app.results_version
             await pilot.press("a")
             await _wait_results(app, pilot, version)
