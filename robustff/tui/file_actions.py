@@ -220,12 +220,15 @@ class FileActions(StudioHost):
             self.exit()
             return
 
-        def answer(choice: str | None) -> None:
-            if choice == "s" and (self.save_to(self.case_path) if not is_bundled(self.case_path)
-                                  else False):
+        def save_and_quit() -> None:
+            if not is_bundled(self.case_path) and self.save_to(self.case_path):
                 self.exit()
-            elif choice == "s":
-                self.action_save_as()
+            elif is_bundled(self.case_path):
+                self._save_as()
+
+        def answer(choice: str | None) -> None:
+            if choice == "s":
+                self.unless_invalid(save_and_quit)  # asks first when the case does not validate
             elif choice == "d":
                 discard_recovery(self.recovery_file)
                 self.exit()

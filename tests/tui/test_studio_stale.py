@@ -73,6 +73,15 @@ def test_results_are_marked_stale_while_they_belong_to_another_case(
             await pilot.press("c")
             await pilot.pause()
             assert case_file.read_text() == before and app.dirty
+            await pilot.press("ctrl+q")  # "save and quit" asks the same question first
+            await pilot.pause()
+            await pilot.press("s")
+            await pilot.pause()
+            assert isinstance(app.screen, ChoiceScreen)
+            assert "does not validate" in app.screen.question
+            await pilot.press("c")
+            await pilot.pause()
+            assert app.is_running and case_file.read_text() == before
             # back to a valid value: the new results are current again
             version = app.results_version
             await _edit(app, pilot, "process.time_constant", "45")
