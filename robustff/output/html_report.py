@@ -27,6 +27,7 @@ from robustff.output.pdf_print import print_to_pdf
 from robustff.output.plots import (
     band_figure,
     designs_ratio_figure,
+    frequency_figure,
     margins_figure,
     ratio_figure,
     save_figure,
@@ -143,6 +144,9 @@ def _figures(result: StudyResult, summary: Summary, folder: Path,
         ("plot-designs", designs_ratio_figure(result), "IAE ratio per feedforward design"),
         ("plot-sensitivity", sensitivity_figure(summary),
          "Spearman rank correlation of each uncertain parameter with the IAE ratio"),
+        ("plot-frequency", frequency_figure(result),
+         "Error ratio with over without feedforward per disturbance frequency (frequency.csv): "
+         + summary["frequency"]["words"]),
     ]
     margins = summary.get("margins")
     if margin_values is not None and margins:
@@ -173,7 +177,8 @@ def report_html(result: StudyResult, summary: Summary, percentiles: Sequence[flo
         return _image(*images[stem]) if stem in images else ""
 
     others = "".join(figure(stem) for stem in
-                     ("plot-cv-band", "plot-iae-ratio", "plot-sensitivity", "plot-margins"))
+                     ("plot-cv-band", "plot-iae-ratio", "plot-sensitivity", "plot-margins",
+                      "plot-frequency"))
     parts = [
         first_page(summary),
         designs_section(summary, percentiles, figure("plot-designs")),

@@ -28,7 +28,7 @@ def test_report_embeds_every_image_and_the_caution(tmp_path, capsys):
     page = (out / "report.html").read_text()
     assert "http://" not in page and "https://" not in page  # no network needed
     sources = re.findall(r'<img src="([^"]+)"', page)
-    assert len(sources) == 5  # band plot, ratio histogram, designs, sensitivity, margins
+    assert len(sources) == 6  # band, ratio histogram, designs, sensitivity, margins, frequency
     for source in sources:
         assert source.startswith("data:image/png;base64,")
         data = base64.b64decode(source.split(",", 1)[1])
