@@ -78,6 +78,8 @@ class StudyView:
         Feedback stability margins (nominal and P5/P50/P95 over the samples) and warnings.
     driver_lines : list of str
         The uncertain parameters ranked by their rank correlation with the IAE ratio.
+    design_lines : list of str
+        With several feedforward designs (``[[design]]``): one line each, on the same plants.
     """
 
     samples: int
@@ -99,6 +101,7 @@ class StudyView:
     time_unit: str
     margin_lines: tuple[str, ...] = ()
     driver_lines: tuple[str, ...] = ()
+    design_lines: tuple[str, ...] = ()
 
 
 def verdict(fb: float, fbff: float) -> str:
@@ -168,6 +171,29 @@ def driver_lines(summary: Summary, rows: int = 3) -> tuple[str, ...]:
     )
 
 
+def design_lines(summary: Summary) -> tuple[str, ...]:
+    """One line per feedforward design when the case has several: the median IAE ratio, the
+    probability of harm with its 95 % interval, and how often it does worse than the case's
+    own design on the same plant."""
+    designs = summary.get("designs", [])
+    if len(designs) < 2:
+        return ()
+    lines = ["Designs on the same plants: P50 IAE ratio, P(harm) [95 %], worse than case"]
+    for design in designs:
+        ratio = design["ratio"]["iae"].get("p50")
+        harm = design["ff_worse"]["iae"]
+        low, high = harm["ci95"]
+        interval = ("" if low is None or high is None
+                    else f" [{100 * low:.1f}-{100 * high:.1f}]")
+        worse = design["versus_case"]["worse_than_case"]["probability"]
+        versus = ("" if design["name"] == "case" or worse is None
+                  else f", {100 * worse:.0f} %")
+        probability = None if harm["probability"] is None else 100 * harm["probability"]
+        lines.append(f"  {design['name'][:18]:<18} {_number(ratio):>6}  "
+                     f"{_number(probability, '.1f')} %{interval}{versus}")
+    return tuple(lines)
+
+
 def build_view(result: StudyResult, summary: Summary, quick: bool) -> StudyView:
     """The view of a study.
 
@@ -199,4 +225,5 @@ def build_view(result: StudyResult, summary: Summary, quick: bool) -> StudyView:
         ratio=ratio, times=np.asarray(result.envelope.times, dtype=float), bands=bands,
         cv_label=result.case.signals.controlled.label(), time_unit=result.case.time_unit,
         margin_lines=margin_lines(summary), driver_lines=driver_lines(summary),
+        design_lines=design_lines(summary),
     )
