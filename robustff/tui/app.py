@@ -264,7 +264,11 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
             self.query_one(ModelsPane).show_design([f"✗ design: {exc}"], {})
             self.query_one(UncertaintyPane).show_warnings(self.case, {})
             return
+        from robustff.design.installed_loop import installed_loop_lines
+
         lines = review.design.summary_lines(self.case)
+        # The valve and the secondary loop (read from the case file; edited there for now).
+        lines += [line.strip() for line in installed_loop_lines(self.case, review.design)[1:]]
         lines += [f"✗ {finding.text()}" for finding in review.errors]
         fields: dict[str, str] = {}
         ranges: dict[str, str] = {}
