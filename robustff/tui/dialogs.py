@@ -13,62 +13,78 @@ from textual.widgets import Button, Input, OptionList, Static
 __all__ = ["HelpScreen", "ChoiceScreen", "PathScreen", "ListScreen", "HELP_TEXT"]
 
 HELP_TEXT = """\
-robustff studio: edit the case on the left, the study reruns by itself on the right.
+robustff studio: edit the case on the left; the study reruns by itself
+on the right.
 
 Editing
-  Tab / Shift+Tab   move between fields          Enter   apply the field (leaving it also applies)
-  Up/Down, Enter    choose in a list              del     remove an uncertain parameter
-  Escape            leave the field               Ctrl+Z  undo the last applied edit (deletions too)
+  Tab / Shift+Tab  move between fields (leaving a field applies it)
+  Enter            apply the field       Escape  leave the field
+  Up/Down, Enter   choose in a list      Ctrl+Z  undo the last edit
+  del              remove an uncertain parameter (Ctrl+Z brings it back)
   The focused field is in reverse video and its label carries ▸.
-  Numbers: '-2.6, -1.0' (commas); a blank optional field lets the tuning rule decide.
-  A refused edit keeps your text and shows the reason (✗) under the field; the results are
-  then marked STALE (dimmed, with the reason) until the field holds an accepted value.
-  ⚠ under a field or range: a warning of the case review (e.g. a nominal value outside its
-  uncertainty range; [fix range] widens or moves the range to the nominal).
-
-Runs
-  Each edit cancels the running study and starts again: a quick pass of 500 plants first,
-  then the case's sample count with a progress bar.   F5  rerun now
-  The first start on a machine compiles the simulator (about 10-30 s); later starts 1-3 s.
-
-Robust feedforward
-  F6  search the feedforward gain factor, lead, lag and delay that stay good across the
-      uncertainty (the search of 'robustff tune', on at most 1000 plants here); choose the
-      objective (P90 of IAE, CVaR, or probability of harm), Escape stops the search. The
-      result compares nominal and robust settings; [a] writes them into the case and reruns.
-
-Models from plant data
-  F7  fit an FOPDT, SOPDT or IPDT model to a bump test (CSV: input, output, time column or
-      sample time), with 95 % intervals, RMSE and a text plot of data (dots) against the fit;
-      [a] sets the process or disturbance model (times converted to the case's unit when the
-      data's unit is given, else assumed equal) and reruns; [p] saves a PNG/SVG picture.
+  Numbers: '-2.6, -1.0' (commas); a blank optional field lets the tuning
+  rule decide. A refused edit keeps your text and shows the reason (✗)
+  under the field; the results are marked STALE (dimmed, with the
+  reason) until the field holds an accepted value.
+  ⚠ under a field or range: a warning of the case review, e.g. a nominal
+  value outside its uncertainty range ([fix range] widens or moves it).
 
 Files
-  Ctrl+S  save the case (atomic; comments kept where possible, else you are told)
-  F2      save as... (a copy of the same document, comments kept)
-  Ctrl+E  export results (same files as 'robustff run --out'; complete runs only)
-  Ctrl+R  reload from disk   Ctrl+Q  quit (asks first when there are unsaved edits)
-  Edits are autosaved to a recovery file; the next start offers to restore them.
+  Ctrl+S  save the case (atomic; file mode and comments kept where
+          possible, else you are told; asks first if it does not
+          validate)
+  F2      save as (a copy of the same document, comments kept)
+  Ctrl+E  export results (the files of 'robustff run --out'; complete
+          runs only, never the quick pass)
+  Ctrl+R  reload from disk   Ctrl+Q  quit (asks first if unsaved)
+  Edits are autosaved to a recovery file; the next start offers to
+  restore them.
+
+Runs
+  Each edit cancels the running study and starts again: a quick pass of
+  500 plants first, then the case's sample count with a progress bar.
+  F5  rerun now. The first start on a machine compiles the simulator
+  (about 10-30 s); later starts take 1-3 s.
+
+Robust feedforward
+  F6  search the feedforward gain factor, lead, lag and delay that stay
+      good across the uncertainty (the search of 'robustff tune', on at
+      most 1000 plants here); choose the objective (P90 of IAE, CVaR or
+      P(harm)); Escape stops the search. The result compares nominal
+      and robust settings; [a] writes them into the case and reruns.
+
+Models from plant data
+  F7  fit an FOPDT, SOPDT or IPDT model to a bump test (CSV: input,
+      output, time column or sample time), with 95 % intervals, RMSE
+      and a text plot of data (dots) against the fit; [a] sets the
+      process or disturbance model (to 4 significant digits; times
+      converted to the case's unit when the data's unit is given, else
+      assumed equal) and reruns; [p] saves a PNG/SVG picture.
 
 Reading the results
-  fb = feedback only, fbff = feedback with feedforward (the names of the result files).
-  verdict: ▼ better / ▲ WORSE / = same compare the medians of fbff against fb.
-  P(harm): the fraction of plants whose IAE is worse with feedforward (fbff IAE > fb IAE).
+  fb = feedback only, fbff = feedback with feedforward (as in the
+  result files). verdict: ▼ better / ▲ WORSE / = same compare the
+  medians of fbff against fb.
+  P(harm): the fraction of plants whose IAE is worse with feedforward.
   Unstable loops: plants whose closed loop is unstable, per arm.
-  Histogram: IAE of fbff divided by fb for each plant; ┃ marks 1.0 (right of it ff hurts).
+  Histogram: IAE of fbff divided by fb per plant; ┃ marks 1.0 (right
+  of it feedforward hurts).
   Band plot: ░ fb, ▒ fbff, ▓ both; medians: o fb, x fbff.
-  The caution folds to one sentence after the first results; F9 shows it in full.
+  The caution folds to one sentence after the first results; F9 shows
+  it in full.
 
 Terms
-  tau_c  closed-loop time constant the tuning rule aims at (blank: the rule's default)
+  tau_c   closed-loop time constant the tuning rule aims at
   Kc, Ti, Td  controller gain, integral time, derivative time
-  Tt     anti-windup tracking time (back-calculation)
-  Ms     maximum sensitivity: the peak of |1/(1+L)|; above 2 the loop is poorly damped
-  GM, PM gain margin (ratio) and phase margin (degrees) of the feedback loop
-  CVaR90 mean IAE of the worst 10 % of plants
+  Tt      anti-windup tracking time (back-calculation)
+  Ms      maximum sensitivity, the peak of |1/(1+L)|; above 2 the loop
+          is poorly damped
+  GM, PM  gain margin (ratio) and phase margin (degrees)
+  CVaR90  mean IAE of the worst 10 % of plants
   P5/P50/P95  percentiles over the simulated plants
 
-F1 or ? opens this help; Escape closes it. Ctrl+P opens the command palette (every action).
+F1 or ? opens this help; Escape closes it. Ctrl+P opens the command
+palette (every action of the studio).
 """
 
 

@@ -46,7 +46,9 @@ def test_one_name_each_and_units_on_the_main_screen(case_file: Path, tmp_path: P
     asyncio.run(scenario())
 
 
-def test_help_explains_the_terms_shown() -> None:
+def test_help_explains_the_terms_shown_and_fits_80_columns() -> None:
     for term in ("tau_c ", "Tt ", "Ms ", "CVaR90 ", "P(harm):", "fbff = feedback with feedforward",
-                 "Ctrl+Z", "F9"):
+                 "Ctrl+Z", "F9", "Escape  leave the field"):
         assert term in HELP_TEXT, term
+    # the help box at 80 columns leaves 72 for the text: no line wraps
+    assert max(len(line) for line in HELP_TEXT.splitlines()) <= 72
