@@ -109,9 +109,10 @@ class SimulationResult:
     accumulators : ndarray, shape (N, 2, N_ACCUMULATORS)
         The kernel's raw per-arm accumulators (NaN where unstable), from which ``metrics``
         were converted.
-    noise : ndarray, shape (N, T, 2), or None
-        With ``record_noise``: the filtered disturbance noise and the transmitter noise of each
-        sample at each scan, for a later run with ``reference`` to replay instead of drawing.
+    noise : ndarray, shape (N, T S + T), or None
+        With ``record_noise``: each sample's disturbance effect on the CV at every internal step
+        and its measured disturbance at every scan (noise included), for a later run with
+        ``reference`` to replay instead of simulating the disturbance again.
     """
 
     metrics: dict[str, np.ndarray]
@@ -194,10 +195,12 @@ def simulate(
         feedforward arm is then simulated (another feedforward design on the same plants and
         noise, common random numbers) and the feedback-only arm and the loop's stability are
         taken from ``reference``. The result equals a full run of ``design``; the
-        envelope and trajectories are not recorded. The noise is replayed from
-        ``reference.noise`` when it was recorded (same numbers, without drawing them again).
+        envelope and trajectories are not recorded. The disturbance and its measurement are
+        replayed from ``reference.noise`` when it was recorded (same numbers, without drawing
+        the noise or simulating the disturbance path again).
     record_noise : bool
-        Keep every sample's noise (``SimulationResult.noise``, N x T x 2 numbers).
+        Keep every sample's disturbance effect and measurement (``SimulationResult.noise``,
+        N x T (S + 1) numbers).
 
     Returns
     -------
@@ -218,8 +221,9 @@ def simulate(
         edges, index = envelope.edges, envelope.index
         counts = np.zeros((2, envelope.times.size, edges.size - 1), dtype=np.int64)
     feedback_arm = reference is None
-    no_noise = np.zeros((0, 0, 2))
-    recorded = np.zeros((n, n_steps, 2)) if record_noise else no_noise
+    no_noise = np.zeros((0, 0))
+    recorded = (np.zeros((n, n_steps * scenario.substeps + n_steps)) if record_noise
+                else no_noise)
     replayed = (reference.noise if reference is not None and reference.noise is not None
                 else no_noise)
     if not feedback_arm:

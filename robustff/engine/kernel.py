@@ -545,12 +545,13 @@ def _simulate_sample(
     sq = ProbeState(0.0, 0.0, 0.0, 0.0, 0.0, False)
     q2, q3 = n_steps // 2, (3 * n_steps) // 4
     sensor = ff_out = ff_in_prev = u0 = u1 = ff_measured = uq = 0.0
+    # Replay: the disturbance's effect on the CV at every internal step and the measured
+    # disturbance at every scan, from an earlier run of this sample (another design on the same
+    # plant and noise): neither depends on the feedforward.
     replay, record = noise_replay.shape[1] > 0, noise_record.shape[1] > 0
     for k in range(n_steps):
         held_noise = transmitter_noise = 0.0
-        if replay:  # the draws of an earlier run of this sample (another design, same noise)
-            held_noise, transmitter_noise = noise_replay[i, k, 0], noise_replay[i, k, 1]
-        else:
+        if not replay:
             for j in range(noise.shape[0]):
                 if k >= noise[j, 0]:
                     if k == noise[j, 0]:
@@ -563,8 +564,6 @@ def _simulate_sample(
             if noise_std > 0.0:
                 seed, draw = _random_normal(seed)
                 transmitter_noise = noise_std * draw
-        if record:
-            noise_record[i, k, 0], noise_record[i, k, 1] = held_noise, transmitter_noise
         for sub in range(substeps):
             q = k * substeps + sub
             t = q * hi
@@ -574,14 +573,22 @@ def _simulate_sample(
                                segment_profile[q - 1] if q > 0 else segment_profile[0],
                                mp.cv_band)
             d = disturbance_profile[q] + held_noise
-            yd, sp = _output(xd, cd), setpoint_profile[q]
+            yd = noise_replay[i, q] if replay else _output(xd, cd)
+            if record:
+                noise_record[i, q] = yd
+            sp = setpoint_profile[q]
             y0, y1 = _output(x0, cp) + yd, _output(x1, cp) + yd
             alive0 = alive0 and math.isfinite(y0) and not abs(y0) > limit
             alive1 = alive1 and math.isfinite(y1) and not abs(y1) > limit
             if sub == 0:  # the scan: transmitter, feedforward, controllers, probe
-                measured = d if direct else sensor
-                if noise_std > 0.0:
-                    measured += transmitter_noise
+                if replay:
+                    measured = noise_replay[i, n_internal + k]
+                else:
+                    measured = d if direct else sensor
+                    if noise_std > 0.0:
+                        measured += transmitter_noise
+                if record:
+                    noise_record[i, n_internal + k] = measured
                 # Feedforward input filter, as a control system's digital first-order filter.
                 ff_measured = ffp.input_pole * ff_measured + (1.0 - ffp.input_pole) * measured
                 ring[4 * size + (k & mask)] = ff_measured
@@ -627,10 +634,11 @@ def _simulate_sample(
                 ring[2 * size + (q & mask)] = flow
                 xq = _path_step(xq, cp, ring[2 * size + ((q - m_p) & mask)],
                                 ring[2 * size + ((q - m_p - 1) & mask)])
-            ring[3 * size + (q & mask)] = d
-            xd = _path_step(xd, cd, ring[3 * size + ((q - m_d) & mask)],
-                            ring[3 * size + ((q - m_d - 1) & mask)])
-            sensor = a_sensor * sensor + gain_sensor * d
+            if not replay:
+                ring[3 * size + (q & mask)] = d
+                xd = _path_step(xd, cd, ring[3 * size + ((q - m_d) & mask)],
+                                ring[3 * size + ((q - m_d - 1) & mask)])
+                sensor = a_sensor * sensor + gain_sensor * d
     # Unstable only when the probe's error grows from the third to the last quarter of the
     # window: a stable loop that recovers slowly (a very long integral time) decays, however
     # little, and is not flagged; not settling within the window is the settling time's finding.
@@ -678,8 +686,9 @@ def simulate_kernel(
     valve_kind: int,              # 0: no valve; 1 linear, 2 equal-percentage, 3 installed
     valve_table: np.ndarray,      # (P, 2): installed characteristic, travel and flow fractions
     secondary: np.ndarray,        # (7,): present, kc, ti, tt, u_low, u_high, scans per primary
-    noise_record: np.ndarray,     # out (N, T, 2) or (0, 0, 2): filtered and transmitter noise
-    noise_replay: np.ndarray,     # (N, T, 2) to replay instead of drawing, or (0, 0, 2)
+    noise_record: np.ndarray,     # out (N, T S + T) or (0, 0): the disturbance's effect on the
+                                  # CV per internal step, then the measured disturbance per scan
+    noise_replay: np.ndarray,     # (N, T S + T) to replay instead of simulating, or (0, 0)
 ) -> None:
     n_steps, n_internal = envelope_index.shape[0], disturbance_profile.shape[0]
     hi = h / substeps

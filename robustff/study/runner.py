@@ -46,9 +46,9 @@ KEPT_TRAJECTORIES = 5
 #: their percentiles and keeps the cost below the simulation's).
 MARGIN_SAMPLES = 2000
 
-#: Largest samples x scans of a chunk whose noise is kept for the other designs to replay
-#: (two numbers each: 64 MB at this limit).
-NOISE_REPLAY_LIMIT = 4_000_000
+#: Largest number of values (samples x (internal steps + scans)) of a chunk whose disturbance
+#: is kept for the other designs to replay (64 MB at this limit).
+NOISE_REPLAY_LIMIT = 8_000_000
 
 ProgressCallback = Callable[[int, int], None]
 
@@ -192,9 +192,11 @@ def _run_chunk(
     keep: int,
 ):
     batch = plant_batch(case, names, values)
-    # With other designs to run, keep this chunk's noise so that they replay it instead of
-    # drawing it again (drawing dominates the cost of a noisy case), when it stays small.
-    record = bool(design.alternatives) and batch.size * scenario.n_steps <= NOISE_REPLAY_LIMIT
+    # With other designs to run, keep this chunk's disturbance (its effect on the CV and its
+    # measurement, noise included) so that they replay it instead of simulating it again,
+    # when it stays small.
+    record = (bool(design.alternatives)
+              and batch.size * scenario.n_steps * (scenario.substeps + 1) <= NOISE_REPLAY_LIMIT)
     result = simulate(
         batch, design, scenario, seeds=seeds, envelope=grid, keep=np.arange(min(keep, batch.size)),
         record_noise=record,
