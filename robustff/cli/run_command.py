@@ -210,18 +210,6 @@ def _print_margins(margins: MarginsSummary) -> None:
         print(f"WARNING: {warning}")
 
 
-def _margin_values(result) -> dict | None:
-    if result.margins is None:
-        return None
-    m = result.margins
-    return {
-        "gain_margin": m.gain_margin,
-        "phase_margin": m.phase_margin,
-        "delay_margin": m.delay_margin,
-        "ms": m.ms,
-    }
-
-
 def _check_memory(case, samples: int) -> None:
     """Refuse, before any work, a study the machine's free memory cannot hold."""
     from robustff.study.memory import available_memory_bytes, estimated_study_bytes
@@ -305,11 +293,11 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
     extra = None
     report_notes: list[str] = []
     if args.report:
-        from robustff.output.html_report import write_report_files
+        from robustff.output.html_report import margin_values, write_report_files
 
         def extra(folder: Path) -> None:
             files = write_report_files(result, summary, folder, percentiles,
-                                       _margin_values(result), paper=args.paper)
+                                       margin_values(result), paper=args.paper)
             report_notes.extend(files.notes)
 
     write_results(result, summary, out, percentiles, extra=extra,

@@ -45,7 +45,8 @@ from robustff.output.workbook import NO_OPENPYXL, openpyxl_available, write_work
 from robustff.study import StudyResult
 from robustff.study.summary_types import Summary
 
-__all__ = ["write_report", "write_report_files", "ReportFiles", "PAPER_SIZES", "report_html"]
+__all__ = ["write_report", "write_report_files", "ReportFiles", "PAPER_SIZES", "report_html",
+           "margin_values"]
 
 #: Paper sizes of the print CSS: name -> (CSS size, width in mm).
 PAPER_SIZES: dict[str, tuple[str, float]] = {"A4": ("A4", 210.0), "Letter": ("letter", 215.9)}
@@ -194,6 +195,15 @@ def report_html(result: StudyResult, summary: Summary, percentiles: Sequence[flo
         f"<title>{html.escape(title)}</title><style>{style}</style></head><body>"
         + "\n".join(parts) + "</body></html>\n"
     )
+
+
+def margin_values(result: StudyResult) -> dict[str, np.ndarray] | None:
+    """The per-sample margins of a study for the margins figure (None without margins)."""
+    if result.margins is None:
+        return None
+    m = result.margins
+    return {"gain_margin": m.gain_margin, "phase_margin": m.phase_margin,
+            "delay_margin": m.delay_margin, "ms": m.ms}
 
 
 def write_report_files(

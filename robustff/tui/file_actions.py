@@ -177,12 +177,27 @@ class FileActions(StudioHost):
         if problem is not None or result is None or summary is None:
             self.notify(f"not exported: {problem}", severity="warning", timeout=8)
             return False
+        notes: list[str] = []
+
+        def report(staging: Path) -> None:
+            # The same report as 'robustff run --report' (plots, report.html, and report.pdf /
+            # report.xlsx where Chromium and openpyxl are there).
+            try:
+                from robustff.output.html_report import margin_values, write_report_files
+            except ImportError as exc:  # matplotlib is an optional dependency
+                notes.append(f"no report: {exc.name} is not installed")
+                return
+            files = write_report_files(result, summary, staging, DEFAULT_PERCENTILES,
+                                       margin_values(result))
+            notes.extend(files.notes)
+
         try:
-            write_results(result, summary, folder, DEFAULT_PERCENTILES)
+            write_results(result, summary, folder, DEFAULT_PERCENTILES, extra=report)
         except (RobustffError, OSError) as exc:
             self.notify(f"not exported: {exc}", severity="error", timeout=8)
             return False
-        self.notify(f"results of {result.samples} plants written to {folder}/")
+        self.notify(f"results and report of {result.samples} plants written to {folder}/"
+                    + ("".join(f"; {note}" for note in notes)))
         return True
 
     def action_reload(self) -> None:

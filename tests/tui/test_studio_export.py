@@ -62,5 +62,9 @@ def test_a_full_run_is_exported_with_its_margins(case_file: Path, tmp_path: Path
             summary = json.loads((folder / "summary.json").read_text())
             assert summary["samples"] == 300 and summary["partial"] is False
             assert summary["margins"] is not None
+            # the same report as 'robustff run --report'
+            report = (folder / "report.html").read_text()
+            assert summary["reproducibility"]["case_file"]["sha256"] in report
+            assert "management-of-change" in report
 
     asyncio.run(scenario())
