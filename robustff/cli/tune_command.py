@@ -6,6 +6,7 @@ import argparse
 import json
 import math
 import sys
+import textwrap
 import time
 from dataclasses import replace
 from pathlib import Path
@@ -80,6 +81,7 @@ def result_to_dict(result, case_file: Path | None = None) -> dict:
         "evaluations": result.evaluations, "excluded_unstable_feedback": result.excluded,
         "optimiser": result.message,
         "recommended": result.recommended,
+        "verdict": result.verdict.to_dict(),
         "improvement_interval90": [json_float(v) for v in result.improvement_interval],
         "sensitivity": [row.to_dict() for row in result.sensitivity],
         "case_file": str(case_file) if case_file is not None else None,
@@ -90,10 +92,12 @@ def result_to_dict(result, case_file: Path | None = None) -> dict:
 def robust_case(case, result):
     """The case with the recommended feedforward settings written into ``[feedforward]``.
 
-    That is the search's winner, unless its improvement over the nominal design is within
-    Monte Carlo noise (then the nominal settings are written explicitly).
+    That is the search's winner when the verdict recommends it, else the nominal settings
+    (written explicitly); None when the verdict recommends neither design.
     """
     chosen = result.recommended_settings
+    if chosen is None:
+        return None
     searched = {name: getattr(chosen, name) for name in result.space.names}
     return replace(case, feedforward=replace(case.feedforward, **searched))
 
@@ -102,9 +106,10 @@ def _objective_title(args: argparse.Namespace) -> str:
     return _OBJECTIVE_TITLES[args.objective].format(p=90.0, a=0.9, w=10.0)
 
 
-def _print_table(result, unit: str) -> None:
+def _print_table(result, unit: str, iae: str) -> None:
     header = ["design", "gain factor", f"lead [{unit}]", f"lag [{unit}]", f"delay [{unit}]",
-              "objective (optim.)", "objective (fresh)", "P50 IAE", "P90 IAE", "P(harm)"]
+              "objective (optim.)", "objective (fresh)", f"P50 IAE [{iae}]", f"P90 IAE [{iae}]",
+              "P(harm) [%]"]
     rows = [header]
     for name in ("nominal", "rule", "robust"):
         if name not in result.figures:
@@ -116,7 +121,7 @@ def _print_table(result, unit: str) -> None:
             f"{settings.gain_factor:.4g}", f"{settings.lead:.4g}", f"{settings.lag:.4g}",
             f"{settings.delay:.4g}", f"{result.figures[name]['optimisation'].objective:.4g}",
             f"{fresh.objective:.4g}", f"{fresh.iae_p50:.4g}", f"{fresh.iae_p90:.4g}",
-            f"{fresh.harm:.3f}",
+            f"{100 * fresh.harm:.1f}",
         ])
     widths = [max(len(row[i]) for row in rows) for i in range(len(header))]
     for row in rows:
@@ -142,35 +147,35 @@ def _print_sobol(case, sobol) -> None:
         print(f"  {name:<28}{first:>12.3f}{total:>10.3f}")
 
 
-def _print_human(case, result, args, written: Path, warnings: list[str], elapsed: float,
+def _print_human(case, result, args, written: Path | None, warnings: list[str], elapsed: float,
                  sobol) -> None:
     print(case.title)
     print(f"Objective: {_objective_title(args)}; {result.samples} samples (seed {result.seed}), "
           f"re-checked on {result.samples} fresh samples (seed {result.fresh_seed}); "
           f"{result.evaluations} evaluations, {elapsed:.1f} s")
     print(f"Searched: {', '.join(result.space.names)} (feedback design fixed)")
-    _print_table(result, case.time_unit)
+    from robustff.tune.search import objective_unit
+
+    iae = objective_unit(case, "p90")
+    _print_table(result, case.time_unit, iae)
     fb50, fb90 = result.feedback_iae["fresh"]
-    print(f"Feedback only (fresh samples): P50 IAE {fb50:.4g}, P90 IAE {fb90:.4g}. IAE and "
-          "P(harm) columns are on the fresh samples.")
+    print(f"Feedback only (fresh samples): P50 IAE {fb50:.4g} {iae}, P90 IAE {fb90:.4g} {iae}. "
+          "IAE and P(harm) columns are on the fresh samples.")
     print("The optimiser picks its winner on the optimisation samples, so 'objective (optim.)' "
           "flatters it; compare the fresh column.")
     if result.excluded:
         print(f"{result.excluded} samples are unstable with feedback alone and were left out.")
-    low, high = result.improvement_interval
-    if result.recommended == "robust":
-        print(f"Recommended: the robust optimum (its objective improvement over the nominal design "
-              f"on the optimisation samples, 90 % bootstrap interval {low:.4g} to {high:.4g}, "
-              "is clear of Monte Carlo noise).")
-    else:
-        print(f"Recommended: keep the nominal design: the search's improvement (90 % bootstrap "
-              f"interval {low:.4g} to {high:.4g}) is within Monte Carlo noise.")
+    print(textwrap.fill(result.verdict.reason, width=100))
     _print_sensitivity(result)
     if sobol is not None:
         _print_sobol(case, sobol)
     for warning in warnings:
         print(f"warning: {warning}")
-    print(f"Tuned case written to {written}")
+    if written is None:
+        print("No tuned case written: neither design meets the criteria of the case's "
+              "[recommendation].")
+    else:
+        print(f"Tuned case written to {written}")
     print(CAUTION)
 
 
@@ -199,12 +204,17 @@ def execute(args: argparse.Namespace) -> int:
     sobol = None
     if args.sobol:
         sobol = sobol_sensitivity(case, args.sobol, seed=args.seed, jobs=args.jobs)
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise CaseError(f"--out {out}: cannot create the folder ({exc.strerror or exc})") from None
-    written = out / f"{case.name}-robust.toml"
-    warnings = save_case(robust_case(case, result), written, original)
+    tuned = robust_case(case, result)
+    written: Path | None = None
+    warnings: list[str] = []
+    if tuned is not None:
+        try:
+            out.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise CaseError(f"--out {out}: cannot create the folder "
+                            f"({exc.strerror or exc})") from None
+        written = out / f"{case.name}-robust.toml"
+        warnings = save_case(tuned, written, original)
     if args.json:
         payload = result_to_dict(result, written)
         payload["warnings"] = warnings

@@ -22,12 +22,15 @@ from robustff.study.summary_types import (
     DesignSummary,
     DesignVerdict,
     Driver,
+    HarmEstimateDict,
+    MetricStats,
     RecommendationDict,
     Summary,
     percentile_value,
 )
 
-__all__ = ["recommend", "samples_for_bound", "CRITERIA_BASIS_DEFAULT", "CRITERIA_BASIS_CASE"]
+__all__ = ["recommend", "judge_design", "samples_for_bound", "percent", "CRITERIA_BASIS_DEFAULT",
+           "CRITERIA_BASIS_CASE"]
 
 CRITERIA_BASIS_DEFAULT = "defaults: common practice, not a standard"
 CRITERIA_BASIS_CASE = "set in the case's [recommendation]"
@@ -42,15 +45,44 @@ def samples_for_bound(max_harm: float, z: float = _Z95) -> int:
     return int(math.ceil(z * z * (1.0 - max_harm) / max_harm - 1e-9))
 
 
-def _percent(value: float) -> str:
+def percent(value: float) -> str:
+    """A fraction as a percentage with one decimal (``0.0123`` -> ``1.2 %``)."""
     return f"{100 * value:.1f} %"
 
 
 def _verdict(
     design: DesignSummary, criteria: RecommendationSpec, fb_unstable: int
 ) -> DesignVerdict:
-    harm = design["ff_worse"]["iae"]
-    ratio = design["ratio"]["iae"]
+    return judge_design(
+        design["name"], str(design["feedforward"]["structure"]),
+        float(design["feedforward"]["gain_factor"]), design["ff_worse"]["iae"],
+        design["ratio"]["iae"], design["unstable"], fb_unstable, criteria)
+
+
+def judge_design(
+    name: str, structure: str, gain_factor: float, harm: HarmEstimateDict, ratio: MetricStats,
+    unstable: int, fb_unstable: int, criteria: RecommendationSpec,
+) -> DesignVerdict:
+    """One design judged against the criteria (the rule of this module's docstring).
+
+    Used for the designs of a study and for the designs of the robust search
+    (:mod:`robustff.tune.verdict`), so both apply one rule.
+
+    Parameters
+    ----------
+    name, structure : str
+        The design's name and its feedforward structure (``"none"`` never passes).
+    gain_factor : float
+        Its feedforward gain factor (fraction of the model-based gain).
+    harm : HarmEstimateDict
+        ``probability_worse(iae_fb, iae_fbff).to_dict()`` (Wilson interval).
+    ratio : MetricStats
+        Summary of the IAE ratio fbff / fb with ``p50`` (and ``p50_ci95``, ``p90`` if reported).
+    unstable, fb_unstable : int
+        Samples unstable with this design and with feedback alone.
+    criteria : RecommendationSpec
+        Fractions 0..1.
+    """
     p50 = percentile_value(ratio, 50.0)
     p90 = percentile_value(ratio, 90.0)
     interval = ratio.get("p50_ci95")
@@ -60,13 +92,12 @@ def _verdict(
     improvement = None if p50 is None else 1.0 - p50
     harm_high = harm["ci95"][1]
     reasons: list[str] = []
-    structure = str(design["feedforward"]["structure"])
     if structure == "none":
         reasons.append("no feedforward (structure none)")
     if harm["probability"] is None or harm_high is None:
         reasons.append("harm probability not available (no usable sample)")
     elif harm_high > criteria.max_harm:
-        text = (f"harm bound {_percent(harm_high)} > {_percent(criteria.max_harm)} (upper "
+        text = (f"harm bound {percent(harm_high)} > {percent(criteria.max_harm)} (upper "
                 "95 % bound)")
         if harm["count"] == 0 and criteria.max_harm > 0:
             text += (f"; none worse of {harm['n']}: about {samples_for_bound(criteria.max_harm)} "
@@ -75,15 +106,15 @@ def _verdict(
     if improvement is None:
         reasons.append("median IAE ratio not reported (add 50 to --percentiles)")
     elif improvement < criteria.min_improvement:
-        reasons.append(f"median IAE improvement {_percent(improvement)} < "
-                       f"{_percent(criteria.min_improvement)}")
-    if design["unstable"] > fb_unstable:
-        reasons.append(f"{design['unstable']} unstable samples against {fb_unstable} with "
+        reasons.append(f"median IAE improvement {percent(improvement)} < "
+                       f"{percent(criteria.min_improvement)}")
+    if unstable > fb_unstable:
+        reasons.append(f"{unstable} unstable samples against {fb_unstable} with "
                        "feedback alone")
     return {
-        "name": design["name"],
+        "name": name,
         "structure": structure,
-        "gain_factor": float(design["feedforward"]["gain_factor"]),
+        "gain_factor": float(gain_factor),
         "passes": not reasons,
         "harm_probability": harm["probability"],
         "harm_ci95": [harm["ci95"][0], harm_high],
@@ -92,7 +123,7 @@ def _verdict(
         "improvement_p50": improvement,
         "improvement_p50_ci95": [low, high],
         "improvement_p90": None if p90 is None else 1.0 - p90,
-        "unstable": design["unstable"],
+        "unstable": unstable,
         "reasons": reasons,
     }
 
@@ -161,9 +192,9 @@ def recommend(summary: Summary, criteria: RecommendationSpec) -> RecommendationD
         reason = (
             f"Design {chosen['name']} ({chosen['structure']}, gain factor "
             f"{chosen['gain_factor']:g}) meets the criteria with the largest median IAE "
-            f"improvement, {_percent(float(chosen['improvement_p50'] or 0.0))}; it makes the IAE "
-            f"worse in {_percent(float(chosen['harm_probability'] or 0.0))} of the plants "
-            f"(95 % interval {_percent(float(low or 0.0))} to {_percent(float(high or 0.0))})"
+            f"improvement, {percent(float(chosen['improvement_p50'] or 0.0))}; it makes the IAE "
+            f"worse in {percent(float(chosen['harm_probability'] or 0.0))} of the plants "
+            f"(95 % interval {percent(float(low or 0.0))} to {percent(float(high or 0.0))})"
         )
         if len(passing) > 1:
             reason += f"; {len(passing) - 1} other design(s) also pass"

@@ -7,8 +7,11 @@ objective is minimised by Nelder-Mead with bounds (``scipy.optimize.minimize``, 
 on parameters scaled to the unit box, started from the better of the nominal design and the
 rule of :mod:`robustff.design.feedforward_rule`. The winner and the nominal design are then
 simulated on FRESH samples (another seed): the optimum's objective on its own samples is biased low
-(it was selected on them), the fresh figure is not. The objectives and the score the search
-minimises are described in :mod:`robustff.tune.objectives`.
+(it was selected on them), the fresh figure is not. On the fresh samples both are also judged
+against the case's ``[recommendation]`` criteria (harm probability and median improvement, the
+rule of the report), and the verdict of :mod:`robustff.tune.verdict` recommends the winner, the
+nominal design or neither. The objectives and the score the search minimises are described in
+:mod:`robustff.tune.objectives`.
 """
 
 from __future__ import annotations
@@ -26,6 +29,7 @@ from robustff.case.sampling import plant_batch, sample
 from robustff.design.feedforward_rule import feedforward_rule
 from robustff.design.tuning import FeedforwardSettings, LoopDesign, design_loop
 from robustff.engine import Scenario, build_scenario
+from robustff.engine.metrics import METRIC_UNITS
 from robustff.errors import DesignError
 from robustff.jsonvalues import json_float
 from robustff.stats.percentiles import metric_ratio
@@ -40,10 +44,12 @@ from robustff.tune.objectives import (
 )
 from robustff.tune.simulation import simulate_iae
 from robustff.tune.sobol import sobol_sensitivity
+from robustff.tune.verdict import TuneVerdict, judge_fresh, tune_verdict
 
 __all__ = [
     "OBJECTIVES", "RobustResult", "DesignFigures", "SearchSpace", "robust_search",
-    "search_space", "objective_value", "evaluation_budget", "sobol_sensitivity",
+    "search_space", "objective_value", "objective_unit", "evaluation_budget",
+    "sobol_sensitivity",
 ]
 
 #: Samples per chunk of noise seeds, as in robustff.study.
@@ -130,10 +136,12 @@ class RobustResult:
     improvement_interval : tuple of float
         90 % paired-bootstrap interval of (nominal objective - robust objective) on the
         optimisation samples (positive: the search improved on the nominal design).
-    recommended : str
-        ``"robust"`` when the lower end of that interval is above zero, else ``"nominal"``: an
-        improvement within Monte Carlo noise is not worth changing the design for (and on fresh
-        samples it may vanish, the optimiser's bias).
+    verdict : TuneVerdict
+        Which design is recommended and why: the winner only when it meets the case's
+        ``[recommendation]`` criteria on the fresh samples and its improvement is clear of
+        Monte Carlo noise (an improvement within the noise is not worth changing the design for,
+        and on fresh samples it may vanish, the optimiser's bias); see
+        :mod:`robustff.tune.verdict`.
     """
 
     objective: str
@@ -152,13 +160,19 @@ class RobustResult:
     excluded: int
     message: str
     sensitivity: list[SensitivityRow]
-    improvement_interval: tuple[float, float] = (math.nan, math.nan)
-    recommended: str = "robust"
+    improvement_interval: tuple[float, float]
+    verdict: TuneVerdict
 
     @property
-    def recommended_settings(self) -> FeedforwardSettings:
-        """The settings to write into a case: the winner, or the nominal design (see above)."""
-        return self.robust if self.recommended == "robust" else self.nominal
+    def recommended(self) -> str:
+        """``"robust"``, ``"nominal"`` or ``"none"`` (:attr:`verdict`)."""
+        return self.verdict.recommended
+
+    @property
+    def recommended_settings(self) -> FeedforwardSettings | None:
+        """The settings to write into a case: the winner, the nominal design, or None when
+        neither meets the criteria."""
+        return {"robust": self.robust, "nominal": self.nominal}.get(self.recommended)
 
 
 def _max_time_constant(case: Case) -> float:
@@ -231,6 +245,7 @@ class _SampleSet:
         self.keep = np.isfinite(both[:, 0])
         self.iae_fb = both[self.keep, 0]
         self._nominal = (design.feedforward, both[self.keep, 1])
+        self._recent: dict[FeedforwardSettings, np.ndarray] = {}  # the last few designs
 
     def _run(self, settings: FeedforwardSettings) -> np.ndarray:
         design = replace(self.design, feedforward=settings)
@@ -242,7 +257,11 @@ class _SampleSet:
         """IAE with feedforward, shape (kept samples,), inf where unstable."""
         if settings == self._nominal[0]:
             return self._nominal[1]
-        return self._run(settings)[self.keep, 1]
+        if settings not in self._recent:
+            if len(self._recent) >= 3:
+                del self._recent[next(iter(self._recent))]
+            self._recent[settings] = self._run(settings)[self.keep, 1]
+        return self._recent[settings]
 
     def feedback_percentiles(self) -> tuple[float, float]:
         """(P50, P90) of IAE without feedforward, CV units x time units."""
@@ -475,14 +494,37 @@ def robust_search(
         sets = {"optimisation": optimisation, "fresh": fresh}
         figures = problem.compare(robust, sets, settings)
         interval = _improvement_interval(optimisation, problem.nominal, robust, settings, seed)
+        verdict = _verdict(problem, fresh, robust, interval, objective)
     return RobustResult(
         objective, problem.nominal, robust, problem.rule,
         figures["robust"]["optimisation"].objective, figures["robust"]["fresh"].objective, figures,
         {label: s.feedback_percentiles() for label, s in sets.items()}, problem.space,
         evaluations, n, seed, fresh_seed, int(np.sum(~optimisation.keep)), message,
-        _sensitivity(optimisation, problem.nominal), interval,
-        "robust" if interval[0] > 0.0 else "nominal",
+        _sensitivity(optimisation, problem.nominal), interval, verdict,
     )
+
+
+def objective_unit(case: Case, objective: str) -> str:
+    """Unit of an objective's value for a case: the IAE unit, or percentage points for harm."""
+    if objective == "harm":
+        return "percentage points of P(harm)"
+    signals = case.signals
+    return METRIC_UNITS["iae"].format(cv=signals.controlled.unit or "CV",
+                                      u=signals.output.unit or "output", t=case.time_unit)
+
+
+def _verdict(problem: _Problem, fresh: _SampleSet, robust: FeedforwardSettings,
+             interval: tuple[float, float], objective: str) -> TuneVerdict:
+    """The winner and the nominal design judged on the fresh samples (the report's rule)."""
+    criteria = problem.case.recommendation
+    nominal = problem.nominal
+    judged = {name: judge_fresh(name, settings, fresh.iae_fb, fresh.iae_fbff(settings), criteria)
+              for name, settings in (("robust", robust), ("nominal", nominal))}
+    scale = 100.0 if objective == "harm" else 1.0  # a difference of probabilities: points
+    low, high = interval
+    text = f"{scale * low:.3g} to {scale * high:.3g} {objective_unit(problem.case, objective)}"
+    return tune_verdict(judged["robust"], judged["nominal"], criteria, interval, text,
+                        same=robust == nominal)
 
 
 def _improvement_interval(

@@ -54,6 +54,9 @@ size = 1.0
 samples = 150
 seed = 4
 sampling = "random"
+
+[recommendation]     # lenient: 60 harm-free plants bound the harm at 6 %
+max_harm = 0.07
 """
 
 
@@ -141,3 +144,45 @@ def test_demo_cases_get_the_documented_search_box_around_their_nominal_design() 
         # the search starts from the nominal design: it must lie inside the box, not be clipped
         point = [getattr(nominal, n) for n in names]
         assert all(lo <= x <= hi for lo, x, hi in zip(space.low, point, space.high, strict=True))
+
+
+def test_verdict_weighs_harm_in_the_printout_and_json(tmp_path: Path, capsys) -> None:
+    # Closed-form case of tests/helpers/harm_case.py: the P90-optimal gain factor 1.5 harms the
+    # plants with Kd < 0.75 (6.25 % of them), the nominal one (harm when Kd < 0.5) none.
+    from harm_case import harm_case_text
+
+    path = tmp_path / "blend.toml"
+    path.write_text(harm_case_text(max_harm=0.03), encoding="utf-8")
+    assert main(["tune", str(path), "--out", str(tmp_path / "a")]) == 0
+    text = " ".join(capsys.readouterr().out.split())  # the verdict is wrapped to 100 columns
+    assert "Recommended: keep the nominal design." in text
+    assert "the robust optimum misses them (harm bound" in text and "> 3.0 %" in text
+    assert "P50 IAE [CV*s]" in text and "P(harm) [%]" in text
+    assert main(["tune", str(path), "--json", "--out", str(tmp_path / "b")]) == 0
+    payload = json.loads(capsys.readouterr().out)
+    verdict = payload["verdict"]
+    assert payload["recommended"] == verdict["recommended"] == "nominal"
+    assert verdict["criteria"] == {"max_harm": 0.03, "min_improvement": 0.2}
+    robust = verdict["designs"]["robust"]
+    assert not robust["passes"] and robust["harm_ci95"][1] > 0.03
+    assert verdict["designs"]["nominal"]["passes"]
+    assert verdict["reason"].startswith("Recommended: keep the nominal design")
+    # the case written keeps the nominal gain factor, not the P90 optimum
+    assert load_case(payload["case_file"]).feedforward.gain_factor == 1.0
+
+
+def test_no_case_written_when_neither_design_meets_the_criteria(tmp_path: Path, capsys) -> None:
+    from harm_case import harm_case_text
+
+    path = tmp_path / "blend.toml"
+    path.write_text(harm_case_text(max_harm=0.01), encoding="utf-8")  # 200 plants: bound 1.9 %
+    out = tmp_path / "out"
+    assert main(["tune", str(path), "--json", "--out", str(out)]) == 0
+    payload = json.loads(capsys.readouterr().out)
+    assert payload["recommended"] == "none" and payload["case_file"] is None
+    assert payload["verdict"]["reason"].startswith("Not recommended: neither design meets")
+    assert not out.exists()
+    assert main(["tune", str(path), "--out", str(out)]) == 0
+    text = " ".join(capsys.readouterr().out.split())
+    assert "No tuned case written: neither design meets the criteria" in text
+    assert text.endswith(CAUTION)
