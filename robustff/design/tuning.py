@@ -484,7 +484,8 @@ def design_loop(case: Case) -> LoopDesign:
         case.process, case.disturbance, case.feedforward, case.simulation.step, case.time_unit
     )
     if case.sensor.time_constant > 0.0 and feedforward.active:
-        ff_notes.append("the transmitter lag is not compensated by the design (it is simulated)")
+        ff_notes.append("the sensor time constant (the transmitter lag, [sensor] time_constant) "
+                        "is not compensated by the design (it is simulated)")
     alternatives = []
     for design in case.designs:
         try:
