@@ -144,18 +144,32 @@ def edit_field(case: Case, field: str, text: str) -> Case:
 
 
 def _with_manual_settings(case: Case) -> Case:
-    """Switching to manual tuning starts from the current rule's settings (not from blanks)."""
+    """Switching to manual tuning starts from the current rule's settings (not from blanks),
+    written in the case's controller structure so that the controller stays the same."""
     fb = case.feedback
-    if fb.kc is not None and fb.ti is not None:
+    if fb.kc is not None and (fb.ti is not None or fb.ki is not None):
         return case
+    from robustff.design.controller_forms import ideal_to_parallel, ideal_to_series
     from robustff.design.tuning import design_loop
 
     try:
         settings = design_loop(replace(case, feedback=replace(fb, tuning="simc"))).feedback
     except (ValueError, ArithmeticError):
         return case  # the loader will name the missing settings
-    td = settings.td if fb.form == "pid" else None
-    return replace(case, feedback=replace(fb, kc=settings.kc, ti=settings.ti, td=td))
+    pid = fb.form == "pid"
+    kc, ti, td = settings.kc, settings.ti, settings.td if pid else 0.0
+    if fb.structure == "parallel":
+        gain, ki, kd = ideal_to_parallel(kc, ti, td)
+        return replace(case, feedback=replace(fb, kc=gain, ki=ki, kd=kd if pid else None,
+                                              proportional_band=None, repeats=None))
+    if fb.structure == "series":
+        series = ideal_to_series(kc, ti, td)
+        if series is None:  # no series form (Ti < 4 Td): keep the ideal settings, say so
+            fb = replace(fb, structure="ideal")
+        else:
+            kc, ti, td = series
+    return replace(case, feedback=replace(fb, kc=kc, ti=ti, td=td if pid else None,
+                                          proportional_band=None, repeats=None))
 
 
 def _floats(path: str, text: str) -> tuple[float, ...]:
