@@ -146,9 +146,12 @@ def review_case(case: Case) -> CaseReview:
     margins = continuous = None
     if not errors:
         try:
-            margins = model_margins(case.process, design.feedback,
-                                    sample_time=case.simulation.step)
-            continuous = model_margins(case.process, design.feedback)
+            path = case.secondary.model if case.secondary else None
+            margins = model_margins(case.process, design.feedback, case.simulation.step,
+                                    valve=case.valve, secondary=path,
+                                    secondary_feedback=design.secondary)
+            continuous = model_margins(case.process, design.feedback, valve=case.valve,
+                                       secondary=path, secondary_feedback=design.secondary)
         except RobustffError as exc:
             errors.append(Finding("feedback", f"the nominal loop cannot be analysed ({exc})"))
         else:

@@ -12,6 +12,21 @@ Two loops can be analysed:
   sampling add about half a sample of delay, so its margins are a little smaller and its
   stability verdict is that of the simulated loop.
 
+The loop as installed is linearised at the nominal operating point: a valve's slope there is 1
+(the process gain is the bump-test gain at the nominal position) and its actuator lag
+``Va = 1/(tau_a s + 1)`` is in the path; with a secondary (flow) loop the primary controller
+drives its closed loop ``T = Cs Ps Va / (1 + Cs Ps Va)`` (its PI ``Cs``, its path ``Ps``, the
+actuator lag), in series with the process. ``arg T`` is taken as ``arg Ls - arg(1 + Ls)``, the
+latter's principal value, continuous while the secondary loop ``Ls`` crosses the negative real
+axis only right of -1; samples whose secondary loop is unstable or does not (conditionally
+stable) are reported unstable with NaN margins. In the sampled loop an actuator lag on a
+process with at most one lag becomes its second lag (exact); otherwise, and for ``T``, the
+continuous response ``X(jw)`` multiplies the sampled loop at the same frequency (its aliased
+terms neglected, and ``T`` without the secondary's own scan): an approximation, close while the
+crossovers lie well below ``pi/h`` and the secondary loop is much faster than the primary.
+With a secondary loop, phase crossovers more than three decades above the grid are sought only
+while the bound of ``|L|`` allows one (no bound of ``arg T`` is used).
+
 The derivative acts on the measurement, which changes the set-point response but not the loop
 seen by the feedback. Per sample this module computes
 
@@ -60,7 +75,8 @@ from robustff.design.sampled_loop import SampledLoop
 from robustff.design.tuning import FeedbackSettings
 from robustff.errors import DataError, DesignError
 from robustff.plant.kinds import model_kind
-from robustff.plant.models import PlantBatch, TransferModel
+from robustff.plant.models import PlantBatch, SensorModel, TransferModel
+from robustff.plant.valve import ValveModel
 
 __all__ = [
     "MarginResult",
@@ -100,10 +116,35 @@ class _Loop:
     ti: float  # math.inf: no integral action
     td: float
     tf: float
+    #: Actuator lag of the valve in this loop's path, time units (n,); None: no lag.
+    actuator: np.ndarray | None = None
+    #: The secondary loop inside this one (its path, PI and the actuator lag), None without.
+    inner: _Loop | None = None
+    #: The secondary loop's peak sensitivity (n,), for the bound of ``|T|``.
+    inner_ms: np.ndarray | None = None
 
     def pick(self, rows: np.ndarray | slice) -> _Loop:
         return _Loop(self.gain[rows], self.tau1[rows], self.tau2[rows], self.theta[rows],
-                     self.integrating, self.kc, self.ti, self.td, self.tf)
+                     self.integrating, self.kc, self.ti, self.td, self.tf,
+                     None if self.actuator is None else self.actuator[rows],
+                     None if self.inner is None else self.inner.pick(rows),
+                     None if self.inner_ms is None else self.inner_ms[rows])
+
+    @property
+    def slow_times(self) -> np.ndarray:
+        """Sum of the loop's times (lags, dead times, Ti, Td, Tf; the inner loop's too), (n,)."""
+        total = self.tau1 + self.tau2 + self.theta + self.td + self.tf
+        total = total + (self.ti if math.isfinite(self.ti) else 0.0)
+        if self.actuator is not None:
+            total = total + self.actuator
+        if self.inner is not None:
+            total = total + self.inner.slow_times
+        return total
+
+    @property
+    def total_delay(self) -> np.ndarray:
+        """Dead time of the path including the inner loop's, (n,)."""
+        return self.theta + (0.0 if self.inner is None else self.inner.total_delay)
 
     @property
     def integrators(self) -> int:
@@ -144,6 +185,16 @@ def _polar(loop: _Loop, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     phase = phase - w * _col(loop.theta, w)
     if loop.integrating:
         magnitude, phase = magnitude / w, phase - 0.5 * np.pi
+    if loop.actuator is not None:  # 1/(j w tau_a + 1)
+        lag = w * _col(loop.actuator, w)
+        magnitude, phase = magnitude / np.sqrt(1.0 + lag * lag), phase - np.arctan(lag)
+    if loop.inner is not None:  # T = Ls/(1 + Ls)
+        inner, inner_phase = _polar(loop.inner, w)
+        real, imag = 1.0 + inner * np.cos(inner_phase), inner * np.sin(inner_phase)
+        # arg(1 + Ls) stays within (-180, 180) deg: Ls crosses the negative real axis only
+        # right of -1 (checked in _inner_loop), so the principal value is continuous.
+        magnitude = magnitude * inner / np.hypot(real, imag)
+        phase = phase + inner_phase - np.arctan2(imag, real)
     return magnitude, phase
 
 
@@ -166,15 +217,29 @@ def _gain_bound(loop: _Loop, w: np.ndarray) -> np.ndarray:
         process = 1.0 / w
     else:
         process = 1.0 / np.sqrt((1.0 + (w * loop.tau1) ** 2) * (1.0 + (w * loop.tau2) ** 2))
+    if loop.actuator is not None:
+        process = process / np.sqrt(1.0 + (w * loop.actuator) ** 2)
+    if loop.inner is not None:
+        process = process * _inner_bound(loop, w)
     return abs(loop.kc) * np.abs(loop.gain) * controller * process
+
+
+def _inner_bound(loop: _Loop, w: np.ndarray) -> np.ndarray:
+    """Upper bound of ``|T(jv)|`` for ``v >= w``: ``|T| = |Ls| |S_s| <= Ms_s |Ls|`` and
+    ``|T| = |1 - S_s| <= 1 + Ms_s``, (n,)."""
+    assert loop.inner is not None and loop.inner_ms is not None
+    ms = np.where(np.isfinite(loop.inner_ms), loop.inner_ms, 1.0)  # unusable: see _inner_verdict
+    return np.minimum(ms * _gain_bound(loop.inner, w), 1.0 + ms)
 
 
 def _high_frequency_gain(loop: _Loop) -> np.ndarray:
     """``lim |L(jw)|`` for w -> inf, shape (n,): nonzero only for a lag-free, non-integrating
     process (the delay then keeps turning ``L`` around a circle of this radius)."""
-    if loop.integrating:
+    if loop.integrating or loop.inner is not None:  # _inner_loop refuses a lag-free cascade
         return np.zeros_like(loop.gain)
     no_lag = (loop.tau1 == 0.0) & (loop.tau2 == 0.0)
+    if loop.actuator is not None:
+        no_lag &= loop.actuator == 0.0
     direct = abs(loop.kc) * (1.0 + (loop.td / loop.tf if loop.td > 0.0 else 0.0))
     return np.where(no_lag, direct * np.abs(loop.gain), 0.0)
 
@@ -182,9 +247,7 @@ def _high_frequency_gain(loop: _Loop) -> np.ndarray:
 def _low_end(loop: _Loop | SampledLoop) -> np.ndarray:
     """Bottom of each grid, rad per time unit, (n,): with integral action so low that ``|L| > 100``
     there (the crossovers lie above), else three decades below the loop's slowest time."""
-    total = loop.tau1 + loop.tau2 + loop.theta + loop.td + loop.tf
-    total = total + (loop.ti if math.isfinite(loop.ti) else 0.0)
-    total = np.maximum(total, 1e-300)
+    total = np.maximum(loop.slow_times, 1e-300)
     low = 1e-3 / total
     m = loop.integrators
     if m:
@@ -235,7 +298,7 @@ def _sampled_span(loop: SampledLoop) -> tuple[np.ndarray, np.ndarray, np.ndarray
     high = _bound_falls_to(loop.bound, np.log(low), np.log(nyquist),
                            np.full_like(low, _HIGH_BOUND))
     high = np.minimum(high, nyquist)
-    turning = 2.0 * math.log(10.0) * high * (loop.theta + loop.h)
+    turning = 2.0 * math.log(10.0) * high * (loop.total_delay + loop.h)
     return low, high, np.clip(turning, _POINTS_PER_DECADE, _MAX_DENSITY)
 
 
@@ -398,7 +461,9 @@ def _far_gain_margin(loop: _Loop, top: np.ndarray,
     sub, start, h = loop.pick(rows), top[rows], h[rows]
     phase = _phase(sub, start)
     target = -np.pi + 2.0 * np.pi * np.floor((phase + np.pi) / (2.0 * np.pi))
-    delay = sub.theta > 0.0
+    # With a secondary loop no bound of the phase of T is used: three decades first, then on
+    # while the bound of |L| is above the best crossing (below).
+    delay = (sub.theta > 0.0) & (sub.inner is None)
     reach = (_phase_upper_bound(sub, start) - target) / np.where(delay, sub.theta, 1.0)
     end = np.where(delay, np.maximum(1.01 * reach, 1.001 * start),
                    start * 10.0 ** _FAR_DECADES)
@@ -406,7 +471,8 @@ def _far_gain_margin(loop: _Loop, top: np.ndarray,
     active = np.arange(rows.size)
     for _ in range(_FAR_ROUNDS):
         part = sub.pick(active)
-        density = np.clip(2.0 * math.log(10.0) * end[active] * part.theta, _POINTS_PER_DECADE,
+        density = np.clip(2.0 * math.log(10.0) * end[active] * part.total_delay,
+                          _POINTS_PER_DECADE,
                           _MAX_DENSITY)
         w = _grid(start[active], end[active], density)
         magnitude, phase = _polar(part, w)
@@ -419,7 +485,8 @@ def _far_gain_margin(loop: _Loop, top: np.ndarray,
         found[active] = np.minimum(found[active], _reduce_min(p_rows, far, active.size, np.inf))
         best = np.where(np.isfinite(found[active]), 1.0 / found[active], 0.0)
         # (a lag-free process: |L| tends to h; below it the limit 1/h is the margin already)
-        more = ((best > 0.0) & (best < _gain_bound(part, end[active])) & (part.theta > 0.0)
+        more = ((best > 0.0) & (best < _gain_bound(part, end[active]))
+                & (part.total_delay > 0.0)
                 & (best > h[active] * (1.0 + 1e-9)))
         if not np.any(more):
             break
@@ -495,7 +562,7 @@ def _far_sampled_gain_margin(loop: SampledLoop, top: np.ndarray,
         return gm, peak
     sub, start = loop.pick(rows), top[rows]
     end = np.full_like(start, loop.nyquist)
-    density = np.clip(4.0 * math.log(10.0) * end * (sub.theta + sub.h), _POINTS_PER_DECADE,
+    density = np.clip(4.0 * math.log(10.0) * end * (sub.total_delay + sub.h), _POINTS_PER_DECADE,
                       _MAX_DENSITY)
     w = np.minimum(_grid(start, end, density), loop.nyquist)
     real, imag = sub.rectangular(w)
@@ -579,38 +646,134 @@ def _run_sampled_block(loop: SampledLoop) -> dict[str, np.ndarray]:
     return out
 
 
-def _loop_from(batch: PlantBatch, feedback: FeedbackSettings) -> _Loop:
-    """Validate inputs and collect the loop parameters."""
+def _check_controller(feedback: FeedbackSettings, what: str) -> tuple[float, float, float, float]:
     kc, ti, td, tf = (float(x) for x in (feedback.kc, feedback.ti, feedback.td,
                                          feedback.filter_time))
     if not math.isfinite(kc) or kc == 0.0:
-        raise DesignError(f"loop margins: controller gain Kc must be finite and nonzero, got {kc}")
+        raise DesignError(f"loop margins: {what} gain Kc must be finite and nonzero, got {kc}")
     if not ti > 0.0:
-        raise DesignError(f"loop margins: integral time Ti must be > 0 (inf for none), got {ti}")
+        raise DesignError(f"loop margins: {what} integral time Ti must be > 0 (inf for none), "
+                          f"got {ti}")
     if not (math.isfinite(td) and td >= 0.0 and math.isfinite(tf) and tf >= 0.0):
         raise DesignError(f"loop margins: Td and the derivative filter time must be >= 0, "
                           f"got Td = {td}, Tf = {tf}")
     if td > 0.0 and tf == 0.0:
         raise DesignError("loop margins: a derivative action needs a filter time > 0 "
                           "(an unfiltered derivative makes the loop improper)")
-    kind = model_kind(batch.process_kind)
+    return kc, ti, td, tf
+
+
+def _path(batch: PlantBatch, block: str, kind_name: str) -> tuple[np.ndarray, ...]:
+    """Gain, two lags (0: none) and dead time of a path (``process`` or ``secondary``), (n,)."""
+    kind = model_kind(kind_name)
     if len(kind.lag_parameters) > 2:
         raise DesignError(f"loop margins: a {kind.name} model has more lags than the margin "
                           "calculation handles (two)")
     cols = {}
     for name in ("gain", "time_constant", "time_constant_2", "dead_time"):
-        values = np.asarray(batch.values[f"process.{name}"], dtype=np.float64)
+        values = np.asarray(batch.values[f"{block}.{name}"], dtype=np.float64)
         bad = ~np.isfinite(values) | ((values < 0.0) if name != "gain" else False)
         if np.any(bad):
             first = int(np.nonzero(bad)[0][0])
-            raise DataError(f"loop margins: process.{name} is negative or not finite in "
+            raise DataError(f"loop margins: {block}.{name} is negative or not finite in "
                             f"{int(bad.sum())} samples (first: sample {first}, "
                             f"value {values[first]!r})")
         cols[name] = values
     zero = np.zeros_like(cols["gain"])
     # Lags the kind does not have are "no lag" (zero), whatever the batch column holds.
     tau1, tau2 = ([cols[name] for name in kind.lag_parameters] + [zero, zero])[:2]
-    return _Loop(cols["gain"], tau1, tau2, cols["dead_time"], kind.integrating, kc, ti, td, tf)
+    return cols["gain"], tau1, tau2, cols["dead_time"]
+
+
+def _actuator_lag(batch: PlantBatch) -> np.ndarray | None:
+    """The valve's actuator lag per sample (time units), None without a valve or a lag."""
+    if batch.valve is None:
+        return None
+    values = np.asarray(batch.values["valve.time_constant"], dtype=np.float64)
+    bad = ~np.isfinite(values) | (values < 0.0)
+    if np.any(bad):
+        first = int(np.nonzero(bad)[0][0])
+        raise DataError(f"loop margins: valve.time_constant is negative or not finite in "
+                        f"{int(bad.sum())} samples (first: sample {first}, "
+                        f"value {values[first]!r})")
+    return values if np.any(values > 0.0) else None
+
+
+def _loop_from(batch: PlantBatch, feedback: FeedbackSettings,
+               secondary: FeedbackSettings | None = None) -> _Loop:
+    """Validate inputs and collect the loop parameters, linearised at the nominal operating
+    point: the valve's slope there is 1 (the process gain is the bump-test gain at the nominal
+    position), its actuator lag is in the path, inside the secondary loop when there is one."""
+    kc, ti, td, tf = _check_controller(feedback, "controller")
+    kind = model_kind(batch.process_kind)
+    gain, tau1, tau2, theta = _path(batch, "process", batch.process_kind)
+    actuator = _actuator_lag(batch)
+    if batch.secondary_kind is None:
+        return _Loop(gain, tau1, tau2, theta, kind.integrating, kc, ti, td, tf, actuator)
+    if secondary is None:
+        raise DesignError("loop margins: the plants have a secondary loop; its PI settings "
+                          "(the design's secondary controller) are needed")
+    kc_s, ti_s, td_s, tf_s = _check_controller(secondary, "secondary controller")
+    gain_s, tau1_s, tau2_s, theta_s = _path(batch, "secondary", batch.secondary_kind)
+    inner = _Loop(gain_s, tau1_s, tau2_s, theta_s, model_kind(batch.secondary_kind).integrating,
+                  kc_s, ti_s, td_s, tf_s, actuator)
+    return _Loop(gain, tau1, tau2, theta, kind.integrating, kc, ti, td, tf, None, inner,
+                 _inner_loop(inner))
+
+
+def _inner_loop(inner: _Loop) -> np.ndarray:
+    """Peak sensitivity of each secondary loop (n,); ``inf`` where the secondary loop is
+    unstable or crosses the negative real axis left of -1 (a conditionally stable secondary
+    loop, whose ``arg(1 + Ls)`` the primary's phase cannot follow): such samples are reported
+    unstable (:func:`_inner_verdict`)."""
+    h = _high_frequency_gain(inner)
+    if np.any(h > 0.0):
+        raise DesignError("loop margins: a secondary loop without any lag (no lag in its path "
+                          "and no actuator lag) is not handled")
+    result = _joined([_run_block(inner.pick(slice(i, i + step)), None)
+                      for step in [_block_rows(_grid_points(*_frequency_span(inner)))]
+                      for i in range(0, inner.gain.shape[0], step)])
+    usable = result.stable & (result.gain_margin > 1.0)
+    return np.where(usable, result.ms, np.inf)
+
+
+def _inner_verdict(loop: _Loop, out: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """Samples whose secondary loop is unusable (see :func:`_inner_loop`): unstable, no margins."""
+    if loop.inner_ms is None:
+        return out
+    bad = ~np.isfinite(loop.inner_ms)
+    if np.any(bad):
+        for key in ("gain_margin", "phase_margin", "delay_margin"):
+            out[key] = np.where(bad, np.nan, out[key])
+        out["ms"] = np.where(bad, np.inf, out["ms"])
+        out["stable"] = out["stable"] & ~bad
+    return out
+
+
+@dataclass(frozen=True)
+class _Factor:
+    """The continuous factor ``X(jw)`` of a sampled loop (actuator lag ``Va``, secondary closed
+    loop ``T``): a unit-gain :class:`_Loop` without controller dynamics."""
+
+    loop: _Loop
+
+    def pick(self, rows: np.ndarray | slice) -> _Factor:
+        return _Factor(self.loop.pick(rows))
+
+    def rectangular(self, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        magnitude, phase = _polar(self.loop, w)
+        return magnitude * np.cos(phase), magnitude * np.sin(phase)
+
+    def bound(self, w: np.ndarray) -> np.ndarray:
+        return _gain_bound(self.loop, w)
+
+    @property
+    def slow_times(self) -> np.ndarray:
+        return self.loop.slow_times
+
+    @property
+    def delay(self) -> np.ndarray:
+        return self.loop.total_delay
 
 
 def _block_rows(points: int) -> int:
@@ -622,8 +785,22 @@ def _sampled_from(loop: _Loop, sample_time: float) -> SampledLoop:
     if not (math.isfinite(h) and h > 0.0):
         raise DesignError(f"loop margins: the controller sample time must be a positive number "
                           f"of time units, got {sample_time!r}")
-    return SampledLoop(loop.gain, loop.tau1, loop.tau2, loop.theta, loop.integrating, loop.kc,
-                       loop.ti, loop.td, loop.tf, h)
+    tau1, tau2, rest = loop.tau1, loop.tau2, loop.actuator
+    if loop.actuator is not None and not loop.integrating:
+        # One lag or none: the actuator lag is one more lag, sampled exactly.
+        fold = tau2 == 0.0
+        tau1 = np.where(fold & (tau1 == 0.0), loop.actuator, tau1)
+        tau2 = np.where(fold & (loop.tau1 > 0.0), loop.actuator, tau2)
+        rest = np.where(fold, 0.0, loop.actuator)
+        rest = rest if np.any(rest > 0.0) else None
+    extra = None
+    if rest is not None or loop.inner is not None:
+        one = np.ones_like(loop.gain)
+        zero = np.zeros_like(loop.gain)
+        extra = _Factor(_Loop(one, zero, zero, zero, False, 1.0, math.inf, 0.0, 0.0, rest,
+                              loop.inner, loop.inner_ms))
+    return SampledLoop(loop.gain, tau1, tau2, loop.theta, loop.integrating, loop.kc,
+                       loop.ti, loop.td, loop.tf, h, extra=extra)
 
 
 def _joined(parts: list[dict[str, np.ndarray]]) -> MarginResult:
@@ -635,14 +812,21 @@ def _joined(parts: list[dict[str, np.ndarray]]) -> MarginResult:
 
 def loop_margins(
     batch: PlantBatch, feedback: FeedbackSettings, *, omega: np.ndarray | None = None,
-    sample_time: float | None = None,
+    sample_time: float | None = None, secondary: FeedbackSettings | None = None,
 ) -> MarginResult:
     """Gain, phase and delay margins, Ms and stability of the feedback loop of every sample.
+
+    The loop is linearised at the nominal operating point: the valve's slope there is 1 (the
+    process gain is the bump-test gain at the nominal position), its actuator lag
+    ``1/(tau_a s + 1)`` is in the path; with a secondary loop the primary controller drives the
+    secondary closed loop ``T = Cs Ps Va / (1 + Cs Ps Va)`` in series with the process.
+    Stiction, deadband, rate limit and output limits are left out (nonlinear).
 
     Parameters
     ----------
     batch : PlantBatch
-        Perturbed plants, ``n`` samples; only the ``"process.*"`` parameters are used.
+        Perturbed plants, ``n`` samples; the ``"process.*"`` parameters, ``valve.time_constant``
+        (with a valve) and the ``"secondary.*"`` path (with a secondary loop) are used.
     feedback : FeedbackSettings
         The (nominal) controller: ``kc``, ``ti`` (``math.inf`` for no integral action), ``td``
         and ``filter_time``, time units.
@@ -655,21 +839,26 @@ def loop_margins(
         Controller sample time ``h``, time units. Given, the margins are those of the loop as
         the simulation runs it (controller sampled every ``h``, output held; see
         :mod:`robustff.design.sampled_loop`); omitted, those of the continuous loop.
+    secondary : FeedbackSettings, optional
+        The secondary loop's PI (``LoopDesign.secondary``); required when the batch has a
+        secondary loop.
 
     Returns
     -------
     MarginResult
-        Arrays of shape (n,).
+        Arrays of shape (n,). A sample whose secondary loop is unstable, or crosses the
+        negative real axis left of -1, is unstable with NaN margins.
 
     Raises
     ------
     DesignError
         Controller settings that give no proper loop (Kc = 0, Ti <= 0, an unfiltered derivative),
-        a sample time that is not a positive number, or ``omega`` with ``sample_time``.
+        a sample time that is not a positive number, ``omega`` with ``sample_time``, a
+        secondary loop without its settings or without any lag.
     DataError
         Negative or non-finite time constants or dead times in the batch.
     """
-    loop = _loop_from(batch, feedback)
+    loop = _loop_from(batch, feedback, secondary)
     n = loop.gain.shape[0]
     if sample_time is not None:
         if omega is not None:
@@ -677,7 +866,8 @@ def loop_margins(
                               "continuous loop only; the sampled loop uses its own grids")
         sampled = _sampled_from(loop, sample_time)
         step = _block_rows(_grid_points(*_sampled_span(sampled)))
-        return _joined([_run_sampled_block(sampled.pick(slice(i, i + step)))
+        return _joined([_inner_verdict(loop.pick(slice(i, i + step)),
+                                       _run_sampled_block(sampled.pick(slice(i, i + step))))
                         for i in range(0, n, step)])
     if omega is not None:
         omega = np.asarray(omega, dtype=np.float64)
@@ -687,20 +877,29 @@ def loop_margins(
         step = _block_rows(omega.size)
     else:
         step = _block_rows(_grid_points(*_frequency_span(loop)))
-    return _joined([_run_block(loop.pick(slice(i, i + step)), omega) for i in range(0, n, step)])
+    return _joined([_inner_verdict(loop.pick(slice(i, i + step)),
+                                   _run_block(loop.pick(slice(i, i + step)), omega))
+                    for i in range(0, n, step)])
 
 
 def model_margins(process: TransferModel, feedback: FeedbackSettings,
-                  sample_time: float | None = None) -> MarginResult:
+                  sample_time: float | None = None, *, valve: ValveModel | None = None,
+                  secondary: TransferModel | None = None,
+                  secondary_feedback: FeedbackSettings | None = None) -> MarginResult:
     """Margins of one loop (e.g. the nominal design); arrays of shape (1,).
 
-    ``sample_time`` (time units): the sampled loop, as in :func:`loop_margins`.
+    ``sample_time`` (time units): the sampled loop, as in :func:`loop_margins`; ``valve`` (its
+    actuator lag), ``secondary`` (the secondary path) and ``secondary_feedback`` (its PI) as
+    there.
     """
-    return loop_margins(_single_batch(process), feedback, sample_time=sample_time)
+    batch = (_single_batch(process) if valve is None and secondary is None
+             else PlantBatch.from_nominal(process, process, SensorModel(), 1, valve, secondary))
+    return loop_margins(batch, feedback, sample_time=sample_time, secondary=secondary_feedback)
 
 
 def loop_response(batch: PlantBatch, feedback: FeedbackSettings, omega: np.ndarray,
-                  sample_time: float | None = None) -> np.ndarray:
+                  sample_time: float | None = None,
+                  secondary: FeedbackSettings | None = None) -> np.ndarray:
     """Loop frequency response with the exact dead time.
 
     Parameters
@@ -714,12 +913,14 @@ def loop_response(batch: PlantBatch, feedback: FeedbackSettings, omega: np.ndarr
     sample_time : float, optional
         Controller sample time ``h``, time units: the sampled loop ``L(exp(j w h))`` instead of
         the continuous ``L(j w)``.
+    secondary : FeedbackSettings, optional
+        The secondary loop's PI, as in :func:`loop_margins`.
 
     Returns
     -------
     ndarray, shape (n, F), complex
     """
-    loop = _loop_from(batch, feedback)
+    loop = _loop_from(batch, feedback, secondary)
     w = np.broadcast_to(np.asarray(omega, dtype=np.float64), (loop.gain.shape[0], len(omega)))
     if sample_time is not None:
         return _sampled_from(loop, sample_time).response(w)

@@ -28,6 +28,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -144,6 +145,12 @@ class SampledLoop:
     #: The ZOH coefficients (:func:`zoh_coefficients`) and whole delay samples ``m``, (n,) each;
     #: computed once from the fields above.
     coefficients: dict[str, np.ndarray] = field(default_factory=dict, repr=False, compare=False)
+    #: A continuous factor ``X(jw)`` in series with the process (an actuator lag that cannot be
+    #: folded into the process, the secondary closed loop), multiplied in at the same ``w``
+    #: (an approximation, see :mod:`robustff.design.margins`); it has ``pick(rows)``,
+    #: ``rectangular(w)``, ``bound(w)`` (of ``|X(jv)|``, ``v >= w``), ``slow_times`` and
+    #: ``delay`` (n,). None: no such factor (the exact sampled loop).
+    extra: Any = field(default=None, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         if not self.coefficients:
@@ -163,7 +170,20 @@ class SampledLoop:
         """The loops of the selected rows."""
         return SampledLoop(self.gain[rows], self.tau1[rows], self.tau2[rows], self.theta[rows],
                            self.integrating, self.kc, self.ti, self.td, self.tf, self.h,
-                           {key: value[rows] for key, value in self.coefficients.items()})
+                           {key: value[rows] for key, value in self.coefficients.items()},
+                           None if self.extra is None else self.extra.pick(rows))
+
+    @property
+    def slow_times(self) -> np.ndarray:
+        """Sum of the loop's times (lags, dead time, Ti, Td, Tf, the continuous factor's), (n,)."""
+        total = self.tau1 + self.tau2 + self.theta + self.td + self.tf
+        total = total + (self.ti if math.isfinite(self.ti) else 0.0)
+        return total + (0.0 if self.extra is None else self.extra.slow_times)
+
+    @property
+    def total_delay(self) -> np.ndarray:
+        """Dead time of the process and the continuous factor, (n,)."""
+        return self.theta + (0.0 if self.extra is None else self.extra.delay)
 
     @property
     def integrators(self) -> int:
@@ -249,9 +269,13 @@ class SampledLoop:
         c, _, t, cos, sin, versine = self._parts(w)
         num_re, num_im, den_re, den_im = self._process_parts(c, cos, sin, versine)
         real, imag = self._controller_parts(t, sin, versine)
-        return abs(self.kc) * np.sqrt((real * real + imag * imag)
-                                      * (num_re * num_re + num_im * num_im)
-                                      / (den_re * den_re + den_im * den_im))
+        value = abs(self.kc) * np.sqrt((real * real + imag * imag)
+                                       * (num_re * num_re + num_im * num_im)
+                                       / (den_re * den_re + den_im * den_im))
+        if self.extra is not None:
+            x_re, x_im = self.extra.rectangular(w)
+            value = value * np.sqrt(x_re * x_re + x_im * x_im)
+        return value
 
     def rectangular(self, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Real and imaginary parts of ``L(exp(j w h))``, shape of ``w``, in real arithmetic
@@ -264,7 +288,12 @@ class SampledLoop:
         a_re, a_im = c_re * num_re - c_im * num_im, c_re * num_im + c_im * num_re
         b_re, b_im = a_re * d_re - a_im * d_im, a_re * d_im + a_im * d_re
         scale = self.kc / (den_re * den_re + den_im * den_im)
-        return ((b_re * den_re + b_im * den_im) * scale, (b_im * den_re - b_re * den_im) * scale)
+        real = (b_re * den_re + b_im * den_im) * scale
+        imag = (b_im * den_re - b_re * den_im) * scale
+        if self.extra is not None:
+            x_re, x_im = self.extra.rectangular(w)
+            real, imag = real * x_re - imag * x_im, real * x_im + imag * x_re
+        return real, imag
 
     def polar(self, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """``|L(exp(j w h))|`` and its phase in rad (principal value), shape of ``w``."""
@@ -286,7 +315,11 @@ class SampledLoop:
         first = (c["g1_new"] * z + c["g1_old"]) / (z - c["phi11"])
         second = (c["phi21"] * first + c["g2_new"] * z + c["g2_old"]) / (z - c["phi22"])
         process = np.where(c["second"], second, first)
-        return self.controller(z) * process * np.exp(-1j * ((c["m"] + 1.0) * psi))
+        value = self.controller(z) * process * np.exp(-1j * ((c["m"] + 1.0) * psi))
+        if self.extra is not None:
+            x_re, x_im = self.extra.rectangular(w)
+            value = value * (x_re + 1j * x_im)
+        return value
 
     def bound(self, w: np.ndarray) -> np.ndarray:
         """Upper bound of ``|L(exp(j v h))|`` for all ``w <= v <= pi/h``, shape (n,).
@@ -307,4 +340,6 @@ class SampledLoop:
         if self.td > 0.0:  # |z - 1|/|z - a| grows with w up to 2/(1 + a) at z = -1
             pole = self.tf / (self.tf + self.h)
             controller = controller + self.td / (self.tf + self.h) * 2.0 / (1.0 + pole)
+        if self.extra is not None:
+            process = process * self.extra.bound(w)
         return abs(self.kc) * controller * process

@@ -294,14 +294,14 @@ def _confirmed_unstable(batch: PlantBatch, design: LoopDesign, scenario: Scenari
     The probe judges on the window (its error still growing at the end); a stable loop still
     recovering when the window ends (a very long integral time, a slow integrating loop) can
     look the same. The loop as simulated (controller sampled at the scan, output held; see
-    :mod:`robustff.design.sampled_loop`) decides those samples. With a secondary loop, which
-    the margins leave out, the probe's verdict stands.
+    :mod:`robustff.design.sampled_loop`; the valve's actuator lag and the secondary loop
+    included, linearised at the nominal position as the probe runs them) decides those samples.
     """
     flagged = np.nonzero(probe)[0]
-    if flagged.size == 0 or batch.secondary_kind is not None:
+    if flagged.size == 0:
         return probe
-    stable = loop_margins(batch.subset(flagged), design.feedback,
-                          sample_time=scenario.step).stable
+    stable = loop_margins(batch.subset(flagged), design.feedback, sample_time=scenario.step,
+                          secondary=design.secondary).stable
     confirmed = probe.copy()
     confirmed[flagged[np.asarray(stable, dtype=bool)]] = False
     return confirmed

@@ -419,6 +419,27 @@ def _actuate(u: float, q: int, vs: ValveState, ss: tuple, xs: tuple, ring: np.nd
 
 
 @njit(cache=True, nogil=True, inline="always")
+def _probe_actuate(u: float, q: int, lag: float, ss: tuple, xs: tuple, ring: np.ndarray,
+                   row: int, size: int, mask: int, m_s: int, cs: PathCoefficients,
+                   pole: float, sec: SecondaryParams) -> tuple:
+    """The stability probe's process input over internal step ``q``: the loop linearised at the
+    nominal position (valve slope 1, the actuator lag with pole ``pole`` per internal step, no
+    stiction, deadband, rate limit or limits); returns ``(w, lag state, secondary state,
+    secondary path state)``. With a secondary loop as in :func:`_actuate`."""
+    if not sec.present:
+        lag = pole * lag + (1.0 - pole) * u
+        return lag, lag, ss, xs
+    flow = _output(xs, cs)
+    if q % sec.every == 0:
+        ss = _secondary_control(ss, u - flow, sec)
+    lag = pole * lag + (1.0 - pole) * ss[1]
+    ring[row * size + (q & mask)] = lag
+    xs = _path_step(xs, cs, ring[row * size + ((q - m_s) & mask)],
+                    ring[row * size + ((q - m_s - 1) & mask)])
+    return flow, lag, ss, xs
+
+
+@njit(cache=True, nogil=True, inline="always")
 def _probe_control(s: ProbeState, y: float, k: int, p: ControllerParams, q2: int,
                    q3: int) -> tuple:
     """Stability probe: the linear loop (no limits) after a unit load at the process input.
@@ -515,9 +536,12 @@ def _simulate_sample(
     m_p, m_d, m_q = min(m_p, n_internal), min(m_d, n_internal), min(m_q, n_steps)
     cp = _coefficients(kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], hi, f_p)
     cd = _coefficients(kinds[1], plant[i, 4], plant[i, 5], plant[i, 6], hi, f_d)
+    # The probe's actuator lag (the valve linearised at its nominal position: slope 1).
+    pole_q = decay(hi, plant[i, 15]) if valve_kind > 0 and plant[i, 15] > 0.0 else 0.0
+    fine_q = sec.present or pole_q > 0.0
     # The probe runs at the scan: the process stepped exactly over a scan with its input held
-    # (with a secondary loop it runs with it, at the internal step).
-    cq = cp if substeps == 1 or sec.present else _coefficients(
+    # (with a secondary loop or an actuator lag it runs with them, at the internal step).
+    cq = cp if substeps == 1 or fine_q else _coefficients(
         kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], h, f_q)
     m_s, f_s = split_delay(plant[i, 19], hi)
     m_s = min(m_s, n_internal)
@@ -535,6 +559,7 @@ def _simulate_sample(
                        sec.u_high if sec.present else p.u_high, valve_table)
     ss0 = ss1 = ssq = (0.0, 0.0)  # secondary controllers: (integral, output)
     xs0 = xs1 = xsq = (0.0, 0.0)  # secondary paths
+    lag_q = 0.0  # the probe's actuator lag
     v0 = v1 = _valve_at_rest(vp)
     w0 = w1 = 0.0  # process inputs (the controller outputs through the valve)
     acc0 = acc1 = INITIAL_ACCUMULATORS
@@ -606,7 +631,7 @@ def _simulate_sample(
                         v1 = _valve_scan(v1, u1, vp)
                 if feedback_arm:
                     uq, sq = _probe_control(sq, _output(xq, cq), k, p, q2, q3)
-                    if not sec.present:
+                    if not fine_q:
                         ring[2 * size + (k & mask)] = uq + 1.0
                         xq = _path_step(xq, cq, ring[2 * size + ((k - m_q) & mask)],
                                         ring[2 * size + ((k - m_q - 1) & mask)])
@@ -628,9 +653,9 @@ def _simulate_sample(
                 ring[size + (q & mask)] = w1
                 x1 = _path_step(x1, cp, ring[size + ((q - m_p) & mask)],
                                 ring[size + ((q - m_p - 1) & mask)])
-            if feedback_arm and sec.present:  # the probe with its (linear) secondary loop
-                flow, _, ssq, xsq = _actuate(uq + 1.0, q, v0, ssq, xsq, ring, 7, size, mask,
-                                             m_s, cs, vp, valve_table, 0, secq)
+            if feedback_arm and fine_q:  # the probe with its (linear) secondary loop and lag
+                flow, lag_q, ssq, xsq = _probe_actuate(uq + 1.0, q, lag_q, ssq, xsq, ring, 7,
+                                                       size, mask, m_s, cs, pole_q, secq)
                 ring[2 * size + (q & mask)] = flow
                 xq = _path_step(xq, cp, ring[2 * size + ((q - m_p) & mask)],
                                 ring[2 * size + ((q - m_p - 1) & mask)])

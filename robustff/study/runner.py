@@ -321,11 +321,13 @@ def run_study(
     if margins:
         subset = min(result.samples, MARGIN_SAMPLES)
         scan = case.simulation.step  # the loop as simulated: sampled controller, output held
+        inner = design.secondary
         result.margins = loop_margins(plant_batch(case, names, values[:subset]), design.feedback,
-                                      sample_time=scan)
+                                      sample_time=scan, secondary=inner)
         result.nominal_margins = loop_margins(nominal_batch(case), design.feedback,
-                                              sample_time=scan)
-        result.nominal_continuous_margins = loop_margins(nominal_batch(case), design.feedback)
+                                              sample_time=scan, secondary=inner)
+        result.nominal_continuous_margins = loop_margins(nominal_batch(case), design.feedback,
+                                                         secondary=inner)
     result.elapsed = time.perf_counter() - started
     return result
 

@@ -145,14 +145,26 @@ def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummar
         "stability from the response to a load within the window: a sample counted in "
         f"verdicts_differ was judged differently there ({VERDICT_REASONS})"
     )
-    left_out = [what for what, present in (
-        ("the secondary loop", result.case.secondary is not None),
-        ("the valve's characteristic, stiction, deadband, rate limit and actuator lag",
-         result.case.valve is not None)) if present]
-    if left_out:
-        out["note"] += (f". Not part of the margins: {' and '.join(left_out)} (the process "
-                        "model stands for the path from the controller output to the CV)")
+    out["note"] += _installed_loop_note(result.case.valve is not None,
+                                       result.case.secondary is not None)
     return out
+
+
+def _installed_loop_note(valve: bool, secondary: bool) -> str:
+    """What the margins take of the valve and the secondary loop, and what they leave out
+    (the sentence ending the margins note; empty for a loop with neither)."""
+    parts = []
+    if secondary:
+        parts.append("the secondary loop enters as its linear closed loop T = Cs Ps Va / (1 + "
+                     "Cs Ps Va) (its PI, its path model and the actuator lag) in series with "
+                     "the process, continuous (its own scan period and output limits are left "
+                     "out; a good approximation while it is much faster than the primary loop)")
+    if valve:
+        parts.append("the valve enters linearised at its nominal position (slope 1 there: the "
+                     "process gain is the bump-test gain) with its actuator lag; its "
+                     "characteristic away from that position, stiction, deadband and rate "
+                     "limit are not part of the margins (nonlinear: the simulation has them)")
+    return f". The loop as installed: {'; '.join(parts)}" if parts else ""
 
 
 def _margin_intervals(

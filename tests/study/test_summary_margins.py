@@ -86,7 +86,8 @@ def test_a_very_slow_integral_is_stable_in_both():
 
 def test_the_note_says_what_the_margins_leave_out():
     # The steam-heater demo has a steam-flow secondary loop and a sticky valve; the margins
-    # are of the primary loop on the process model only, and the note says so.
+    # take the secondary closed loop and the actuator lag, not the stem's nonlinear effects,
+    # and the note says so.
     from pathlib import Path
 
     from robustff.case import load_case
@@ -95,6 +96,7 @@ def test_the_note_says_what_the_margins_leave_out():
     result = run_study(load_case(root / "cases" / "steam-heater-sticky-valve.toml"), samples=20,
                        jobs=1)
     note = summarize_study(result)["margins"]["note"]
-    assert "Not part of the margins: the secondary loop and the valve's" in note
+    assert "the secondary loop enters as its linear closed loop" in note
+    assert "stiction, deadband and rate limit are not part of the margins" in note
     plain = run_study(load_case(root / "cases" / "wash-water-heater.toml"), samples=20, jobs=1)
-    assert "Not part of the margins" not in summarize_study(plain)["margins"]["note"]
+    assert "The loop as installed" not in summarize_study(plain)["margins"]["note"]
