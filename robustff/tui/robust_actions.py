@@ -157,4 +157,6 @@ class RobustActions(StudioHost):
             return
         values = ", ".join(f"{name} {value:.4g}" for name, value in searched_values(result).items())
         self.accept_edit(case, rebuild=True, what="the robust feedforward")
-        self.notify(f"robust feedforward applied ({values}); Ctrl+S saves it")
+        against = ("" if result.recommended == "robust"
+                   else ", against the verdict (see the robust search's reason)")
+        self.notify(f"robust feedforward applied ({values}){against}; Ctrl+S saves it")

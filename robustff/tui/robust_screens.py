@@ -1,7 +1,10 @@
 """Screens of the robust feedforward search: its progress, and nominal against robust settings.
 
 The comparison is formatted from a :class:`~robustff.tune.search.RobustResult` (no numbers are
-computed here). Every figure carries its label and unit in words, nothing depends on colour.
+computed here): the verdict of ``robustff tune`` with its reason (harm probability and median
+improvement of both designs against the case's ``[recommendation]``, and whether the winner is
+clear of Monte Carlo noise), then the table. Every figure carries its label and unit in words,
+nothing depends on colour.
 """
 
 from __future__ import annotations
@@ -25,7 +28,7 @@ if TYPE_CHECKING:
     from robustff.tune.search import RobustResult
 
 __all__ = ["OBJECTIVE_CHOICES", "OBJECTIVE_WORDS", "RobustProgressScreen", "RobustResultScreen",
-           "comparison_table", "searched_values"]
+           "apply_label", "comparison_table", "searched_values"]
 
 #: Keys and labels of the objective question (the first is the default).
 OBJECTIVE_CHOICES: list[tuple[str, str]] = [("p", "P90 of IAE"), ("c", "CVaR"), ("h", "P(harm)")]
@@ -41,6 +44,10 @@ OBJECTIVE_WORDS = {
 
 def _number(value: float, digits: str = ".4g") -> str:
     return "unstable" if not math.isfinite(value) else format(value, digits)
+
+
+def _percent(value: float | None) -> str:
+    return "n/a" if value is None else f"{100 * value:.1f} %"
 
 
 def searched_values(result: RobustResult) -> dict[str, float]:
@@ -77,6 +84,13 @@ def comparison_table(result: RobustResult, time_unit: str, iae_unit: str) -> Tab
     for key, label in (("optimisation", "optimisation"), ("fresh", "fresh")):
         table.add_row(f"P(harm), {label}", f"{100 * nominal[key].harm:.1f} %",
                       f"{100 * robust[key].harm:.1f} %")
+    judged = result.verdict.designs
+    table.add_row("P(harm) 95 % bound, fresh", *(_percent(judged[name]["harm_ci95"][1])
+                                                 for name in ("nominal", "robust")))
+    table.add_row("median IAE improvement, fresh",
+                  *(_percent(judged[name]["improvement_p50"]) for name in ("nominal", "robust")))
+    table.add_row("meets the criteria", *("yes" if judged[name]["passes"] else "no"
+                                          for name in ("nominal", "robust")))
     if result.objective == "cvar":  # p90 and harm are rows above already
         table.add_row(Text(f"CVaR90 IAE, fresh [{iae_unit}]"), _number(nominal["fresh"].objective),
                       _number(result.objective_fresh))
@@ -143,7 +157,7 @@ class RobustResultScreen(ModalScreen[bool]):
             with VerticalScroll(id="robust-body"):
                 yield Static(head, classes="question")
                 # the verdict first: at 24 rows the table below may need scrolling
-                yield Static(_recommendation(result, self.iae_unit), classes="hint",
+                yield Static(_recommendation(result), classes="hint",
                              id="robust-verdict")
                 yield Static(comparison_table(result, self.time_unit, self.iae_unit),
                              id="robust-table")
@@ -151,7 +165,7 @@ class RobustResultScreen(ModalScreen[bool]):
                              "those plants); compare the fresh ones.", classes="hint")
             yield Static(f"⚠ {CAUTION}", id="robust-caution")
             with Horizontal(classes="buttons"):
-                yield Button(escape("[a] apply to the case"), id="robust-apply", compact=True)
+                yield Button(escape(apply_label(result)), id="robust-apply", compact=True)
                 yield Button(escape("[k] keep current"), id="robust-keep", compact=True)
 
     def on_button_pressed(self, event: Button.Pressed) -> None:
@@ -164,15 +178,14 @@ class RobustResultScreen(ModalScreen[bool]):
         self.dismiss(False)
 
 
-def _recommendation(result: RobustResult, iae_unit: str) -> str:
-    """Whether the winner beats the nominal design by more than Monte Carlo noise."""
-    low, high = result.improvement_interval
-    if result.objective == "harm":  # a difference of probabilities
-        interval = f"{100 * low:.3g} to {100 * high:.3g} percentage points of P(harm)"
-    else:
-        interval = f"{low:.3g} to {high:.3g} {iae_unit}"
+def apply_label(result: RobustResult) -> str:
+    """The apply button: plain when the verdict recommends the search's winner."""
     if result.recommended == "robust":
-        return (f"Verdict: the improvement is clear of Monte Carlo noise (90 % bootstrap interval "
-                f"{interval}); applying it is reasonable.")
-    return (f"Verdict: the improvement is within Monte Carlo noise (90 % bootstrap interval "
-            f"{interval}); keeping the current design is as good.")
+        return "[a] apply to the case"
+    return "[a] apply anyway (not recommended)"
+
+
+def _recommendation(result: RobustResult) -> str:
+    """The verdict of ``robustff tune`` in brief (the figures are in the table below; the
+    text carries its units, taken from the case as the studio's own are)."""
+    return f"Verdict: {result.verdict.brief}"

@@ -51,7 +51,13 @@ class TuneVerdict:
     ----------
     recommended : {"robust", "nominal", "none"}
     reason : str
-        One paragraph, every figure with its unit.
+        One paragraph, every figure with its unit: the decision, the criteria, each design's
+        harm probability (count, 95 % interval) and median improvement against them, and
+        whether the winner is clear of Monte Carlo noise (``robustff tune``'s printout).
+    brief : str
+        The same verdict without the per-design figures, for a screen that shows them in a
+        table beside it (the studio's robust dialog): decision, criteria, what each failing
+        design misses, Monte Carlo noise.
     criteria : RecommendationSpec
         The criteria applied (the case's ``[recommendation]``).
     designs : dict of str to DesignVerdict
@@ -62,6 +68,7 @@ class TuneVerdict:
 
     recommended: str
     reason: str
+    brief: str
     criteria: RecommendationSpec
     designs: dict[str, DesignVerdict]
     clear: bool
@@ -71,6 +78,7 @@ class TuneVerdict:
         return {
             "recommended": self.recommended,
             "reason": self.reason,
+            "brief": self.brief,
             "criteria": {"max_harm": self.criteria.max_harm,
                          "min_improvement": self.criteria.min_improvement},
             "clear_of_noise": self.clear,
@@ -176,4 +184,23 @@ def tune_verdict(robust: DesignVerdict, nominal: DesignVerdict, criteria: Recomm
                  f"bootstrap interval {interval_text}) is "
                  f"{'clear of' if clear else 'within'} Monte Carlo noise")
     reason = f"{headline}. {rule}. {judged[0].upper()}{judged[1:]}. {noise}."
-    return TuneVerdict(recommended, reason, criteria, designs, clear)
+    return TuneVerdict(recommended, reason, _brief(headline, designs, order, criteria, noise),
+                       criteria, designs, clear)
+
+
+def _brief(headline: str, designs: dict[str, DesignVerdict], order: tuple[str, str],
+           criteria: RecommendationSpec, noise: str) -> str:
+    """Decision, criteria, what each failing design misses (once when both miss the same)."""
+    rule = (f"upper 95 % bound of P(harm) at most {percent(criteria.max_harm)}, median IAE "
+            f"improvement at least {percent(criteria.min_improvement)}, on the fresh samples")
+    misses: list[str] = []
+    previous: list[str] | None = None
+    for name in order:
+        reasons = designs[name]["reasons"]
+        if not reasons:
+            continue
+        words = DESIGN_WORDS[name]
+        text = "the same" if reasons == previous else "; ".join(reasons)
+        misses.append(f"{words[0].upper()}{words[1:]}: {text}.")
+        previous = reasons
+    return " ".join([f"{headline} (criteria: {rule}).", *misses, f"{noise}."])

@@ -217,7 +217,7 @@ def test_robust_search_key_applies_the_searched_feedforward(
     async def scenario() -> None:
         app = _app(case_file, tmp_path / "cache")
         app.robust_budget = 6  # a few evaluations keep the test quick
-        async with app.run_test(size=(100, 30)) as pilot:
+        async with app.run_test(size=(100, 40)) as pilot:  # the verdict's reason and the table
             await _wait_results(app, pilot, 0)
             await pilot.press("f6")
             await pilot.pause()
@@ -241,7 +241,7 @@ def test_robust_search_key_applies_the_searched_feedforward(
             await pilot.pause(0.3)
             small = app.screen_text()
             assert "Verdict:" in small and "[a] apply" in small and "Caution" in small
-            await pilot.resize_terminal(100, 30)
+            await pilot.resize_terminal(100, 40)
             await pilot.pause(0.3)
             before, version = app.case.feedforward, app.results_version
             await pilot.press("a")

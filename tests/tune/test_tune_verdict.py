@@ -121,6 +121,9 @@ def test_improvement_criterion_and_the_order_of_the_decision():
         verdict = tune_verdict(good if robust_ok else bad, good if nominal_ok else bad, criteria,
                                (1.0, 2.0) if clear else (-1.0, 2.0), "1 to 2 CV*s")
         assert verdict.recommended == expected, (robust_ok, nominal_ok, clear)
+    neither = tune_verdict(bad, bad, criteria, (1.0, 2.0), "1 to 2 CV*s")
+    assert "Robust optimum: x. Nominal design: the same." in neither.brief
+    assert "(90 % bootstrap interval 1 to 2 CV*s) is clear of Monte Carlo noise" in neither.brief
 
 
 def test_tune_uses_the_reports_judgement():
