@@ -522,7 +522,9 @@ def _verdict(problem: _Problem, fresh: _SampleSet, robust: FeedforwardSettings,
               for name, settings in (("robust", robust), ("nominal", nominal))}
     scale = 100.0 if objective == "harm" else 1.0  # a difference of probabilities: points
     low, high = interval
-    text = f"{scale * low:.3g} to {scale * high:.3g} {objective_unit(problem.case, objective)}"
+    text = (f"{scale * low:.3g} to {scale * high:.3g} {objective_unit(problem.case, objective)}"
+            if math.isfinite(low) and math.isfinite(high)
+            else "not available: unstable samples in every resample")
     return tune_verdict(judged["robust"], judged["nominal"], criteria, interval, text,
                         same=robust == nominal)
 
