@@ -186,6 +186,8 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         row.show_result(None, message.text)
         self.accept_edit(case, rebuild=message.field == "feedback.tuning",
                          what=f"{message.field} = {message.text.strip()}")
+        if message.field.startswith("valve."):  # a valve added, removed or of another kind
+            self.query_one(ModelsPane).show_values(case, editing.VALVE_FIELDS)
 
     def on_distribution_edited(self, message: DistributionEdited) -> None:
         pane = self.query_one(UncertaintyPane)

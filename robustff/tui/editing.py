@@ -22,10 +22,12 @@ from robustff.case import (
 from robustff.case.record_section import records_folder
 from robustff.errors import CaseError
 from robustff.plant.models import MODEL_PARAMETERS, SENSOR_PARAMETERS
+from robustff.plant.valve import VALVE_CHARACTERISTICS, ValveModel
 
 __all__ = [
     "EDIT_SOURCE",
     "CHOICE_FIELDS",
+    "VALVE_FIELDS",
     "OPTIONAL_FIELDS",
     "validated",
     "edit_field",
@@ -50,7 +52,15 @@ CHOICE_FIELDS: dict[str, tuple[str, ...]] = {
     "feedback.form": ("pi", "pid"),
     "feedback.tuning": ("simc", "imc", "manual"),
     "feedforward.structure": ("none", "static", "lead-lag", "lead-lag-delay"),
+    "valve.characteristic": ("none", *VALVE_CHARACTERISTICS),
 }
+
+#: The valve's fields the studio edits (``[valve]``; ``none``: an ideal actuator). The
+#: installed characteristic's table is given in the case file.
+VALVE_FIELDS: tuple[str, ...] = (
+    "valve.characteristic", "valve.rangeability", "valve.stiction_s", "valve.stiction_j",
+    "valve.deadband", "valve.rate_limit", "valve.time_constant",
+)
 
 #: Numeric fields that may be left blank (blank means "not set": the design rule decides).
 OPTIONAL_FIELDS: frozenset[str] = frozenset({
@@ -100,6 +110,8 @@ def _number(field: str, text: str, optional: bool) -> float | None:
 def field_text(case: Case, field: str) -> str:
     """The current value of ``field`` (e.g. ``"process.gain"``) as editable text."""
     section, name = field.split(".", 1)
+    if section == "valve" and case.valve is None:  # an ideal actuator
+        return "none" if name == "characteristic" else ""
     value = getattr(getattr(case, section), name)
     if value is None:
         return ""
@@ -114,7 +126,9 @@ def edit_field(case: Case, field: str, text: str) -> Case:
     case : Case
     field : str
         ``"section.name"``: ``process.*``, ``disturbance.*`` and ``sensor.*`` model parameters,
-        ``feedback.*``, ``feedforward.*``, ``study.samples`` / ``study.seed``.
+        ``feedback.*``, ``feedforward.*``, ``study.samples`` / ``study.seed``, the valve's
+        :data:`VALVE_FIELDS` (``valve.characteristic = none`` removes the valve; a number
+        typed without a valve adds a linear one).
     text : str
         As typed; a blank optional field means "not set".
 
@@ -129,6 +143,8 @@ def edit_field(case: Case, field: str, text: str) -> Case:
         The loader's reason (or "must be a number") when the edit is refused.
     """
     section, name = field.split(".", 1)
+    if section == "valve":
+        return validated(_edited_valve(case, field, text))
     owner = getattr(case, section)
     if field in CHOICE_FIELDS:
         value: object = text.strip()
@@ -141,6 +157,32 @@ def edit_field(case: Case, field: str, text: str) -> Case:
     if field == "feedback.tuning" and value == "manual":
         changed = _with_manual_settings(changed)
     return validated(changed)
+
+
+def _edited_valve(case: Case, field: str, text: str) -> Case:
+    """The case with one valve field set (not yet validated)."""
+    name = field.split(".", 1)[1]
+    valve = case.valve or ValveModel()
+    if field not in VALVE_FIELDS:
+        raise CaseError(f"{EDIT_SOURCE}: {field}: not a valve setting the studio edits")
+    if name == "characteristic":
+        choice = text.strip()
+        if choice == "none":
+            return replace(case, valve=None)
+        if choice not in VALVE_CHARACTERISTICS:
+            raise CaseError(f"{EDIT_SOURCE}: {field}: must be one of none, "
+                            f"{', '.join(VALVE_CHARACTERISTICS)} (got {text!r})")
+        if choice == "installed" and not valve.installed:
+            raise CaseError(f"{EDIT_SOURCE}: {field}: an installed characteristic needs its "
+                            "table of [position %, flow fraction] pairs; give it in the case "
+                            "file ([valve] installed)")
+        installed = valve.installed if choice == "installed" else ()
+        return replace(case, valve=replace(valve, characteristic=choice, installed=installed))
+    if name == "rangeability" and valve.characteristic != "equal-percentage":
+        raise CaseError(f"{EDIT_SOURCE}: {field}: used only with characteristic = "
+                        "'equal-percentage'")
+    number = _number(field, text, optional=False) or 0.0  # not optional: never None
+    return replace(case, valve=replace(valve, **{name: number}))  # type: ignore[arg-type]
 
 
 def _with_manual_settings(case: Case) -> Case:

@@ -1,4 +1,5 @@
-"""The models and design pane: nominal process/disturbance values, feedback and feedforward."""
+"""The models and design pane: nominal process/disturbance values, feedback, feedforward and
+the valve."""
 
 from __future__ import annotations
 
@@ -10,7 +11,7 @@ from textual.widgets import Input, Label, Select, Static
 
 from robustff.case import Case
 from robustff.plant.models import MODEL_PARAMETERS
-from robustff.tui.editing import CHOICE_FIELDS, OPTIONAL_FIELDS, field_text
+from robustff.tui.editing import CHOICE_FIELDS, OPTIONAL_FIELDS, VALVE_FIELDS, field_text
 from robustff.tui.messages import FieldEdited, field_id
 
 __all__ = ["ModelsPane", "FieldRow", "focus_label", "FOCUS_MARK"]
@@ -29,7 +30,17 @@ _LABELS = {
     "closed_loop_time": "tau_c", "kc": "Kc (manual)", "ti": "Ti (manual)", "td": "Td (manual)",
     "structure": "structure", "gain_factor": "gain factor",
     "lead": "ff lead", "lag": "ff lag", "delay": "ff delay",
+    # the valve (the same words as the design summary's installed loop)
+    "valve.characteristic": "characteristic", "valve.rangeability": "rangeability",
+    "valve.stiction_s": "stiction S", "valve.stiction_j": "slip jump J",
+    "valve.deadband": "deadband", "valve.rate_limit": "rate limit",
+    "valve.time_constant": "actuator lag",
 }
+
+
+def _field_label(field: str) -> str:
+    name = field.split(".", 1)[1]
+    return _LABELS.get(field, _LABELS.get(name, name))
 
 
 class FieldRow(Vertical):
@@ -41,9 +52,8 @@ class FieldRow(Vertical):
         self.applied = field_text(case, field)
 
     def compose(self) -> ComposeResult:
-        name = self.field.split(".", 1)[1]
         with Horizontal(classes="field"):
-            yield Label(focus_label(_LABELS.get(name, name), False), classes="field-label")
+            yield Label(focus_label(_field_label(self.field), False), classes="field-label")
             if self.field in CHOICE_FIELDS:
                 options = [(choice, choice) for choice in CHOICE_FIELDS[self.field]]
                 yield Select(options, value=self.applied, allow_blank=False, compact=True,
@@ -51,7 +61,8 @@ class FieldRow(Vertical):
             else:
                 yield Input(self.applied, compact=True, id=f"in-{field_id(self.field)}",
                             placeholder="blank = rule" if self.field in OPTIONAL_FIELDS
-                            else "a number")
+                            else "no valve" if self.applied == "" and
+                            self.field.startswith("valve.") else "a number")
         yield Static("", classes="error", id=f"err-{field_id(self.field)}")
         yield Static("", classes="warning", id=f"warn-{field_id(self.field)}")
 
@@ -62,8 +73,7 @@ class FieldRow(Vertical):
         self.query_one(".field-label", Label).update(focus_label(self._label(), False))
 
     def _label(self) -> str:
-        name = self.field.split(".", 1)[1]
-        return _LABELS.get(name, name)
+        return _field_label(self.field)
 
     def _send(self, text: str) -> None:
         if text != self.applied or self.has_class("invalid"):
@@ -122,11 +132,29 @@ class ModelsPane(Vertical):
         yield Static("Feedforward", classes="section")
         for name in ("structure", "gain_factor", "lead", "lag", "delay"):
             yield FieldRow(case, f"feedforward.{name}")
+        yield Static("Valve (none: ideal actuator)", classes="section")
+        yield Static(f"  stiction S, J and deadband in % of travel; rate limit in "
+                     f"%/{case.time_unit}; actuator lag in {case.time_unit}; rangeability "
+                     "(equal-percentage only) dimensionless", classes="hint")
+        for field in VALVE_FIELDS:
+            yield FieldRow(case, field)
         yield Static("", id="design-summary")
 
     def row(self, field: str) -> FieldRow:
         """The row editing ``field``."""
         return self.query_one(f"#row-{field_id(field)}", FieldRow)
+
+    def show_values(self, case: Case, fields: tuple[str, ...]) -> None:
+        """Show the case's values in the rows of ``fields`` (rows holding a refused edit keep
+        their text)."""
+        for field in fields:
+            row = self.row(field)
+            if row.has_class("invalid"):
+                continue
+            row.applied = field_text(case, field)
+            for widget in row.query(Input):
+                widget.value = row.applied
+                widget.placeholder = "no valve" if case.valve is None else "a number"
 
     def show_design(self, lines: list[str], warnings: dict[str, str]) -> None:
         """Show the design computed from the nominal models and the review's warnings.
