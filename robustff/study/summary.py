@@ -158,7 +158,8 @@ def _installed_loop_note(valve: bool, secondary: bool) -> str:
         parts.append("the secondary loop enters as its linear closed loop T = Cs Ps Va / (1 + "
                      "Cs Ps Va) (its PI, its path model and the actuator lag) in series with "
                      "the process, continuous (its own scan period and output limits are left "
-                     "out; a good approximation while it is much faster than the primary loop)")
+                     "out: an approximation, tested for a secondary closed-loop time up to "
+                     "twice the primary's dead time)")
     if valve:
         parts.append("the valve enters linearised at its nominal position (slope 1 there: the "
                      "process gain is the bump-test gain) with its actuator lag; its "

@@ -50,23 +50,25 @@ def test_an_actuator_lag_that_destabilises_the_loop_is_seen_by_margins_and_simul
     assert _verdicts(_case(4.0, 8.0, ValveModel(time_constant=2.0))) == (False, True, True)
 
 
-def _cascade(kc: float, scans: int) -> Case:
-    # Flow path 2 e^{-0.05 s}/(0.3 s + 1) under PI Kc_s = 0.5, Ti_s = 0.3 (closed-loop time
-    # Ti_s/(Kc_s K_s) = 0.3 s, about a tenth of the primary's lag plus dead time budget),
-    # actuator lag 0.1 s, secondary scan 0.1/scans s.
-    secondary = SecondarySpec(Model("fopdt", 2.0, 0.3, 0.0, 0.05), "manual", kc=0.5, ti=0.3,
+def _cascade(kc: float, scans: int, tau_s: float = 0.3) -> Case:
+    # Flow path 2 e^{-0.05 s}/(tau_s s + 1) under PI Kc_s = 0.5, Ti_s = tau_s (closed-loop time
+    # Ti_s/(Kc_s K_s) = tau_s), actuator lag 0.1 s, secondary scan 0.1/scans s; the primary
+    # dead time is 1 s.
+    secondary = SecondarySpec(Model("fopdt", 2.0, tau_s, 0.0, 0.05), "manual", kc=0.5, ti=tau_s,
                               output_low=-1e6, output_high=1e6, output_bias=0.0,
                               scans_per_primary=scans)
     return _case(kc, 8.0, ValveModel(time_constant=0.1), secondary, substeps=4)
 
 
 @pytest.mark.parametrize("scans", [1, 4])
-def test_the_secondary_loop_enters_the_stability_limit(scans):
-    # The sampled margins take the secondary closed loop continuous (an approximation for a
-    # secondary loop much faster than the primary). Stated range: a secondary closed-loop time
-    # below a third of the primary's dead time; the predicted stability limit Kc * GM then
-    # holds within 10 % in the simulation (linear probe, secondary scan h/scans).
-    base = _cascade(4.0, scans)
+@pytest.mark.parametrize("tau_s", [0.3, 2.0])
+def test_the_secondary_loop_enters_the_stability_limit(scans, tau_s):
+    # The sampled margins take the secondary closed loop continuous, without its own scan (an
+    # approximation). Stated range: a secondary closed-loop time up to twice the primary's
+    # dead time and a secondary scan of a scan period or less; the predicted stability limit
+    # Kc * GM then holds within 5 % in the simulation (linear probe, secondary scan h/scans;
+    # measured: within 2.5 %).
+    base = _cascade(4.0, scans, tau_s)
     design = design_loop(base)
     margins = loop_margins(nominal_batch(base), design.feedback, sample_time=0.1,
                            secondary=design.secondary)
@@ -75,7 +77,8 @@ def test_the_secondary_loop_enters_the_stability_limit(scans):
     ideal = loop_margins(nominal_batch(_case(4.0, 8.0)), design_loop(_case(4.0, 8.0)).feedback,
                          sample_time=0.1)
     assert 4.0 * float(ideal.gain_margin[0]) > 1.25 * limit
-    below, above = _verdicts(_cascade(0.9 * limit, scans)), _verdicts(_cascade(1.1 * limit, scans))
+    below = _verdicts(_cascade(0.95 * limit, scans, tau_s))
+    above = _verdicts(_cascade(1.05 * limit, scans, tau_s))
     assert below[0] is False and below[1] is True
     assert above[0] is True and above[1] is False
 
