@@ -235,7 +235,7 @@ def _inner_bound(loop: _Loop, w: np.ndarray) -> np.ndarray:
 def _high_frequency_gain(loop: _Loop) -> np.ndarray:
     """``lim |L(jw)|`` for w -> inf, shape (n,): nonzero only for a lag-free, non-integrating
     process (the delay then keeps turning ``L`` around a circle of this radius)."""
-    if loop.integrating or loop.inner is not None:  # _inner_loop refuses a lag-free cascade
+    if loop.integrating or loop.inner is not None:  # _loop_from refuses a lag-free cascade
         return np.zeros_like(loop.gain)
     no_lag = (loop.tau1 == 0.0) & (loop.tau2 == 0.0)
     if loop.actuator is not None:
@@ -717,6 +717,10 @@ def _loop_from(batch: PlantBatch, feedback: FeedbackSettings,
     gain_s, tau1_s, tau2_s, theta_s = _path(batch, "secondary", batch.secondary_kind)
     inner = _Loop(gain_s, tau1_s, tau2_s, theta_s, model_kind(batch.secondary_kind).integrating,
                   kc_s, ti_s, td_s, tf_s, actuator)
+    lag_free = (tau1 == 0.0) & (tau2 == 0.0) & ~kind.integrating
+    if np.any(lag_free & (_high_frequency_gain(inner) > 0.0)):
+        raise DesignError("loop margins: a lag-free process behind a lag-free secondary loop "
+                          "(no lag in either path and no actuator lag) is not handled")
     return _Loop(gain, tau1, tau2, theta, kind.integrating, kc, ti, td, tf, None, inner,
                  _inner_loop(inner))
 
@@ -726,10 +730,6 @@ def _inner_loop(inner: _Loop) -> np.ndarray:
     unstable or crosses the negative real axis left of -1 (a conditionally stable secondary
     loop, whose ``arg(1 + Ls)`` the primary's phase cannot follow): such samples are reported
     unstable (:func:`_inner_verdict`)."""
-    h = _high_frequency_gain(inner)
-    if np.any(h > 0.0):
-        raise DesignError("loop margins: a secondary loop without any lag (no lag in its path "
-                          "and no actuator lag) is not handled")
     result = _joined([_run_block(inner.pick(slice(i, i + step)), None)
                       for step in [_block_rows(_grid_points(*_frequency_span(inner)))]
                       for i in range(0, inner.gain.shape[0], step)])
@@ -854,7 +854,8 @@ def loop_margins(
     DesignError
         Controller settings that give no proper loop (Kc = 0, Ti <= 0, an unfiltered derivative),
         a sample time that is not a positive number, ``omega`` with ``sample_time``, a
-        secondary loop without its settings or without any lag.
+        secondary loop without its settings, or a lag-free process behind a lag-free
+        secondary loop.
     DataError
         Negative or non-finite time constants or dead times in the batch.
     """

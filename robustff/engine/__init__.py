@@ -23,6 +23,7 @@ from robustff.engine.scenario import (
     event_profiles,
     settling_segments,
 )
+from robustff.errors import DesignError
 from robustff.plant.kinds import model_kind
 from robustff.plant.models import PlantBatch
 from robustff.plant.valve import VALVE_PARAMETERS, valve_code
@@ -300,8 +301,11 @@ def _confirmed_unstable(batch: PlantBatch, design: LoopDesign, scenario: Scenari
     flagged = np.nonzero(probe)[0]
     if flagged.size == 0:
         return probe
-    stable = loop_margins(batch.subset(flagged), design.feedback, sample_time=scenario.step,
-                          secondary=design.secondary).stable
+    try:
+        stable = loop_margins(batch.subset(flagged), design.feedback, sample_time=scenario.step,
+                              secondary=design.secondary).stable
+    except DesignError:  # a loop the margins do not handle: the probe's verdict stands
+        return probe
     confirmed = probe.copy()
     confirmed[flagged[np.asarray(stable, dtype=bool)]] = False
     return confirmed

@@ -178,3 +178,22 @@ def test_a_secondary_loop_needs_its_settings():
     batch = PlantBatch.from_nominal(process, process, SensorModel(), 1, None, path)
     with pytest.raises(DesignError, match="secondary"):
         loop_margins(batch, settings(1.0, 10.0))
+
+
+def test_a_lag_free_secondary_path_is_handled_behind_a_lagged_process():
+    # A lag-free flow path (pure dead time) and no actuator lag: T does not roll off, the
+    # primary's lag does. Checked against python-control as above (Pade order 10).
+    pytest.importorskip("control")
+    import control
+
+    process, path = TransferModel("fopdt", 2.0, 10.0, 0.0, 2.0), TransferModel(
+        "fopdt", 1.0, 0.0, 0.0, 0.1)
+    fb, fb_s = settings(1.0, 10.0), settings(0.3, 0.2)
+    inner = control.feedback(pi_tf(fb_s) * continuous(path), 1)
+    gm, pm, ms = python_control_margins(pi_tf(fb) * inner * continuous(process))
+    mine = model_margins(process, fb, secondary=path, secondary_feedback=fb_s)
+    assert mine.gain_margin[0] == pytest.approx(gm, rel=1e-4)
+    assert mine.phase_margin[0] == pytest.approx(pm, rel=1e-4)
+    lag_free = TransferModel("fopdt", 2.0, 0.0, 0.0, 2.0)
+    with pytest.raises(DesignError, match="lag-free process behind a lag-free secondary"):
+        model_margins(lag_free, fb, secondary=path, secondary_feedback=fb_s)
