@@ -35,8 +35,9 @@ def installed_loop_lines(case: Case, design: LoopDesign) -> list[str]:
         if valve.time_constant:
             stem.append(f"actuator lag {valve.time_constant:g} {unit}")
         lines.append(f"  valve: {shape}; " + ("; ".join(stem) if stem else "no stem effects"))
-        lines.append("    the process gain holds at the nominal position; margins and design "
-                     "use that linearisation")
+        lines.append("    the process gain holds at the nominal position; the margins use that "
+                     "linearisation with the actuator lag (stiction, deadband and rate limit "
+                     "only in the simulation)")
     spec, inner = case.secondary, design.secondary
     if spec is not None and inner is not None:
         flow = case.signals.output.unit or "flow unit"
