@@ -355,11 +355,12 @@ def describe_distribution(parameter: UncertainParameter, nominal: float, unit: s
         low, high = _uniform_range(distribution, nominal)
         text = f"uniform {low:.4g} .. {high:.4g}{u} (nominal +/- {100 * params[0]:.3g} %)"
     elif kind == "triangular":
-        text = f"triangular {params[0]:.4g} .. {params[2]:.4g}{u}, mode {params[1]:.4g}"
+        text = f"triangular {params[0]:.4g} .. {params[2]:.4g}{u}, mode {params[1]:.4g}{u}"
     elif kind == "normal":
-        text = f"normal mean {params[0]:.4g}{u}, std {params[1]:.4g}"
+        text = f"normal mean {params[0]:.4g}{u}, std {params[1]:.4g}{u}"
     else:
+        # the factor multiplies: it has no unit
         text = f"lognormal median {params[0]:.4g}{u}, factor {params[1]:.4g}"
     if clip is not None:
-        text += f", clipped to {clip[0]:.4g} .. {clip[1]:.4g}"
+        text += f", clipped to {clip[0]:.4g} .. {clip[1]:.4g}{u}"
     return text

@@ -227,7 +227,7 @@ def test_describe_distribution_lines():
     relative = UncertainParameter("process.gain", Distribution("relative", (0.2,)))
     assert describe(relative, -2.0) == "uniform -2.4 .. -1.6 (nominal +/- 20 %)"
     clipped = UncertainParameter("process.dead_time", Distribution("normal", (3.0, 0.5), (0, 5)))
-    assert describe(clipped, 3.0, "s") == "normal mean 3 s, std 0.5, clipped to 0 .. 5"
+    assert describe(clipped, 3.0, "s") == "normal mean 3 s, std 0.5 s, clipped to 0 .. 5 s"
 
 
 def test_relative_on_negative_nominal_from_a_file_is_sorted():

@@ -56,7 +56,7 @@ def test_time_stamp_has_its_zone_and_the_tables_carry_units(study):
     assert entry["host"]
     words = {row["key"]: row["words"] for row in entry["uncertainty"]}
     assert words["process.gain"] == "uniform -0.15 .. -0.09 Brix per %"
-    assert words["disturbance.time_constant"].endswith("clipped to 10 .. 30")
+    assert words["disturbance.time_constant"].endswith("clipped to 10 .. 30 s")
     units = {row["key"]: row["unit"] for row in entry["models"]}
     assert units["process.dead_time"] == "s" and units["disturbance.gain"] == "Brix per L/min"
     assert entry["correlations"] == [{"first": "process.dead_time",
