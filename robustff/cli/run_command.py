@@ -327,8 +327,8 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
     if headline:
         print(headline)
     print(
-        f"Unstable samples: {summary['unstable']['fb']} feedback only, "
-        f"{summary['unstable']['fbff']} with feedforward"
+        f"Unstable loops: fb {summary['unstable']['fb']}, fbff {summary['unstable']['fbff']} "
+        "(feedback only, with feedforward; left out of the percentiles)"
     )
     print(summary["convergence"]["ff_worse_iae"]["message"])
     for warning in summary["warnings"]:

@@ -118,8 +118,8 @@ def percentiles_markdown(summary: Summary, percentiles: Sequence[float]) -> str:
         "",
         "- " + risk_sentence(summary, "iae"),
         "- " + risk_sentence(summary, "peak_deviation"),
-        f"- Unstable samples: {summary['unstable']['fb']} feedback only, "
-        f"{summary['unstable']['fbff']} with feedforward (excluded from the percentiles).",
+        f"- Unstable loops: fb {summary['unstable']['fb']}, fbff {summary['unstable']['fbff']} "
+        "(feedback only, with feedforward; excluded from the percentiles).",
         "- " + summary["convergence"]["ff_worse_iae"]["message"],
         *[f"- warning: {warning}" for warning in summary["warnings"]],
         "",
