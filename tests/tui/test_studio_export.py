@@ -4,12 +4,9 @@ from __future__ import annotations
 
 import asyncio
 import json
-import shutil
 from pathlib import Path
 
 import pytest
-
-from robustff.demo import demo_case_path
 
 textual = pytest.importorskip("textual")
 
@@ -18,13 +15,6 @@ from textual.widgets import Input  # noqa: E402
 
 from robustff.tui.app import QUICK_SAMPLES  # noqa: E402
 from robustff.tui.dialogs import PathScreen  # noqa: E402
-
-
-@pytest.fixture
-def case_file(tmp_path: Path) -> Path:
-    path = tmp_path / "heater.toml"
-    shutil.copy(demo_case_path("wash-water-heater"), path)
-    return path
 
 
 def test_the_quick_pass_is_not_exported(case_file: Path, tmp_path: Path) -> None:

@@ -5,12 +5,9 @@ and a focused scroll pane shows a bar on its left."""
 from __future__ import annotations
 
 import asyncio
-import shutil
 from pathlib import Path
 
 import pytest
-
-from robustff.demo import demo_case_path
 
 textual = pytest.importorskip("textual")
 
@@ -19,13 +16,6 @@ from textual.widgets import Input, Select  # noqa: E402
 
 from robustff.tui.messages import field_id  # noqa: E402
 from robustff.tui.models_pane import FOCUS_MARK  # noqa: E402
-
-
-@pytest.fixture
-def case_file(tmp_path: Path) -> Path:
-    path = tmp_path / "heater.toml"
-    shutil.copy(demo_case_path("wash-water-heater"), path)
-    return path
 
 
 def _reverse(app, widget) -> bool:

@@ -4,12 +4,9 @@
 from __future__ import annotations
 
 import asyncio
-import shutil
 from pathlib import Path
 
 import pytest
-
-from robustff.demo import demo_case_path
 
 textual = pytest.importorskip("textual")
 
@@ -21,13 +18,6 @@ from robustff.tui.messages import field_id  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[2]
 BUMP = ROOT / "cases" / "data" / "stock-heater-bump-1.csv"
-
-
-@pytest.fixture
-def case_file(tmp_path: Path) -> Path:
-    path = tmp_path / "heater.toml"
-    shutil.copy(demo_case_path("wash-water-heater"), path)
-    return path
 
 
 def _field(app, name: str) -> Input:

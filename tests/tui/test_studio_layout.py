@@ -6,14 +6,12 @@ from __future__ import annotations
 
 import asyncio
 import math
-import shutil
 from pathlib import Path
 
 import numpy as np
 import pytest
 
 from robustff import CAUTION
-from robustff.demo import demo_case_path
 
 textual = pytest.importorskip("textual")
 
@@ -22,13 +20,6 @@ from textual.widgets import Select  # noqa: E402
 
 from robustff.tui.charts import histogram_chart  # noqa: E402
 from robustff.tui.messages import field_id  # noqa: E402
-
-
-@pytest.fixture
-def case_file(tmp_path: Path) -> Path:
-    path = tmp_path / "heater.toml"
-    shutil.copy(demo_case_path("wash-water-heater"), path)
-    return path
 
 
 def test_nothing_is_clipped_at_80x24_and_the_caution_folds(case_file: Path,

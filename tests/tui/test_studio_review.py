@@ -9,7 +9,6 @@ distribution).
 from __future__ import annotations
 
 import asyncio
-import shutil
 from pathlib import Path
 
 import pytest
@@ -23,13 +22,6 @@ from textual.widgets import Button, Input, Static  # noqa: E402
 
 from robustff.tui.dialogs import ChoiceScreen  # noqa: E402
 from robustff.tui.messages import field_id  # noqa: E402
-
-
-@pytest.fixture
-def case_file(tmp_path: Path) -> Path:
-    path = tmp_path / "heater.toml"
-    shutil.copy(demo_case_path("wash-water-heater"), path)
-    return path
 
 
 def _text(widget: Static) -> str:

@@ -5,12 +5,10 @@ case that does not validate asks first."""
 from __future__ import annotations
 
 import asyncio
-import shutil
 from pathlib import Path
 
 import pytest
 
-from robustff.demo import demo_case_path
 from robustff.tui import editing
 
 textual = pytest.importorskip("textual")
@@ -20,13 +18,6 @@ from textual.widgets import Input  # noqa: E402
 
 from robustff.tui.dialogs import ChoiceScreen  # noqa: E402
 from robustff.tui.messages import field_id  # noqa: E402
-
-
-@pytest.fixture
-def case_file(tmp_path: Path) -> Path:
-    path = tmp_path / "heater.toml"
-    shutil.copy(demo_case_path("wash-water-heater"), path)
-    return path
 
 
 def _stale(app) -> str:

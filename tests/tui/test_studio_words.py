@@ -4,12 +4,9 @@ unstable loops), and units on the values shown."""
 from __future__ import annotations
 
 import asyncio
-import shutil
 from pathlib import Path
 
 import pytest
-
-from robustff.demo import demo_case_path
 
 textual = pytest.importorskip("textual")
 
@@ -17,13 +14,6 @@ from studio_pilot import studio, wait_until  # noqa: E402
 
 from robustff.tui.dialogs import HELP_TEXT  # noqa: E402
 from robustff.tui.messages import field_id  # noqa: E402
-
-
-@pytest.fixture
-def case_file(tmp_path: Path) -> Path:
-    path = tmp_path / "heater.toml"
-    shutil.copy(demo_case_path("wash-water-heater"), path)
-    return path
 
 
 def test_one_name_each_and_units_on_the_main_screen(case_file: Path, tmp_path: Path) -> None:
