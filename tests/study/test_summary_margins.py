@@ -7,6 +7,7 @@ import math
 
 import numpy as np
 import pytest
+from case_texts import MINIMAL
 
 from robustff.case import parse_case
 from robustff.case.sampling import plant_batch
@@ -17,35 +18,12 @@ from robustff.study.summary import summarize_study
 
 def _case(kc: float, ti: float, gain_range: tuple[float, float], duration: float) -> str:
     """A fictional FOPDT loop, 2 e^{-2s}/(10s + 1), manual PI, scan period 0.5 s."""
-    return f"""
-title = "Loop near the stability limit"
-time_unit = "s"
-[process]
-model = "fopdt"
-gain = 2.0
-time_constant = 10.0
-dead_time = 2.0
-[disturbance]
-model = "fopdt"
-gain = 1.0
-time_constant = 5.0
-dead_time = 3.0
-[feedback]
-tuning = "manual"
-kc = {kc!r}
-ti = {ti!r}
-output_low = -1e6
-output_high = 1e6
-[simulation]
-duration = {duration!r}
-step = 0.5
-[[event]]
-kind = "disturbance-step"
-at = 5.0
-size = 1.0
-[uncertainty]
-"process.gain" = {{ uniform = [{gain_range[0]!r}, {gain_range[1]!r}] }}
-"""
+    return (MINIMAL.replace('title = "Test loop"', 'title = "Loop near the stability limit"')
+            .replace("duration = 100.0", f"duration = {duration!r}")
+            + f'[feedback]\ntuning = "manual"\nkc = {kc!r}\nti = {ti!r}\n'
+            "output_low = -1e6\noutput_high = 1e6\n"
+            '[uncertainty]\n'
+            f'"process.gain" = {{ uniform = [{gain_range[0]!r}, {gain_range[1]!r}] }}\n')
 
 
 def test_margins_and_simulation_agree_on_every_sample_at_the_limit():
