@@ -16,11 +16,12 @@ from textual import events
 from textual.app import App
 from textual.keys import KEY_NAME_REPLACEMENTS, key_to_character
 from textual.pilot import Pilot
+from textual.widgets import Input
 
 if TYPE_CHECKING:
     from robustff.tui.app import StudioApp
 
-__all__ = ["burst_keys", "burst", "wait_until", "studio", "keys_handled"]
+__all__ = ["burst_keys", "burst", "wait_until", "studio", "keys_handled", "field_input"]
 
 _SPECIAL = re.compile(r"<([a-z0-9_+]+)>")
 _CHARACTERS = {"enter": "\r", "tab": "\t", "escape": "\x1b"}
@@ -77,3 +78,10 @@ async def keys_handled(pilot: Pilot[object], app: StudioApp) -> None:
     await pilot.pause()
     await wait_until(pilot, lambda: app.keys_pending == 0, "keys handled")
     await pilot.pause()
+
+
+def field_input(app: App[object], name: str) -> Input:
+    """The text field of the case value ``name`` (``"process.gain"``...)."""
+    from robustff.tui.messages import field_id
+
+    return app.query_one(f"#in-{field_id(name)}", Input)

@@ -11,15 +11,11 @@ import pytest
 
 textual = pytest.importorskip("textual")
 
-from studio_pilot import burst, keys_handled, studio, wait_until  # noqa: E402
+from studio_pilot import burst, field_input, keys_handled, studio, wait_until  # noqa: E402
 from textual.widgets import Button, Input  # noqa: E402
 
 from robustff.tui.dialogs import HelpScreen, PathScreen  # noqa: E402
 from robustff.tui.messages import field_id  # noqa: E402
-
-
-def _input(app, name: str) -> Input:
-    return app.query_one(f"#in-{field_id(name)}", Input)
 
 
 def test_footer_keys_work_from_a_text_field_and_escape_leaves_it(
@@ -28,7 +24,7 @@ def test_footer_keys_work_from_a_text_field_and_escape_leaves_it(
         app = studio(case_file, tmp_path / "cache")
         async with app.run_test(size=(100, 30)) as pilot:
             await wait_until(pilot, lambda: app.results_version > 0, "full run")
-            field = _input(app, "process.gain")
+            field = field_input(app, "process.gain")
             field.focus()
             await pilot.pause()
             await pilot.press("ctrl+e")  # Ctrl+E is also a text field's "end of line"
@@ -55,7 +51,7 @@ def test_the_command_palette_finds_the_studios_actions(case_file: Path, tmp_path
         app = studio(case_file, tmp_path / "cache")
         async with app.run_test(size=(100, 30)) as pilot:
             await wait_until(pilot, lambda: app.results_version > 0, "full run")
-            _input(app, "process.gain").focus()
+            field_input(app, "process.gain").focus()
             await pilot.pause()
             burst(app, "<ctrl+p>export")
             await keys_handled(pilot, app)
@@ -74,7 +70,7 @@ def test_undo_brings_back_a_deleted_row_and_an_edited_value(
         async with app.run_test(size=(100, 40)) as pilot:
             await pilot.pause()
             original = app.case
-            _input(app, "process.gain").focus()
+            field_input(app, "process.gain").focus()
             await pilot.pause()
             burst(app, "0.7<enter>")
             await keys_handled(pilot, app)
@@ -96,7 +92,7 @@ def test_undo_brings_back_a_deleted_row_and_an_edited_value(
             await pilot.press("ctrl+z")
             await wait_until(pilot, lambda: not app.workers, "panes rebuilt")
             assert app.case == original and not app.dirty
-            assert _input(app, "process.gain").value == "0.6"
+            assert field_input(app, "process.gain").value == "0.6"
             await pilot.press("ctrl+z")  # nothing more: the case stays
             await pilot.pause()
             assert app.case == original

@@ -10,18 +10,13 @@ import pytest
 
 textual = pytest.importorskip("textual")
 
-from studio_pilot import burst, keys_handled, studio, wait_until  # noqa: E402
+from studio_pilot import burst, field_input, keys_handled, studio, wait_until  # noqa: E402
 from textual.widgets import Input  # noqa: E402
 
 from robustff.tui.fit_screens import FitFormScreen  # noqa: E402
-from robustff.tui.messages import field_id  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[2]
 BUMP = ROOT / "cases" / "data" / "stock-heater-bump-1.csv"
-
-
-def _field(app, name: str) -> Input:
-    return app.query_one(f"#in-{field_id(name)}", Input)
 
 
 def test_a_burst_fills_each_field_in_turn_and_the_rerun_uses_it(
@@ -30,13 +25,13 @@ def test_a_burst_fills_each_field_in_turn_and_the_rerun_uses_it(
         app = studio(case_file, tmp_path / "cache")
         async with app.run_test(size=(100, 30)) as pilot:
             await wait_until(pilot, lambda: app.results_version > 0, "first result")
-            _field(app, "process.gain").focus()
+            field_input(app, "process.gain").focus()
             await pilot.pause()
             version = app.results_version
             burst(app, "0.7<tab>50<enter>")
             await keys_handled(pilot, app)
-            assert _field(app, "process.gain").value == "0.7"
-            assert _field(app, "process.time_constant").value == "50"
+            assert field_input(app, "process.gain").value == "0.7"
+            assert field_input(app, "process.time_constant").value == "50"
             assert app.case.process.gain == 0.7 and app.case.process.time_constant == 50.0
             await wait_until(pilot, lambda: app.results_version > version
                              and app.last_result.case.process == app.case.process, "rerun")
