@@ -14,6 +14,7 @@ import subprocess
 import sys
 import threading
 import time
+from collections.abc import Callable
 from pathlib import Path
 
 import numpy as np
@@ -145,27 +146,35 @@ def local_run():
     return run_study(parse_case(CASE), jobs=2, margins=False)
 
 
-def test_a_killed_worker_changes_nothing_in_the_results(cluster, tmp_path: Path, local_run):
-    case_file = tmp_path / "lost-worker.toml"
+def _run_until_first_progress(cluster, case_file: Path,
+                              on_first_progress: Callable[[], None]) -> tuple[int, str, Path]:
+    """``robustff run`` of CASE on the cluster as a separate process; ``on_first_progress`` is
+    called once, when the first progress line arrives. Returns the exit status, the whole
+    standard error and the output folder."""
     case_file.write_text(CASE)
-    out = tmp_path / "out"
+    out = case_file.parent / "out"
     command = subprocess.Popen(
         [sys.executable, "-m", "robustff", "run", str(case_file), "--cluster", cluster.address,
          "--out", str(out)],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
     )
-    # Kill worker 0 as soon as the first chunk has come back: the other chunks are then running
-    # on the workers or finished and held there, so the killed worker takes some of each along.
     assert command.stderr is not None
     lines = []
     for line in command.stderr:
         lines.append(line)
         if line.startswith("progress:"):
-            cluster.kill_worker(0)
+            on_first_progress()
             break
-    rest_out, rest_err = command.communicate(timeout=300)
-    err = "".join(lines) + rest_err
-    assert command.returncode == 0, err
+    _, rest_err = command.communicate(timeout=300)
+    return command.returncode, "".join(lines) + rest_err, out
+
+
+def test_a_killed_worker_changes_nothing_in_the_results(cluster, tmp_path: Path, local_run):
+    # Kill worker 0 as soon as the first chunk has come back: the other chunks are then running
+    # on the workers or finished and held there, so the killed worker takes some of each along.
+    returncode, err, out = _run_until_first_progress(
+        cluster, tmp_path / "lost-worker.toml", lambda: cluster.kill_worker(0))
+    assert returncode == 0, err
     assert "Traceback" not in err, err
     assert cluster.workers[0].poll() is not None and cluster.workers[1].poll() is None
     done = json.loads((out / "summary.json").read_text())
@@ -184,24 +193,10 @@ def _rounded(values: np.ndarray) -> np.ndarray:
 
 
 def test_a_lost_scheduler_ends_the_run_with_the_finished_chunks(cluster, tmp_path: Path):
-    case_file = tmp_path / "lost-scheduler.toml"
-    case_file.write_text(CASE)
-    out = tmp_path / "out"
-    command = subprocess.Popen(
-        [sys.executable, "-m", "robustff", "run", str(case_file), "--cluster", cluster.address,
-         "--out", str(out)],
-        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-    )
-    assert command.stderr is not None
-    lines = []
-    for line in command.stderr:
-        lines.append(line)
-        if line.startswith("progress:"):
-            os.kill(cluster.scheduler.pid, signal.SIGKILL)
-            break
-    _, rest_err = command.communicate(timeout=300)
-    err = "".join(lines) + rest_err
-    assert command.returncode == EXIT_INTERRUPTED, err
+    returncode, err, out = _run_until_first_progress(
+        cluster, tmp_path / "lost-scheduler.toml",
+        lambda: os.kill(cluster.scheduler.pid, signal.SIGKILL))
+    assert returncode == EXIT_INTERRUPTED, err
     assert "Traceback" not in err, err  # Dask's own log lines come without their tracebacks
     assert "stopping with" in err and "kept, marked partial" in err
     done = json.loads((out / "summary.json").read_text())
