@@ -43,6 +43,7 @@ LAYERS: Mapping[str, int] = {
     "robustff.atomic": 0,
     "robustff.jsonvalues": 0,
     "robustff.percentile": 0,
+    "robustff.units": 0,
     "robustff.demo": 0,
     "robustff.plant": 1,
     "robustff.case": 2,

@@ -34,6 +34,7 @@ from dataclasses import dataclass
 
 from robustff.case import FeedbackSpec, Signals
 from robustff.errors import DesignError
+from robustff.units import per_unit
 
 __all__ = [
     "series_to_ideal",
@@ -287,16 +288,10 @@ def written_tuning(
     )
 
 
-def _per(numerator: str, denominator: str) -> str:
-    if any(mark in denominator for mark in "/* "):
-        denominator = f"({denominator})"
-    return f"{numerator}/{denominator}"
-
-
 def _gain_text(gain: float, band: float | None, percent: float | None, name: str,
                spec: FeedbackSpec, signals: Signals) -> str:
     out, cv = signals.output.unit or "output", signals.controlled.unit or "CV"
-    engineering = f"{name} = {gain:.4g} {_per(out, cv)}"
+    engineering = f"{name} = {gain:.4g} {per_unit(out, cv)}"
     if band is None or percent is None:
         return engineering
     percent_text = f"{percent:.4g} %/%"
@@ -357,9 +352,9 @@ def form_lines(
         parts = [_gain_text(written.gain, written.band, written.percent_gain, name, spec,
                             signals)]
         if written.structure == "parallel":
-            parts.append(f"ki = {written.integral:.4g} {_per(out, f'{cv} {time_unit}')}")
+            parts.append(f"ki = {written.integral:.4g} {per_unit(out, f'{cv} {time_unit}')}")
             if pid:
-                parts.append(f"kd = {written.derivative:.4g} {_per(f'{out} {time_unit}', cv)}")
+                parts.append(f"kd = {written.derivative:.4g} {per_unit(f'{out} {time_unit}', cv)}")
         else:
             repeats = f"{1.0 / written.integral:.4g} repeats/{time_unit}"
             time = f"Ti{prime} = {written.integral:.4g} {time_unit}"

@@ -53,6 +53,7 @@ from robustff.design.controller_forms import (
 from robustff.errors import DesignError
 from robustff.plant.kinds import FOPDT, IPDT, SOPDT
 from robustff.plant.models import TransferModel
+from robustff.units import per_unit
 
 __all__ = [
     "FeedbackSettings",
@@ -64,7 +65,6 @@ __all__ = [
     "design_feedforward",
     "design_loop",
     "series_to_ideal",
-    "per_unit",
     "half_rule",
     "DERIVATIVE_FILTER_FRACTION",
 ]
@@ -245,13 +245,6 @@ class LoopDesign:
             )
         lines.extend(f"  note: {note}" for note in self.notes)
         return lines
-
-
-def per_unit(numerator: str, denominator: str) -> str:
-    """``"%/(m3/h)"``: a unit per another, the denominator bracketed when it is compound."""
-    if any(mark in denominator for mark in "/* "):
-        denominator = f"({denominator})"
-    return f"{numerator}/{denominator}"
 
 
 def half_rule(model: TransferModel) -> TransferModel:

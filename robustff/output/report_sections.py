@@ -12,7 +12,6 @@ from collections.abc import Sequence
 from robustff import CAUTION
 from robustff.case.text import printable_title
 from robustff.design.margins_result import GAIN_MARGIN_LIMIT, MS_LIMIT, PHASE_MARGIN_LIMIT
-from robustff.design.tuning import per_unit
 from robustff.output.design_table import design_table_header, design_table_rows
 from robustff.output.report_tables import (
     MARGIN_LABELS,
@@ -25,6 +24,7 @@ from robustff.output.result_files import risk_sentence
 from robustff.study import StudyResult
 from robustff.study.summary import PAIRED_METRICS, VERDICT_REASONS
 from robustff.study.summary_types import Summary
+from robustff.units import per_unit
 
 __all__ = [
     "first_page",

@@ -17,8 +17,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.case import DesignSpec
-from robustff.design.tuning import FeedforwardSettings, per_unit
+from robustff.design.tuning import FeedforwardSettings
 from robustff.study.runner import StudyResult, run_study
+from robustff.units import per_unit
 
 __all__ = ["TRAVEL_RATIO", "TRIAL_SAMPLES", "FilterTrial", "high_frequency_gain",
            "suggested_input_filter", "noise_travel_warning", "filter_trial"]

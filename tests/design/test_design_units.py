@@ -5,7 +5,8 @@ from __future__ import annotations
 
 from robustff.case import load_case
 from robustff.demo import demo_case_path
-from robustff.design.tuning import design_loop, per_unit
+from robustff.design.tuning import design_loop
+from robustff.units import per_unit
 
 
 def test_per_unit_brackets_a_compound_denominator() -> None:
