@@ -32,11 +32,12 @@ def harm_probability(g: float, kd_low: float) -> float:
     return min(max((g * KD0 / 2.0 - kd_low) / (KD_HIGH - kd_low), 0.0), 1.0)
 
 
-def harm_case_text(kd_low: float = KD_LOW_HARMFUL, max_harm: float = 0.03,
-                   samples: int = 200, min_improvement: float = 0.2) -> str:
-    """The case as TOML text (a fictional mixing loop)."""
+def matched_case_text(*, title: str, kd0: float, kd_low: float, kd_high: float,
+                      duration: float, event_at: float, study: str) -> str:
+    """Matched process and disturbance paths, only the disturbance gain uncertain (TOML text;
+    ``study`` is the body of the ``[study]`` table)."""
     return f"""\
-title = "Blend tank, inlet flow uncertain (fictional)"
+title = "{title}"
 time_unit = "s"
 
 [process]
@@ -47,7 +48,7 @@ dead_time = 2.0
 
 [disturbance]
 model = "fopdt"
-gain = {KD0}
+gain = {kd0}
 time_constant = 10.0
 dead_time = 2.0
 
@@ -61,22 +62,30 @@ structure = "static"
 gain_factor = 1.0
 
 [simulation]
-duration = 100.0
+duration = {duration}
 step = 0.5
 
 [[event]]
 kind = "disturbance-step"
-at = 5.0
+at = {event_at}
 size = 1.0
 
 [uncertainty]
-"disturbance.gain" = {{ uniform = [{kd_low}, {KD_HIGH}] }}
+"disturbance.gain" = {{ uniform = [{kd_low}, {kd_high}] }}
 
 [study]
-samples = {samples}
-seed = 5
-sampling = "random"
+{study}
+"""
 
+
+def harm_case_text(kd_low: float = KD_LOW_HARMFUL, max_harm: float = 0.03,
+                   samples: int = 200, min_improvement: float = 0.2) -> str:
+    """The case as TOML text (a fictional mixing loop)."""
+    return matched_case_text(
+        title="Blend tank, inlet flow uncertain (fictional)", kd0=KD0, kd_low=kd_low,
+        kd_high=KD_HIGH, duration=100.0, event_at=5.0,
+        study=f'samples = {samples}\nseed = 5\nsampling = "random"',
+    ) + f"""
 [recommendation]
 max_harm = {max_harm}
 min_improvement = {min_improvement}

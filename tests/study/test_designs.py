@@ -22,6 +22,7 @@ import jsonschema
 import numpy as np
 import pytest
 from case_texts import MINIMAL
+from harm_case import matched_case_text
 
 from robustff.case import case_to_toml, parse_case
 from robustff.cli import EXIT_OK, EXIT_USAGE, main
@@ -33,47 +34,10 @@ from robustff.study.summary import summarize_study
 ROOT = Path(__file__).resolve().parents[2]
 KD0, KD_LOW, KD_HIGH = 2.0, 0.2, 3.8
 
-MATCHED = f"""
-title = "Matched paths, disturbance gain uncertain"
-time_unit = "s"
-
-[process]
-model = "fopdt"
-gain = 1.0
-time_constant = 10.0
-dead_time = 2.0
-
-[disturbance]
-model = "fopdt"
-gain = {KD0}
-time_constant = 10.0
-dead_time = 2.0
-
-[feedback]
-output_low = -1000.0
-output_high = 1000.0
-output_bias = 0.0
-
-[feedforward]
-structure = "static"
-gain_factor = 1.0
-
-[simulation]
-duration = 200.0
-step = 0.5
-
-[[event]]
-kind = "disturbance-step"
-at = 10.0
-size = 1.0
-
-[uncertainty]
-"disturbance.gain" = {{ uniform = [{KD_LOW}, {KD_HIGH}] }}
-
-[study]
-samples = 3000
-seed = 7
-
+MATCHED = matched_case_text(
+    title="Matched paths, disturbance gain uncertain", kd0=KD0, kd_low=KD_LOW, kd_high=KD_HIGH,
+    duration=200.0, event_at=10.0, study="samples = 3000\nseed = 7",
+) + """
 [[design]]
 name = "half"
 gain_factor = 0.5
