@@ -189,7 +189,7 @@ def design_lines(summary: Summary) -> tuple[str, ...]:
         versus = ("" if design["name"] == "case" or worse is None
                   else f", {100 * worse:.0f} %")
         probability = None if harm["probability"] is None else 100 * harm["probability"]
-        lines.append(f"  {design['name'][:18]:<18} {_number(ratio):>6}  "
+        lines.append(f"  {design['name'][:12]:<12} {_number(ratio):>5} "
                      f"{_number(probability, '.1f')} %{interval}{versus}")
     return tuple(lines)
 
