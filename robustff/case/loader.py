@@ -9,12 +9,18 @@ one line per problem, ``"FILE: key.path: what is wrong (got VALUE)"``. The schem
 from __future__ import annotations
 
 import hashlib
+from dataclasses import replace
 import math
 import re
 import tomllib
 from pathlib import Path
 from typing import Any
 
+from robustff.case.disturbance_section import (
+    is_named_form,
+    read_named_disturbances,
+    split_feedforward,
+)
 from robustff.case.fields import REQUIRED, Problems, Table, as_table, join, show
 from robustff.case.record_section import (
     RECORD_KEYS,
@@ -97,8 +103,6 @@ def load_case(path: str | Path) -> Case:
 
 
 def _with_source(case: Case, path: Path, sha256: str) -> Case:
-    from dataclasses import replace
-
     return replace(case, source_path=path, source_sha256=sha256)
 
 
@@ -149,10 +153,19 @@ def _build_case(problems: Problems, raw: dict[str, Any], base_dir: Path | None =
         if name not in raw:
             problems.add(name, f"missing table [{name}]")
     process = _read_model(problems, raw, "process")
-    disturbance = _read_model(problems, raw, "disturbance")
     feedback = _read_feedback(problems, raw.get("feedback", {}))
-    feedforward = _read_feedforward(problems, raw.get("feedforward", {}))
-    sensor = _read_sensor(problems, raw.get("sensor", {}))
+    named = None
+    if is_named_form(raw.get("disturbance")):
+        named = read_named_disturbances(problems, raw, _read_model, _read_sensor,
+                                        _read_feedforward, _merged_feedforward)
+        disturbance = named.inputs[0].model if named is not None else None
+        sensor = named.inputs[0].sensor if named is not None else None
+        base, _ = split_feedforward(raw.get("feedforward", {}), tuple(raw["disturbance"]))
+        feedforward = _read_feedforward(problems, base)
+    else:
+        disturbance = _read_model(problems, raw, "disturbance")
+        feedforward = _read_feedforward(problems, raw.get("feedforward", {}))
+        sensor = _read_sensor(problems, raw.get("sensor", {}))
     valve = read_valve(problems, raw.get("valve"))
     signals = _read_signals(problems, raw.get("signals", {}))
     if feedback is not None and signals is not None:
@@ -161,13 +174,20 @@ def _build_case(problems: Problems, raw: dict[str, Any], base_dir: Path | None =
     secondary = read_secondary(problems, raw.get("secondary"),
                                simulation.substeps if simulation is not None else None)
     events = _read_events(problems, raw, simulation, base_dir, time_unit)
+    if events is not None:
+        events = _check_event_disturbances(problems, events, raw.get("disturbance"), named)
     if simulation is not None and events is not None:
         simulation = records_cover(problems, simulation, events, MAX_STEPS, time_unit or "")
     study = _read_study(problems, raw.get("study", {}))
     recommendation = _read_recommendation(problems, raw.get("recommendation", {}))
     designs = _read_designs(problems, raw)
-    models = {"process": process, "disturbance": disturbance, "sensor": sensor, "valve": valve,
+    models = {"process": process, "valve": valve,
               "secondary": secondary.model if secondary is not None else None}
+    if named is None:
+        models.update({"disturbance": disturbance, "sensor": sensor})
+    else:
+        for item in named.inputs:
+            models.update({item.key_prefix: item.model, item.sensor_prefix: item.sensor})
     uncertainty, correlations = read_uncertainty(problems, raw.get("uncertainty", {}), models)
     parts = (title, time_unit, process, disturbance, feedback, feedforward, sensor, signals,
              simulation, events, study, uncertainty, correlations, designs,
@@ -181,7 +201,36 @@ def _build_case(problems: Problems, raw: dict[str, Any], base_dir: Path | None =
         correlations=correlations, study=study, designs=designs,  # type: ignore[arg-type]
         recommendation=recommendation,  # type: ignore[arg-type]
         valve=valve, secondary=secondary,
+        disturbances=named.inputs if named is not None else (),
     )
+
+
+def _check_event_disturbances(problems: Problems, events: tuple[Event, ...], table: object,
+                              named: object) -> tuple[Event, ...] | None:
+    """Every disturbance event names a disturbance of the case (optional when there is one)."""
+    names = tuple(table) if is_named_form(table) else ()
+    before = len(problems)
+    for index, event in enumerate(events):
+        path = f"event[{index + 1}].disturbance"
+        if event.kind == "setpoint-step":
+            if event.disturbance:
+                problems.add(path, "a setpoint step moves no disturbance", event.disturbance)
+            continue
+        if not event.disturbance:
+            if len(names) > 1:
+                problems.add(path, f"missing: name the disturbance it moves (one of "
+                             f"{', '.join(names)})")
+            continue
+        if not names:
+            problems.add(path, "the case has one disturbance ([disturbance]); name "
+                         "disturbances as [disturbance.NAME] tables to tell them apart",
+                         event.disturbance)
+        elif event.disturbance not in names:
+            problems.add(path, f"no disturbance of that name (the case has "
+                         f"{', '.join(names)})", event.disturbance)
+    if len(problems) > before:
+        return None
+    return events
 
 
 def _section(problems: Problems, path: str, value: object) -> Table | None:
@@ -359,6 +408,19 @@ _STRUCTURE_KEYS = {"lead": ("lead-lag", "lead-lag-delay"), "lag": ("lead-lag", "
                    "delay": ("lead-lag-delay",)}
 
 
+def _merged_feedforward(base: dict[str, Any], overrides: dict[str, Any]) -> dict[str, Any]:
+    """``[feedforward]`` keys with ``overrides`` on top; a changed structure drops the base's
+    keys that belong to the old structure only."""
+    merged = dict(base)
+    if "structure" in overrides:
+        structure = overrides["structure"]
+        for key, structures in _STRUCTURE_KEYS.items():
+            if structure not in structures:
+                merged.pop(key, None)
+    merged.update(overrides)
+    return merged
+
+
 def _read_designs(problems: Problems, raw: dict[str, Any]) -> tuple[DesignSpec, ...] | None:
     """``[[design]]`` tables: a name plus ``[feedforward]`` keys overriding the case's."""
     value = raw.get("design", [])
@@ -366,7 +428,8 @@ def _read_designs(problems: Problems, raw: dict[str, Any]) -> tuple[DesignSpec, 
         problems.add("design", "must be written [[design]] (with double brackets), one per "
                      "design", value)
         return None
-    base = raw.get("feedforward", {})
+    named = tuple(raw["disturbance"]) if is_named_form(raw.get("disturbance")) else ()
+    base, _ = split_feedforward(raw.get("feedforward", {}), named)
     base = dict(base) if isinstance(base, dict) else {}
     before, designs, seen = len(problems), [], {"case"}
     for index, item in enumerate(value):
@@ -384,21 +447,15 @@ def _read_designs(problems: Problems, raw: dict[str, Any]) -> tuple[DesignSpec, 
             continue
         seen.add(name)
         overrides = {key: sub for key, sub in item.items() if key != "name"}
-        merged = dict(base)
-        if "structure" in overrides:
-            structure = overrides["structure"]
-            for key, structures in _STRUCTURE_KEYS.items():
-                if structure not in structures:
-                    merged.pop(key, None)
-        merged.update(overrides)
-        spec = _read_feedforward(problems, merged, f"design.{name}")
+        spec = _read_feedforward(problems, _merged_feedforward(base, overrides),
+                                 f"design.{name}")
         if spec is not None:
             designs.append(DesignSpec(name, spec))
     return tuple(designs) if len(problems) == before else None
 
 
-def _read_sensor(problems: Problems, value: object) -> SensorModel | None:
-    table = _section(problems, "sensor", value)
+def _read_sensor(problems: Problems, value: object, path: str = "sensor") -> SensorModel | None:
+    table = _section(problems, path, value)
     if table is None:
         return None
     before = len(problems)
@@ -545,8 +602,10 @@ def _read_event(
             problems.add(join(path, "at"), f"must lie inside the simulated window 0 .. "
                          f"{simulation.duration:g}", at)
             return None
-        return read_record_event(problems, table, at, base_dir, time_unit)
-    allowed = ["kind", "at", "size"]
+        event = read_record_event(problems, table, at, base_dir, time_unit)
+        name = _event_disturbance(problems, table)
+        return None if event is None else replace(event, disturbance=name)
+    allowed = ["kind", "at", "size", "disturbance"]
     if kind == "disturbance-ramp":
         allowed.append("duration")
     if kind == "disturbance-noise":
@@ -564,9 +623,16 @@ def _read_event(
     if at is not None and simulation is not None and at >= simulation.duration:
         problems.add(join(path, "at"), f"must lie inside the simulated window 0 .. "
                      f"{simulation.duration:g}", at)
+    name = _event_disturbance(problems, table)
     if len(problems) > before or kind is None or at is None or size is None:
         return None
-    return Event(kind, at, size, duration, time_constant)
+    return Event(kind, at, size, duration, time_constant, disturbance=name)
+
+
+def _event_disturbance(problems: Problems, table: Table) -> str:
+    """The ``disturbance`` key of an event (``""`` when not given)."""
+    name = table.text("disturbance", "")
+    return name or ""
 
 
 def _read_study(problems: Problems, value: object) -> StudySpec | None:

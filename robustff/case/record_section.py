@@ -22,7 +22,7 @@ __all__ = ["RECORD_KEYS", "read_record_event", "records_cover", "has_record_even
 
 #: Keys of a ``disturbance-record`` event.
 RECORD_KEYS: tuple[str, ...] = ("kind", "at", "file", "time_column", "value_column",
-                                "time_unit", "baseline", "gaps")
+                                "time_unit", "baseline", "gaps", "disturbance")
 
 
 def has_record_events(raw: dict[str, object]) -> bool:

@@ -36,6 +36,7 @@ from robustff.plant.models import PlantBatch
 
 __all__ = [
     "SAMPLING_PLANS",
+    "nominal_plants",
     "sample",
     "uniform_scores",
     "inverse_cdf",
@@ -317,11 +318,18 @@ def plant_batch(case: Case, names: Sequence[str], values: np.ndarray) -> PlantBa
     values = np.asarray(values, dtype=np.float64)
     if values.ndim != 2 or values.shape[1] != len(names):
         raise ValueError(f"values must have shape (n, {len(names)}), got {values.shape}")
-    batch = PlantBatch.from_nominal(case.process, case.disturbance, case.sensor, values.shape[0],
-                                    case.valve, case.secondary.model if case.secondary else None)
+    batch = nominal_plants(case, values.shape[0])
     for column, name in enumerate(names):
         batch.set_parameter(name, np.ascontiguousarray(values[:, column]))
     return batch
+
+
+def nominal_plants(case: Case, n: int) -> PlantBatch:
+    """``n`` copies of the case's nominal plant (every disturbance path, valve, secondary)."""
+    named = tuple((item.name, item.model, item.sensor, item.measured)
+                  for item in case.disturbances)
+    return PlantBatch.from_nominal(case.process, case.disturbance, case.sensor, n, case.valve,
+                                   case.secondary.model if case.secondary else None, named)
 
 
 def distribution_bounds(parameter: UncertainParameter, nominal: float) -> tuple[float, float]:

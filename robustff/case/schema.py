@@ -23,6 +23,8 @@ __all__ = [
     "FeedbackSpec",
     "FeedforwardSpec",
     "DesignSpec",
+    "DisturbanceInput",
+    "DISTURBANCE_NAME_CHARACTERS",
     "SecondarySpec",
     "DESIGN_NAME_CHARACTERS",
     "Event",
@@ -155,6 +157,57 @@ class DesignSpec:
     feedforward: FeedforwardSpec
 
 
+#: Characters a disturbance name may use (it becomes part of parameter keys and column names).
+DISTURBANCE_NAME_CHARACTERS = "letters, digits and '_'"
+
+
+@dataclass(frozen=True)
+class DisturbanceInput:
+    """One disturbance of the plant: its path to the CV, its transmitter, whether it is measured.
+
+    A case with the single ``[disturbance]`` table has one, unnamed (``name = ""``); a case with
+    ``[disturbance.NAME]`` tables has one per table, in file order.
+
+    Parameters
+    ----------
+    name : str
+        ``NAME`` of ``[disturbance.NAME]``; ``""`` for the single ``[disturbance]`` table.
+    model : TransferModel
+        Path from the disturbance to the CV (CV units per disturbance unit).
+    sensor : SensorModel
+        Its transmitter (lag, time units; noise, disturbance units). Unused when not measured.
+    measured : bool
+        False: no transmitter sees it; there is no feedforward from it (feedback alone).
+    feedforward : FeedforwardSpec or None
+        ``[feedforward]`` with ``[feedforward.NAME]`` overriding it; None: ``[feedforward]``.
+    unit : str
+        Engineering unit of the disturbance (``[disturbance.NAME] unit``; for the single table
+        ``[signals.disturbance] unit``).
+    """
+
+    name: str
+    model: TransferModel
+    sensor: SensorModel = SensorModel()
+    measured: bool = True
+    feedforward: FeedforwardSpec | None = None
+    unit: str = ""
+
+    @property
+    def key_prefix(self) -> str:
+        """Prefix of its path parameters' keys: ``"disturbance"`` or ``"disturbance.NAME"``."""
+        return f"disturbance.{self.name}" if self.name else "disturbance"
+
+    @property
+    def sensor_prefix(self) -> str:
+        """Prefix of its transmitter's keys: ``"sensor"`` or ``"disturbance.NAME.sensor"``."""
+        return f"disturbance.{self.name}.sensor" if self.name else "sensor"
+
+    @property
+    def label(self) -> str:
+        """The name shown to the engineer (``"disturbance"`` for the single table)."""
+        return self.name or "disturbance"
+
+
 @dataclass(frozen=True)
 class SecondarySpec:
     """A secondary (flow) loop: the primary output plus the feedforward is its setpoint.
@@ -205,6 +258,9 @@ class Event:
     record : DisturbanceRecord or None
         The recorded trace replayed from ``at`` (``disturbance-record`` only; its ``size`` is
         then the trace's largest deviation from its baseline, read from the file).
+    disturbance : str
+        Name of the disturbance the event moves (``""``: the first, or only, one); unused by
+        setpoint steps.
     """
 
     kind: str
@@ -213,6 +269,7 @@ class Event:
     duration: float = 0.0
     time_constant: float = 0.0
     record: DisturbanceRecord | None = None
+    disturbance: str = ""
 
 
 @dataclass(frozen=True)
@@ -383,6 +440,10 @@ class Case:
     valve: ValveModel | None = None
     secondary: SecondarySpec | None = None
     recommendation: RecommendationSpec = RecommendationSpec()
+    #: Named disturbances (``[disturbance.NAME]``) in file order; empty for the single
+    #: ``[disturbance]`` table, whose model and sensor are ``disturbance`` and ``sensor``. With
+    #: names, ``disturbance`` and ``sensor`` are the first named one's.
+    disturbances: tuple[DisturbanceInput, ...] = ()
     source_path: Path | None = field(default=None, compare=False)
     #: SHA-256 (hex) of the case file's bytes as read by ``load_case``; None for text cases.
     source_sha256: str | None = field(default=None, compare=False)
@@ -395,9 +456,53 @@ class Case:
         slug = "".join(c if c.isalnum() else "-" for c in self.title.lower()).strip("-")
         return "-".join(part for part in slug.split("-") if part) or "case"
 
+    @property
+    def disturbance_inputs(self) -> tuple[DisturbanceInput, ...]:
+        """Every disturbance, in file order (the single ``[disturbance]`` as one unnamed)."""
+        if self.disturbances:
+            return self.disturbances
+        return (DisturbanceInput("", self.disturbance, self.sensor, True, None,
+                                 self.signals.disturbance.unit),)
+
+    def disturbance_named(self, name: str) -> DisturbanceInput:
+        """The disturbance called ``name`` (``""``: the first).
+
+        Raises
+        ------
+        KeyError
+            If the case has no disturbance of that name.
+        """
+        inputs = self.disturbance_inputs
+        if not name:
+            return inputs[0]
+        for item in inputs:
+            if item.name == name:
+                return item
+        raise KeyError(name)
+
+    def feedforward_of(self, item: DisturbanceInput) -> FeedforwardSpec:
+        """The feedforward rule of one disturbance (its own override, else ``[feedforward]``)."""
+        return item.feedforward if item.feedforward is not None else self.feedforward
+
+    def split_key(self, key: str) -> tuple[str, DisturbanceInput | None, str]:
+        """``(block, disturbance, parameter)`` of a plant parameter key.
+
+        ``block`` is ``"process"``, ``"disturbance"``, ``"sensor"``, ``"valve"`` or
+        ``"secondary"``; ``disturbance`` the input a disturbance or sensor key belongs to (None
+        for the others). ``"disturbance.feed.sensor.noise_std"`` gives ``("sensor", feed,
+        "noise_std")``.
+        """
+        for item in self.disturbance_inputs:
+            for block, prefix in (("sensor", item.sensor_prefix),
+                                  ("disturbance", item.key_prefix)):
+                if key.startswith(prefix + ".") and "." not in key[len(prefix) + 1:]:
+                    return block, item, key[len(prefix) + 1:]
+        block, _, name = key.partition(".")
+        return block, None, name
+
     def parameter_unit(self, key: str) -> str:
         """Engineering unit of a plant parameter such as ``"process.gain"`` (from ``[signals]``)."""
-        block, _, name = key.partition(".")
+        block, item, name = self.split_key(key)
         signals = self.signals
         if block == "valve":
             return VALVE_PARAMETER_UNITS[name].format(time=self.time_unit)
@@ -405,20 +510,22 @@ class Case:
             if name != "gain":
                 return self.time_unit
             return f"{signals.output.unit or 'output unit'} per % of secondary output"
+        disturbance_unit = item.unit if item is not None else signals.disturbance.unit
         if name == "noise_std":
-            return signals.disturbance.unit
-        model = self.process if block == "process" else self.disturbance
+            return disturbance_unit
+        model = self.process if item is None else item.model
         if block == "sensor" or name not in model.spec.parameter_names:
             return self.time_unit
-        source = signals.output if block == "process" else signals.disturbance
+        source_unit = signals.output.unit if block == "process" else disturbance_unit
         return model.spec.parameter(name).unit_text(
-            signals.controlled.unit or "CV unit", source.unit or "input unit", self.time_unit
+            signals.controlled.unit or "CV unit", source_unit or "input unit", self.time_unit
         )
 
     def nominal_value(self, key: str) -> float:
         """Nominal value of a plant parameter such as ``"process.gain"``."""
-        block, parameter = key.split(".", 1)
-        owner = {"process": self.process, "disturbance": self.disturbance, "sensor": self.sensor,
-                 "valve": self.valve or ValveModel(),
+        block, item, parameter = self.split_key(key)
+        if item is not None:
+            return float(getattr(item.sensor if block == "sensor" else item.model, parameter))
+        owner = {"process": self.process, "valve": self.valve or ValveModel(),
                  "secondary": self.secondary.model if self.secondary else None}[block]
         return float(getattr(owner, parameter))

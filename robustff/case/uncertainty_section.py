@@ -91,7 +91,7 @@ def _flatten(problems: Problems, raw: dict[str, Any]) -> list[tuple[str, Any]]:
         if "." in key:
             entries.append((key, item))
         elif key in UNCERTAIN_BLOCKS and isinstance(item, dict) and not _is_distribution(item):
-            entries.extend((f"{key}.{name}", sub) for name, sub in item.items())
+            entries.extend(_nested(f"{key}", item))
         else:
             problems.add(join("uncertainty", key), f"not an uncertain parameter: {_HOW}", item)
     seen: set[str] = set()
@@ -106,6 +106,17 @@ def _flatten(problems: Problems, raw: dict[str, Any]) -> list[tuple[str, Any]]:
     return unique
 
 
+def _nested(prefix: str, table: dict[str, Any]) -> list[tuple[str, Any]]:
+    """Keys of nested tables such as ``[uncertainty.disturbance.feed.sensor]``, flattened."""
+    entries: list[tuple[str, Any]] = []
+    for name, sub in table.items():
+        if isinstance(sub, dict) and sub and not _is_distribution(sub):
+            entries.extend(_nested(f"{prefix}.{name}", sub))
+        else:
+            entries.append((f"{prefix}.{name}", sub))
+    return entries
+
+
 def _is_distribution(item: dict[str, Any]) -> bool:
     return any(key in DISTRIBUTION_KINDS or key == "clip" for key in item)
 
@@ -114,12 +125,21 @@ def _check_key(
     problems: Problems, path: str, key: str, models: Models
 ) -> tuple[bool, float | None]:
     """Whether ``key`` names a parameter the case's models have, and its nominal value."""
-    block, _, name = key.partition(".")
+    owner, name = _owner(key, models)
+    block = "sensor" if owner.endswith("sensor") else owner.partition(".")[0]
     if block not in UNCERTAIN_BLOCKS:
         problems.add(path, f"unknown block {block!r}: uncertain parameters belong to "
                      f"{', '.join(UNCERTAIN_BLOCKS)}; {_HOW}")
         return False, None
-    model = models.get(block)
+    if owner not in models and block in ("disturbance", "sensor"):
+        named = sorted({key.split(".")[1] for key in models if key.startswith("disturbance.")})
+        how = ("the case names its disturbances: write disturbance.NAME.parameter or "
+               f"disturbance.NAME.sensor.parameter with NAME one of {', '.join(named)}"
+               if named else "the case has one disturbance: write disturbance.parameter "
+               "or sensor.parameter")
+        problems.add(path, f"no such disturbance parameter; {how}")
+        return False, None
+    model = models.get(owner)
     if block == "secondary" and model is None:
         problems.add(path, "the case has no [secondary] loop; add one to make its parameters "
                      "uncertain")
@@ -142,12 +162,21 @@ def _check_key(
         return False, None  # the model's own problems are reported with it
     elif name not in MODEL_PARAMETERS[model.kind]:  # type: ignore[union-attr]
         kind = model.kind  # type: ignore[union-attr]
-        problems.add(path, f"the {block} model ({kind!r}) has no parameter {name!r} "
+        problems.add(path, f"the {owner} model ({kind!r}) has no parameter {name!r} "
                      f"(it has {', '.join(MODEL_PARAMETERS[kind])})")
         return False, None
     if model is None:
         return True, None
     return True, float(getattr(model, name))
+
+
+def _owner(key: str, models: Models) -> tuple[str, str]:
+    """The model a key belongs to (its longest prefix in ``models``) and the parameter name."""
+    prefix, _, name = key.rpartition(".")
+    if prefix in models:
+        return prefix, name
+    block, _, rest = key.partition(".")
+    return block, rest
 
 
 def _read_distribution(problems: Problems, path: str, item: object) -> Distribution | None:
@@ -234,7 +263,7 @@ def _check_physical(
                      f"uniform or normal for {key}", value)
         return
     low, high = support(distribution, nominal)
-    name = key.partition(".")[2]
+    name = key.rsplit(".", 1)[-1]
     unbounded = kind in ("normal", "lognormal") and distribution.clip is None
     reach = f"can give {low:g}" if not unbounded else f"a {kind} distribution without clip can give"
     if name in NON_NEGATIVE_PARAMETERS and low < 0.0:

@@ -176,14 +176,19 @@ class NamedFeedforward:
     name: str
     settings: FeedforwardSettings
     notes: tuple[str, ...] = ()
+    #: One compensator per disturbance, in case order (see :attr:`LoopDesign.compensators`).
+    compensators: tuple[FeedforwardSettings, ...] = ()
 
 
 @dataclass(frozen=True)
 class LoopDesign:
     """Feedback and feedforward designs plus notes for the engineer (realizability etc.).
 
-    ``feedforward`` is the case's own ``[feedforward]``; ``alternatives`` are the case's other
-    designs, simulated on the same plants.
+    ``feedforward`` is the case's own ``[feedforward]`` for its first measured disturbance;
+    ``compensators`` holds one per disturbance, in case order (structure ``"none"`` for an
+    unmeasured one; empty: ``(feedforward,)``, the single disturbance); their outputs add at
+    the controller output. ``alternatives`` are the case's other designs, simulated on the
+    same plants.
     """
 
     feedback: FeedbackSettings
@@ -192,10 +197,19 @@ class LoopDesign:
     alternatives: tuple[NamedFeedforward, ...] = ()
     #: The secondary (flow) controller, PI in ideal form, output in % (None without one).
     secondary: FeedbackSettings | None = None
+    compensators: tuple[FeedforwardSettings, ...] = ()
 
-    def with_feedforward(self, feedforward: FeedforwardSettings) -> LoopDesign:
-        """The same feedback loop with another feedforward compensator (no alternatives)."""
-        return LoopDesign(self.feedback, feedforward, self.notes, secondary=self.secondary)
+    @property
+    def all_compensators(self) -> tuple[FeedforwardSettings, ...]:
+        """Every disturbance's compensator, in case order."""
+        return self.compensators or (self.feedforward,)
+
+    def with_feedforward(self, feedforward: FeedforwardSettings,
+                         compensators: tuple[FeedforwardSettings, ...] = ()) -> LoopDesign:
+        """The same feedback loop with another feedforward design (no alternatives):
+        ``feedforward`` and, with several disturbances, every one's ``compensators``."""
+        return LoopDesign(self.feedback, feedforward, self.notes, secondary=self.secondary,
+                          compensators=compensators)
 
     def to_dict(self) -> dict[str, object]:
         return {
@@ -473,21 +487,21 @@ def design_loop(case: Case) -> LoopDesign:
     """Feedback and feedforward designs for a case, from its nominal models."""
     feedback, notes = tune_feedback(case.process, case.feedback, case.simulation.step,
                                     case.signals)
-    feedforward, ff_notes = design_feedforward(
-        case.process, case.disturbance, case.feedforward, case.simulation.step, case.time_unit
-    )
-    if case.sensor.time_constant > 0.0 and feedforward.active:
-        ff_notes.append("the sensor time constant (the transmitter lag, [sensor] time_constant) "
-                        "is not compensated by the design (it is simulated)")
+    compensators, ff_notes = _compensators(case, None)
+    for item, settings in zip(case.disturbance_inputs, compensators):
+        if item.sensor.time_constant > 0.0 and settings.active:
+            where = (f"disturbance.{item.name}.sensor" if item.name else "[sensor]")
+            ff_notes.append(f"the transmitter lag ({where} time_constant) is not compensated "
+                            "by the design (it is simulated)")
     alternatives = []
     for design in case.designs:
         try:
-            settings, design_notes = design_feedforward(
-                case.process, case.disturbance, design.feedforward, case.simulation.step
-            )
+            settings_all, design_notes = _compensators(case, design.feedforward)
         except DesignError as exc:
             raise DesignError(f"design.{design.name}: {exc}") from None
-        alternatives.append(NamedFeedforward(design.name, settings, tuple(design_notes)))
+        alternatives.append(NamedFeedforward(design.name, _headline(case, settings_all),
+                                             tuple(design_notes), _several(settings_all)))
+    feedforward = _headline(case, compensators)
     secondary = None
     if case.secondary is not None:
         spec = case.secondary
@@ -500,4 +514,44 @@ def design_loop(case: Case) -> LoopDesign:
         except DesignError as exc:
             raise DesignError(f"secondary: {exc}") from None
     return LoopDesign(feedback, feedforward, tuple(notes + ff_notes), tuple(alternatives),
-                      secondary)
+                      secondary, _several(compensators))
+
+
+def _compensators(case: Case, spec: FeedforwardSpec | None
+                  ) -> tuple[tuple[FeedforwardSettings, ...], list[str]]:
+    """One compensator per disturbance, each designed from its own path.
+
+    ``spec`` None: the case's own rules (``[feedforward]``, overridden per disturbance by
+    ``[feedforward.NAME]``); else one design's rule, applied to every measured disturbance.
+    An unmeasured disturbance gets none.
+    """
+    settings, notes = [], []
+    several = len(case.disturbance_inputs) > 1
+    for item in case.disturbance_inputs:
+        rule = spec if spec is not None else case.feedforward_of(item)
+        if not item.measured:
+            rule = FeedforwardSpec("none", rule.gain_factor)
+        try:
+            designed, item_notes = design_feedforward(case.process, item.model, rule,
+                                                      case.simulation.step, case.time_unit)
+        except DesignError as exc:
+            if several:
+                raise DesignError(f"feedforward from {item.label}: {exc}") from None
+            raise
+        settings.append(designed)
+        notes += [f"feedforward from {item.label}: {note}" if several else note
+                  for note in item_notes]
+    return tuple(settings), notes
+
+
+def _headline(case: Case, compensators: tuple[FeedforwardSettings, ...]) -> FeedforwardSettings:
+    """The compensator reported as ``feedforward``: the first measured disturbance's."""
+    for item, settings in zip(case.disturbance_inputs, compensators):
+        if item.measured:
+            return settings
+    return compensators[0]
+
+
+def _several(compensators: tuple[FeedforwardSettings, ...]) -> tuple[FeedforwardSettings, ...]:
+    # A single disturbance keeps the legacy form (``feedforward`` alone).
+    return compensators if len(compensators) > 1 else ()

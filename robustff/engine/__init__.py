@@ -12,6 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.case import Case
+from robustff.case.sampling import nominal_plants
 from robustff.design.margins import loop_margins
 from robustff.design.tuning import LoopDesign
 from robustff.engine.kernel import ACCUMULATOR_NAMES, N_ACCUMULATORS, simulate_kernel
@@ -37,6 +38,7 @@ __all__ = [
     "build_scenario",
     "nominal_batch",
     "plant_matrix",
+    "disturbance_tensor",
 ]
 
 ARMS: tuple[str, str] = ("fb", "fbff")
@@ -45,18 +47,16 @@ _PLANT_KEYS = (
     "process.time_constant",
     "process.time_constant_2",
     "process.dead_time",
-    "disturbance.gain",
-    "disturbance.time_constant",
-    "disturbance.time_constant_2",
-    "disturbance.dead_time",
-    "sensor.time_constant",
-    "sensor.noise_std",
     *(f"valve.{name}" for name in VALVE_PARAMETERS),
     "secondary.gain",
     "secondary.time_constant",
     "secondary.time_constant_2",
     "secondary.dead_time",
 )
+#: A disturbance path's parameters (after its key prefix) and its transmitter's (after its
+#: transmitter prefix), in the column order of the kernel's ``disturbances``.
+_PATH_PARAMETERS = ("gain", "time_constant", "time_constant_2", "dead_time")
+_SENSOR_PARAMETERS = ("time_constant", "noise_std")
 
 
 @dataclass(frozen=True)
@@ -110,10 +110,11 @@ class SimulationResult:
     accumulators : ndarray, shape (N, 2, N_ACCUMULATORS)
         The kernel's raw per-arm accumulators (NaN where unstable), from which ``metrics``
         were converted.
-    noise : ndarray, shape (N, T S + T), or None
-        With ``record_noise``: each sample's disturbance effect on the CV at every internal step
-        and its measured disturbance at every scan (noise included), for a later run with
-        ``reference`` to replay instead of simulating the disturbance again.
+    noise : ndarray, shape (N, T S + J T), or None
+        With ``record_noise``: each sample's summed disturbance effect on the CV at every
+        internal step, then each of its J disturbances as measured at every scan (noise
+        included), for a later run with ``reference`` to replay instead of simulating the
+        disturbances again.
     """
 
     metrics: dict[str, np.ndarray]
@@ -126,8 +127,18 @@ class SimulationResult:
 
 
 def plant_matrix(batch: PlantBatch) -> np.ndarray:
-    """The (N, 16) parameter matrix the kernel reads, from a :class:`PlantBatch`."""
+    """The (N, 14) process, valve and secondary-path matrix the kernel reads."""
     return np.ascontiguousarray(np.column_stack([batch.values[key] for key in _PLANT_KEYS]))
+
+
+def disturbance_tensor(batch: PlantBatch) -> np.ndarray:
+    """The (N, J, 6) disturbance paths and transmitters the kernel reads (J paths)."""
+    columns = [
+        np.column_stack([batch.values[f"{prefix}.{name}"] for name in _PATH_PARAMETERS]
+                        + [batch.values[f"{meter}.{name}"] for name in _SENSOR_PARAMETERS])
+        for _, prefix, meter, _ in batch.paths
+    ]
+    return np.ascontiguousarray(np.stack(columns, axis=1))
 
 
 def _controller_vector(design: LoopDesign, scenario: Scenario) -> np.ndarray:
@@ -157,11 +168,17 @@ def _secondary_vector(design: LoopDesign, scans_per_primary: int) -> np.ndarray:
                      sec.output_high - sec.output_bias, float(scans_per_primary)])
 
 
-def _feedforward_vector(design: LoopDesign) -> np.ndarray:
-    ff = design.feedforward
-    if not ff.active:
-        return np.zeros(5)
-    return np.array([ff.gain, ff.lead, ff.lag, ff.delay, ff.input_filter])
+def _feedforward_matrix(design: LoopDesign, n_paths: int) -> np.ndarray:
+    """(J, 6): gain, lead, lag, delay, input filter, has a feedforward; one row per path."""
+    compensators = design.all_compensators
+    if len(compensators) != n_paths:
+        raise DesignError(f"the design has {len(compensators)} feedforward compensators for "
+                          f"{n_paths} disturbances")
+    rows = np.zeros((n_paths, 6))
+    for row, ff in zip(rows, compensators):
+        if ff.active:
+            row[:] = (ff.gain, ff.lead, ff.lag, ff.delay, ff.input_filter, 1.0)
+    return rows
 
 
 def simulate(
@@ -200,8 +217,8 @@ def simulate(
         replayed from ``reference.noise`` when it was recorded (same numbers, without drawing
         the noise or simulating the disturbance path again).
     record_noise : bool
-        Keep every sample's disturbance effect and measurement (``SimulationResult.noise``,
-        N x T (S + 1) numbers).
+        Keep every sample's disturbance effect and measurements (``SimulationResult.noise``,
+        N x T (S + J) numbers).
 
     Returns
     -------
@@ -223,7 +240,8 @@ def simulate(
         counts = np.zeros((2, envelope.times.size, edges.size - 1), dtype=np.int64)
     feedback_arm = reference is None
     no_noise = np.zeros((0, 0))
-    recorded = (np.zeros((n, n_steps * scenario.substeps + n_steps)) if record_noise
+    n_paths = len(batch.paths)
+    recorded = (np.zeros((n, n_steps * (scenario.substeps + n_paths))) if record_noise
                 else no_noise)
     replayed = (reference.noise if reference is not None and reference.noise is not None
                 else no_noise)
@@ -234,16 +252,18 @@ def simulate(
     unstable = np.zeros((n, 2), dtype=np.bool_)
     loop_unstable = np.zeros(n, dtype=np.bool_)
     simulate_kernel(
-        np.array([model_kind(batch.process_kind).code, model_kind(batch.disturbance_kind).code,
+        np.array([model_kind(batch.process_kind).code,
                   model_kind(batch.secondary_kind or "fopdt").code]),
         plant_matrix(batch),
+        np.array([model_kind(kind).code for kind, _, _, _ in batch.paths]),
+        disturbance_tensor(batch),
         np.asarray(seeds, dtype=np.uint64),
         scenario.step,
         scenario.disturbance_profile,
         scenario.setpoint_profile,
         scenario.noise_events,
         _controller_vector(design, scenario),
-        _feedforward_vector(design),
+        _feedforward_matrix(design, n_paths),
         np.array([scenario.event_start, scenario.settling_band, 0.0,
                   np.inf if scenario.cv_band is None else scenario.cv_band]),
         np.ascontiguousarray(scenario.direction, dtype=np.float64),
@@ -313,8 +333,7 @@ def _confirmed_unstable(batch: PlantBatch, design: LoopDesign, scenario: Scenari
 
 def nominal_batch(case: Case, n: int = 1) -> PlantBatch:
     """``n`` copies of the case's nominal plant."""
-    return PlantBatch.from_nominal(case.process, case.disturbance, case.sensor, n, case.valve,
-                                   case.secondary.model if case.secondary else None)
+    return nominal_plants(case, n)
 
 
 def build_scenario(case: Case, design: LoopDesign, settling_band: float | None = None) -> Scenario:

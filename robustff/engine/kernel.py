@@ -159,9 +159,14 @@ SecondaryParams = namedtuple(
 #: Envelope histogram grid: lowest edge and bin width (CV units), number of bins.
 BinGrid = namedtuple("BinGrid", ("low", "width", "n_bins"))
 
-# Ring rows: process input of arm 0 and arm 1, probe input, disturbance, measured disturbance,
-# then the secondary path's input of arm 0, arm 1 and the probe.
-_RING_ROWS = 8
+# Ring rows: process input of arm 0 and arm 1, probe input, then the secondary path's input of
+# arm 0, arm 1 and the probe.
+_RING_ROWS = 6
+_SECONDARY_ROW = 3
+
+# Disturbance columns (axis 2 of the kernel's ``disturbances``): path gain, lags, dead time,
+# transmitter lag and noise.
+_D_GAIN, _D_TAU1, _D_TAU2, _D_DELAY, _D_SENSOR, _D_NOISE = range(6)
 
 
 # Hot helpers take and return scalars and tuples only: an array argument would cost reference
@@ -303,13 +308,13 @@ def _flow_fraction(vp: ValveParams, table: np.ndarray, position: float) -> float
 @njit(cache=True, nogil=True)
 def _valve_params(kind: int, plant: np.ndarray, i: int, hi: float, u_low: float,
                   u_high: float, table: np.ndarray) -> ValveParams:
-    """Valve constants of sample ``i`` (plant columns 10-15), internal step ``hi``."""
+    """Valve constants of sample ``i`` (plant columns 4-9), internal step ``hi``."""
     span = u_high - u_low
     nominal = 100.0 * (-u_low) / span
-    rate, rangeability = plant[i, 11], plant[i, 10]
+    rate, rangeability = plant[i, 5], plant[i, 4]
     vp = ValveParams(kind, rangeability, math.log(max(rangeability, 1.0 + 1e-12)),
-                     rate * hi if rate > 0.0 else math.inf, 0.5 * plant[i, 12], plant[i, 13],
-                     plant[i, 14], decay(hi, plant[i, 15]), nominal, span, u_low, 0.0, 1.0)
+                     rate * hi if rate > 0.0 else math.inf, 0.5 * plant[i, 6], plant[i, 7],
+                     plant[i, 8], decay(hi, plant[i, 9]), nominal, span, u_low, 0.0, 1.0)
     if kind == 0:
         return vp
     x0 = nominal / 100.0
@@ -502,59 +507,152 @@ def _commit_envelope(env_buf: np.ndarray, envelope_counts: np.ndarray, keep: boo
 
 
 @njit(cache=True, nogil=True)
+def _disturbance_inputs(i: int, seed: np.uint64, disturbances: np.ndarray,
+                        disturbance_profile: np.ndarray, noise: np.ndarray, substeps: int,
+                        inputs: np.ndarray, measured: np.ndarray) -> None:
+    """Every disturbance's input at every internal step (``inputs``, shape (J, T S)) and its
+    transmitter noise at every scan (written into ``measured``, shape (J, T)).
+
+    ``noise`` rows: start scan, filter pole, innovation scale, state (updated in place),
+    stationary standard deviation, disturbance index. Per scan the filtered-noise events draw
+    first (in order), then each noisy transmitter (in disturbance order); filtered noise is drawn
+    once per scan and held over it, so it does not change with ``substeps``.
+    """
+    n_d, n_steps = inputs.shape[0], measured.shape[1]
+    noise[:, 3] = 0.0
+    held = np.zeros(n_d)
+    for k in range(n_steps):
+        held[:] = 0.0
+        for e in range(noise.shape[0]):
+            if k >= noise[e, 0]:
+                if k == noise[e, 0]:
+                    # Start from the stationary distribution: the noise is already running.
+                    seed, draw = _random_normal(seed)
+                    noise[e, 3] = noise[e, 4] * draw
+                held[int(noise[e, 5])] += noise[e, 3]
+                seed, draw = _random_normal(seed)
+                noise[e, 3] = noise[e, 1] * noise[e, 3] + noise[e, 2] * draw
+        for j in range(n_d):
+            for sub in range(substeps):
+                q = k * substeps + sub
+                inputs[j, q] = disturbance_profile[j, q] + held[j]
+        for j in range(n_d):
+            measured[j, k] = 0.0
+            if disturbances[i, j, _D_NOISE] > 0.0:
+                seed, draw = _random_normal(seed)
+                measured[j, k] = disturbances[i, j, _D_NOISE] * draw
+
+
+@njit(cache=True, nogil=True)
+def _disturbance_paths(i: int, kinds: np.ndarray, disturbances: np.ndarray, hi: float,
+                       substeps: int, inputs: np.ndarray, effect: np.ndarray,
+                       measured: np.ndarray) -> None:
+    """The disturbances' summed effect on the CV at every internal step (``effect``, (T S,)) and
+    each one's measurement at every scan, added to its transmitter noise in ``measured``.
+
+    Each path is stepped exactly for its input held over an internal step (the plant's own
+    discretisation, fractional dead time included); the transmitter is a first-order lag, or
+    reads the disturbance directly when its time constant is zero.
+    """
+    n_internal = inputs.shape[1]
+    effect[:] = 0.0
+    for j in range(inputs.shape[0]):
+        m_d, f_d = split_delay(disturbances[i, j, _D_DELAY], hi)
+        m_d = min(m_d, n_internal)
+        cd = _coefficients(kinds[j], disturbances[i, j, _D_GAIN], disturbances[i, j, _D_TAU1],
+                           disturbances[i, j, _D_TAU2], hi, f_d)
+        a_sensor = decay(hi, disturbances[i, j, _D_SENSOR])
+        gain_sensor, direct = 1.0 - a_sensor, disturbances[i, j, _D_SENSOR] <= 0.0
+        xd = (0.0, 0.0)
+        sensor = 0.0
+        for q in range(n_internal):
+            effect[q] += _output(xd, cd)
+            d = inputs[j, q]
+            if q % substeps == 0:
+                measured[j, q // substeps] += d if direct else sensor
+            new = inputs[j, q - m_d] if q >= m_d else 0.0
+            old = inputs[j, q - m_d - 1] if q >= m_d + 1 else 0.0
+            xd = _path_step(xd, cd, new, old)
+            sensor = a_sensor * sensor + gain_sensor * d
+
+
+@njit(cache=True, nogil=True)
+def _feedforward_output(measured: np.ndarray, ffp: np.ndarray, delays: np.ndarray,
+                        filtered: np.ndarray, out: np.ndarray) -> None:
+    """The summed feedforward at every scan from every measured disturbance.
+
+    ``ffp`` rows (one per disturbance): pole, zero and gain scale of the discrete lead-lag, the
+    weights of the newer and older delayed sample, the input filter's pole, and whether the
+    disturbance has a feedforward (1) or not (0); ``delays`` the whole scans of each delay.
+    The input filter is a control system's digital first-order filter on the measurement.
+    """
+    n_steps = out.shape[0]
+    out[:] = 0.0
+    for j in range(measured.shape[0]):
+        if ffp[j, 6] == 0.0:
+            continue
+        pole, zero, scale = ffp[j, 0], ffp[j, 1], ffp[j, 2]
+        weight_new, weight_old, input_pole = ffp[j, 3], ffp[j, 4], ffp[j, 5]
+        m_ff = delays[j]
+        state = 0.0
+        for k in range(n_steps):
+            state = input_pole * state + (1.0 - input_pole) * measured[j, k]
+            filtered[k] = state
+        ff_out = ff_in_prev = 0.0
+        for k in range(n_steps):
+            newer = filtered[k - m_ff] if k >= m_ff else 0.0
+            older = filtered[k - m_ff - 1] if k >= m_ff + 1 else 0.0
+            ff_in = weight_new * newer + weight_old * older
+            ff_out = pole * ff_out + scale * (ff_in - zero * ff_in_prev)
+            ff_in_prev = ff_in
+            out[k] += ff_out
+
+
+@njit(cache=True, nogil=True)
 def _simulate_sample(
-    i: int, kinds: np.ndarray, plant: np.ndarray, seed: np.uint64,
-    disturbance_profile: np.ndarray, setpoint_profile: np.ndarray,
-    direction_profile: np.ndarray, segment_profile: np.ndarray, noise: np.ndarray,
-    p: ControllerParams, mp: MetricParams, ffp: FeedforwardParams, m_ff: int, limit: float,
-    grid: BinGrid,
+    i: int, kinds: np.ndarray, plant: np.ndarray, effect: np.ndarray, ff_total: np.ndarray,
+    setpoint_profile: np.ndarray, direction_profile: np.ndarray, segment_profile: np.ndarray,
+    p: ControllerParams, mp: MetricParams, limit: float, grid: BinGrid,
     envelope_index: np.ndarray, slot: int, ring: np.ndarray, env_buf: np.ndarray,
     trajectories: np.ndarray, feedback_arm: bool, h: float, substeps: int,
     valve_kind: int, valve_table: np.ndarray, sec: SecondaryParams,
-    noise_record: np.ndarray, noise_replay: np.ndarray,
 ) -> tuple:
     """Simulate sample ``i``; returns ``(acc fb, acc fbff, last outside fb, last outside fbff,
     alive fb, alive fbff, unstable)``.
 
-    The controller, the transmitter, the feedforward and the stability probe run once per scan
-    ``h`` (``envelope_index`` has one entry per scan); the plant paths, the deterministic
-    disturbance and the error metrics run ``substeps`` times per scan at ``mp.h = h /
-    substeps`` (the profiles have one entry per internal step), the controller output held.
-    ``noise`` rows: start scan, filter pole, innovation scale, state (updated in place),
-    stationary standard deviation (the state's draw at the start scan); filtered noise is
-    drawn once per scan and held, so it does not change with ``substeps``.
-    Without ``feedback_arm`` only the feedforward arm runs (another design on the same plant
-    and noise): the feedback-only arm and the stability probe are skipped, arm 0 keeps its
-    initial values and ``unstable`` is False.
+    ``effect`` is the disturbances' summed effect on the CV at every internal step and
+    ``ff_total`` the summed feedforward at every scan (see :func:`_disturbance_paths` and
+    :func:`_feedforward_output`): the disturbance paths and the feedforward are open loop, so
+    they are computed before the loop. The controller and the stability probe run once per
+    scan ``h`` (``envelope_index`` has one entry per scan); the process paths and the error
+    metrics run ``substeps`` times per scan at ``mp.h = h / substeps``, the controller output
+    held. Without ``feedback_arm`` only the feedforward arm runs (another design on the same
+    plant and noise): the feedback-only arm and the stability probe are skipped, arm 0 keeps
+    its initial values and ``unstable`` is False.
     """
     n_steps, hi = envelope_index.shape[0], mp.h
     n_internal = n_steps * substeps
     m_p, f_p = split_delay(plant[i, 3], hi)
-    m_d, f_d = split_delay(plant[i, 7], hi)
     m_q, f_q = split_delay(plant[i, 3], h)
     # longer delays only ever read zeros
-    m_p, m_d, m_q = min(m_p, n_internal), min(m_d, n_internal), min(m_q, n_steps)
+    m_p, m_q = min(m_p, n_internal), min(m_q, n_steps)
     cp = _coefficients(kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], hi, f_p)
-    cd = _coefficients(kinds[1], plant[i, 4], plant[i, 5], plant[i, 6], hi, f_d)
     # The probe's actuator lag (the valve linearised at its nominal position: slope 1).
-    pole_q = decay(hi, plant[i, 15]) if valve_kind > 0 and plant[i, 15] > 0.0 else 0.0
+    pole_q = decay(hi, plant[i, 9]) if valve_kind > 0 and plant[i, 9] > 0.0 else 0.0
     fine_q = sec.present or pole_q > 0.0
     # The probe runs at the scan: the process stepped exactly over a scan with its input held
     # (with a secondary loop or an actuator lag it runs with them, at the internal step).
     cq = cp if substeps == 1 or fine_q else _coefficients(
         kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], h, f_q)
-    m_s, f_s = split_delay(plant[i, 19], hi)
+    m_s, f_s = split_delay(plant[i, 13], hi)
     m_s = min(m_s, n_internal)
-    cs = _coefficients(kinds[2], plant[i, 16], plant[i, 17], plant[i, 18], hi, f_s)
+    cs = _coefficients(kinds[1], plant[i, 10], plant[i, 11], plant[i, 12], hi, f_s)
     # The probe's secondary loop is linear: no output limits.
     secq = SecondaryParams(sec.present, sec.kc, sec.integral_gain, 0.0, -math.inf, math.inf,
                            sec.every)
-    size = _ring_size(max(m_p, m_d, m_ff, m_q, m_s))
+    size = _ring_size(max(m_p, m_q, m_s))
     mask = size - 1
-    ring[:_RING_ROWS * size] = 0.0  # rows: u fb, u fbff, probe input, disturbance, measured
-    noise[:, 3] = 0.0
-    a_sensor = decay(hi, plant[i, 8])
-    gain_sensor, direct, noise_std = 1.0 - a_sensor, plant[i, 8] <= 0.0, plant[i, 9]
+    ring[:_RING_ROWS * size] = 0.0
     vp = _valve_params(valve_kind, plant, i, hi, sec.u_low if sec.present else p.u_low,
                        sec.u_high if sec.present else p.u_high, valve_table)
     ss0 = ss1 = ssq = (0.0, 0.0)  # secondary controllers: (integral, output)
@@ -566,29 +664,13 @@ def _simulate_sample(
     s0 = s1 = ArmState(0.0, 0.0, 0.0, 0.0)
     last0 = last1 = -1.0
     alive0 = alive1 = True
-    x0 = x1 = xq = xd = (0.0, 0.0)  # path states (x1, x2)
+    x0 = x1 = xq = (0.0, 0.0)  # path states (x1, x2)
     sq = ProbeState(0.0, 0.0, 0.0, 0.0, 0.0, False)
     q2, q3 = n_steps // 2, (3 * n_steps) // 4
-    sensor = ff_out = ff_in_prev = u0 = u1 = ff_measured = uq = 0.0
-    # Replay: the disturbance's effect on the CV at every internal step and the measured
-    # disturbance at every scan, from an earlier run of this sample (another design on the same
-    # plant and noise): neither depends on the feedforward.
-    replay, record = noise_replay.shape[1] > 0, noise_record.shape[1] > 0
+    u0 = u1 = uq = 0.0
+    row_s = _SECONDARY_ROW
     for k in range(n_steps):
-        held_noise = transmitter_noise = 0.0
-        if not replay:
-            for j in range(noise.shape[0]):
-                if k >= noise[j, 0]:
-                    if k == noise[j, 0]:
-                        # Start from the stationary distribution: the noise is already running.
-                        seed, draw = _random_normal(seed)
-                        noise[j, 3] = noise[j, 4] * draw
-                    held_noise += noise[j, 3]
-                    seed, draw = _random_normal(seed)
-                    noise[j, 3] = noise[j, 1] * noise[j, 3] + noise[j, 2] * draw
-            if noise_std > 0.0:
-                seed, draw = _random_normal(seed)
-                transmitter_noise = noise_std * draw
+        ff_out = ff_total[k]
         for sub in range(substeps):
             q = k * substeps + sub
             t = q * hi
@@ -597,30 +679,12 @@ def _simulate_sample(
                                segment_profile[q],
                                segment_profile[q - 1] if q > 0 else segment_profile[0],
                                mp.cv_band)
-            d = disturbance_profile[q] + held_noise
-            yd = noise_replay[i, q] if replay else _output(xd, cd)
-            if record:
-                noise_record[i, q] = yd
+            yd = effect[q]
             sp = setpoint_profile[q]
             y0, y1 = _output(x0, cp) + yd, _output(x1, cp) + yd
             alive0 = alive0 and math.isfinite(y0) and not abs(y0) > limit
             alive1 = alive1 and math.isfinite(y1) and not abs(y1) > limit
-            if sub == 0:  # the scan: transmitter, feedforward, controllers, probe
-                if replay:
-                    measured = noise_replay[i, n_internal + k]
-                else:
-                    measured = d if direct else sensor
-                    if noise_std > 0.0:
-                        measured += transmitter_noise
-                if record:
-                    noise_record[i, n_internal + k] = measured
-                # Feedforward input filter, as a control system's digital first-order filter.
-                ff_measured = ffp.input_pole * ff_measured + (1.0 - ffp.input_pole) * measured
-                ring[4 * size + (k & mask)] = ff_measured
-                ff_in = (ffp.weight_new * ring[4 * size + ((k - m_ff) & mask)]
-                         + ffp.weight_old * ring[4 * size + ((k - m_ff - 1) & mask)])
-                ff_out = ffp.pole * ff_out + ffp.scale * (ff_in - ffp.zero * ff_in_prev)
-                ff_in_prev = ff_in
+            if sub == 0:  # the scan: controllers, probe
                 if feedback_arm and alive0:
                     u0, s0, acc0 = _arm_control(s0, acc0, y0, sp, 0.0, k == 0, p, h)
                     if valve_kind > 0 and not sec.present:
@@ -642,28 +706,24 @@ def _simulate_sample(
                     env_buf[1, envelope_index[k]] = _envelope_bin(y1, grid) if alive1 else -1
             if feedback_arm and alive0:
                 acc0, last0 = _arm_metrics(acc0, last0, sp - y0, t, weight, mpk)
-                w0, v0, ss0, xs0 = _actuate(u0, q, v0, ss0, xs0, ring, 5, size, mask, m_s, cs,
-                                            vp, valve_table, valve_kind, sec)
+                w0, v0, ss0, xs0 = _actuate(u0, q, v0, ss0, xs0, ring, row_s, size, mask, m_s,
+                                            cs, vp, valve_table, valve_kind, sec)
                 ring[q & mask] = w0
                 x0 = _path_step(x0, cp, ring[(q - m_p) & mask], ring[(q - m_p - 1) & mask])
             if alive1:
                 acc1, last1 = _arm_metrics(acc1, last1, sp - y1, t, weight, mpk)
-                w1, v1, ss1, xs1 = _actuate(u1, q, v1, ss1, xs1, ring, 6, size, mask, m_s, cs,
-                                            vp, valve_table, valve_kind, sec)
+                w1, v1, ss1, xs1 = _actuate(u1, q, v1, ss1, xs1, ring, row_s + 1, size, mask,
+                                            m_s, cs, vp, valve_table, valve_kind, sec)
                 ring[size + (q & mask)] = w1
                 x1 = _path_step(x1, cp, ring[size + ((q - m_p) & mask)],
                                 ring[size + ((q - m_p - 1) & mask)])
             if feedback_arm and fine_q:  # the probe with its (linear) secondary loop and lag
-                flow, lag_q, ssq, xsq = _probe_actuate(uq + 1.0, q, lag_q, ssq, xsq, ring, 7,
-                                                       size, mask, m_s, cs, pole_q, secq)
+                flow, lag_q, ssq, xsq = _probe_actuate(uq + 1.0, q, lag_q, ssq, xsq, ring,
+                                                       row_s + 2, size, mask, m_s, cs, pole_q,
+                                                       secq)
                 ring[2 * size + (q & mask)] = flow
                 xq = _path_step(xq, cp, ring[2 * size + ((q - m_p) & mask)],
                                 ring[2 * size + ((q - m_p - 1) & mask)])
-            if not replay:
-                ring[3 * size + (q & mask)] = d
-                xd = _path_step(xd, cd, ring[3 * size + ((q - m_d) & mask)],
-                                ring[3 * size + ((q - m_d - 1) & mask)])
-                sensor = a_sensor * sensor + gain_sensor * d
     # Unstable only when the probe's error grows from the third to the last quarter of the
     # window: a stable loop that recovers slowly (a very long integral time) decays, however
     # little, and is not flagged; not settling within the window is the settling time's finding.
@@ -683,18 +743,21 @@ def _record(trajectories: np.ndarray, slot: int, k: int, alive0: bool, alive1: b
 
 @njit(cache=True, nogil=True)
 def simulate_kernel(
-    kinds: np.ndarray,            # (3,) int: process, disturbance and secondary path kinds
-    plant: np.ndarray,            # (N, 20): Kp, tp1, tp2, thp, Kd, td1, td2, thd, sensor tau,
-                                  # noise std, valve: rangeability, rate limit, deadband, S, J,
-                                  # actuator lag; secondary path: K, t1, t2, theta
+    kinds: np.ndarray,            # (2,) int: process and secondary path kinds
+    plant: np.ndarray,            # (N, 14): Kp, tp1, tp2, thp, valve: rangeability, rate limit,
+                                  # deadband, S, J, actuator lag; secondary path: K, t1, t2, theta
+    disturbance_kinds: np.ndarray,  # (J,) int: each disturbance path's kind
+    disturbances: np.ndarray,     # (N, J, 6): Kd, td1, td2, thd, transmitter lag, noise std
     seeds: np.ndarray,            # (N,) uint64 per-sample random seeds
     h: float,                     # the controller's scan period
-    disturbance_profile: np.ndarray,  # (T S,) deterministic disturbance, disturbance units
+    disturbance_profile: np.ndarray,  # (J, T S) deterministic disturbances, their units
     setpoint_profile: np.ndarray,     # (T S,) setpoint deviation, CV units
-    noise_events: np.ndarray,     # (E, 3): start scan, stationary std, filter time constant
+    noise_events: np.ndarray,     # (E, 4): start scan, stationary std, filter time constant,
+                                  # disturbance index
     controller: np.ndarray,       # (10,): kc, ti, td, tf, tt, u_low, u_high, divergence limit,
                                   # setpoint weights b and c
-    feedforward: np.ndarray,      # (5,): gain, lead, lag, delay, input filter time constant
+    feedforward: np.ndarray,      # (J, 6): gain, lead, lag, delay, input filter time constant,
+                                  # has a feedforward (1) or not (0: unmeasured or none)
     metric_setup: np.ndarray,     # (4,): event start time, settling band, unused, CV band
     direction_profile: np.ndarray,  # (T S,): sign of e that counts as an opposite excursion
     segment_profile: np.ndarray,  # (T S,): start time of the latest event (settling segments)
@@ -711,11 +774,13 @@ def simulate_kernel(
     valve_kind: int,              # 0: no valve; 1 linear, 2 equal-percentage, 3 installed
     valve_table: np.ndarray,      # (P, 2): installed characteristic, travel and flow fractions
     secondary: np.ndarray,        # (7,): present, kc, ti, tt, u_low, u_high, scans per primary
-    noise_record: np.ndarray,     # out (N, T S + T) or (0, 0): the disturbance's effect on the
-                                  # CV per internal step, then the measured disturbance per scan
-    noise_replay: np.ndarray,     # (N, T S + T) to replay instead of simulating, or (0, 0)
+    noise_record: np.ndarray,     # out (N, T S + J T) or (0, 0): the disturbances' summed
+                                  # effect on the CV per internal step, then each one's
+                                  # measurement per scan
+    noise_replay: np.ndarray,     # (N, T S + J T) to replay instead of simulating, or (0, 0)
 ) -> None:
-    n_steps, n_internal = envelope_index.shape[0], disturbance_profile.shape[0]
+    n_steps, n_internal = envelope_index.shape[0], setpoint_profile.shape[0]
+    n_d = disturbances.shape[1]
     hi = h / substeps
     kc, ti, td, tf, tt = controller[0], controller[1], controller[2], controller[3], controller[4]
     # The textbook expressions, evaluated once in the same operation order.
@@ -726,13 +791,18 @@ def simulate_kernel(
                       metric_setup[3])
     n_bins = envelope_edges.shape[0] - 1
     grid = BinGrid(envelope_edges[0], (envelope_edges[-1] - envelope_edges[0]) / n_bins, n_bins)
-    # Matched pole-zero compensator: exact inverse of ZOH first-order paths at the samples.
-    ff_pole, ff_zero = decay(h, feedforward[2]), decay(h, feedforward[1])
-    ff_gain = feedforward[0]
-    ff_scale = ff_gain * (1.0 - ff_pole) / (1.0 - ff_zero) if ff_zero < 1.0 else ff_gain
-    m_ff, f_ff = split_delay(feedforward[3], h)
-    ffp = FeedforwardParams(ff_pole, ff_zero, ff_scale, 1.0 - f_ff, f_ff,
-                            decay(h, feedforward[4]))
+    # Matched pole-zero compensators: exact inverse of ZOH first-order paths at the samples.
+    ffp = np.zeros((n_d, 7))
+    ff_delays = np.zeros(n_d, dtype=np.int64)
+    for j in range(n_d):
+        ff_pole, ff_zero = decay(h, feedforward[j, 2]), decay(h, feedforward[j, 1])
+        ff_gain = feedforward[j, 0]
+        ff_scale = ff_gain * (1.0 - ff_pole) / (1.0 - ff_zero) if ff_zero < 1.0 else ff_gain
+        m_ff, f_ff = split_delay(feedforward[j, 3], h)
+        ff_delays[j] = min(m_ff, n_steps)
+        ffp[j, 0], ffp[j, 1], ffp[j, 2] = ff_pole, ff_zero, ff_scale
+        ffp[j, 3], ffp[j, 4], ffp[j, 5] = 1.0 - f_ff, f_ff, decay(h, feedforward[j, 4])
+        ffp[j, 6] = feedforward[j, 5]
     scans = max(int(secondary[6]), 1)
     h_s = h / scans
     sec = SecondaryParams(
@@ -740,21 +810,43 @@ def simulate_kernel(
         secondary[1] * h_s / secondary[2] if secondary[0] > 0.0 else 0.0,
         h_s / secondary[3] if secondary[0] > 0.0 else 0.0,
         secondary[4], secondary[5], max(substeps // scans, 1))
-    noise = np.zeros((noise_events.shape[0], 5))
-    for j in range(noise_events.shape[0]):
-        pole = decay(h, noise_events[j, 2])
-        noise[j, 0], noise[j, 1] = noise_events[j, 0], pole
-        noise[j, 2] = noise_events[j, 1] * math.sqrt(1.0 - pole * pole)
-        noise[j, 4] = noise_events[j, 1]
+    noise = np.zeros((noise_events.shape[0], 6))
+    for e in range(noise_events.shape[0]):
+        pole = decay(h, noise_events[e, 2])
+        noise[e, 0], noise[e, 1] = noise_events[e, 0], pole
+        noise[e, 2] = noise_events[e, 1] * math.sqrt(1.0 - pole * pole)
+        noise[e, 4], noise[e, 5] = noise_events[e, 1], noise_events[e, 3]
     ring = np.zeros(_RING_ROWS * _ring_size(n_internal))
     env_buf = np.full((2, envelope_counts.shape[1]), -1, dtype=np.int64)
+    # Per-sample scratch: each disturbance's input, the summed effect, the measurements, the
+    # summed feedforward (memory T S (J + 1) + T (J + 2), independent of N).
+    inputs = np.zeros((n_d, n_internal))
+    effect = np.zeros(n_internal)
+    measured = np.zeros((n_d, n_steps))
+    filtered = np.zeros(n_steps)
+    ff_total = np.zeros(n_steps)
+    replay, record = noise_replay.shape[1] > 0, noise_record.shape[1] > 0
     for i in range(plant.shape[0]):
+        if replay:
+            effect[:] = noise_replay[i, :n_internal]
+            for j in range(n_d):
+                measured[j, :] = noise_replay[i, n_internal + j * n_steps:
+                                              n_internal + (j + 1) * n_steps]
+        else:
+            _disturbance_inputs(i, seeds[i], disturbances, disturbance_profile, noise, substeps,
+                                inputs, measured)
+            _disturbance_paths(i, disturbance_kinds, disturbances, hi, substeps, inputs, effect,
+                               measured)
+        if record:
+            noise_record[i, :n_internal] = effect
+            for j in range(n_d):
+                noise_record[i, n_internal + j * n_steps:
+                             n_internal + (j + 1) * n_steps] = measured[j, :]
+        _feedforward_output(measured, ffp, ff_delays, filtered, ff_total)
         acc0, acc1, last0, last1, alive0, alive1, probe = _simulate_sample(
-            i, kinds, plant, seeds[i], disturbance_profile, setpoint_profile, direction_profile,
-            segment_profile, noise, p, mp,
-            ffp, min(m_ff, n_steps), controller[7], grid, envelope_index, trajectory_slot[i],
-            ring, env_buf, trajectories, feedback_arm, h, substeps, valve_kind, valve_table, sec,
-            noise_record, noise_replay)
+            i, kinds, plant, effect, ff_total, setpoint_profile, direction_profile,
+            segment_profile, p, mp, controller[7], grid, envelope_index, trajectory_slot[i],
+            ring, env_buf, trajectories, feedback_arm, h, substeps, valve_kind, valve_table, sec)
         loop_unstable[i] = probe
         _commit_envelope(env_buf, envelope_counts, not probe)
         last_segment = segment_profile[n_internal - 1]

@@ -22,13 +22,14 @@ class Scenario:
     ----------
     step : float
         The controller's scan period, time units.
-    disturbance_profile : ndarray, shape (T S,)
-        Deterministic disturbance (steps and ramps) at each internal step (``S`` per scan,
-        ``T`` scans), disturbance units.
+    disturbance_profile : ndarray, shape (J, T S)
+        Each disturbance's deterministic part (steps, ramps, records) at each internal step
+        (``S`` per scan, ``T`` scans), in case order, its units.
     setpoint_profile : ndarray, shape (T S,)
         Setpoint deviation at each internal step, CV units.
-    noise_events : ndarray, shape (E, 3)
-        Filtered-noise events: start scan, stationary standard deviation, filter time constant.
+    noise_events : ndarray, shape (E, 4)
+        Filtered-noise events: start scan, stationary standard deviation, filter time constant,
+        index of the disturbance it moves.
     event_start : float
         Start of the first event, time units (``t0`` of the metrics).
     direction : ndarray, shape (T S,)
@@ -69,7 +70,7 @@ class Scenario:
     @property
     def n_steps(self) -> int:
         """Number of controller scans, ``T``."""
-        return int(self.disturbance_profile.shape[0]) // self.substeps
+        return int(self.setpoint_profile.shape[0]) // self.substeps
 
     @property
     def times(self) -> np.ndarray:
@@ -95,31 +96,34 @@ def event_profiles(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
     Returns
     -------
-    disturbance : ndarray, shape (T S,)
+    disturbance : ndarray, shape (J, T S)
+        One row per disturbance, in case order.
     setpoint : ndarray, shape (T S,)
-    noise_events : ndarray, shape (E, 3), start as a scan index
+    noise_events : ndarray, shape (E, 4), start as a scan index, then the disturbance's row
     """
     h = case.simulation.internal_step
     n = case.simulation.n_steps * case.simulation.substeps
     scan = case.simulation.step
     t = np.arange(n) * h
-    disturbance = np.zeros(n)
+    names = [item.name for item in case.disturbance_inputs]
+    disturbance = np.zeros((len(names), n))
     setpoint = np.zeros(n)
     noise = []
     for event in case.events:
         start = round(event.at / h) * h
+        row = names.index(event.disturbance) if event.disturbance else 0
         if event.kind == "disturbance-step":
-            disturbance += np.where(t >= start - 1e-9 * h, event.size, 0.0)
+            disturbance[row] += np.where(t >= start - 1e-9 * h, event.size, 0.0)
         elif event.kind == "setpoint-step":
             setpoint += np.where(t >= start - 1e-9 * h, event.size, 0.0)
         elif event.kind == "disturbance-ramp":
             fraction = np.clip((t - start) / max(event.duration, h), 0.0, 1.0)
-            disturbance += event.size * fraction
+            disturbance[row] += event.size * fraction
         elif event.kind == "disturbance-record" and event.record is not None:
-            disturbance += record_profile(event.record, t, start)
+            disturbance[row] += record_profile(event.record, t, start)
         elif event.kind == "disturbance-noise":
-            noise.append((round(event.at / scan), abs(event.size), event.time_constant))
-    return disturbance, setpoint, np.array(noise, dtype=np.float64).reshape(-1, 3)
+            noise.append((round(event.at / scan), abs(event.size), event.time_constant, row))
+    return disturbance, setpoint, np.array(noise, dtype=np.float64).reshape(-1, 4)
 
 
 #: Events that never end, so that nothing settles after them (no settling segment starts).
@@ -155,7 +159,8 @@ def _event_direction(case: Case, event: Event, previous: float) -> float:
         return -float(np.sign(event.size) or 1.0)
     if event.kind == "disturbance-noise":
         return previous
-    return float(np.sign(case.disturbance.gain * event.size) or 1.0)
+    gain = case.disturbance_named(event.disturbance).model.gain
+    return float(np.sign(gain * event.size) or 1.0)
 
 
 def disturbance_direction(case: Case) -> tuple[np.ndarray, float | None, float]:
@@ -194,10 +199,12 @@ def disturbance_direction(case: Case) -> tuple[np.ndarray, float | None, float]:
 def divergence_limit(case: Case, design: LoopDesign) -> float:
     """A CV deviation far beyond anything a working loop produces, CV units."""
     _, setpoint, _ = event_profiles(case)
-    d_size = sum(abs(e.size) for e in case.events if e.kind != "setpoint-step")
     span = design.feedback.output_high - design.feedback.output_low
-    scale = abs(case.disturbance.gain) * d_size + float(np.max(np.abs(setpoint), initial=0.0))
+    scale = sum(abs(case.disturbance_named(e.disturbance).model.gain) * abs(e.size)
+                for e in case.events if e.kind != "setpoint-step")
+    scale += float(np.max(np.abs(setpoint), initial=0.0))
     scale += abs(case.process.gain) * span
-    if case.process.integrating or case.disturbance.integrating:
+    if case.process.integrating or any(item.model.integrating
+                                       for item in case.disturbance_inputs):
         scale *= case.simulation.duration
     return 1e4 * max(scale, 1e-12)

@@ -28,7 +28,7 @@ from robustff.output.samples_file import sample_columns, samples_file_name, writ
 from robustff.output.samples_units import SAMPLES_UNITS_FILE, samples_units_csv
 from robustff.study import StudyResult
 from robustff.study.frequency import frequency_csv
-from robustff.study.summary import study_frequency
+from robustff.study.summary import study_frequencies
 from robustff.study.summary_types import ARMS, Summary, percentile_value
 
 __all__ = [
@@ -214,7 +214,7 @@ def write_results(
         write_samples(staging, sample_columns(result), samples_format)
         write_text_atomic(staging / SAMPLES_UNITS_FILE, samples_units_csv(result, summary))
         write_text_atomic(staging / "frequency.csv",
-                          frequency_csv(study_frequency(result), result.case.time_unit))
+                          frequency_csv(study_frequencies(result), result.case.time_unit))
         if extra is not None:
             extra(staging)
         _replace_folder(staging, folder)

@@ -198,6 +198,16 @@ class PlantBatch:
     valve: ValveModel | None = None
     #: The secondary loop path's kind; None without a secondary loop.
     secondary_kind: str | None = None
+    #: Every disturbance path: its kind, the prefix of its keys (``"disturbance"`` or
+    #: ``"disturbance.NAME"``) and of its transmitter's (``"sensor"`` or
+    #: ``"disturbance.NAME.sensor"``), and whether it is measured. Empty: the one path
+    #: ``(disturbance_kind, "disturbance", "sensor", True)``.
+    disturbance_paths: tuple[tuple[str, str, str, bool], ...] = ()
+
+    @property
+    def paths(self) -> tuple[tuple[str, str, str, bool], ...]:
+        """:attr:`disturbance_paths`, the single unnamed path when it is empty."""
+        return self.disturbance_paths or ((self.disturbance_kind, "disturbance", "sensor", True),)
 
     @property
     def size(self) -> int:
@@ -208,11 +218,22 @@ class PlantBatch:
     def from_nominal(
         cls, process: TransferModel, disturbance: TransferModel, sensor: SensorModel, n: int,
         valve: ValveModel | None = None, secondary: TransferModel | None = None,
+        named: tuple[tuple[str, TransferModel, SensorModel, bool], ...] = (),
     ) -> PlantBatch:
-        """``n`` copies of the nominal plant (``valve``: None for an ideal actuator;
-        ``secondary``: the secondary loop's path, None without one)."""
+        """``n`` copies of the nominal plant.
+
+        ``valve``: None for an ideal actuator; ``secondary``: the secondary loop's path, None
+        without one; ``named``: ``(name, path, transmitter, measured)`` of every named
+        disturbance (then ``disturbance`` and ``sensor`` are not used), empty for the single
+        unnamed one.
+        """
         values: dict[str, np.ndarray] = {}
-        blocks = [("process", process), ("disturbance", disturbance)]
+        if named:
+            inputs = tuple((f"disturbance.{name}", f"disturbance.{name}.sensor", model, meter,
+                            measured) for name, model, meter, measured in named)
+        else:
+            inputs = (("disturbance", "sensor", disturbance, sensor, True),)
+        blocks = [("process", process), *((prefix, model) for prefix, _, model, _, _ in inputs)]
         # Without a secondary loop its columns hold a zero-gain FOPDT (never simulated).
         blocks.append(("secondary", secondary or TransferModel("fopdt", 0.0, 0.0, 0.0, 0.0)))
         for block, model in blocks:
@@ -220,12 +241,15 @@ class PlantBatch:
                 # Parameters the kind does not have are stored as zero ("no lag").
                 used = name in model.spec.parameter_names
                 values[f"{block}.{name}"] = _column(getattr(model, name) if used else 0.0, n)
-        values["sensor.time_constant"] = _column(sensor.time_constant, n)
-        values["sensor.noise_std"] = _column(sensor.noise_std, n)
+        for _, prefix, _, meter, _ in inputs:
+            values[f"{prefix}.time_constant"] = _column(meter.time_constant, n)
+            values[f"{prefix}.noise_std"] = _column(meter.noise_std, n)
         for name in VALVE_PARAMETERS:
             values[f"valve.{name}"] = _column(getattr(valve or ValveModel(), name), n)
-        return cls(process.kind, disturbance.kind, values, valve,
-                   secondary.kind if secondary is not None else None)
+        paths = (tuple((model.kind, prefix, meter_prefix, measured)
+                       for prefix, meter_prefix, model, _, measured in inputs) if named else ())
+        return cls(process.kind, inputs[0][2].kind, values, valve,
+                   secondary.kind if secondary is not None else None, paths)
 
     def set_parameter(self, key: str, column: np.ndarray) -> None:
         """Overwrite one parameter for all samples.
@@ -250,11 +274,15 @@ class PlantBatch:
             {key: np.ascontiguousarray(col[index]) for key, col in self.values.items()},
             self.valve,
             self.secondary_kind,
+            self.disturbance_paths,
         )
 
     def model(self, block: str, i: int) -> TransferModel:
-        """Sample ``i`` of ``block`` ("process" or "disturbance") as a :class:`TransferModel`."""
-        kind = self.process_kind if block == "process" else self.disturbance_kind
+        """Sample ``i`` of ``block`` ("process", "disturbance" or a disturbance path's prefix
+        such as "disturbance.feed") as a :class:`TransferModel`."""
+        kinds = {prefix: kind for kind, prefix, _, _ in self.paths}
+        kind = self.process_kind if block == "process" else kinds.get(block,
+                                                                       self.disturbance_kind)
         return TransferModel(
             kind,
             float(self.values[f"{block}.gain"][i]),

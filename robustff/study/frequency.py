@@ -30,6 +30,7 @@ import numpy as np
 
 from robustff.case import Case
 from robustff.case.record import DisturbanceRecord
+from robustff.case.sampling import nominal_plants
 from robustff.design.sampled_loop import split_delay, zoh_coefficients
 from robustff.design.tuning import LoopDesign
 from robustff.plant.kinds import model_kind
@@ -38,7 +39,7 @@ from robustff.study.summary_types import FrequencyDict, FrequencyRecordDict
 
 __all__ = ["HELP_FRACTION", "FREQUENCY_POINTS", "MAX_PLANTS", "FrequencyResult", "frequency_study",
            "sampled_path", "compensator_response", "error_ratio", "variance_share_below",
-           "frequency_csv", "frequency_summary"]
+           "frequency_csv", "frequency_summary", "measured_disturbances"]
 
 #: Fraction of plants in which feedforward must help for a frequency to count as helped.
 HELP_FRACTION = 0.9
@@ -78,6 +79,10 @@ class FrequencyResult:
         Standard deviation of the recorded trace, disturbance units; None without a record.
     record_file : str or None
         The record's file as written in the case.
+    disturbance : str
+        The disturbance studied (its name; ``"disturbance"`` for the single one).
+    disturbance_unit : str
+        Its engineering unit.
     """
 
     omega: np.ndarray
@@ -89,11 +94,17 @@ class FrequencyResult:
     variance_share: float | None = None
     record_std: float | None = None
     record_file: str | None = None
+    disturbance: str = "disturbance"
+    disturbance_unit: str = ""
 
 
 def _lags(batch: PlantBatch, block: str) -> tuple[np.ndarray, np.ndarray, np.ndarray, bool]:
-    """Gain and the two lags of a block (the kind's lags, zero where it has fewer), integrating."""
-    kind = model_kind(batch.process_kind if block == "process" else batch.disturbance_kind)
+    """Gain and the two lags of a block (the kind's lags, zero where it has fewer), integrating.
+
+    ``block`` is ``"process"`` or a disturbance path's key prefix (``"disturbance"``,
+    ``"disturbance.NAME"``)."""
+    kinds = {prefix: kind for kind, prefix, _, _ in batch.paths}
+    kind = model_kind(batch.process_kind if block == "process" else kinds[block])
     gain = np.asarray(batch.values[f"{block}.gain"], dtype=float)
     zero = np.zeros_like(gain)
     lags = [np.asarray(batch.values[f"{block}.{name}"], dtype=float)
@@ -129,14 +140,16 @@ def _decay(h: float, tau: np.ndarray | float) -> np.ndarray:
         return np.where(tau > 0.0, np.exp(-h / np.where(tau > 0.0, tau, 1.0)), 0.0)
 
 
-def compensator_response(design: LoopDesign, h: float, omega: np.ndarray) -> np.ndarray:
+def compensator_response(design: LoopDesign, h: float, omega: np.ndarray,
+                         index: int = 0) -> np.ndarray:
     """The simulated feedforward compensator at ``z = exp(j w h)``, complex, shape (F,).
 
     Digital input filter ``(1 - a) / (1 - a z^-1)``, delay ``z^-m ((1 - f) + f z^-1)``, and
     the matched pole-zero lead-lag ``s (1 - q z^-1) / (1 - p z^-1)`` with ``p = exp(-h/lag)``,
     ``q = exp(-h/lead)`` and ``s = K (1 - p) / (1 - q)`` (unit gain at ``z = 1`` times K).
+    ``index``: the disturbance (case order) whose compensator it is.
     """
-    ff = design.feedforward
+    ff = design.all_compensators[index]
     zi = np.exp(-1j * np.asarray(omega, dtype=float) * h)  # z^-1
     if not ff.active:
         return np.zeros_like(zi)
@@ -149,29 +162,35 @@ def compensator_response(design: LoopDesign, h: float, omega: np.ndarray) -> np.
     return (1.0 - a) / (1.0 - a * zi) * delay * lead_lag
 
 
-def _transmitter(batch: PlantBatch, h: float, omega: np.ndarray) -> np.ndarray:
-    """Transmitter lag sampled as the simulation runs it, (n, F): 1 without a lag."""
-    tau = np.asarray(batch.values["sensor.time_constant"], dtype=float)[:, None]
+def _transmitter(batch: PlantBatch, h: float, omega: np.ndarray,
+                 meter: str = "sensor") -> np.ndarray:
+    """Transmitter lag sampled as the simulation runs it, (n, F): 1 without a lag.
+    ``meter``: the transmitter's key prefix."""
+    tau = np.asarray(batch.values[f"{meter}.time_constant"], dtype=float)[:, None]
     b = _decay(h, tau)
     zi = np.exp(-1j * np.asarray(omega, dtype=float) * h)[None, :]
     return np.where(tau > 0.0, (1.0 - b) * zi / (1.0 - b * zi), 1.0 + 0.0j)
 
 
 def error_ratio(batch: PlantBatch, design: LoopDesign, h: float,
-                omega: np.ndarray) -> np.ndarray:
-    """``|1 + P Gff M / D|`` of every plant, shape (n, F), dimensionless (NaN where D = 0)."""
-    gff = compensator_response(design, h, omega)[None, :]
+                omega: np.ndarray, index: int = 0) -> np.ndarray:
+    """``|1 + P Gff M / D|`` of every plant, shape (n, F), dimensionless (NaN where D = 0).
+
+    ``index``: the measured disturbance (case order) whose path ``D``, transmitter ``M`` and
+    compensator ``Gff`` are taken (the other disturbances' feedforward does not act on it)."""
+    _, prefix, meter, _ = batch.paths[index]
+    gff = compensator_response(design, h, omega, index)[None, :]
     process = sampled_path(batch, "process", h, omega)
-    disturbance = sampled_path(batch, "disturbance", h, omega)
+    disturbance = sampled_path(batch, prefix, h, omega)
     with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = np.abs(1.0 + process * gff * _transmitter(batch, h, omega) / disturbance)
+        ratio = np.abs(1.0 + process * gff * _transmitter(batch, h, omega, meter) / disturbance)
     return np.where(np.isfinite(ratio), ratio, np.nan)
 
 
 def _grid(case: Case, h: float) -> np.ndarray:
     """Logarithmic grid from well below the slowest dynamics to the Nyquist frequency."""
     slow = max(sum(model.lags) + model.dead_time
-               for model in (case.process, case.disturbance))
+               for model in (case.process, *(item.model for item in case.disturbance_inputs)))
     low = 0.01 / max(slow, h)
     high = math.pi / h
     return np.geomspace(min(low, high / 1e3), high, FREQUENCY_POINTS)
@@ -215,7 +234,13 @@ def variance_share_below(times: np.ndarray, values: np.ndarray, omega: float | N
     return float(100.0 * np.sum(power[f <= omega / (2.0 * math.pi)]) / total)
 
 
-def frequency_study(case: Case, design: LoopDesign, batch: PlantBatch) -> FrequencyResult:
+def measured_disturbances(case: Case) -> list[int]:
+    """Indices (case order) of the measured disturbances, the headline one first."""
+    return [k for k, item in enumerate(case.disturbance_inputs) if item.measured]
+
+
+def frequency_study(case: Case, design: LoopDesign, batch: PlantBatch,
+                    index: int | None = None) -> FrequencyResult:
     """The error ratio of feedforward over the sampled plants, and the record's variance share.
 
     Parameters
@@ -225,17 +250,22 @@ def frequency_study(case: Case, design: LoopDesign, batch: PlantBatch) -> Freque
         The feedforward whose effect is measured (designed from the nominal models).
     batch : PlantBatch
         The sampled plants.
+    index : int, optional
+        The disturbance (case order) studied; default the first measured one.
 
     Returns
     -------
     FrequencyResult
         Without an active feedforward the ratio is 1 at every frequency (no crossover).
     """
+    if index is None:
+        index = (measured_disturbances(case) or [0])[0]
+    item = case.disturbance_inputs[index]
     h = case.simulation.step
     omega = _grid(case, h)
     quantiles = {"p5": 5.0, "p50": 50.0, "p90": 90.0, "p95": 95.0}
     parts: dict[str, list[np.ndarray]] = {key: [] for key in quantiles}
-    ratios = [error_ratio(batch.subset(slice(start, start + _CHUNK)), design, h, omega)
+    ratios = [error_ratio(batch.subset(slice(start, start + _CHUNK)), design, h, omega, index)
               for start in range(0, batch.size, _CHUNK)]
     ratio = np.concatenate(ratios)  # n x F floats: the plants' ratios, F = FREQUENCY_POINTS
     for key, q in quantiles.items():
@@ -243,34 +273,39 @@ def frequency_study(case: Case, design: LoopDesign, batch: PlantBatch) -> Freque
     finite = np.sum(np.isfinite(ratio), axis=0)
     helped = 100.0 * np.sum(ratio < 1.0, axis=0) / np.maximum(finite, 1)
     bands = {key: value[0] for key, value in parts.items()} | {"helped": helped}
-    nominal_batch = PlantBatch.from_nominal(case.process, case.disturbance, case.sensor, 1)
-    nominal = error_ratio(nominal_batch, design, h, omega)[0]
+    nominal = error_ratio(nominal_plants(case, 1), design, h, omega, index)[0]
     # helped in 90 % of plants <=> the P90 band below 1 (ties at the order statistic aside)
     crossover = _crossover(omega, bands["p90"])
-    record = _first_record(case)
+    record = _first_record(case, item.name)
     share = std = None
     if record is not None:
         share = variance_share_below(record.times, record.values, crossover)
         std = float(np.std(record.values))
     return FrequencyResult(omega, bands, nominal, crossover, math.pi / h, int(batch.size),
-                           share, std, record.spec.file if record is not None else None)
+                           share, std, record.spec.file if record is not None else None,
+                           item.label, item.unit)
 
 
-def _first_record(case: Case) -> DisturbanceRecord | None:
-    return next((event.record for event in case.events if event.record is not None), None)
+def _first_record(case: Case, name: str) -> DisturbanceRecord | None:
+    first = case.disturbance_inputs[0].name
+    return next((event.record for event in case.events if event.record is not None
+                 and (event.disturbance or first) == name), None)
 
 
-def frequency_csv(result: FrequencyResult, time_unit: str) -> str:
-    """``frequency.csv``: one row per frequency, the ratio bands and the plants it helps."""
+def frequency_csv(results: FrequencyResult | list[FrequencyResult], time_unit: str) -> str:
+    """``frequency.csv``: one row per frequency and measured disturbance, the ratio bands and
+    the plants it helps; the last column names the disturbance."""
     header = [f"omega [rad/{time_unit}]", f"frequency [1/{time_unit}]", f"period [{time_unit}]",
               "ratio_p5 [-]", "ratio_p50 [-]", "ratio_p90 [-]", "ratio_p95 [-]",
-              "ratio_nominal [-]", "plants_helped [%]"]
+              "ratio_nominal [-]", "plants_helped [%]", "disturbance"]
     lines = [",".join(header)]
-    for k, w in enumerate(result.omega):
-        row = [w, w / (2.0 * math.pi), 2.0 * math.pi / w, result.bands["p5"][k],
-               result.bands["p50"][k], result.bands["p90"][k], result.bands["p95"][k],
-               result.nominal[k], result.bands["helped"][k]]
-        lines.append(",".join("" if not math.isfinite(v) else f"{v:.6g}" for v in row))
+    for result in results if isinstance(results, list) else [results]:
+        for k, w in enumerate(result.omega):
+            row = [w, w / (2.0 * math.pi), 2.0 * math.pi / w, result.bands["p5"][k],
+                   result.bands["p50"][k], result.bands["p90"][k], result.bands["p95"][k],
+                   result.nominal[k], result.bands["helped"][k]]
+            lines.append(",".join("" if not math.isfinite(v) else f"{v:.6g}" for v in row)
+                         + "," + result.disturbance)
     return "\n".join(lines) + "\n"
 
 
@@ -288,7 +323,7 @@ def frequency_summary(result: FrequencyResult, case: Case) -> FrequencyDict:
     if result.variance_share is not None:
         record = {"file": result.record_file or "", "variance_share_below": result.variance_share,
                   "std": result.record_std if result.record_std is not None else math.nan,
-                  "std_unit": case.signals.disturbance.unit}
+                  "std_unit": result.disturbance_unit or case.signals.disturbance.unit}
     up_to_nyquist = crossover is not None and crossover >= result.nyquist
     share = f"{100 * HELP_FRACTION:.0f} % of the plants"
     if crossover is None:
@@ -305,7 +340,8 @@ def frequency_summary(result: FrequencyResult, case: Case) -> FrequencyDict:
         words += (f"; {record['variance_share_below']:.0f} % of the recorded trace's variance "
                   "lies there")
     return {
-        "disturbance": case.signals.disturbance.name,
+        "disturbance": (result.disturbance if case.disturbances
+                        else case.signals.disturbance.name),
         "unit": f"rad/{unit}",
         "plants": result.plants,
         "help_fraction": HELP_FRACTION,

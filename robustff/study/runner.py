@@ -196,7 +196,8 @@ def _run_chunk(
     # measurement, noise included) so that they replay it instead of simulating it again,
     # when it stays small.
     record = (bool(design.alternatives)
-              and batch.size * scenario.n_steps * (scenario.substeps + 1) <= NOISE_REPLAY_LIMIT)
+              and batch.size * scenario.n_steps * (scenario.substeps + len(batch.paths))
+              <= NOISE_REPLAY_LIMIT)
     result = simulate(
         batch, design, scenario, seeds=seeds, envelope=grid, keep=np.arange(min(keep, batch.size)),
         record_noise=record,

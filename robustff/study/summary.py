@@ -35,6 +35,7 @@ from robustff.study.frequency import (
     FrequencyResult,
     frequency_study,
     frequency_summary,
+    measured_disturbances,
 )
 from robustff.study.noise_travel import noise_travel_warning
 from robustff.study.provenance import not_settled, reproducibility
@@ -60,6 +61,7 @@ from robustff.study.summary_types import (
 __all__ = [
     "summarize_study",
     "study_frequency",
+    "study_frequencies",
     "metric_unit",
     "nominal_margin_warnings",
     "HARM_METRICS",
@@ -281,9 +283,16 @@ def _convergence(result: StudyResult, harm_iae: HarmEstimate) -> Convergence:
 
 def study_frequency(result: StudyResult) -> FrequencyResult:
     """The error ratio of the study's feedforward over its first sampled plants (at most
-    :data:`robustff.study.frequency.MAX_PLANTS`; the bands of frequency.csv)."""
+    :data:`robustff.study.frequency.MAX_PLANTS`), for its first measured disturbance."""
+    return study_frequencies(result)[0]
+
+
+def study_frequencies(result: StudyResult) -> list[FrequencyResult]:
+    """:func:`study_frequency` for every measured disturbance, in case order (the bands of
+    frequency.csv); the first disturbance alone when none is measured."""
     batch = plant_batch(result.case, result.names, result.parameters[:MAX_PLANTS])
-    return frequency_study(result.case, result.design, batch)
+    indices = measured_disturbances(result.case) or [0]
+    return [frequency_study(result.case, result.design, batch, index) for index in indices]
 
 
 def summarize_study(
@@ -327,6 +336,7 @@ def summarize_study(
             cast(SensitivityRow, row.to_dict())
             for row in rank_sensitivity(result.parameters, result.names, iae_ratio, harmful)
         ]
+    frequencies = study_frequencies(result)
     summary: Summary = {
         "case": result.case.name,
         "title": result.case.title,
@@ -357,7 +367,9 @@ def summarize_study(
         "not_settled": not_settled(result),
         "recommendation": cast(RecommendationDict, {}),  # judged below, on the summary itself
         "reproducibility": reproducibility(result, command_line),
-        "frequency": frequency_summary(study_frequency(result), result.case),
+        "frequency": frequency_summary(frequencies[0], result.case),
+        "frequency_by_disturbance": [frequency_summary(item, result.case)
+                                     for item in frequencies],
         "caution": CAUTION,
     }
     summary["recommendation"] = recommend(summary, result.case.recommendation)

@@ -464,6 +464,8 @@ class Summary(TypedDict):
     recommendation: RecommendationDict
     reproducibility: Reproducibility
     frequency: FrequencyDict  #: where in frequency feedforward helps, and a record's share there
+    #: the same for every measured disturbance, in case order (the first is ``frequency``)
+    frequency_by_disturbance: list[FrequencyDict]
     caution: str
 
 

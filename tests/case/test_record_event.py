@@ -53,7 +53,7 @@ def test_window_left_out_covers_the_record_and_the_profile_follows_it(tmp_path: 
     case = load_case(write_case(tmp_path, PLAIN, at=1.0))
     # last row at 1 + 4 min: scans at 0, 0.5, ..., 5.0 -> 11 scans, window 5.5 min
     assert case.simulation.duration == pytest.approx(5.5)
-    disturbance, _, _ = event_profiles(case)
+    disturbance = event_profiles(case)[0][0]
     t = np.arange(disturbance.size) * 0.5
     expected = np.interp(t - 1.0, [0, 1, 2, 3, 4], [0, 0, 2, 2, 1])
     expected[t < 1.0] = 0.0
@@ -71,7 +71,7 @@ def test_baseline_mean_is_the_time_average_and_time_unit_converts(tmp_path: Path
     assert record.baseline_value == pytest.approx(11.125)
     np.testing.assert_allclose(record.times, [0, 60, 120, 180, 240])
     assert case.simulation.duration == pytest.approx(270.0)
-    disturbance, _, _ = event_profiles(case)
+    disturbance = event_profiles(case)[0][0]
     assert disturbance[0] == pytest.approx(10 - 11.125)
     assert disturbance[3] == pytest.approx(11 - 11.125)  # 90 s: halfway from 10 to 12
 
@@ -81,7 +81,7 @@ def test_gaps_interpolated_or_held_with_a_warning(tmp_path: Path) -> None:
     # interpolated: 11 at 1 min, 12 + 2/3 at 3 min (between 12 at 2 and 14 at 5); held: 10, 12
     for gaps, at_one, at_three in (("interpolate", 1.0, 2.0 + 2.0 / 3.0), ("hold", 0.0, 2.0)):
         case = load_case(write_case(tmp_path, csv, step=1.0, extra=f'gaps = "{gaps}"'))
-        disturbance, _, _ = event_profiles(case)
+        disturbance = event_profiles(case)[0][0]
         assert disturbance[1] == pytest.approx(at_one)
         assert disturbance[3] == pytest.approx(at_three)
         warnings = [w.message for w in review_case(case).warnings]
@@ -92,7 +92,7 @@ def test_gaps_interpolated_or_held_with_a_warning(tmp_path: Path) -> None:
 def test_window_longer_than_the_record_holds_its_last_value_with_a_warning(
         tmp_path: Path) -> None:
     case = load_case(write_case(tmp_path, PLAIN, duration="duration = 10.0\n"))
-    disturbance, _, _ = event_profiles(case)
+    disturbance = event_profiles(case)[0][0]
     assert np.all(disturbance[-6:] == pytest.approx(1.0))
     warnings = [w.message for w in review_case(case).warnings]
     assert any("runs past the record's end at 4 min" in w for w in warnings), warnings

@@ -18,8 +18,8 @@ def _drive(command: np.ndarray, *, rate=0.0, deadband=0.0, s=0.0, j=0.0, lag=0.0
            step=1.0, substeps=1) -> tuple[np.ndarray, np.ndarray]:
     """Held position (after stiction/deadband) at each scan and stem position per internal
     step, both in % of travel."""
-    plant = np.zeros((1, 16))
-    plant[0, 10:16] = (50.0, rate, deadband, s, j, lag)
+    plant = np.zeros((1, 14))  # the kernel's plant row: process, valve (columns 4-9), secondary
+    plant[0, 4:10] = (50.0, rate, deadband, s, j, lag)
     vp = _valve_params(1, plant, 0, step / substeps, -50.0, 50.0, NO_TABLE)
     state = _valve_at_rest(vp)
     held, stem = [], []
