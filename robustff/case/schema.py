@@ -480,6 +480,19 @@ class Case:
                 return item
         raise KeyError(name)
 
+    def with_disturbance_input(self, name: str, item: DisturbanceInput) -> Case:
+        """A copy with the named disturbance replaced by ``item`` (``name`` ``""``: the single
+        one; ``disturbance`` and ``sensor`` follow the first)."""
+        from dataclasses import replace
+
+        if not self.disturbances:
+            return replace(self, disturbance=item.model, sensor=item.sensor)
+        inputs = tuple(item if old.name == name else old for old in self.disturbances)
+        if inputs == self.disturbances and item not in inputs:
+            raise KeyError(name)
+        return replace(self, disturbances=inputs, disturbance=inputs[0].model,
+                       sensor=inputs[0].sensor)
+
     def feedforward_of(self, item: DisturbanceInput) -> FeedforwardSpec:
         """The feedforward rule of one disturbance (its own override, else ``[feedforward]``)."""
         return item.feedforward if item.feedforward is not None else self.feedforward

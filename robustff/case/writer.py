@@ -155,10 +155,12 @@ def _plain(case: Case) -> dict[str, Any]:
         "title": case.title,
         "time_unit": case.time_unit,
         "process": _model(case.process),
-        "disturbance": _model(case.disturbance),
+        "disturbance": _disturbances(case),
         "feedback": _feedback(case.feedback),
-        "feedforward": _dataclass(case.feedforward),
-        "sensor": _dataclass(case.sensor),
+        "feedforward": _dataclass(case.feedforward) | {
+            item.name: _override(case.feedforward, item.feedforward)
+            for item in case.disturbances if item.feedforward is not None},
+    } | ({} if case.disturbances else {"sensor": _dataclass(case.sensor)}) | {
         "signals": {name: _dataclass(signal) for name, signal in _items(case.signals)},
         "simulation": _dataclass(case.simulation),
         "event": [_event(event) for event in case.events],
@@ -215,6 +217,34 @@ def _feedback(spec: FeedbackSpec) -> dict[str, Any]:
             if name not in _FEEDBACK_QUIET or value != getattr(default, name)}
 
 
+def _disturbances(case: Case) -> dict[str, Any]:
+    """``[disturbance]``, or one ``[disturbance.NAME]`` table per named disturbance (its
+    transmitter as a sub-table, keys at their defaults left out)."""
+    if not case.disturbances:
+        return _model(case.disturbance)
+    tables: dict[str, Any] = {}
+    for item in case.disturbances:
+        table = _model(item.model)
+        if item.unit:
+            table["unit"] = item.unit
+        if not item.measured:
+            table["measured"] = False
+        elif item.sensor != SensorModel():
+            table["sensor"] = {key: value for key, value in _dataclass(item.sensor).items()
+                               if value != getattr(SensorModel(), key)}
+        tables[item.name] = table
+    return tables
+
+
+def _override(base: FeedforwardSpec, spec: FeedforwardSpec) -> dict[str, Any]:
+    """The keys of a ``[feedforward.NAME]`` table: those that differ from ``[feedforward]``
+    (so that a later change of ``[feedforward]`` still reaches the keys it does not set)."""
+    own = asdict(spec)
+    return {key: value for key, value in own.items()
+            if value is not None and value != getattr(base, key)} or {
+        "structure": spec.structure}
+
+
 def _model(model: Any) -> dict[str, Any]:
     return {"model": model.kind} | {
         name: float(getattr(model, name)) for name in MODEL_PARAMETERS[model.kind]
@@ -227,8 +257,11 @@ def _event(event: Any) -> dict[str, Any]:
         keys = {"kind": event.kind, "at": event.at, "file": spec.file,
                 "time_column": spec.time_column, "value_column": spec.value_column}
         return keys | ({"time_unit": spec.time_unit} if spec.time_unit else {}) | {
-            "baseline": spec.baseline, "gaps": spec.gaps}
+            "baseline": spec.baseline, "gaps": spec.gaps} | (
+            {"disturbance": event.disturbance} if event.disturbance else {})
     result = {"kind": event.kind, "at": event.at, "size": event.size}
+    if event.disturbance:
+        result["disturbance"] = event.disturbance
     if event.kind == "disturbance-ramp":
         result["duration"] = event.duration
     if event.kind == "disturbance-noise":

@@ -91,7 +91,7 @@ def _signal_lines(case: Case) -> list[str]:
         "Signals:",
         f"  controlled variable:  {s.controlled.label()}",
         f"  controller output:    {s.output.label()}",
-        f"  measured disturbance: {s.disturbance.label()}",
+        *([] if case.disturbances else [f"  measured disturbance: {s.disturbance.label()}"]),
     ]
 
 
@@ -103,6 +103,11 @@ def parameter_unit(case: Case, key: str) -> str:
 def _model_lines(case: Case) -> list[str]:
     s, unit = case.signals, case.time_unit
     sensor = case.sensor
+    if case.disturbances:
+        return ["", "Nominal models:",
+                f"  process ({s.output.name} -> {s.controlled.name}): "
+                f"{case.process.describe(unit)}; gain in {parameter_unit(case, 'process.gain')}",
+                *_disturbance_lines(case)]
     return [
         "",
         "Nominal models:",
@@ -113,6 +118,22 @@ def _model_lines(case: Case) -> list[str]:
         f"  sensor of the disturbance: time constant {sensor.time_constant:g} {unit}, "
         f"noise std {sensor.noise_std:g} {s.disturbance.unit}".rstrip(),
     ]
+
+
+def _disturbance_lines(case: Case) -> list[str]:
+    """Each named disturbance: its path, and its transmitter or that it is not measured."""
+    unit, lines = case.time_unit, []
+    for item in case.disturbance_inputs:
+        lines.append(f"  disturbance {item.name} [{item.unit or 'no unit given'}] -> "
+                     f"{case.signals.controlled.name}: {item.model.describe(unit)}; gain in "
+                     f"{parameter_unit(case, item.key_prefix + '.gain')}")
+        if item.measured:
+            lines.append(f"    measured: transmitter time constant "
+                         f"{item.sensor.time_constant:g} {unit}, noise std "
+                         f"{item.sensor.noise_std:g} {item.unit}".rstrip())
+        else:
+            lines.append("    not measured (no feedforward: feedback alone handles it)")
+    return lines
 
 
 def _installed_lines(case: Case) -> list[str]:
@@ -133,8 +154,12 @@ def _event_lines(case: Case) -> list[str]:
     lines = ["", f"Simulation: {sim.duration:g} {unit} window, controller scan period "
              f"{sim.step:g} {unit} ({sim.n_steps} scans{internal})", "Events:"]
     for event in case.events:
-        size_unit = s.controlled.unit if event.kind == "setpoint-step" else s.disturbance.unit
+        moved = case.disturbance_named(event.disturbance)
+        size_unit = (s.controlled.unit if event.kind == "setpoint-step"
+                     else moved.unit if case.disturbances else s.disturbance.unit)
         text = f"  at {event.at:g} {unit}: {event.kind}, size {event.size:g} {size_unit}".rstrip()
+        if case.disturbances and event.kind != "setpoint-step":
+            text += f" (disturbance {moved.name})"
         if event.kind == "disturbance-ramp":
             text += f" over {event.duration:g} {unit}"
         if event.kind == "disturbance-noise":

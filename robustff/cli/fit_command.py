@@ -52,8 +52,10 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
     parser.add_argument("--plot", metavar="FILE", help="write data vs fit to FILE.png or FILE.svg")
     parser.add_argument("--template", metavar="CASE.toml", help="case to copy into --case-out")
-    parser.add_argument("--block", choices=("process", "disturbance"), default="process",
-                        help="which model of the case the data describe (default: process)")
+    parser.add_argument("--block", default="process", metavar="BLOCK",
+                        help="which model of the case the data describe: process (default), "
+                             "disturbance, or disturbance.NAME in a case that names its "
+                             "disturbances")
     parser.add_argument("--case-out", metavar="OUT.toml", help="write the fitted case here")
     parser.set_defaults(func=run_fit)
 

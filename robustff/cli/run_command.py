@@ -320,7 +320,12 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
         print(design_table_text(summary))
     print(risk_sentence(summary, "iae"))
     print(risk_sentence(summary, "peak_deviation"))
-    print(f"Where it helps: {summary['frequency']['words']} (frequency.csv)")
+    entries = summary["frequency_by_disturbance"]
+    if len(entries) > 1:
+        for entry in entries:
+            print(f"Where it helps, {entry['disturbance']}: {entry['words']} (frequency.csv)")
+    else:
+        print(f"Where it helps: {summary['frequency']['words']} (frequency.csv)")
     from robustff.output.record_headline import record_headline
 
     headline = record_headline(summary, case)

@@ -166,7 +166,7 @@ def _finite_nonzero(x: float) -> bool:
 
 
 def _design_errors(case: Case, design: LoopDesign) -> list[Finding]:
-    fb, ff = design.feedback, design.feedforward
+    fb = design.feedback
     errors: list[Finding] = []
     manual = case.feedback.tuning == "manual"
     gain_key = "feedback.kc" if manual else "process.gain"
@@ -192,20 +192,22 @@ def _design_errors(case: Case, design: LoopDesign) -> list[Finding]:
             f"{case.process.gain:g} times the output range ({span:g}) overflows floating point: "
             "the simulated controlled variable would be infinite"))
     sizes = [abs(event.size) for event in case.events] or [1.0]
-    if not math.isfinite(case.disturbance.gain * max(sizes)):
-        errors.append(Finding(
-            "disturbance.gain",
-            f"{case.disturbance.gain:g} times the largest event size ({max(sizes):g}) overflows "
-            "floating point"))
-    if ff.structure != "none":
+    for item, ff in zip(case.disturbance_inputs, design.all_compensators):
+        key = f"{item.key_prefix}.gain"
+        gain = item.model.gain
+        if not math.isfinite(gain * max(sizes)):
+            errors.append(Finding(
+                key, f"{gain:g} times the largest event size ({max(sizes):g}) overflows "
+                "floating point"))
+        if ff.structure == "none":
+            continue
         values = {"gain": ff.gain, "lead": ff.lead, "lag": ff.lag, "delay": ff.delay}
         bad = [f"{name} = {value:g}" for name, value in values.items() if not math.isfinite(value)]
         if not bad and not math.isfinite(ff.gain * max(sizes)):
             bad = [f"gain {ff.gain:g} times the event size {max(sizes):g}"]
         if bad:
             errors.append(Finding(
-                "disturbance.gain",
-                f"the feedforward designed from disturbance.gain {case.disturbance.gain:g} and "
+                key, f"the feedforward designed from {key} {gain:g} and "
                 f"process.gain {case.process.gain:g} is not finite ({', '.join(bad)})"))
     return errors
 
@@ -219,7 +221,8 @@ def _window_warnings(case: Case) -> list[Finding]:
             "simulation.step",
             f"{sim.step:g} {unit} does not divide the duration {sim.duration:g} {unit}: the "
             f"window is {sim.n_steps} steps = {sim.n_steps * sim.step:g} {unit}"))
-    for block, model in (("process", case.process), ("disturbance", case.disturbance)):
+    for block, model in (("process", case.process),
+                         *((item.key_prefix, item.model) for item in case.disturbance_inputs)):
         if model.dead_time >= sim.duration:
             warnings.append(Finding(
                 f"{block}.dead_time",
@@ -229,7 +232,7 @@ def _window_warnings(case: Case) -> list[Finding]:
 
 
 def _is_time_parameter(key: str) -> bool:
-    name = key.split(".", 1)[1]
+    name = key.rsplit(".", 1)[1]
     return name not in ("gain", "noise_std")
 
 

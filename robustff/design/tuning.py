@@ -245,18 +245,26 @@ class LoopDesign:
         """Human-readable lines describing the design, with units from the case."""
         unit = case.time_unit
         out_unit = case.signals.output.unit or "output units"
-        ff = self.feedforward
         lines = self.feedback_lines(case)
-        if ff.structure == "none":
-            lines.append("Feedforward: none")
-        else:
-            lines.append(
-                f"Feedforward ({ff.structure}): gain = {ff.gain:.4g} "
-                f"{per_unit(out_unit, case.signals.disturbance.unit or 'disturbance unit')} "
-                f"(gain factor {ff.gain_factor:g}), lead = {ff.lead:.4g} {unit}, "
-                f"lag = {ff.lag:.4g} {unit}, delay = {ff.delay:.4g} {unit}"
-                + (f", input filter = {ff.input_filter:.4g} {unit}" if ff.input_filter else "")
-            )
+        several = len(self.all_compensators) > 1
+        for item, ff in zip(case.disturbance_inputs, self.all_compensators):
+            source = f" from {item.name}" if several else ""
+            dist_unit = (item.unit if case.disturbances else case.signals.disturbance.unit)
+            if not item.measured:
+                lines.append(f"Feedforward{source}: none (not measured)")
+            elif ff.structure == "none":
+                lines.append(f"Feedforward{source}: none")
+            else:
+                lines.append(
+                    f"Feedforward{source} ({ff.structure}): gain = {ff.gain:.4g} "
+                    f"{per_unit(out_unit, dist_unit or 'disturbance unit')} "
+                    f"(gain factor {ff.gain_factor:g}), lead = {ff.lead:.4g} {unit}, "
+                    f"lag = {ff.lag:.4g} {unit}, delay = {ff.delay:.4g} {unit}"
+                    + (f", input filter = {ff.input_filter:.4g} {unit}" if ff.input_filter
+                       else "")
+                )
+        if several:
+            lines.append("  the compensators' outputs add at the controller output")
         lines.extend(f"  note: {note}" for note in self.notes)
         return lines
 

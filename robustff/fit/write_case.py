@@ -65,7 +65,9 @@ def fitted_case_text(
     ----------
     template_text : str
         TOML text of a valid case.
-    block : {"process", "disturbance"}
+    block : str
+        ``"process"``, ``"disturbance"`` or, in a case that names its disturbances,
+        ``"disturbance.NAME"``.
     model : TransferModel
         Nominal model, times in the data's time unit.
     proposals : dict of str to Proposal
@@ -87,12 +89,15 @@ def fitted_case_text(
     import tomlkit
     from tomlkit.exceptions import TOMLKitError
 
-    if block not in FIT_BLOCKS:
-        raise DataError(f"--block must be one of {', '.join(FIT_BLOCKS)}, got '{block}'")
+    named = block.startswith("disturbance.")
+    if block not in FIT_BLOCKS and not named:
+        raise DataError(f"--block must be one of {', '.join(FIT_BLOCKS)} or disturbance.NAME, "
+                        f"got '{block}'")
     try:
         doc = tomlkit.parse(template_text)
     except TOMLKitError as exc:
         raise CaseError(f"{source}: not readable as TOML: {exc}") from None
+    _check_named(doc, block, source)
     case_unit = str(doc.get("time_unit", "s"))
     notes: list[str] = []
     if data_time_unit is None:
@@ -112,12 +117,30 @@ def fitted_case_text(
     return text, notes
 
 
+def _check_named(doc: Any, block: str, source: str) -> None:
+    """A template that names its disturbances takes ``disturbance.NAME``, one that does not
+    takes ``disturbance``."""
+    from robustff.case.disturbance_section import is_named_form
+
+    tables = doc.get("disturbance")
+    names = list(tables) if is_named_form(tables) else []
+    if block == "disturbance" and names:
+        raise CaseError(f"{source}: the template names its disturbances "
+                        f"({', '.join(names)}): give --block disturbance.NAME")
+    if block.startswith("disturbance.") and block.split(".", 1)[1] not in names:
+        have = f"names {', '.join(names)}" if names else "has one unnamed [disturbance]"
+        raise CaseError(f"{source}: the template {have}; there is no {block}")
+
+
 def _set_block(doc: Any, block: str, kind: str, proposals: dict[str, Proposal]) -> None:
     import tomlkit
 
-    if block not in doc:
-        doc[block] = tomlkit.table()
-    table = doc[block]
+    if block.startswith("disturbance."):
+        table = doc["disturbance"][block.split(".", 1)[1]]
+    else:
+        if block not in doc:
+            doc[block] = tomlkit.table()
+        table = doc[block]
     table["model"] = kind
     for name in _ALL_MODEL_KEYS:
         if name in MODEL_PARAMETERS[kind]:

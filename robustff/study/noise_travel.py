@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from robustff.case import DesignSpec
+from robustff.case import DesignSpec, DisturbanceInput
 from robustff.design.tuning import FeedforwardSettings
 from robustff.study.runner import StudyResult, run_study
 from robustff.units import per_unit
@@ -48,11 +48,16 @@ def suggested_input_filter(ff: FeedforwardSettings, step: float) -> float:
     return value
 
 
-def _has_transmitter_noise(result: StudyResult) -> bool:
+def _noisy_transmitters(result: StudyResult) -> list[DisturbanceInput]:
+    """The measured disturbances whose transmitter adds noise (nominal or uncertain)."""
     case = result.case
-    if case.sensor.noise_std > 0.0:
-        return True
-    return any(p.key == "sensor.noise_std" for p in case.uncertainty)
+    uncertain = {p.key for p in case.uncertainty}
+    return [item for item in case.disturbance_inputs if item.measured and (
+        item.sensor.noise_std > 0.0 or f"{item.sensor_prefix}.noise_std" in uncertain)]
+
+
+def _has_transmitter_noise(result: StudyResult) -> bool:
+    return bool(_noisy_transmitters(result))
 
 
 def noise_travel_warning(result: StudyResult) -> str | None:
@@ -77,16 +82,19 @@ def noise_travel_warning(result: StudyResult) -> str | None:
     case, unit = result.case, result.case.time_unit
     signals = case.signals
     out_unit = signals.output.unit or "output units"
-    dist_unit = signals.disturbance.unit or "disturbance units"
+    noisy = _noisy_transmitters(result)[0]
+    dist_unit = (noisy.unit if case.disturbances else signals.disturbance.unit
+                 ) or "disturbance units"
+    dist_name = noisy.name if case.disturbances else signals.disturbance.name
     times = "many" if fb == 0.0 else f"{fbff / fb:.3g} times"
-    noise = (f"std {case.sensor.noise_std:g} {dist_unit}".rstrip() if case.sensor.noise_std > 0
-             else "uncertain std")
+    noise = (f"std {noisy.sensor.noise_std:g} {dist_unit}".rstrip()
+             if noisy.sensor.noise_std > 0 else "uncertain std")
     structure = "lead-lag" if ff.lead > ff.lag else ff.structure
     already = (f" (the case filters it with input_filter = {ff.input_filter:g} {unit}; a longer "
                "filter trades more IAE for less travel)" if ff.input_filter > 0.0 else "")
     return (
         f"valve travel with feedforward is {times} that of feedback alone (median "
-        f"{fbff:.4g} against {fb:.4g} {out_unit}): transmitter noise on {signals.disturbance.name}"
+        f"{fbff:.4g} against {fb:.4g} {out_unit}): transmitter noise on {dist_name}"
         f" ({noise}) passed through the {structure} compensator (high-frequency gain "
         f"{high_frequency_gain(ff):.3g} {per_unit(out_unit, dist_unit)}) to the valve"
         f"{already}. Remedy: a filter on the feedforward input, e.g. [feedforward] input_filter ="

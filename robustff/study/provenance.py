@@ -69,7 +69,8 @@ def _library_versions() -> dict[str, str]:
 
 def _models(case: Case) -> list[ModelParameterRow]:
     rows: list[ModelParameterRow] = []
-    blocks = [("process", case.process), ("disturbance", case.disturbance)]
+    blocks = [("process", case.process),
+              *((item.key_prefix, item.model) for item in case.disturbance_inputs)]
     secondary = case.secondary
     if secondary is not None:  # the flow loop's path: secondary output (%) -> flow
         blocks.append(("secondary", secondary.model))
@@ -89,10 +90,17 @@ def _models(case: Case) -> list[ModelParameterRow]:
             value = getattr(secondary, name)
             if value is not None:
                 rows.append({"key": f"secondary.{name}", "value": float(value), "unit": unit})
-    for name, value in asdict(case.sensor).items():
-        if isinstance(value, int | float) and not isinstance(value, bool):
-            key = f"sensor.{name}"
-            rows.append({"key": key, "value": float(value), "unit": case.parameter_unit(key)})
+    for item in case.disturbance_inputs:
+        if case.disturbances:
+            rows.append({"key": f"{item.key_prefix}.measured",
+                         "value": "true" if item.measured else "false", "unit": ""})
+        if not item.measured:
+            continue
+        for name, value in asdict(item.sensor).items():
+            if isinstance(value, int | float) and not isinstance(value, bool):
+                key = f"{item.sensor_prefix}.{name}"
+                rows.append({"key": key, "value": float(value),
+                             "unit": case.parameter_unit(key)})
     if case.valve is not None:  # the installed valve, where the case has one
         for name, value in asdict(case.valve).items():
             key = f"valve.{name}"

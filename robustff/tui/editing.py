@@ -109,6 +109,10 @@ def _number(field: str, text: str, optional: bool) -> float | None:
 
 def field_text(case: Case, field: str) -> str:
     """The current value of ``field`` (e.g. ``"process.gain"``) as editable text."""
+    block, item, parameter = case.split_key(field)
+    if item is not None:  # a disturbance path or its transmitter
+        owner = item.sensor if block == "sensor" else item.model
+        return f"{getattr(owner, parameter):g}"
     section, name = field.split(".", 1)
     if section == "valve" and case.valve is None:  # an ideal actuator
         return "none" if name == "characteristic" else ""
@@ -142,6 +146,14 @@ def edit_field(case: Case, field: str, text: str) -> Case:
     CaseError
         The loader's reason (or "must be a number") when the edit is refused.
     """
+    block, item, parameter = case.split_key(field)
+    if item is not None:  # a disturbance path or its transmitter, named or not
+        value = _number(field, text, optional=False)
+        if block == "sensor":
+            item = replace(item, sensor=replace(item.sensor, **{parameter: value}))
+        else:
+            item = replace(item, model=replace(item.model, **{parameter: value}))
+        return validated(case.with_disturbance_input(item.name, item))
     section, name = field.split(".", 1)
     if section == "valve":
         return validated(_edited_valve(case, field, text))
@@ -298,8 +310,10 @@ def uncertain_candidates(case: Case) -> list[str]:
     """Plant parameters of the case that are not yet uncertain, in model order."""
     taken = {row.key for row in case.uncertainty}
     keys = [f"process.{name}" for name in MODEL_PARAMETERS[case.process.kind]]
-    keys += [f"disturbance.{name}" for name in MODEL_PARAMETERS[case.disturbance.kind]]
-    keys += [f"sensor.{name}" for name in SENSOR_PARAMETERS]
+    for item in case.disturbance_inputs:
+        keys += [f"{item.key_prefix}.{name}" for name in MODEL_PARAMETERS[item.model.kind]]
+        if item.measured:
+            keys += [f"{item.sensor_prefix}.{name}" for name in SENSOR_PARAMETERS]
     return [key for key in keys if key not in taken]
 
 

@@ -256,6 +256,9 @@ def with_fitted_model(case: Case, block: str, model: TransferModel) -> tuple[Cas
 
     if block not in FIT_BLOCKS:
         raise DataError(f"a fitted model goes to one of {', '.join(FIT_BLOCKS)}, not {block!r}")
+    if block == "disturbance" and case.disturbances:
+        raise DataError("this case names its disturbances ([disturbance.NAME]): apply the fit "
+                        "from the command line, robustff fit ... --block disturbance.NAME")
     keep = {f"{block}.{name}" for name in MODEL_PARAMETERS[model.kind]}
     gone = [row.key for row in case.uncertainty
             if row.key.startswith(f"{block}.") and row.key not in keep]

@@ -119,3 +119,18 @@ time_constant = 5.0
 dead_time = 1.0
 """ + EVENT
     assert "name disturbances as [disturbance.NAME] tables" in _problems(single)
+
+
+def test_named_disturbances_survive_saving_with_the_comments_kept():
+    from dataclasses import replace
+
+    from robustff.case import case_to_toml
+
+    text = ("# the tank's three feeds\n" + HEAD + FEEDS + EVENT
+            + '[feedforward]\nstructure = "lead-lag"\n[feedforward.flow]\ngain_factor = 0.6\n')
+    case = parse_case(text)
+    assert case_to_toml(case, text) == text  # nothing changed: the file is left as it was
+    changed = replace(case, title="two feeds, retuned")
+    merged = case_to_toml(changed, text)
+    assert "# the tank's three feeds" in merged and parse_case(merged) == changed
+    assert parse_case(case_to_toml(changed)) == changed  # the canonical form reads back too
