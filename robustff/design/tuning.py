@@ -211,12 +211,17 @@ class LoopDesign:
         return LoopDesign(self.feedback, feedforward, self.notes, secondary=self.secondary,
                           compensators=compensators)
 
-    def to_dict(self) -> dict[str, object]:
-        return {
+    def to_dict(self, case: Case | None = None) -> dict[str, object]:
+        """``summary.json``'s ``design``; with several disturbances (``case`` given) also
+        every one's compensator."""
+        out: dict[str, object] = {
             "feedback": self.feedback.to_dict(),
             "feedforward": self.feedforward.to_dict(),
             "notes": list(self.notes),
         }
+        if self.compensators and case is not None:
+            out["compensators"] = compensator_dicts(case, self.compensators)
+        return out
 
     def feedback_lines(self, case: Case) -> list[str]:
         """The feedback controller in ideal form, then in the case's form with the units the
@@ -267,6 +272,13 @@ class LoopDesign:
             lines.append("  the compensators' outputs add at the controller output")
         lines.extend(f"  note: {note}" for note in self.notes)
         return lines
+
+
+def compensator_dicts(case: Case, compensators: tuple[FeedforwardSettings, ...]
+                      ) -> list[dict[str, object]]:
+    """Each disturbance's compensator as ``summary.json`` writes it (name, measured, settings)."""
+    return [{"disturbance": item.label, "measured": item.measured} | ff.to_dict()
+            for item, ff in zip(case.disturbance_inputs, compensators)]
 
 
 def half_rule(model: TransferModel) -> TransferModel:

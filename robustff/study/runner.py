@@ -72,6 +72,8 @@ class DesignArm:
     settings: FeedforwardSettings
     metrics: dict[str, np.ndarray]
     unstable: np.ndarray
+    #: With several disturbances, every one's compensator (empty: ``settings`` alone).
+    compensators: tuple[FeedforwardSettings, ...] = ()
 
 
 @dataclass
@@ -145,7 +147,7 @@ class StudyResult:
         """Every feedforward design, the case's own first (named ``"case"``)."""
         own = DesignArm("case", self.design.feedforward,
                         {name: values[:, 1] for name, values in self.metrics.items()},
-                        self.unstable[:, 1])
+                        self.unstable[:, 1], self.design.compensators)
         return [own, *self.alternatives]
 
 
@@ -206,7 +208,8 @@ def _run_chunk(
     # numbers), so differences between designs are not Monte Carlo noise.
     alternatives = []
     for alternative in design.alternatives:
-        arm = simulate(batch, design.with_feedforward(alternative.settings), scenario,
+        arm = simulate(batch, design.with_feedforward(alternative.settings,
+                                                      alternative.compensators), scenario,
                        seeds=seeds, reference=result)
         alternatives.append(({name: values[:, 1] for name, values in arm.metrics.items()},
                              arm.unstable[:, 1]))
@@ -342,7 +345,8 @@ def _alternative_arms(design: LoopDesign, results: list) -> list[DesignArm]:
                    for name in METRIC_NAMES}
         unstable = (np.concatenate([p[1] for p in parts]) if parts
                     else np.empty(0, dtype=bool))
-        arms.append(DesignArm(alternative.name, alternative.settings, metrics, unstable))
+        arms.append(DesignArm(alternative.name, alternative.settings, metrics, unstable,
+                              alternative.compensators))
     return arms
 
 

@@ -16,6 +16,7 @@ from robustff import CAUTION, __version__
 from robustff.case.sampling import plant_batch
 from robustff.design.case_review import margin_warnings
 from robustff.design.margins_result import LIMITS_NOTE, MarginResult
+from robustff.design.tuning import compensator_dicts
 from robustff.engine.metrics import METRIC_NAMES, METRIC_UNITS
 from robustff.stats import (
     DEFAULT_PERCENTILES,
@@ -247,7 +248,9 @@ def _designs(
     for arm in arms:
         improvement, ratio = _paired(fb, arm.metrics, percentiles)
         versus = paired_comparison(case_iae, arm.metrics["iae"], percentiles)
-        out.append({
+        several = ({"compensators": compensator_dicts(result.case, arm.compensators)}
+                   if arm.compensators else {})
+        out.append(several | {
             "name": arm.name,
             "feedforward": cast(FeedforwardDesign, arm.settings.to_dict()),
             "ff_worse": _harm_dicts(_harm(fb, arm.metrics)),
@@ -358,7 +361,7 @@ def summarize_study(
         "convergence": _convergence(result, harm["iae"]),
         "sensitivity": sensitivity,
         "margins": _margins(result, percentiles),
-        "design": cast(DesignDict, result.design.to_dict()),
+        "design": cast(DesignDict, result.design.to_dict(result.case)),
         "designs": _designs(result, metrics, percentiles),
         "settling_band": result.scenario.settling_band,
         "warnings": [text for text in (noise_travel_warning(result),) if text],

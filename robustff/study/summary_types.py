@@ -221,12 +221,25 @@ class FeedforwardDesign(TypedDict):
     input_filter: float  #: time units; 0 = no filter on the feedforward input
 
 
-class DesignDict(TypedDict):
-    """The loop design from the nominal models."""
+class CompensatorDict(FeedforwardDesign):
+    """One disturbance's compensator, with several disturbances."""
 
+    disturbance: str  #: its name
+    measured: bool  #: False: no transmitter, no feedforward
+
+
+class _LoopDesignDict(TypedDict):
     feedback: FeedbackDesign
     feedforward: FeedforwardDesign
     notes: list[str]
+
+
+class DesignDict(_LoopDesignDict, total=False):
+    """The loop design from the nominal models."""
+
+    #: with several disturbances, every one's compensator in case order (optional: the string
+    #: annotations of this module hide ``NotRequired`` from TypedDict, ``total=False`` does not)
+    compensators: list[CompensatorDict]
 
 
 class VersusCase(TypedDict):
@@ -236,8 +249,7 @@ class VersusCase(TypedDict):
     worse_than_case: HarmEstimateDict  #: P(IAE(design) > IAE(case)), Wilson interval
 
 
-class DesignSummary(TypedDict):
-    """One feedforward design's statistics, in the form of the top-level keys."""
+class _DesignSummaryBase(TypedDict):
 
     name: str  #: "case" for the case's own [feedforward], else the [[design]] name
     feedforward: FeedforwardDesign
@@ -247,6 +259,13 @@ class DesignSummary(TypedDict):
     metrics: dict[str, ArmStats]
     unstable: int  #: samples unstable (or run away) with this design
     versus_case: VersusCase
+
+
+class DesignSummary(_DesignSummaryBase, total=False):
+    """One feedforward design's statistics, in the form of the top-level keys."""
+
+    #: with several disturbances, every one's compensator in case order
+    compensators: list[CompensatorDict]
 
 
 class Versions(TypedDict):
