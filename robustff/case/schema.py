@@ -464,6 +464,13 @@ class Case:
         return (DisturbanceInput("", self.disturbance, self.sensor, True, None,
                                  self.signals.disturbance.unit),)
 
+    @property
+    def headline_input(self) -> DisturbanceInput:
+        """The disturbance whose compensator is reported as the feedforward and tuned by
+        ``robustff tune``: the first measured one (the first when none is measured)."""
+        inputs = self.disturbance_inputs
+        return next((item for item in inputs if item.measured), inputs[0])
+
     def disturbance_named(self, name: str) -> DisturbanceInput:
         """The disturbance called ``name`` (``""``: the first).
 

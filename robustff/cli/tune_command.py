@@ -90,7 +90,8 @@ def result_to_dict(result, case_file: Path | None = None) -> dict:
 
 
 def robust_case(case, result):
-    """The case with the recommended feedforward settings written into ``[feedforward]``.
+    """The case with the recommended feedforward settings written into ``[feedforward]``
+    (with several disturbances into ``[feedforward.NAME]`` of the tuned one, the headline).
 
     That is the search's winner when the verdict recommends it, else the nominal settings
     (written explicitly); None when the verdict recommends neither design.
@@ -99,6 +100,10 @@ def robust_case(case, result):
     if chosen is None:
         return None
     searched = {name: getattr(chosen, name) for name in result.space.names}
+    if len(case.disturbance_inputs) > 1:
+        item = case.headline_input
+        tuned = replace(case.feedforward_of(item), **searched)
+        return case.with_disturbance_input(item.name, replace(item, feedforward=tuned))
     return replace(case, feedforward=replace(case.feedforward, **searched))
 
 
@@ -131,12 +136,13 @@ def _print_table(result, unit: str, iae: str) -> None:
 
 def _print_sensitivity(result) -> None:
     print("What drives the risk (nominal design; Spearman rank correlation, 95 % interval):")
-    print(f"  {'parameter':<28}{'IAE ratio fbff/fb':>26}{'feedforward worse':>26}")
+    width = max([28, *(len(row.name) + 2 for row in result.sensitivity)])
+    print(f"  {'parameter':<{width}}{'IAE ratio fbff/fb':>26}{'feedforward worse':>26}")
     for row in result.sensitivity:
         ratio = f"{row.rho:+.2f} [{row.low:+.2f}, {row.high:+.2f}]"
         harm = ("n/a" if not math.isfinite(row.rho_harm)
                 else f"{row.rho_harm:+.2f} [{row.harm_low:+.2f}, {row.harm_high:+.2f}]")
-        print(f"  {row.name:<28}{ratio:>26}{harm:>26}")
+        print(f"  {row.name:<{width}}{ratio:>26}{harm:>26}")
 
 
 def _print_sobol(case, sobol) -> None:
@@ -153,7 +159,9 @@ def _print_human(case, result, args, written: Path | None, warnings: list[str], 
     print(f"Objective: {_objective_title(args)}; {result.samples} samples (seed {result.seed}), "
           f"re-checked on {result.samples} fresh samples (seed {result.fresh_seed}); "
           f"{result.evaluations} evaluations, {elapsed:.1f} s")
-    print(f"Searched: {', '.join(result.space.names)} (feedback design fixed)")
+    tuned = (f"; the compensator of {case.headline_input.name} only, the other disturbances "
+             "keep theirs" if len(case.disturbance_inputs) > 1 else "")
+    print(f"Searched: {', '.join(result.space.names)} (feedback design fixed{tuned})")
     from robustff.tune.search import objective_unit
 
     iae = objective_unit(case, "p90")

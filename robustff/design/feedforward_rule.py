@@ -110,9 +110,10 @@ def feedforward_rule(case: Case) -> FeedforwardSettings | None:
         least the process dead time (the ideal delay is realizable), when a path is not
         FOPDT/SOPDT, or when a reduced time constant is zero.
     """
-    if case.disturbance.dead_time >= case.process.dead_time:
+    path = case.headline_input.model
+    if path.dead_time >= case.process.dead_time:
         return None
-    process, disturbance = _as_fopdt(case.process), _as_fopdt(case.disturbance)
+    process, disturbance = _as_fopdt(case.process), _as_fopdt(path)
     if process is None or disturbance is None:
         return None
     if process.time_constant <= 0.0 or disturbance.time_constant <= 0.0:

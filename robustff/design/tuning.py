@@ -41,7 +41,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from robustff.case import Case, FeedbackSpec, FeedforwardSpec, Signals
 from robustff.design.controller_forms import (
@@ -203,6 +203,15 @@ class LoopDesign:
     def all_compensators(self) -> tuple[FeedforwardSettings, ...]:
         """Every disturbance's compensator, in case order."""
         return self.compensators or (self.feedforward,)
+
+    def with_headline(self, feedforward: FeedforwardSettings, case: Case) -> LoopDesign:
+        """The same design with the headline disturbance's compensator (``feedforward``,
+        :attr:`Case.headline_input`) replaced; the other disturbances' are kept."""
+        compensators = self.compensators
+        if compensators:
+            index = case.disturbance_inputs.index(case.headline_input)
+            compensators = (*compensators[:index], feedforward, *compensators[index + 1:])
+        return replace(self, feedforward=feedforward, compensators=compensators)
 
     def with_feedforward(self, feedforward: FeedforwardSettings,
                          compensators: tuple[FeedforwardSettings, ...] = ()) -> LoopDesign:
@@ -565,11 +574,8 @@ def _compensators(case: Case, spec: FeedforwardSpec | None
 
 
 def _headline(case: Case, compensators: tuple[FeedforwardSettings, ...]) -> FeedforwardSettings:
-    """The compensator reported as ``feedforward``: the first measured disturbance's."""
-    for item, settings in zip(case.disturbance_inputs, compensators):
-        if item.measured:
-            return settings
-    return compensators[0]
+    """The compensator reported as ``feedforward``: the headline disturbance's."""
+    return compensators[case.disturbance_inputs.index(case.headline_input)]
 
 
 def _several(compensators: tuple[FeedforwardSettings, ...]) -> tuple[FeedforwardSettings, ...]:

@@ -176,8 +176,9 @@ class RobustResult:
 
 
 def _max_time_constant(case: Case) -> float:
+    path = case.headline_input.model
     lags = [case.process.time_constant, case.process.time_constant_2,
-            case.disturbance.time_constant, case.disturbance.time_constant_2]
+            path.time_constant, path.time_constant_2]
     return max(lags)
 
 
@@ -195,8 +196,9 @@ def search_space(case: Case, structure: str,
     table = {"gain_factor": (0.0, 1.5)}
     if structure in ("lead-lag", "lead-lag-delay") and tau3 > step:
         table |= {"lead": (0.0, tau3), "lag": (step, tau3)}
-    if structure == "lead-lag-delay" and case.disturbance.dead_time > 0.0:
-        table["delay"] = (0.0, 2.0 * case.disturbance.dead_time)
+    dead_time = case.headline_input.model.dead_time
+    if structure == "lead-lag-delay" and dead_time > 0.0:
+        table["delay"] = (0.0, 2.0 * dead_time)
     for name, (low, high) in (bounds or {}).items():
         if name not in table:
             raise DesignError(f"tune: {name!r} is not searched for structure {structure!r} "
@@ -240,7 +242,7 @@ class _SampleSet:
         # any chunking gives the same numbers: every sample has its own seed and state
         self.spans = chunk_spans(n, max(64, math.ceil(n / max(jobs, 1))))
         self.batches = [plant_batch(case, self.names, self.values[a:b]) for a, b in self.spans]
-        self.design, self.scenario, self.pool = design, scenario, pool
+        self.case, self.design, self.scenario, self.pool = case, design, scenario, pool
         both = self._run(design.feedforward)  # the feedback arm does not depend on feedforward
         self.keep = np.isfinite(both[:, 0])
         self.iae_fb = both[self.keep, 0]
@@ -248,7 +250,7 @@ class _SampleSet:
         self._recent: dict[FeedforwardSettings, np.ndarray] = {}  # the last few designs
 
     def _run(self, settings: FeedforwardSettings) -> np.ndarray:
-        design = replace(self.design, feedforward=settings)
+        design = self.design.with_headline(settings, self.case)
         jobs = [self.pool.submit(simulate_iae, batch, design, self.scenario, self.seeds[a:b])
                 for batch, (a, b) in zip(self.batches, self.spans, strict=True)]
         return np.concatenate([job.result() for job in jobs]) if jobs else np.empty((0, 2))
@@ -393,7 +395,7 @@ class _Problem:
             raise DesignError("tune: the case has no [uncertainty] section; a robust search "
                               "needs one")
         space = search_space(case, design.feedforward.structure, bounds)
-        base_gain = -case.disturbance.gain / case.process.gain
+        base_gain = -case.headline_input.model.gain / case.process.gain
         rule = feedforward_rule(case)
         budget = max_evaluations or evaluation_budget(len(space.names))
         return cls(case, design, build_scenario(case, design), space, base_gain, rule, budget)
