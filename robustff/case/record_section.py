@@ -18,7 +18,7 @@ from robustff.case.schema import Case, Event, SimulationSpec
 from robustff.errors import DataError
 
 __all__ = ["RECORD_KEYS", "read_record_event", "records_cover", "has_record_events",
-           "records_folder"]
+           "records_folder", "covering_duration"]
 
 #: Keys of a ``disturbance-record`` event.
 RECORD_KEYS: tuple[str, ...] = ("kind", "at", "file", "time_column", "value_column",
@@ -85,13 +85,10 @@ def records_cover(problems: Problems, simulation: SimulationSpec,
     """
     if not math.isnan(simulation.duration):
         return simulation
-    ends = [event.at + event.record.length for event in events if event.record is not None]
-    if not ends:  # only possible when a record was refused (the problem is already listed)
+    duration = covering_duration(events, simulation.step)
+    if duration is None:  # only possible when a record was refused (the problem is listed)
         return None
     step = simulation.step
-    # the last scan is at duration - step: one scan past the latest record's last row
-    duration = (math.floor(max(ends) / step + 1e-9) + 1) * step
-    duration = max(duration, 2 * step)
     if duration / step * simulation.substeps > max_steps:
         problems.add("simulation.duration", f"left out, so the window covers the record(s): "
                      f"{duration:g} {unit} at a step of {step:g} {unit} give "
@@ -99,6 +96,18 @@ def records_cover(problems: Problems, simulation: SimulationSpec,
                      f"{max_steps:,} are allowed (use a longer step, or give a shorter duration)")
         return None
     return replace(simulation, duration=duration)
+
+
+def covering_duration(events: tuple[Event, ...], step: float) -> float | None:
+    """The window a case gets when it leaves ``duration`` out: a whole number of scans whose
+    last scan is at or just after the end of the latest record (time units); None without a
+    record."""
+    ends = [event.at + event.record.length for event in events if event.record is not None]
+    if not ends:
+        return None
+    # the last scan is at duration - step: one scan past the latest record's last row
+    duration = (math.floor(max(ends) / step + 1e-9) + 1) * step
+    return max(duration, 2 * step)
 
 
 def records_folder(case: Case) -> Path | None:

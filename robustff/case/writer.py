@@ -20,7 +20,7 @@ from tomlkit.items import AoT, InlineTable, Item, Table
 
 from robustff.atomic import write_text_atomic
 from robustff.case.loader import parse_case
-from robustff.case.record_section import records_folder
+from robustff.case.record_section import covering_duration, records_folder
 from robustff.case.schema import (
     DISTRIBUTION_KINDS,
     Case,
@@ -162,7 +162,7 @@ def _plain(case: Case) -> dict[str, Any]:
             for item in case.disturbances if item.feedforward is not None},
     } | ({} if case.disturbances else {"sensor": _dataclass(case.sensor)}) | {
         "signals": {name: _dataclass(signal) for name, signal in _items(case.signals)},
-        "simulation": _dataclass(case.simulation),
+        "simulation": _simulation(case),
         "event": [_event(event) for event in case.events],
         "uncertainty": _uncertainty(case),
         "study": _dataclass(case.study),
@@ -217,6 +217,14 @@ def _feedback(spec: FeedbackSpec) -> dict[str, Any]:
             if name not in _FEEDBACK_QUIET or value != getattr(default, name)}
 
 
+def _simulation(case: Case) -> dict[str, Any]:
+    """``[simulation]``; ``duration`` left out when it is the window the records set."""
+    table = _dataclass(case.simulation)
+    if case.simulation.duration == covering_duration(case.events, case.simulation.step):
+        del table["duration"]
+    return table
+
+
 def _disturbances(case: Case) -> dict[str, Any]:
     """``[disturbance]``, or one ``[disturbance.NAME]`` table per named disturbance (its
     transmitter as a sub-table, keys at their defaults left out)."""
@@ -254,10 +262,13 @@ def _model(model: Any) -> dict[str, Any]:
 def _event(event: Any) -> dict[str, Any]:
     if event.record is not None:  # the trace itself stays in its file
         spec = event.record.spec
-        keys = {"kind": event.kind, "at": event.at, "file": spec.file,
-                "time_column": spec.time_column, "value_column": spec.value_column}
-        return keys | ({"time_unit": spec.time_unit} if spec.time_unit else {}) | {
-            "baseline": spec.baseline, "gaps": spec.gaps} | (
+        keys = {"kind": event.kind} | ({"at": event.at} if event.at else {}) | {
+            "file": spec.file, "time_column": spec.time_column,
+            "value_column": spec.value_column}
+        # baseline and gaps only where they differ from the defaults the loader fills in
+        return keys | ({"time_unit": spec.time_unit} if spec.time_unit else {}) | (
+            {"baseline": spec.baseline} if spec.baseline != "first" else {}) | (
+            {"gaps": spec.gaps} if spec.gaps != "interpolate" else {}) | (
             {"disturbance": event.disturbance} if event.disturbance else {})
     result = {"kind": event.kind, "at": event.at, "size": event.size}
     if event.disturbance:

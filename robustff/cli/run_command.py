@@ -174,10 +174,11 @@ def _print_drivers(summary: Summary, rows: int = 5) -> None:
     if not ranking:
         return
     print("What drives the IAE ratio fbff/fb (Spearman rank correlation, 95 % interval):")
+    width = max([28, *(len(row["name"]) for row in ranking[:rows])])
     for row in ranking[:rows]:
         low, high = row["ci95"]
         interval = "" if low is None or high is None else f"  [{low:+.2f}, {high:+.2f}]"
-        print(f"  {row['name']:<28} {row['rho']:+.2f}{interval}")
+        print(f"  {row['name']:<{width}} {row['rho']:+.2f}{interval}")
 
 
 def _print_margins(margins: MarginsSummary) -> None:

@@ -59,7 +59,8 @@ def test_demo_cases_load(name):
     assert case.source_path == demo_case_path(name)
     assert case.name == name
     assert 4 <= len(case.uncertainty) <= 8
-    assert 1000 <= case.simulation.n_steps <= 3000
+    # a few thousand scans keep every demo quick; the record-driven one covers two hours at 1 s
+    assert 1000 <= case.simulation.n_steps <= 8000
     assert case.study.samples == 2000 and case.study.sampling == "lhs"
 
 
