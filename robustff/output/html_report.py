@@ -135,6 +135,14 @@ class ReportFiles:
     notes: list[str] = field(default_factory=list)
 
 
+def _frequency_words(summary: Summary) -> str:
+    """Where feedforward helps, for the one measured disturbance or for each of several."""
+    entries = summary["frequency_by_disturbance"]
+    if len(entries) <= 1:
+        return summary["frequency"]["words"]
+    return "; ".join(f"{entry['disturbance']}: {entry['words']}" for entry in entries)
+
+
 def _figures(result: StudyResult, summary: Summary, folder: Path,
              margin_values: dict[str, np.ndarray] | None) -> dict[str, tuple[Path, str]]:
     figures = [
@@ -147,7 +155,7 @@ def _figures(result: StudyResult, summary: Summary, folder: Path,
          "Spearman rank correlation of each uncertain parameter with the IAE ratio"),
         ("plot-frequency", frequency_figure(result),
          "Error ratio with over without feedforward per disturbance frequency (frequency.csv): "
-         + summary["frequency"]["words"]),
+         + _frequency_words(summary)),
     ]
     margins = summary.get("margins")
     if margin_values is not None and margins:

@@ -13,7 +13,7 @@ import numpy as np
 from robustff.design.margins_result import GAIN_MARGIN_LIMIT, MS_LIMIT, PHASE_MARGIN_LIMIT
 from robustff.stats import envelope_from_histogram, metric_ratio, ratio_histogram
 from robustff.study import StudyResult
-from robustff.study.summary import study_frequency
+from robustff.study.summary import study_frequencies
 from robustff.study.summary_types import Summary
 
 __all__ = [
@@ -216,30 +216,35 @@ def designs_ratio_figure(result: StudyResult):
 
 
 def frequency_figure(result: StudyResult):
-    """Error ratio with over without feedforward per frequency: P5-P95 band, P50, P90, nominal.
+    """Error ratio with over without feedforward per frequency: P5-P95 band, P50, P90, nominal,
+    one panel per measured disturbance.
 
     Below 1 feedforward reduces the error at that frequency; the crossover (where P90 reaches 1)
-    is marked. From :func:`robustff.study.summary.study_frequency`.
+    is marked. From :func:`robustff.study.summary.study_frequencies`.
     """
     plt = _pyplot()
-    freq = study_frequency(result)
+    studies = study_frequencies(result)
     unit = result.case.time_unit
-    fig, ax = plt.subplots(figsize=(8, 3.8))
-    ax.fill_between(freq.omega, freq.bands["p5"], freq.bands["p95"], color="0.8",
-                    label="P5-P95 of the plants")
-    ax.plot(freq.omega, freq.bands["p50"], "-", color="black", linewidth=1.4, label="median")
-    ax.plot(freq.omega, freq.bands["p90"], "--", color="black", linewidth=1.0, label="P90")
-    ax.plot(freq.omega, freq.nominal, ":", color="0.3", linewidth=1.2, label="nominal plant")
-    ax.axhline(1.0, color="0.4", linewidth=0.8)
-    if freq.crossover is not None and freq.crossover < freq.nyquist:
-        ax.axvline(freq.crossover, color="black", linewidth=0.8, linestyle="-.",
-                   label=f"helps in 90 % of plants below {freq.crossover:.3g} rad/{unit}")
-    ax.set_xscale("log")
-    ax.set_yscale("log")
-    ax.set_xlabel(f"disturbance frequency [rad/{unit}]")
-    ax.set_ylabel("error ratio, with / without feedforward [-]")
-    ax.set_title("Where in frequency feedforward helps (below 1: it reduces the error)")
-    ax.legend(fontsize=8, loc="best")
+    several = len(studies) > 1
+    fig, axes = plt.subplots(len(studies), 1, figsize=(8, 3.8 * len(studies)), squeeze=False)
+    for ax, freq in zip(axes[:, 0], studies):
+        ax.fill_between(freq.omega, freq.bands["p5"], freq.bands["p95"], color="0.8",
+                        label="P5-P95 of the plants")
+        ax.plot(freq.omega, freq.bands["p50"], "-", color="black", linewidth=1.4, label="median")
+        ax.plot(freq.omega, freq.bands["p90"], "--", color="black", linewidth=1.0, label="P90")
+        ax.plot(freq.omega, freq.nominal, ":", color="0.3", linewidth=1.2, label="nominal plant")
+        ax.axhline(1.0, color="0.4", linewidth=0.8)
+        if freq.crossover is not None and freq.crossover < freq.nyquist:
+            ax.axvline(freq.crossover, color="black", linewidth=0.8, linestyle="-.",
+                       label=f"helps in 90 % of plants below {freq.crossover:.3g} rad/{unit}")
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        ax.set_xlabel(f"disturbance frequency [rad/{unit}]")
+        ax.set_ylabel("error ratio, with / without feedforward [-]")
+        title = "Where in frequency feedforward helps (below 1: it reduces the error)"
+        ax.set_title(f"{freq.disturbance}: {title}" if several else title,
+                     fontsize=10 if several else None)
+        ax.legend(fontsize=8, loc="best")
     fig.tight_layout()
     return fig
 
