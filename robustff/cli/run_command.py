@@ -169,7 +169,8 @@ def _check_cluster_address(address: str) -> None:
 
 
 def _print_drivers(summary: Summary, rows: int = 5) -> None:
-    """The ranked rank correlations of the uncertain parameters with the IAE ratio."""
+    """The ranked rank correlations of the uncertain parameters with the IAE ratio (and, with
+    several disturbances, which disturbance's uncertainty drives it)."""
     ranking = [row for row in summary.get("sensitivity", []) if row.get("rho") is not None]
     if not ranking:
         return
@@ -179,6 +180,11 @@ def _print_drivers(summary: Summary, rows: int = 5) -> None:
         low, high = row["ci95"]
         interval = "" if low is None or high is None else f"  [{low:+.2f}, {high:+.2f}]"
         print(f"  {row['name']:<{width}} {row['rho']:+.2f}{interval}")
+    from robustff.study.disturbance_drivers import driver_sentence
+
+    sentence = driver_sentence(summary["sensitivity_by_disturbance"])
+    if sentence:
+        print(sentence)
 
 
 def _print_margins(margins: MarginsSummary) -> None:

@@ -22,6 +22,7 @@ from robustff.output.report_tables import (
 )
 from robustff.output.result_files import risk_sentence
 from robustff.study import StudyResult
+from robustff.study.disturbance_drivers import driver_sentence
 from robustff.study.summary import PAIRED_METRICS, VERDICT_REASONS
 from robustff.study.summary_types import Summary
 from robustff.units import per_unit
@@ -135,6 +136,9 @@ def first_page(summary: Summary) -> str:
                           "no correlation with harm (no plant made worse)") + "</li>"
         for d in rec["drivers"]
     ) or "<li>no uncertain parameters, or too few samples to rank them</li>"
+    by_disturbance = driver_sentence(summary["sensitivity_by_disturbance"])
+    if by_disturbance:
+        drivers += f"<li>{esc(by_disturbance)}</li>"
     # Warnings added to the summary after it was judged (e.g. the input-filter trial) too.
     later = [f"warning: {w}" for w in summary["warnings"]
              if f"warning: {w}" not in rec["conditions"]]

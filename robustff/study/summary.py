@@ -17,6 +17,7 @@ from robustff.case.sampling import plant_batch
 from robustff.design.case_review import margin_warnings
 from robustff.design.margins_result import LIMITS_NOTE, MarginResult
 from robustff.design.tuning import compensator_dicts
+from robustff.study.disturbance_drivers import disturbance_drivers
 from robustff.engine.metrics import METRIC_NAMES, METRIC_UNITS
 from robustff.stats import (
     DEFAULT_PERCENTILES,
@@ -43,6 +44,7 @@ from robustff.study.provenance import not_settled, reproducibility
 from robustff.study.recommendation import recommend
 from robustff.study.runner import StudyResult
 from robustff.study.summary_types import (
+    DisturbanceDriverDict,
     ArmStats,
     Convergence,
     ConvergenceDict,
@@ -360,6 +362,10 @@ def summarize_study(
         },
         "convergence": _convergence(result, harm["iae"]),
         "sensitivity": sensitivity,
+        "sensitivity_by_disturbance": [
+            cast(DisturbanceDriverDict, {"disturbance": d.disturbance, "parameter": d.key,
+                                         "rho": d.rho})
+            for d in disturbance_drivers(result.case, cast(list, sensitivity))],
         "margins": _margins(result, percentiles),
         "design": cast(DesignDict, result.design.to_dict(result.case)),
         "designs": _designs(result, metrics, percentiles),

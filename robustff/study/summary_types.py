@@ -221,6 +221,14 @@ class FeedforwardDesign(TypedDict):
     input_filter: float  #: time units; 0 = no filter on the feedforward input
 
 
+class DisturbanceDriverDict(TypedDict):
+    """Which disturbance's uncertainty drives the IAE ratio (its strongest parameter)."""
+
+    disturbance: str  #: its name ("disturbance" for the single one)
+    parameter: str | None  #: its parameter with the largest |rho|; None: none is uncertain
+    rho: float | None  #: that parameter's Spearman rank correlation with the IAE ratio [-]
+
+
 class CompensatorDict(FeedforwardDesign):
     """One disturbance's compensator, with several disturbances."""
 
@@ -472,6 +480,8 @@ class Summary(TypedDict):
     unstable: UnstableCounts
     convergence: Convergence
     sensitivity: list[SensitivityRow]  #: ranked; empty without uncertain parameters
+    #: every disturbance's strongest uncertain parameter, the strongest disturbance first
+    sensitivity_by_disturbance: list[DisturbanceDriverDict]
     margins: MarginsSummary | None  #: None when margins were not computed
     design: DesignDict
     designs: list[DesignSummary]  #: every feedforward design, the case's own first

@@ -134,3 +134,18 @@ def test_named_disturbances_survive_saving_with_the_comments_kept():
     merged = case_to_toml(changed, text)
     assert "# the tank's three feeds" in merged and parse_case(merged) == changed
     assert parse_case(case_to_toml(changed)) == changed  # the canonical form reads back too
+
+
+def test_the_named_disturbance_example_of_the_format_document_is_valid():
+    # docs/case-format.md shows the named form in a ~~~toml block (the ```toml blocks build one
+    # single-disturbance case in another test)
+    import re
+    from pathlib import Path
+
+    doc = Path(__file__).resolve().parents[2] / "docs" / "case-format.md"
+    blocks = re.findall(r"~~~toml\n(.*?)~~~", doc.read_text(encoding="utf-8"), flags=re.S)
+    assert blocks
+    event = EVENT.replace('"flow"', '"feed_flow"')
+    case = parse_case(HEAD + blocks[0] + event)
+    assert [item.name for item in case.disturbance_inputs] == ["feed_flow", "steam_pressure"]
+    assert not case.disturbance_inputs[1].measured

@@ -91,3 +91,22 @@ def test_the_study_of_each_measured_disturbance_names_it():
     second = frequency_study(case, design, nominal_batch(case, 4), 1)
     assert (first.disturbance, second.disturbance) == ("flow", "temperature")
     assert second.bands["p50"] == pytest.approx(np.full(second.omega.size, 0.4), rel=1e-6)
+
+
+def test_each_disturbance_is_credited_with_its_strongest_parameter():
+    from robustff.study.disturbance_drivers import disturbance_drivers, driver_sentence
+
+    case = parse_case(TEXT)
+    ranking = [{"name": "process.gain", "rho": 0.7},
+               {"name": "disturbance.flow.gain", "rho": 0.2},
+               {"name": "disturbance.solids.gain", "rho": -0.5},
+               {"name": "disturbance.flow.sensor.time_constant", "rho": -0.3},
+               {"name": "disturbance.solids.time_constant", "rho": 0.1}]
+    drivers = disturbance_drivers(case, ranking)
+    assert [(d.disturbance, d.key, d.rho) for d in drivers] == [
+        ("solids", "disturbance.solids.gain", -0.5),
+        ("flow", "disturbance.flow.sensor.time_constant", -0.3),
+        ("temperature", None, None)]
+    rows = [{"disturbance": d.disturbance, "parameter": d.key, "rho": d.rho} for d in drivers]
+    assert driver_sentence(rows).endswith("temperature: none of its parameters is uncertain")
+    assert driver_sentence(rows[:1]) is None

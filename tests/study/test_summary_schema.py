@@ -57,9 +57,10 @@ def test_the_schema_is_a_valid_draft_2020_12_schema() -> None:
     jsonschema.Draft202012Validator.check_schema(SCHEMA)
 
 
-def test_there_are_four_demo_cases() -> None:
+def test_there_are_five_demo_cases() -> None:
     assert [case.stem for case in CASES] == [
-        "steam-heater-sticky-valve", "surge-tank-level", "syrup-dilution", "wash-water-heater"
+        "pasteuriser-tempering-tank", "steam-heater-sticky-valve", "surge-tank-level",
+        "syrup-dilution", "wash-water-heater"
     ]
 
 
