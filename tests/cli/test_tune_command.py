@@ -121,7 +121,9 @@ def test_demo_cases_get_the_documented_search_box_around_their_nominal_design() 
     #   theta_d = 18 -> delay up to 36;
     # * wash-water-heater, lead-lag-delay: tau_max = max(45, 30) = 45 -> 135, h = 0.5,
     #   theta_d = 3 -> delay up to 6;
-    # * steam-heater-sticky-valve, lead-lag: tau_max = max(40, 30) = 40 -> 120, h = 0.5.
+    # * steam-heater-sticky-valve, lead-lag: tau_max = max(40, 30) = 40 -> 120, h = 0.5;
+    # * pasteuriser-tempering-tank, lead-lag-delay on its headline disturbance (feed_flow):
+    #   tau_max = max(90, 60) = 90 -> 270, h = 1, theta_d = 6 -> delay up to 12.
     from robustff.design.tuning import design_loop
     from robustff.tune.search import search_space
 
@@ -133,6 +135,8 @@ def test_demo_cases_get_the_documented_search_box_around_their_nominal_design() 
                               [0.0, 0.0, 0.5, 0.0], [1.5, 135.0, 135.0, 6.0]),
         "steam-heater-sticky-valve": (("gain_factor", "lead", "lag"),
                                       [0.0, 0.0, 0.5], [1.5, 120.0, 120.0]),
+        "pasteuriser-tempering-tank": (("gain_factor", "lead", "lag", "delay"),
+                                       [0.0, 0.0, 1.0, 0.0], [1.5, 270.0, 270.0, 12.0]),
     }
     assert sorted(p.stem for p in CASES.glob("*.toml")) == sorted(expected)
     for name, (names, low, high) in expected.items():
