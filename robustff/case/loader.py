@@ -9,10 +9,10 @@ one line per problem, ``"FILE: key.path: what is wrong (got VALUE)"``. The schem
 from __future__ import annotations
 
 import hashlib
-from dataclasses import replace
 import math
 import re
 import tomllib
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 

@@ -192,7 +192,7 @@ def _design_errors(case: Case, design: LoopDesign) -> list[Finding]:
             f"{case.process.gain:g} times the output range ({span:g}) overflows floating point: "
             "the simulated controlled variable would be infinite"))
     sizes = [abs(event.size) for event in case.events] or [1.0]
-    for item, ff in zip(case.disturbance_inputs, design.all_compensators):
+    for item, ff in zip(case.disturbance_inputs, design.all_compensators, strict=True):
         key = f"{item.key_prefix}.gain"
         gain = item.model.gain
         if not math.isfinite(gain * max(sizes)):

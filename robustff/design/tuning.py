@@ -261,7 +261,7 @@ class LoopDesign:
         out_unit = case.signals.output.unit or "output units"
         lines = self.feedback_lines(case)
         several = len(self.all_compensators) > 1
-        for item, ff in zip(case.disturbance_inputs, self.all_compensators):
+        for item, ff in zip(case.disturbance_inputs, self.all_compensators, strict=True):
             source = f" from {item.name}" if several else ""
             dist_unit = (item.unit if case.disturbances else case.signals.disturbance.unit)
             if not item.measured:
@@ -287,7 +287,7 @@ def compensator_dicts(case: Case, compensators: tuple[FeedforwardSettings, ...]
                       ) -> list[dict[str, object]]:
     """Each disturbance's compensator as ``summary.json`` writes it (name, measured, settings)."""
     return [{"disturbance": item.label, "measured": item.measured} | ff.to_dict()
-            for item, ff in zip(case.disturbance_inputs, compensators)]
+            for item, ff in zip(case.disturbance_inputs, compensators, strict=True)]
 
 
 def half_rule(model: TransferModel) -> TransferModel:
@@ -517,7 +517,7 @@ def design_loop(case: Case) -> LoopDesign:
     feedback, notes = tune_feedback(case.process, case.feedback, case.simulation.step,
                                     case.signals)
     compensators, ff_notes = _compensators(case, None)
-    for item, settings in zip(case.disturbance_inputs, compensators):
+    for item, settings in zip(case.disturbance_inputs, compensators, strict=True):
         if item.sensor.time_constant > 0.0 and settings.active:
             where = (f"disturbance.{item.name}.sensor" if item.name else "[sensor]")
             ff_notes.append(f"the transmitter lag ({where} time_constant) is not compensated "

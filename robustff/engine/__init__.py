@@ -175,7 +175,7 @@ def _feedforward_matrix(design: LoopDesign, n_paths: int) -> np.ndarray:
         raise DesignError(f"the design has {len(compensators)} feedforward compensators for "
                           f"{n_paths} disturbances")
     rows = np.zeros((n_paths, 6))
-    for row, ff in zip(rows, compensators):
+    for row, ff in zip(rows, compensators, strict=True):
         if ff.active:
             row[:] = (ff.gain, ff.lead, ff.lag, ff.delay, ff.input_filter, 1.0)
     return rows

@@ -13,6 +13,7 @@ from typing import Any
 
 from robustff.atomic import write_text_atomic
 from robustff.case import parse_case
+from robustff.case.disturbance_section import is_named_form
 from robustff.errors import CaseError, DataError
 from robustff.fit.spread import Proposal
 from robustff.plant.kinds import model_kind
@@ -120,8 +121,6 @@ def fitted_case_text(
 def _check_named(doc: Any, block: str, source: str) -> None:
     """A template that names its disturbances takes ``disturbance.NAME``, one that does not
     takes ``disturbance``."""
-    from robustff.case.disturbance_section import is_named_form
-
     tables = doc.get("disturbance")
     names = list(tables) if is_named_form(tables) else []
     if block == "disturbance" and names:

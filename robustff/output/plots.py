@@ -227,7 +227,7 @@ def frequency_figure(result: StudyResult):
     unit = result.case.time_unit
     several = len(studies) > 1
     fig, axes = plt.subplots(len(studies), 1, figsize=(8, 3.8 * len(studies)), squeeze=False)
-    for ax, freq in zip(axes[:, 0], studies):
+    for ax, freq in zip(axes[:, 0], studies, strict=True):
         ax.fill_between(freq.omega, freq.bands["p5"], freq.bands["p95"], color="0.8",
                         label="P5-P95 of the plants")
         ax.plot(freq.omega, freq.bands["p50"], "-", color="black", linewidth=1.4, label="median")

@@ -17,7 +17,6 @@ from robustff.case.sampling import plant_batch
 from robustff.design.case_review import margin_warnings
 from robustff.design.margins_result import LIMITS_NOTE, MarginResult
 from robustff.design.tuning import compensator_dicts
-from robustff.study.disturbance_drivers import disturbance_drivers
 from robustff.engine.metrics import METRIC_NAMES, METRIC_UNITS
 from robustff.stats import (
     DEFAULT_PERCENTILES,
@@ -32,6 +31,7 @@ from robustff.stats import (
     summarize,
 )
 from robustff.stats.sensitivity import rank_sensitivity
+from robustff.study.disturbance_drivers import disturbance_drivers
 from robustff.study.frequency import (
     MAX_PLANTS,
     FrequencyResult,
@@ -44,12 +44,12 @@ from robustff.study.provenance import not_settled, reproducibility
 from robustff.study.recommendation import recommend
 from robustff.study.runner import StudyResult
 from robustff.study.summary_types import (
-    DisturbanceDriverDict,
     ArmStats,
     Convergence,
     ConvergenceDict,
     DesignDict,
     DesignSummary,
+    DisturbanceDriverDict,
     FeedforwardDesign,
     HarmEstimateDict,
     MarginsSummary,

@@ -122,7 +122,7 @@ def test_the_integral_of_error_is_the_sum_of_each_disturbances_final_value_term(
     kp = batch.values["process.gain"]
     sizes = {"feed_flow": 2.0, "feed_temp": -3.0, "upstream_solids": 1.5}
     compensators = dict(zip([item.name for item in case.disturbance_inputs],
-                            design.all_compensators))
+                            design.all_compensators, strict=True))
     assert compensators["upstream_solids"].structure == "none"
     assert compensators["feed_temp"].structure == "static"
     fb_ie = np.zeros(batch.size)
