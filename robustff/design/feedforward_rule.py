@@ -14,7 +14,10 @@ When the disturbance dead time is shorter than the process dead time, the ideal 
   (the compensator must stay proper) the constrained optimum is ``max(T*, T_min)``.
 
 SOPDT paths are first reduced to FOPDT by Skogestad's half rule (half of the second lag to the
-first lag, half to the dead time; Skogestad, J. Process Control 13 (2003) 291-309).
+first lag, half to the dead time; Skogestad, J. Process Control 13 (2003) 291-309). The process
+path is the loop as installed, linearised at the nominal point
+(:mod:`robustff.design.linearised_actuation`): the actuator lag, or the reduced closed secondary
+loop's lag and dead time, are reduced with the process's own lags by the same rule.
 """
 
 from __future__ import annotations
@@ -22,8 +25,9 @@ from __future__ import annotations
 import math
 
 from robustff.case import Case
-from robustff.design.tuning import FeedforwardSettings, half_rule
-from robustff.plant.kinds import model_kind
+from robustff.design.linearised_actuation import half_rule_dead_time
+from robustff.design.tuning import FeedforwardSettings, case_actuation, half_rule, tune_secondary
+from robustff.plant.kinds import FOPDT, model_kind
 from robustff.plant.models import TransferModel
 
 __all__ = [
@@ -94,6 +98,22 @@ def _as_fopdt(model: TransferModel) -> TransferModel | None:
     return half_rule(model) if len(kind.lag_parameters) == 2 else model
 
 
+def _installed_process(case: Case) -> TransferModel | None:
+    """The process path with the actuation linearised at the nominal point, as one FOPDT by the
+    half rule (the largest lag kept, half the second to lag and dead time, smaller lags to the
+    dead time); None for an integrating process."""
+    if model_kind(case.process.kind).integrating:
+        return None
+    actuation = case_actuation(case, tune_secondary(case))
+    if actuation is None:
+        return _as_fopdt(case.process)
+    lags = sorted((tau for tau in (*case.process.lags, *actuation.lags) if tau > 0.0),
+                  reverse=True) or [0.0]
+    second = lags[1] if len(lags) > 1 else 0.0
+    dead_time = half_rule_dead_time(case.process.dead_time + actuation.dead_time, lags)
+    return TransferModel(FOPDT.name, case.process.gain, lags[0] + 0.5 * second, 0.0, dead_time)
+
+
 def feedforward_rule(case: Case) -> FeedforwardSettings | None:
     """The rule's compensator for a case, or None when it does not apply.
 
@@ -106,14 +126,17 @@ def feedforward_rule(case: Case) -> FeedforwardSettings | None:
     -------
     FeedforwardSettings or None
         ``structure = "lead-lag"``, gain ``-Kd/Kp`` (gain factor 1), lead ``tau_p``, lag
-        ``max(T*, 0.1 tau_p, sample time)``, delay 0. None when the disturbance dead time is at
-        least the process dead time (the ideal delay is realizable), when a path is not
-        FOPDT/SOPDT, or when a reduced time constant is zero.
+        ``max(T*, 0.1 tau_p, sample time)``, delay 0, ``tau_p`` and the dead times those of the
+        installed process path (see the module docstring). None when the disturbance dead time
+        is at least the process dead time (with the closed secondary loop's: the ideal delay is
+        realizable), when a path is not FOPDT/SOPDT, or when a reduced time constant is zero.
     """
     path = case.headline_input.model
-    if path.dead_time >= case.process.dead_time:
+    actuation = case_actuation(case, tune_secondary(case))
+    added_delay = actuation.dead_time if actuation is not None else 0.0
+    if path.dead_time >= case.process.dead_time + added_delay:
         return None
-    process, disturbance = _as_fopdt(case.process), _as_fopdt(path)
+    process, disturbance = _installed_process(case), _as_fopdt(path)
     if process is None or disturbance is None:
         return None
     if process.time_constant <= 0.0 or disturbance.time_constant <= 0.0:

@@ -35,7 +35,8 @@ def installed_loop_lines(case: Case, design: LoopDesign) -> list[str]:
         if valve.time_constant:
             stem.append(f"actuator lag {valve.time_constant:g} {unit}")
         lines.append(f"  valve: {shape}; " + ("; ".join(stem) if stem else "no stem effects"))
-        lines.append("    the process gain holds at the nominal position; the margins use that "
+        lines.append("    the process gain holds at the nominal position (valve slope 1 there); the "
+                     "margins, the feedforward design and the frequency view use that "
                      "linearisation with the actuator lag (stiction, deadband and rate limit "
                      "only in the simulation)")
     spec, inner = case.secondary, design.secondary
@@ -48,4 +49,6 @@ def installed_loop_lines(case: Case, design: LoopDesign) -> list[str]:
                      f"{inner.ti:.4g} {unit}; output {inner.output_low:g} .. "
                      f"{inner.output_high:g} %, bias {inner.output_bias:g} %; scan {scan:g} "
                      f"{unit}")
+        lines.append("    the margins, the feedforward design and the frequency view take its "
+                     "closed loop, linearised at the nominal point, in series with the process")
     return ["", "Installed loop:", *lines] if lines else []

@@ -82,6 +82,7 @@ __all__ = [
     "MarginResult",
     "loop_margins",
     "loop_response",
+    "actuation_response",
     "model_margins",
     "MS_LIMIT",
     "GAIN_MARGIN_LIMIT",
@@ -926,6 +927,44 @@ def loop_response(batch: PlantBatch, feedback: FeedbackSettings, omega: np.ndarr
     if sample_time is not None:
         return _sampled_from(loop, sample_time).response(w)
     return _response(loop, w)
+
+
+def actuation_response(batch: PlantBatch, secondary: FeedbackSettings | None,
+                       omega: np.ndarray) -> np.ndarray | None:
+    """Controller output -> process input, linearised at the nominal point, continuous.
+
+    The valve's slope at the nominal position is 1; what stays is its actuator lag
+    ``Va = 1/(j w tau_a + 1)`` or, with a secondary loop, its closed loop
+    ``T = Cs Ps Va / (1 + Cs Ps Va)``: the factor the loop of :func:`loop_margins` has in
+    series with the process.
+
+    Parameters
+    ----------
+    batch : PlantBatch
+        ``n`` plants (``valve.time_constant`` and the ``"secondary.*"`` path are used).
+    secondary : FeedbackSettings or None
+        The secondary loop's PI; required when the batch has a secondary loop.
+    omega : ndarray, shape (F,)
+        Frequencies, rad per time unit.
+
+    Returns
+    -------
+    ndarray, shape (n, F), complex, or None
+        None for an ideal actuator (the factor is 1).
+    """
+    actuator = _actuator_lag(batch)
+    w = np.asarray(omega, dtype=np.float64)[None, :]
+    if batch.secondary_kind is None:
+        return None if actuator is None else 1.0 / (1.0 + 1j * w * actuator[:, None])
+    if secondary is None:
+        raise DesignError("actuation response: the plants have a secondary loop; its PI "
+                          "settings (the design's secondary controller) are needed")
+    kc, ti, td, tf = _check_controller(secondary, "secondary controller")
+    gain, tau1, tau2, theta = _path(batch, "secondary", batch.secondary_kind)
+    inner = _Loop(gain, tau1, tau2, theta, model_kind(batch.secondary_kind).integrating,
+                  kc, ti, td, tf, actuator)
+    loop = _response(inner, np.broadcast_to(w, (gain.shape[0], w.shape[1])))
+    return loop / (1.0 + loop)
 
 
 def _single_batch(process: TransferModel) -> PlantBatch:

@@ -44,6 +44,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 
 from robustff.case import Case, FeedbackSpec, FeedforwardSpec, Signals
+from robustff.design.linearised_actuation import LinearisedActuation, linearised_actuation
 from robustff.design.controller_forms import (
     form_lines,
     ideal_notes,
@@ -64,6 +65,8 @@ __all__ = [
     "tune_feedback",
     "design_feedforward",
     "design_loop",
+    "tune_secondary",
+    "case_actuation",
     "series_to_ideal",
     "half_rule",
     "DERIVATIVE_FILTER_FRACTION",
@@ -433,9 +436,14 @@ def tune_feedback(
 
 def design_feedforward(
     process: TransferModel, disturbance: TransferModel, spec: FeedforwardSpec, step: float,
-    time_unit: str = "",
+    time_unit: str = "", actuation: LinearisedActuation | None = None,
 ) -> tuple[FeedforwardSettings, list[str]]:
-    """Reduce the ideal compensator ``-Gd/Gp`` to the chosen structure.
+    """Reduce the ideal compensator ``-Gd/(Gp A)`` to the chosen structure.
+
+    ``A`` is the actuation path linearised at the nominal point (``actuation``, see
+    :mod:`robustff.design.linearised_actuation`: gain 1, the actuator lag or the reduced closed
+    secondary loop); None: an ideal actuator, ``A = 1``. Its lags count as process lags and its
+    dead time as process dead time below.
 
     Rules
     -----
@@ -450,6 +458,8 @@ def design_feedforward(
     Explicit ``lead``, ``lag`` and ``delay`` in the spec replace the designed values.
     ``time_unit`` is only written into the notes.
     """
+    added_lags = actuation.lags if actuation is not None else ()
+    added_delay = actuation.dead_time if actuation is not None else 0.0
     notes: list[str] = []
     structure = spec.structure
     unit = f" {time_unit}" if time_unit else ""
@@ -465,19 +475,20 @@ def design_feedforward(
     gain = -disturbance.gain / process.gain * spec.gain_factor
     lead = lag = delay = 0.0
     if structure in ("lead-lag", "lead-lag-delay") and not process.integrating:
-        lead, lag = _reduced_lead_lag(process, disturbance)
+        lead, lag = _reduced_lead_lag(process, disturbance, added_lags)
         if lag <= 0.0 and lead > 0.0:
             lag = max(0.1 * lead, step)
             notes.append(
                 f"disturbance path has no lag: compensator lag set to {lag:g}{unit} to keep it "
                 "proper"
             )
-    shortfall = process.dead_time - disturbance.dead_time
+    shortfall = process.dead_time + added_delay - disturbance.dead_time
     if structure == "lead-lag-delay":
         if shortfall > 0.0 and spec.delay is None:
+            whose = (" (with the closed secondary loop's)" if added_delay > 0.0 else "")
             notes.append(
-                "the disturbance dead time is shorter than the process dead time by "
-                f"{shortfall:g}{unit}: "
+                f"the disturbance dead time is shorter than the process dead time{whose} by "
+                f"{shortfall:.4g}{unit}: "
                 "the ideal delay is negative, not realizable; delay dropped"
             )
         elif shortfall <= 0.0:
@@ -495,15 +506,18 @@ def _lags(model: TransferModel) -> list[float]:
     return [tau for tau in model.lags if tau > 0.0]
 
 
-def _reduced_lead_lag(process: TransferModel, disturbance: TransferModel) -> tuple[float, float]:
-    """Lead and lag of ``-Gd/Gp`` reduced to one lead-lag.
+def _reduced_lead_lag(process: TransferModel, disturbance: TransferModel,
+                      added_lags: tuple[float, ...] = ()) -> tuple[float, float]:
+    """Lead and lag of ``-Gd/Gp`` reduced to one lead-lag (``added_lags``: the actuation's,
+    counted as process lags).
 
     Lags common to both paths cancel exactly first (e.g. a process lag equal to one of two
     disturbance lags); the remaining process lags are summed into the lead and the remaining
     disturbance lags into the lag, which keeps the first moment (mean delay) of the ideal
     compensator.
     """
-    leads, lags = _lags(process), _lags(disturbance)
+    leads = _lags(process) + [tau for tau in added_lags if tau > 0.0]
+    lags = _lags(disturbance)
     for tau in list(leads):
         match = next((other for other in lags if abs(other - tau) <= 1e-9 * max(tau, other)), None)
         if match is not None:
@@ -512,11 +526,42 @@ def _reduced_lead_lag(process: TransferModel, disturbance: TransferModel) -> tup
     return float(sum(leads)), float(sum(lags))
 
 
+def tune_secondary(case: Case) -> FeedbackSettings | None:
+    """The secondary (flow) PI of a case, ideal form, output in % (None without one).
+
+    Raises
+    ------
+    DesignError
+        Settings that cannot be designed, the message prefixed ``secondary:``.
+    """
+    if case.secondary is None:
+        return None
+    spec = case.secondary
+    inner = FeedbackSpec(form="pi", tuning=spec.tuning, closed_loop_time=spec.closed_loop_time,
+                         kc=spec.kc, ti=spec.ti, output_low=spec.output_low,
+                         output_high=spec.output_high, output_bias=spec.output_bias)
+    try:
+        secondary, _ = tune_feedback(spec.model, inner,
+                                     case.simulation.step / spec.scans_per_primary)
+    except DesignError as exc:
+        raise DesignError(f"secondary: {exc}") from None
+    return secondary
+
+
+def case_actuation(case: Case, secondary: FeedbackSettings | None) -> LinearisedActuation | None:
+    """The case's actuation path linearised at the nominal point (the valve's actuator lag, the
+    closed secondary loop with the PI ``secondary``), None for an ideal actuator."""
+    return linearised_actuation(case, *((secondary.kc, secondary.ti) if secondary else ()))
+
+
 def design_loop(case: Case) -> LoopDesign:
-    """Feedback and feedforward designs for a case, from its nominal models."""
+    """Feedback and feedforward designs for a case, from its nominal models (the feedforward on
+    the loop linearised at the nominal point: :mod:`robustff.design.linearised_actuation`)."""
     feedback, notes = tune_feedback(case.process, case.feedback, case.simulation.step,
                                     case.signals)
-    compensators, ff_notes = _compensators(case, None)
+    secondary = tune_secondary(case)
+    actuation = case_actuation(case, secondary)
+    compensators, ff_notes = _compensators(case, None, actuation)
     for item, settings in zip(case.disturbance_inputs, compensators, strict=True):
         if item.sensor.time_constant > 0.0 and settings.active:
             where = (f"disturbance.{item.name}.sensor" if item.name else "[sensor]")
@@ -525,30 +570,23 @@ def design_loop(case: Case) -> LoopDesign:
     alternatives = []
     for design in case.designs:
         try:
-            settings_all, design_notes = _compensators(case, design.feedforward)
+            settings_all, design_notes = _compensators(case, design.feedforward, actuation)
         except DesignError as exc:
             raise DesignError(f"design.{design.name}: {exc}") from None
         alternatives.append(NamedFeedforward(design.name, _headline(case, settings_all),
                                              tuple(design_notes), _several(settings_all)))
     feedforward = _headline(case, compensators)
-    secondary = None
-    if case.secondary is not None:
-        spec = case.secondary
-        inner = FeedbackSpec(form="pi", tuning=spec.tuning, closed_loop_time=spec.closed_loop_time,
-                             kc=spec.kc, ti=spec.ti, output_low=spec.output_low,
-                             output_high=spec.output_high, output_bias=spec.output_bias)
-        try:
-            secondary, _ = tune_feedback(spec.model, inner,
-                                         case.simulation.step / spec.scans_per_primary)
-        except DesignError as exc:
-            raise DesignError(f"secondary: {exc}") from None
+    if actuation is not None and (any(c.active for c in compensators) or alternatives):
+        ff_notes.append(actuation.note)
     return LoopDesign(feedback, feedforward, tuple(notes + ff_notes), tuple(alternatives),
                       secondary, _several(compensators))
 
 
-def _compensators(case: Case, spec: FeedforwardSpec | None
+def _compensators(case: Case, spec: FeedforwardSpec | None,
+                  actuation: LinearisedActuation | None = None,
                   ) -> tuple[tuple[FeedforwardSettings, ...], list[str]]:
-    """One compensator per disturbance, each designed from its own path.
+    """One compensator per disturbance, each designed from its own path (and the actuation
+    linearised at the nominal point, shared by all).
 
     ``spec`` None: the case's own rules (``[feedforward]``, overridden per disturbance by
     ``[feedforward.NAME]``); else one design's rule, applied to every measured disturbance.
@@ -562,7 +600,8 @@ def _compensators(case: Case, spec: FeedforwardSpec | None
             rule = FeedforwardSpec("none", rule.gain_factor)
         try:
             designed, item_notes = design_feedforward(case.process, item.model, rule,
-                                                      case.simulation.step, case.time_unit)
+                                                      case.simulation.step, case.time_unit,
+                                                      actuation)
         except DesignError as exc:
             if several:
                 raise DesignError(f"feedforward from {item.label}: {exc}") from None

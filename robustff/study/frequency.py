@@ -12,6 +12,9 @@ holds the controller output and the disturbance), ``M`` the transmitter lag samp
 way, and ``Gff`` the compensator exactly as the simulation runs it (digital input filter,
 whole and fractional sample delay, matched pole-zero lead-lag). Well below the Nyquist frequency
 ``pi/h`` this is the continuous ``|1 + Gp Gff Gm / Gd|``. Feedforward helps where ``R < 1``.
+The process path is the loop as installed, linearised at the nominal point as the margins take
+it: ``P`` is multiplied by the valve's actuator lag, or by the closed secondary loop ``T``
+(:func:`robustff.design.margins.actuation_response`, continuous, without the secondary scan).
 
 :func:`frequency_study` evaluates ``R`` for every sampled plant on a logarithmic grid, gives its
 P5/P50/P90/P95 bands, the highest frequency up to which it helps in 90 % of the plants (the
@@ -31,6 +34,7 @@ import numpy as np
 from robustff.case import Case
 from robustff.case.record import DisturbanceRecord
 from robustff.case.sampling import nominal_plants
+from robustff.design.margins import actuation_response
 from robustff.design.sampled_loop import split_delay, zoh_coefficients
 from robustff.design.tuning import LoopDesign
 from robustff.plant.kinds import model_kind
@@ -181,6 +185,9 @@ def error_ratio(batch: PlantBatch, design: LoopDesign, h: float,
     _, prefix, meter, _ = batch.paths[index]
     gff = compensator_response(design, h, omega, index)[None, :]
     process = sampled_path(batch, "process", h, omega)
+    actuation = actuation_response(batch, design.secondary, omega)
+    if actuation is not None:
+        process = process * actuation
     disturbance = sampled_path(batch, prefix, h, omega)
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = np.abs(1.0 + process * gff * _transmitter(batch, h, omega, meter) / disturbance)
