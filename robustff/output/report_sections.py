@@ -11,6 +11,7 @@ from collections.abc import Sequence
 
 from robustff import CAUTION
 from robustff.case.text import printable_title
+from robustff.design.installed_loop import installed_loop_lines
 from robustff.design.margins_result import GAIN_MARGIN_LIMIT, MS_LIMIT, PHASE_MARGIN_LIMIT
 from robustff.output.design_table import design_table_header, design_table_rows
 from robustff.output.report_tables import (
@@ -401,6 +402,10 @@ def case_section(result: StudyResult, summary: Summary) -> str:
         "compact") if repro["correlations"] else (
         "<p>No correlations: parameters drawn independently.</p>")
     notes = "\n".join(result.design.summary_lines(case))
+    installed = "\n".join(installed_loop_lines(case, result.design)[2:])
+    installed_html = (f"<pre class=\"notes\">{esc(installed)}</pre>" if installed
+                      else "<p>No valve and no secondary loop: the controller output drives the "
+                      "process model directly (an ideal actuator).</p>")
     return (
         "<section><h2>The case as run</h2>"
         "<h3>Nominal models</h3>" + models
@@ -408,6 +413,7 @@ def case_section(result: StudyResult, summary: Summary) -> str:
         + "<p>As designed, ideal (ISA) form used by the simulator, derivative on the "
         "measurement:</p>" + ideal
         + f"<pre class=\"notes\">{esc(notes)}</pre>"
+        + "<h3>Valve and secondary loop</h3>" + installed_html
         + "<h3>Feedforward designs</h3>" + designs
         + "<h3>Events</h3>" + events
         + "<h3>Window, scan period and sampling</h3>" + run_rows
