@@ -30,6 +30,7 @@ from robustff.tui.dialogs import ChoiceScreen
 from robustff.tui.file_actions import FileActions
 from robustff.tui.fit_actions import FitActions
 from robustff.tui.key_order import KeyOrder
+from robustff.tui.loop_fields import feedback_fields, secondary_fields
 from robustff.tui.messages import (
     DistributionEdited,
     FieldEdited,
@@ -56,6 +57,8 @@ __all__ = ["StudioApp", "QUICK_SAMPLES"]
 QUICK_SAMPLES = 500
 #: Shown instead of the stability margins until the full pass has computed them.
 MARGINS_PENDING = "Margins: computed with the full run..."
+#: Edits after which the pane has other rows (the controller's form and structure, the rule).
+_ROW_SETS = frozenset({"feedback.tuning", "feedback.form", "feedback.structure"})
 
 
 class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, App[None]):
@@ -184,10 +187,15 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
             self.refresh_staleness()
             return
         row.show_result(None, message.text)
-        self.accept_edit(case, rebuild=message.field == "feedback.tuning",
+        self.accept_edit(case, rebuild=message.field in _ROW_SETS,
                          what=f"{message.field} = {message.text.strip()}")
+        pane = self.query_one(ModelsPane)
         if message.field.startswith("valve."):  # a valve added, removed or of another kind
-            self.query_one(ModelsPane).show_values(case, editing.VALVE_FIELDS)
+            pane.show_values(case, editing.VALVE_FIELDS)
+        elif message.field.startswith("secondary."):  # manual settings filled or cleared
+            pane.show_values(case, secondary_fields(case))
+        elif message.field.startswith("feedback."):  # the other spelling of a setting cleared
+            pane.show_values(case, feedback_fields(case))
 
     def on_distribution_edited(self, message: DistributionEdited) -> None:
         pane = self.query_one(UncertaintyPane)
@@ -269,7 +277,7 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         from robustff.design.installed_loop import installed_loop_lines
 
         lines = review.design.summary_lines(self.case)
-        # The valve and the secondary loop (read from the case file; edited there for now).
+        # The valve and the secondary loop, as check prints them.
         lines += [line.strip() for line in installed_loop_lines(self.case, review.design)[1:]]
         lines += [f"✗ {finding.text()}" for finding in review.errors]
         fields: dict[str, str] = {}

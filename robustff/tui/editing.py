@@ -16,13 +16,20 @@ from robustff.case import (
     Case,
     Distribution,
     UncertainParameter,
-    case_to_toml,
-    parse_case,
 )
-from robustff.case.record_section import records_folder
 from robustff.errors import CaseError
 from robustff.plant.models import MODEL_PARAMETERS, SENSOR_PARAMETERS
 from robustff.plant.valve import VALVE_CHARACTERISTICS, ValveModel
+from robustff.tui.edit_values import EDIT_SOURCE, number_from_text, validated
+from robustff.tui.loop_fields import (
+    INSTALLED_FIELD,
+    LOOP_CHOICE_FIELDS,
+    LOOP_OPTIONAL_FIELDS,
+    edited_loop_field,
+    loop_field_text,
+    manual_settings_in,
+    without_manual_settings,
+)
 
 __all__ = [
     "EDIT_SOURCE",
@@ -44,28 +51,26 @@ __all__ = [
     "short_message",
 ]
 
-#: Source name given to the loader for edits; stripped from messages shown inline.
-EDIT_SOURCE = "edit"
-
 #: Fields edited by choosing one of a few words.
 CHOICE_FIELDS: dict[str, tuple[str, ...]] = {
     "feedback.form": ("pi", "pid"),
     "feedback.tuning": ("simc", "imc", "manual"),
     "feedforward.structure": ("none", "static", "lead-lag", "lead-lag-delay"),
     "valve.characteristic": ("none", *VALVE_CHARACTERISTICS),
+    **LOOP_CHOICE_FIELDS,
 }
 
-#: The valve's fields the studio edits (``[valve]``; ``none``: an ideal actuator). The
-#: installed characteristic's table is given in the case file.
+#: The valve's fields the studio edits (``[valve]``; ``none``: an ideal actuator), the
+#: installed characteristic's table as ``position % : flow fraction`` pairs.
 VALVE_FIELDS: tuple[str, ...] = (
-    "valve.characteristic", "valve.rangeability", "valve.stiction_s", "valve.stiction_j",
-    "valve.deadband", "valve.rate_limit", "valve.time_constant",
+    "valve.characteristic", "valve.rangeability", INSTALLED_FIELD, "valve.stiction_s",
+    "valve.stiction_j", "valve.deadband", "valve.rate_limit", "valve.time_constant",
 )
 
 #: Numeric fields that may be left blank (blank means "not set": the design rule decides).
 OPTIONAL_FIELDS: frozenset[str] = frozenset({
     "feedback.closed_loop_time", "feedback.kc", "feedback.ti", "feedback.td",
-    "feedforward.lead", "feedforward.lag", "feedforward.delay",
+    "feedforward.lead", "feedforward.lag", "feedforward.delay", *LOOP_OPTIONAL_FIELDS,
 })
 
 _UNCERTAIN_BLOCKS = ("process", "disturbance", "sensor")
@@ -77,38 +82,11 @@ def short_message(problem: str) -> str:
     return problem[len(prefix):] if problem.startswith(prefix) else problem
 
 
-def validated(case: Case) -> Case:
-    """The case as the loader reads it back from its own TOML text.
-
-    Raises
-    ------
-    CaseError
-        With the loader's messages (source ``edit``) when the case would not load.
-    """
-    try:
-        text = case_to_toml(case)
-    except (TypeError, ValueError) as exc:  # a value the writer cannot express
-        raise CaseError(f"{EDIT_SOURCE}: {exc}") from None
-    # the record files are found where the case's records were read from
-    return replace(parse_case(text, source=EDIT_SOURCE, base_dir=records_folder(case)),
-                   source_path=case.source_path)
-
-
-def _number(field: str, text: str, optional: bool) -> float | None:
-    stripped = text.strip()
-    if not stripped and optional:
-        return None
-    try:
-        value = float(stripped)
-    except ValueError:
-        raise CaseError(f"{EDIT_SOURCE}: {field}: must be a number (got {text!r})") from None
-    if not math.isfinite(value):
-        raise CaseError(f"{EDIT_SOURCE}: {field}: must be a finite number (got {text!r})")
-    return value
-
-
 def field_text(case: Case, field: str) -> str:
     """The current value of ``field`` (e.g. ``"process.gain"``) as editable text."""
+    loop_text = loop_field_text(case, field)
+    if loop_text is not None:
+        return loop_text
     block, item, parameter = case.split_key(field)
     if item is not None:  # a disturbance path or its transmitter
         owner = item.sensor if block == "sensor" else item.model
@@ -146,9 +124,12 @@ def edit_field(case: Case, field: str, text: str) -> Case:
     CaseError
         The loader's reason (or "must be a number") when the edit is refused.
     """
+    loop_case = edited_loop_field(case, field, text)
+    if loop_case is not None:
+        return validated(loop_case)
     block, item, parameter = case.split_key(field)
     if item is not None:  # a disturbance path or its transmitter, named or not
-        value = _number(field, text, optional=False)
+        value = number_from_text(field, text, optional=False)
         if block == "sensor":
             item = replace(item, sensor=replace(item.sensor, **{parameter: value}))
         else:
@@ -161,13 +142,15 @@ def edit_field(case: Case, field: str, text: str) -> Case:
     if field in CHOICE_FIELDS:
         value: object = text.strip()
     elif section == "study":
-        number = _number(field, text, optional=False)
+        number = number_from_text(field, text, optional=False)
         value = int(number) if number is not None and number == int(number) else number
     else:
-        value = _number(field, text, optional=field in OPTIONAL_FIELDS)
+        value = number_from_text(field, text, optional=field in OPTIONAL_FIELDS)
     changed = replace(case, **{section: replace(owner, **{name: value})})
     if field == "feedback.tuning" and value == "manual":
         changed = _with_manual_settings(changed)
+    elif field == "feedback.tuning":  # back to a rule: the manual settings go (Ctrl+Z keeps them)
+        changed = replace(changed, feedback=without_manual_settings(changed.feedback))
     return validated(changed)
 
 
@@ -186,14 +169,14 @@ def _edited_valve(case: Case, field: str, text: str) -> Case:
                             f"{', '.join(VALVE_CHARACTERISTICS)} (got {text!r})")
         if choice == "installed" and not valve.installed:
             raise CaseError(f"{EDIT_SOURCE}: {field}: an installed characteristic needs its "
-                            "table of [position %, flow fraction] pairs; give it in the case "
-                            "file ([valve] installed)")
+                            "table of position % : flow fraction pairs; type it in the "
+                            "'installed' row, e.g. 0:0, 50:0.2, 100:1")
         installed = valve.installed if choice == "installed" else ()
         return replace(case, valve=replace(valve, characteristic=choice, installed=installed))
     if name == "rangeability" and valve.characteristic != "equal-percentage":
         raise CaseError(f"{EDIT_SOURCE}: {field}: used only with characteristic = "
                         "'equal-percentage'")
-    number = _number(field, text, optional=False) or 0.0  # not optional: never None
+    number = number_from_text(field, text, optional=False) or 0.0  # not optional: never None
     return replace(case, valve=replace(valve, **{name: number}))  # type: ignore[arg-type]
 
 
@@ -203,34 +186,20 @@ def _with_manual_settings(case: Case) -> Case:
     fb = case.feedback
     if fb.kc is not None and (fb.ti is not None or fb.ki is not None):
         return case
-    from robustff.design.controller_forms import ideal_to_parallel, ideal_to_series
     from robustff.design.tuning import design_loop
 
     try:
         settings = design_loop(replace(case, feedback=replace(fb, tuning="simc"))).feedback
     except (ValueError, ArithmeticError):
         return case  # the loader will name the missing settings
-    pid = fb.form == "pid"
-    kc, ti, td = settings.kc, settings.ti, settings.td if pid else 0.0
-    if fb.structure == "parallel":
-        gain, ki, kd = ideal_to_parallel(kc, ti, td)
-        return replace(case, feedback=replace(fb, kc=gain, ki=ki, kd=kd if pid else None,
-                                              proportional_band=None, repeats=None))
-    if fb.structure == "series":
-        series = ideal_to_series(kc, ti, td)
-        if series is None:  # no series form (Ti < 4 Td): keep the ideal settings, say so
-            fb = replace(fb, structure="ideal")
-        else:
-            kc, ti, td = series
-    return replace(case, feedback=replace(fb, kc=kc, ti=ti, td=td if pid else None,
-                                          proportional_band=None, repeats=None))
+    return replace(case, feedback=manual_settings_in(fb, settings.kc, settings.ti, settings.td))
 
 
 def _floats(path: str, text: str) -> tuple[float, ...]:
     parts = [part for part in text.replace(";", ",").replace("..", ",").split(",") if part.strip()]
     if not parts:
         raise CaseError(f"{EDIT_SOURCE}: {path}: needs numbers separated by commas (got {text!r})")
-    return tuple(_number(path, part, optional=False) or 0.0 for part in parts)
+    return tuple(number_from_text(path, part, optional=False) or 0.0 for part in parts)
 
 
 def params_text(distribution: Distribution) -> str:

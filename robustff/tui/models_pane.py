@@ -1,5 +1,5 @@
-"""The models and design pane: nominal process/disturbance values, feedback, feedforward and
-the valve."""
+"""The models and design pane: nominal process/disturbance values, the feedback controller in
+its form, the feedforward, the valve and the secondary (flow) loop."""
 
 from __future__ import annotations
 
@@ -12,7 +12,9 @@ from textual.widgets import Input, Label, Select, Static
 from robustff.case import Case
 from robustff.plant.models import MODEL_PARAMETERS
 from robustff.tui.editing import CHOICE_FIELDS, OPTIONAL_FIELDS, VALVE_FIELDS, field_text
+from robustff.tui.loop_fields import INSTALLED_FIELD, feedback_fields, secondary_fields
 from robustff.tui.messages import FieldEdited, field_id
+from robustff.units import per_unit
 
 __all__ = ["ModelsPane", "FieldRow", "focus_label", "FOCUS_MARK"]
 
@@ -34,8 +36,26 @@ _LABELS = {
     "valve.characteristic": "characteristic", "valve.rangeability": "rangeability",
     "valve.stiction_s": "stiction S", "valve.stiction_j": "slip jump J",
     "valve.deadband": "deadband", "valve.rate_limit": "rate limit",
-    "valve.time_constant": "actuator lag",
+    "valve.time_constant": "actuator lag", INSTALLED_FIELD: "installed",
+    # the controller as the control system writes it
+    "feedback.proportional_band": "PB (manual)", "feedback.repeats": "repeats",
+    "feedback.ki": "Ki (manual)", "feedback.kd": "Kd (manual)",
+    "feedback.derivative_filter": "D filter", "feedback.setpoint_weight": "sp weight b",
+    "feedback.derivative_setpoint_weight": "sp weight c",
+    "secondary.scans_per_primary": "scans",
 }
+
+#: What a blank field means, where it is not "the rule decides".
+_BLANK = {"feedback.proportional_band": "or Kc", "feedback.repeats": "or Ti",
+          "feedback.derivative_filter": "blank = 0.1", INSTALLED_FIELD: "0:0, 50:0.2, 100:1"}
+
+
+def _placeholder(field: str, applied: str, has_valve: bool) -> str:
+    if field in _BLANK:
+        return _BLANK[field]
+    if field.startswith("valve.") and not has_valve:
+        return "no valve"
+    return "blank = rule" if field in OPTIONAL_FIELDS else "a number"
 
 
 def _field_label(field: str) -> str:
@@ -50,6 +70,7 @@ class FieldRow(Vertical):
         super().__init__(classes="field-row", id=f"row-{field_id(field)}")
         self.field = field
         self.applied = field_text(case, field)
+        self.has_valve = case.valve is not None
 
     def compose(self) -> ComposeResult:
         with Horizontal(classes="field"):
@@ -60,9 +81,7 @@ class FieldRow(Vertical):
                              id=f"in-{field_id(self.field)}")
             else:
                 yield Input(self.applied, compact=True, id=f"in-{field_id(self.field)}",
-                            placeholder="blank = rule" if self.field in OPTIONAL_FIELDS
-                            else "no valve" if self.applied == "" and
-                            self.field.startswith("valve.") else "a number")
+                            placeholder=_placeholder(self.field, self.applied, self.has_valve))
         yield Static("", classes="error", id=f"err-{field_id(self.field)}")
         yield Static("", classes="warning", id=f"warn-{field_id(self.field)}")
 
@@ -126,19 +145,41 @@ class ModelsPane(Vertical):
                          f"times in {case.time_unit}", classes="hint")
             for name in MODEL_PARAMETERS[getattr(case, block).kind]:
                 yield FieldRow(case, f"{block}.{name}")
-        yield Static("Feedback controller", classes="section")
-        for name in ("form", "tuning", "closed_loop_time", "kc", "ti", "td"):
-            yield FieldRow(case, f"feedback.{name}")
+        yield Static(f"Feedback controller ({case.feedback.structure} form)", classes="section")
+        gain_unit = per_unit(case.signals.output.unit or "output unit",
+                             case.signals.controlled.unit or "CV unit")
+        yield Static(f"  Kc in {gain_unit}, PB in %, "
+                     f"Ti in {case.time_unit} per repeat, repeats per {case.time_unit}; "
+                     + (f"Ki in {gain_unit}/{case.time_unit}, Kd in {gain_unit} x "
+                        f"{case.time_unit}; " if case.feedback.structure == "parallel" else "")
+                     + "setpoint weights b, c 0..1", classes="hint")
+        for field in feedback_fields(case):
+            yield FieldRow(case, field)
         yield Static("Feedforward", classes="section")
         for name in ("structure", "gain_factor", "lead", "lag", "delay"):
             yield FieldRow(case, f"feedforward.{name}")
         yield Static("Valve (none: ideal actuator)", classes="section")
         yield Static(f"  stiction S, J and deadband in % of travel; rate limit in "
                      f"%/{case.time_unit}; actuator lag in {case.time_unit}; rangeability "
-                     "(equal-percentage only) dimensionless", classes="hint")
+                     "(equal-percentage only) dimensionless; installed: position % : flow "
+                     "fraction pairs", classes="hint")
         for field in VALVE_FIELDS:
             yield FieldRow(case, field)
+        yield from self._secondary_rows(case)
         yield Static("", id="design-summary")
+
+    def _secondary_rows(self, case: Case) -> ComposeResult:
+        if case.secondary is None:
+            yield Static("Secondary loop: none (add [secondary] in the case file)",
+                         classes="section")
+            return
+        flow = case.signals.output.unit or "flow unit"
+        yield Static(f"Secondary loop: % -> {flow} ({case.secondary.model.kind.upper()})",
+                     classes="section")
+        yield Static(f"  gain in {flow} per %; times in {case.time_unit}; Kc in %/({flow}); "
+                     "scans: secondary scans per primary scan", classes="hint")
+        for field in secondary_fields(case):
+            yield FieldRow(case, field)
 
     def row(self, field: str) -> FieldRow:
         """The row editing ``field``."""
@@ -147,14 +188,20 @@ class ModelsPane(Vertical):
     def show_values(self, case: Case, fields: tuple[str, ...]) -> None:
         """Show the case's values in the rows of ``fields`` (rows holding a refused edit keep
         their text)."""
+        shown = {row.field for row in self.query(FieldRow)}
         for field in fields:
+            if field not in shown:
+                continue
             row = self.row(field)
             if row.has_class("invalid"):
                 continue
             row.applied = field_text(case, field)
+            row.has_valve = case.valve is not None
             for widget in row.query(Input):
                 widget.value = row.applied
-                widget.placeholder = "no valve" if case.valve is None else "a number"
+                widget.placeholder = _placeholder(field, row.applied, row.has_valve)
+            for choice in row.query(Select):
+                choice.value = row.applied
 
     def show_design(self, lines: list[str], warnings: dict[str, str]) -> None:
         """Show the design computed from the nominal models and the review's warnings.
