@@ -46,7 +46,7 @@ from robustff.case.schema import (
     StudySpec,
 )
 from robustff.case.secondary_section import read_secondary
-from robustff.case.uncertainty_section import read_uncertainty
+from robustff.case.uncertainty_section import INVALID_BLOCK, read_uncertainty
 from robustff.case.valve_section import read_valve
 from robustff.errors import CaseError
 from robustff.plant.models import MODEL_KINDS, MODEL_PARAMETERS, SensorModel, TransferModel
@@ -181,8 +181,10 @@ def _build_case(problems: Problems, raw: dict[str, Any], base_dir: Path | None =
     study = _read_study(problems, raw.get("study", {}))
     recommendation = _read_recommendation(problems, raw.get("recommendation", {}))
     designs = _read_designs(problems, raw)
-    models = {"process": process, "valve": valve,
-              "secondary": secondary.model if secondary is not None else None}
+    models = {"process": process,
+              "valve": valve if valve is not None or "valve" not in raw else INVALID_BLOCK,
+              "secondary": secondary.model if secondary is not None
+              else INVALID_BLOCK if "secondary" in raw else None}
     if named is None:
         models.update({"disturbance": disturbance, "sensor": sensor})
     else:

@@ -30,8 +30,11 @@ from robustff.errors import CaseError
 from robustff.plant.models import MODEL_PARAMETERS, SENSOR_PARAMETERS, SensorModel, TransferModel
 from robustff.plant.valve import VALVE_PARAMETERS, ValveModel
 
-__all__ = ["read_uncertainty", "NON_NEGATIVE_PARAMETERS", "UNCERTAIN_BLOCKS"]
+__all__ = ["read_uncertainty", "NON_NEGATIVE_PARAMETERS", "UNCERTAIN_BLOCKS", "INVALID_BLOCK"]
 
+#: Stands for a ``[valve]`` or ``[secondary]`` table that is present but has problems (None:
+#: absent), so that its uncertain parameters are not also said to lack their table.
+INVALID_BLOCK = object()
 UNCERTAIN_BLOCKS: tuple[str, ...] = ("process", "disturbance", "sensor", "valve", "secondary")
 NON_NEGATIVE_PARAMETERS: dict[str, str] = {
     "time_constant": "a time constant",
@@ -56,7 +59,7 @@ _CHOICES = (
 )
 _HOW = 'name it "block.parameter", e.g. "process.gain" = { relative = 0.2 }'
 
-Models = dict[str, TransferModel | SensorModel | ValveModel | None]
+Models = dict[str, TransferModel | SensorModel | ValveModel | object | None]
 Result = tuple[tuple[UncertainParameter, ...] | None, tuple[Correlation, ...] | None]
 
 
@@ -127,6 +130,8 @@ def _check_key(
     """Whether ``key`` names a parameter the case's models have, and its nominal value."""
     owner, name = _owner(key, models)
     block = "sensor" if owner.endswith("sensor") else owner.partition(".")[0]
+    if models.get(owner) is INVALID_BLOCK:
+        return False, None  # the table's own problems are reported with it
     if block not in UNCERTAIN_BLOCKS:
         problems.add(path, f"unknown block {block!r}: uncertain parameters belong to "
                      f"{', '.join(UNCERTAIN_BLOCKS)}; {_HOW}")
@@ -160,8 +165,8 @@ def _check_key(
             return False, None
     elif model is None:
         return False, None  # the model's own problems are reported with it
-    elif name not in MODEL_PARAMETERS[model.kind]:  # type: ignore[union-attr]
-        kind = model.kind  # type: ignore[union-attr]
+    elif name not in MODEL_PARAMETERS[model.kind]:  # type: ignore[attr-defined]
+        kind = model.kind  # type: ignore[attr-defined]
         problems.add(path, f"the {owner} model ({kind!r}) has no parameter {name!r} "
                      f"(it has {', '.join(MODEL_PARAMETERS[kind])})")
         return False, None

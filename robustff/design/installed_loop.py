@@ -35,8 +35,8 @@ def installed_loop_lines(case: Case, design: LoopDesign) -> list[str]:
         if valve.time_constant:
             stem.append(f"actuator lag {valve.time_constant:g} {unit}")
         lines.append(f"  valve: {shape}; " + ("; ".join(stem) if stem else "no stem effects"))
-        lines.append("    the process gain holds at the nominal position (valve slope 1 there); the "
-                     "margins, the feedforward design and the frequency view use that "
+        lines.append("    the process gain holds at the nominal position (valve slope 1 "
+                     "there); the margins, the feedforward design and the frequency view use that "
                      "linearisation with the actuator lag (stiction, deadband and rate limit "
                      "only in the simulation)")
     spec, inner = case.secondary, design.secondary

@@ -44,13 +44,13 @@ from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 
 from robustff.case import Case, FeedbackSpec, FeedforwardSpec, Signals
-from robustff.design.linearised_actuation import LinearisedActuation, linearised_actuation
 from robustff.design.controller_forms import (
     form_lines,
     ideal_notes,
     manual_ideal,
     series_to_ideal,
 )
+from robustff.design.linearised_actuation import LinearisedActuation, linearised_actuation
 from robustff.errors import DesignError
 from robustff.plant.kinds import FOPDT, IPDT, SOPDT
 from robustff.plant.models import TransferModel

@@ -46,7 +46,6 @@ INSTALLED_FIELD = "valve.installed"
 #: One setting written two ways: typing one clears the other (the loader takes only one).
 _SPELLINGS = {"kc": "proportional_band", "proportional_band": "kc", "ti": "repeats",
               "repeats": "ti"}
-_MANUAL_KEYS = ("kc", "ti", "td", "proportional_band", "repeats", "ki", "kd")
 _SECONDARY_CONTROLLER = ("tuning", "closed_loop_time", "kc", "ti", "scans_per_primary")
 
 
@@ -129,7 +128,7 @@ def _edited_form(case: Case, name: str, text: str) -> Case:
                                                          ideal.kc, ideal.ti, ideal.td))
     value = number_from_text(f"feedback.{name}", text, optional=True)
     other = _SPELLINGS[name] if value is not None else name
-    return replace(case, feedback=replace(fb, **{name: value, other: None}))
+    return replace(case, feedback=replace(fb, **{name: value, other: None}))  # type: ignore[arg-type]
 
 
 def manual_settings_in(fb: FeedbackSpec, kc: float, ti: float, td: float) -> FeedbackSpec:
@@ -138,22 +137,23 @@ def manual_settings_in(fb: FeedbackSpec, kc: float, ti: float, td: float) -> Fee
     (``Ti < 4 Td``) stays ideal."""
     pid = fb.form == "pid"
     td = td if pid else 0.0
-    cleared = {"proportional_band": None, "repeats": None}
+    fb = replace(fb, proportional_band=None, repeats=None)
     if fb.structure == "parallel":
         gain, ki, kd = ideal_to_parallel(kc, ti, td)
-        return replace(fb, kc=gain, ki=ki, kd=kd if pid else None, ti=None, td=None, **cleared)
+        return replace(fb, kc=gain, ki=ki, kd=kd if pid else None, ti=None, td=None)
     if fb.structure == "series":
         series = ideal_to_series(kc, ti, td)
         if series is None:
             fb = replace(fb, structure="ideal")
         else:
             kc, ti, td = series
-    return replace(fb, kc=kc, ti=ti, td=td if pid else None, ki=None, kd=None, **cleared)
+    return replace(fb, kc=kc, ti=ti, td=td if pid else None, ki=None, kd=None)
 
 
 def without_manual_settings(fb: FeedbackSpec) -> FeedbackSpec:
     """The controller handed back to a tuning rule: no manual settings left."""
-    return replace(fb, **{key: None for key in _MANUAL_KEYS})
+    return replace(fb, kc=None, ti=None, td=None, proportional_band=None, repeats=None,
+                   ki=None, kd=None)
 
 
 def _edited_secondary(case: Case, name: str, text: str) -> Case:
@@ -182,7 +182,7 @@ def _edited_secondary(case: Case, name: str, text: str) -> Case:
     value = number_from_text(field, text, optional=field in LOOP_OPTIONAL_FIELDS)
     if name == "scans_per_primary" and value is not None and value == int(value):
         value = int(value)
-    return replace(case, secondary=replace(spec, **{name: value}))
+    return replace(case, secondary=replace(spec, **{name: value}))  # type: ignore[arg-type]
 
 
 def _with_installed(case: Case, text: str) -> Case:

@@ -7,6 +7,7 @@ from typing import Any
 
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
+from textual.markup import escape
 from textual.widgets import Input, Label, Select, Static
 
 from robustff.case import Case
@@ -115,7 +116,7 @@ class FieldRow(Vertical):
         """Mark the edit applied (``error`` None) or refused (the reason shown, text kept)."""
         self.set_class(error is not None, "invalid")
         line = self.query_one(".error", Static)
-        line.update(f"✗ {error}" if error else "")
+        line.update(f"✗ {escape(error)}" if error else "")  # "[valve]" is text, not markup
         line.set_class(error is not None, "shown")
         if error is None:
             self.applied = text
@@ -124,7 +125,7 @@ class FieldRow(Vertical):
     def show_warning(self, warning: str | None) -> None:
         """A review warning about the value (kept until an edit clears it), or none."""
         line = self.query_one(".warning", Static)
-        line.update(f"⚠ {warning}" if warning else "")
+        line.update(f"⚠ {escape(warning)}" if warning else "")
         line.set_class(warning is not None, "shown")
 
 
@@ -213,6 +214,6 @@ class ModelsPane(Vertical):
         warnings : dict
             Warning text by field (``"process.dead_time"``), shown under that field.
         """
-        self.query_one("#design-summary", Static).update("\n".join(lines))
+        self.query_one("#design-summary", Static).update(escape("\n".join(lines)))
         for row in self.query(FieldRow):
             row.show_warning(warnings.get(row.field))

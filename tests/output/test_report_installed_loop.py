@@ -30,7 +30,8 @@ def _report(tmp_path: Path, name: str) -> str:
 def test_the_report_lists_valve_secondary_loop_and_controller_form(tmp_path):
     page = _report(tmp_path, "steam-heater-sticky-valve.toml")
     section = page.split("Valve and secondary loop", 1)[1].split("Feedforward designs", 1)[0]
-    assert "valve: equal-percentage, rangeability 30; stiction S = 3 %, J = 1 % of travel" in section
+    assert ("valve: equal-percentage, rangeability 30; stiction S = 3 %, J = 1 % of travel"
+            in section)
     assert "rate limit 10 %/s" in section
     assert "secondary loop" in section and "Kc = 0.625 %/(kg/h), Ti = 1.6 s" in section
     assert "scan 0.125 s" in section
