@@ -187,10 +187,12 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
             self.refresh_staleness()
             return
         row.show_result(None, message.text)
-        self.accept_edit(case, rebuild=message.field in _ROW_SETS,
-                         what=f"{message.field} = {message.text.strip()}")
+        rebuild = message.field in _ROW_SETS
+        self.accept_edit(case, rebuild=rebuild, what=f"{message.field} = {message.text.strip()}")
         pane = self.query_one(ModelsPane)
-        if message.field.startswith("valve."):  # a valve added, removed or of another kind
+        if rebuild:
+            pass  # the new rows show the new values
+        elif message.field.startswith("valve."):  # a valve added, removed or of another kind
             pane.show_values(case, editing.VALVE_FIELDS)
         elif message.field.startswith("secondary."):  # manual settings filled or cleared
             pane.show_values(case, secondary_fields(case))
@@ -248,8 +250,9 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         self.autosave()
         self.refresh_title()
         if rebuild:
-            self.rebuild_panes()
-        self.show_design()
+            self.rebuild_panes()  # shows the design once the new rows are there
+        else:
+            self.show_design()
         self.start_run()
 
     def rebuild_panes(self) -> None:
