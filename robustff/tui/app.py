@@ -257,11 +257,16 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
 
     def rebuild_panes(self) -> None:
         """Recompose the editor panes from the current case (rows added, reload, restore)."""
+        focused = self.focused.id if self.focused is not None else None
+
         async def rebuild() -> None:
             for pane in (self.query_one(ModelsPane), self.query_one(UncertaintyPane)):
                 pane.case = self.case
                 await pane.recompose()
             self.show_design()  # the new widgets start blank
+            if focused:  # keep the user's place in the pane (the rebuild moved focus)
+                for widget in self.query(f"#{focused}"):
+                    widget.focus()
 
         # A worker (its own task): awaiting the new widgets' mounting from one of the app's
         # own messages would hold the app's queue that the mounting goes through.

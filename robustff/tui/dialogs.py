@@ -29,6 +29,19 @@ Editing
   ⚠ under a field or range: a warning of the case review, e.g. a nominal
   value outside its uncertainty range ([fix range] widens or moves it).
 
+The loop as installed
+  Feedback controller: its structure (ideal, series, parallel), the gain
+  as Kc or as a proportional band PB (needs the spans, [signals] range),
+  the integral as Ti or repeats (typing one clears the other), Ki/Kd in
+  the parallel form, setpoint weights b and c. Changing the structure of
+  a manual controller rewrites its settings: the controller stays.
+  Valve: characteristic (none: ideal actuator), installed table as
+  position % : flow fraction pairs ('0:0, 50:0.3, 100:1'), stiction S
+  and J, deadband, rate limit, actuator lag.
+  Secondary loop: its path model, SIMC or manual PI (manual starts from
+  SIMC's settings), tau_c, scans per primary scan. A case without one
+  gets it in the case file ([secondary]).
+
 Files
   Ctrl+S  save the case (atomic; file mode and comments kept where
           possible, else you are told; asks first if it does not
