@@ -199,3 +199,27 @@ def test_a_pi_in_the_wrong_direction_is_refused():
         closed_loop_first_moment(-1.0, 2.0, 8.0)
     with pytest.raises(ValueError, match="Ti > 0"):
         closed_loop_first_moment(1.0, 0.0, 8.0)
+
+
+def test_the_lag_rule_takes_the_installed_process_path():
+    # The rule of docs/feedforward-rule.md on the process path with the closed flow loop: the
+    # lags 40 s and tau_T reduced by the half rule (Skogestad 2003), the dead time 6 s + theta_T
+    # + tau_T / 2, and the ISE-optimal lag T* = tau_d (2 exp(-L / (2 tau_d)) - 1).
+    from pathlib import Path
+
+    from robustff.case import load_case
+    from robustff.design.feedforward_rule import feedforward_rule
+
+    case = load_case(Path(__file__).resolve().parents[2] / "cases"
+                     / "steam-heater-sticky-valve.toml")
+    inner = design_loop(case).secondary
+    assert inner is not None
+    actuation = linearised_actuation(case, inner.kc, inner.ti)
+    assert actuation is not None
+    tau_t = sum(actuation.lags)
+    rule = feedforward_rule(case)
+    assert rule is not None
+    assert rule.lead == pytest.approx(40.0 + tau_t / 2)
+    shortfall = 6.0 + actuation.dead_time + tau_t / 2 - 4.0
+    expected = max(30.0 * (2.0 * np.exp(-shortfall / 60.0) - 1.0), 0.1 * rule.lead, 0.5)
+    assert rule.lag == pytest.approx(expected)
