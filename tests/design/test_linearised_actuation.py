@@ -42,8 +42,8 @@ def _incremental_gain(kind: int, table: np.ndarray, at: float, rangeability: flo
                       bias: float = 40.0, du: float = 1e-4) -> float:
     """Process input change per output change of the simulator's valve (no stem effects) for a
     small move around the output ``at`` (output units, range 0..100, nominal at ``bias``)."""
-    plant = np.zeros((1, 16))
-    plant[0, 10] = rangeability
+    plant = np.zeros((1, 14))  # the kernel's plant row: valve parameters in columns 4-9
+    plant[0, 4] = rangeability
     vp = _valve_params(kind, plant, 0, 1.0, -bias, 100.0 - bias, table)
 
     def process_input(u: float) -> float:
