@@ -19,6 +19,7 @@ from tomlkit.exceptions import TOMLKitError
 from tomlkit.items import AoT, InlineTable, Item, Table
 
 from robustff.atomic import write_text_atomic
+from robustff.case.disturbance_section import is_named_form
 from robustff.case.loader import parse_case
 from robustff.case.record_section import covering_duration, records_folder
 from robustff.case.schema import (
@@ -366,8 +367,47 @@ def _is_distribution(value: Any) -> bool:
 
 def _merge_document(document: tomlkit.TOMLDocument, plain: dict[str, Any]) -> None:
     uncertainty = plain.pop("uncertainty")
+    _follow_renames(document, plain)
     _merge_table(document, plain, _DEFAULTS, keep=("uncertainty",))
     _merge_uncertainty(document, uncertainty)
+
+
+def _follow_renames(document: tomlkit.TOMLDocument, plain: dict[str, Any]) -> None:
+    """Renamed ``[disturbance.NAME]`` tables keep their place and comments.
+
+    When the document's named disturbances and the case's first ones differ only by new names
+    at the same positions (more may follow: added ones), each old table (and its
+    ``[feedforward.NAME]`` override) is moved under its new name; otherwise the merge would drop
+    the old table and append the new one at the end, changing the disturbances' order.
+    """
+    current, want = document.get("disturbance"), plain.get("disturbance")
+    if not (isinstance(current, Table) and is_named_form(current.unwrap())
+            and isinstance(want, dict) and is_named_form(want)):
+        return
+    old, new = list(current), list(want)
+    renames = {before: after for before, after in zip(old, new, strict=False) if before != after}
+    if (len(new) < len(old) or not renames or set(renames) & set(new)
+            or set(renames.values()) & set(old)):
+        return  # nothing renamed, or tables removed or reordered: the merge handles it
+    current.update({renames.get(name, name): current[name] for name in old})
+    for name in renames:
+        del current[name]
+    _reorder(current, [renames.get(name, name) for name in old])
+    overrides = document.get("feedforward")
+    if isinstance(overrides, Table):
+        for before, after in renames.items():
+            if before in overrides:
+                overrides[after] = overrides[before]
+                del overrides[before]
+
+
+def _reorder(table: Table, order: list[str]) -> None:
+    """Put the sub-tables of ``table`` in ``order`` (tomlkit appends renamed keys last)."""
+    items = [(name, table[name]) for name in order]
+    for name in order:
+        del table[name]
+    for name, item in items:
+        table.add(name, item)
 
 
 def _merge_table(
@@ -382,7 +422,10 @@ def _merge_table(
             if defaults is not None and key in defaults and value == sub_defaults:
                 continue  # a default the original left out stays out
             inline = isinstance(target, InlineTable) or _is_distribution(value)
-            target[key] = _item(value, inline=inline)
+            item = _item(value, inline=inline)
+            if isinstance(item, Table) and not item.is_super_table():
+                item.add(tomlkit.nl())  # a blank line before whatever table follows it
+            target[key] = item
             continue
         _merge_value(target, key, value, sub_defaults if isinstance(sub_defaults, dict) else None)
 
@@ -454,3 +497,10 @@ def _merge_uncertainty(document: Any, want: dict[str, Any]) -> None:
             _merge_value(section, key, value, None)
         else:
             section[key] = _item(value, inline=True)
+    quoted = [key for key in section if "." in key]
+    if not placed and quoted != list(rest):  # a renamed key was appended: back to its place
+        items = [(key, section[key]) for key in rest]
+        for key in rest:
+            del section[key]
+        for key, item in items:
+            section.add(key, item)

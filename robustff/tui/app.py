@@ -27,6 +27,8 @@ from robustff.case import Case, UncertainParameter
 from robustff.errors import CaseError, RobustffError
 from robustff.tui import editing
 from robustff.tui.dialogs import ChoiceScreen
+from robustff.tui.disturbance_actions import DisturbanceActions
+from robustff.tui.disturbance_edits import is_setting
 from robustff.tui.file_actions import FileActions
 from robustff.tui.fit_actions import FitActions
 from robustff.tui.key_order import KeyOrder
@@ -38,6 +40,7 @@ from robustff.tui.messages import (
     RangeFixAsked,
     RowAdded,
     RowRemoved,
+    field_id,
 )
 from robustff.tui.models_pane import FieldRow, ModelsPane
 from robustff.tui.pictures import PicturesPane
@@ -61,7 +64,8 @@ MARGINS_PENDING = "Margins: computed with the full run..."
 _ROW_SETS = frozenset({"feedback.tuning", "feedback.form", "feedback.structure"})
 
 
-class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, App[None]):
+class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions,
+                DisturbanceActions, App[None]):
     """Edit a case and watch the feedforward risk move.
 
     Parameters
@@ -91,6 +95,7 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         Binding("f5", "rerun", "Rerun", priority=True),
         Binding("f6", "robust", "Robust", priority=True),
         Binding("f7", "fit_data", "Fit", priority=True),
+        Binding("f8", "add_disturbance", "Add disturbance", priority=True, show=False),
         Binding("escape", "leave_field", "Leave field", show=False),
         Binding("f9", "caution", "Caution", show=False, priority=True),
         Binding("ctrl+q", "quit", "Quit", priority=True),
@@ -107,6 +112,8 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
         "robust": ("Robust feedforward", "search feedforward settings robust to the "
                                          "uncertainty (F6)"),
         "fit_data": ("Fit data", "fit a model to a bump test (F7)"),
+        "add_disturbance": ("Add a disturbance", "one more disturbance to the CV, measured or "
+                                                 "not (F8)"),
         "caution": ("Caution", "show the full caution, or fold it to one sentence (F9)"),
     }
 
@@ -179,6 +186,9 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
     # --- edits ------------------------------------------------------------------------------
 
     def on_field_edited(self, message: FieldEdited) -> None:
+        if is_setting(self.case, message.field):  # a named disturbance's name, unit, measured
+            self.edit_disturbance_setting(message)
+            return
         row = self.query_one(ModelsPane).row(message.field)
         try:
             case = editing.edit_field(self.case, message.field, message.text)
@@ -255,18 +265,24 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions, A
             self.show_design()
         self.start_run()
 
-    def rebuild_panes(self) -> None:
-        """Recompose the editor panes from the current case (rows added, reload, restore)."""
-        focused = self.focused.id if self.focused is not None else None
+    def rebuild_panes(self, focus: str | None = None) -> None:
+        """Recompose the editor panes from the current case (rows added, reload, restore);
+        the focus goes to ``focus`` (a field such as ``"disturbance.feed.gain"``) when given
+        and shown, else stays on the widget that had it."""
+        focused = (f"in-{field_id(focus)}" if focus else
+                   self.focused.id if self.focused is not None else None)
 
         async def rebuild() -> None:
             for pane in (self.query_one(ModelsPane), self.query_one(UncertaintyPane)):
                 pane.case = self.case
                 await pane.recompose()
             self.show_design()  # the new widgets start blank
-            if focused:  # keep the user's place in the pane (the rebuild moved focus)
-                for widget in self.query(f"#{focused}"):
-                    widget.focus()
+            found = self.query(f"#{focused}") if focused else None
+            if found:  # keep the user's place in the pane (the rebuild moved focus)
+                widget = found.first()
+                self.set_focus(widget, scroll_visible=False)
+                # scrolled to once laid out (a widget just mounted has no place yet)
+                self.call_after_refresh(widget.scroll_visible, animate=False)
 
         # A worker (its own task): awaiting the new widgets' mounting from one of the app's
         # own messages would hold the app's queue that the mounting goes through.

@@ -1,4 +1,5 @@
-"""Character charts for the studio: the IAE-ratio histogram and the CV band plot.
+"""Character charts for the studio: the IAE-ratio histogram, the CV band plot (with the allowed
+band of the CV when the case gives one) and a recorded disturbance trace.
 
 Drawn with plain characters into :class:`rich.text.Text` (Rich ships with Textual), so they work
 in any terminal, over SSH, with ``NO_COLOR`` and with 16 colours: every series has its own
@@ -12,16 +13,18 @@ from rich.text import Text
 
 from robustff.stats import ratio_histogram
 
-__all__ = ["histogram_chart", "band_chart", "BAND_GLYPHS"]
+__all__ = ["histogram_chart", "band_chart", "trace_chart", "BAND_GLYPHS", "TRACE_GLYPH"]
 
 _EIGHTHS = " ▁▂▃▄▅▆▇█"
 _LABEL = 8  # width of the y-axis labels
 #: Glyphs of the band plot: fb band, fbff band, both bands, fb median, fbff median, zero line.
 BAND_GLYPHS = {"fb": "░", "fbff": "▒", "both": "▓", "fb_median": "o", "fbff_median": "x",
-               "zero": "·"}
+               "zero": "·", "limit": "╌"}
+#: Glyph of a recorded trace (each column spans the record's lowest to highest value there).
+TRACE_GLYPH = "█"
 _STYLES = {"fb": "blue", "fbff": "magenta", "both": "cyan", "fb_median": "bold blue",
-           "fbff_median": "bold magenta", "zero": "dim", "better": "green", "worse": "red",
-           "line": "bold yellow"}
+           "fbff_median": "bold magenta", "zero": "dim", "limit": "bold red", "better": "green",
+           "worse": "red", "line": "bold yellow"}
 
 
 def _fmt(value: float) -> str:
@@ -97,7 +100,8 @@ def _resample(times: np.ndarray, bands: np.ndarray, columns: int) -> np.ndarray:
     return bands[:, :, picks]
 
 
-def _band_cells(grid: np.ndarray, low: float, high: float, rows: int, zero: int) -> np.ndarray:
+def _band_cells(grid: np.ndarray, low: float, high: float, rows: int, zero: int,
+                limits: np.ndarray | None = None) -> np.ndarray:
     """What each character cell shows: a key of :data:`BAND_GLYPHS`, ``"zero"`` or ``""``.
 
     Parameters
@@ -110,6 +114,8 @@ def _band_cells(grid: np.ndarray, low: float, high: float, rows: int, zero: int)
         Character rows of the plot area.
     zero : int
         Row of the zero deviation line.
+    limits : ndarray, shape (2, C), optional
+        Lower and upper edge of the allowed band at each column, CV units.
 
     Returns
     -------
@@ -127,6 +133,11 @@ def _band_cells(grid: np.ndarray, low: float, high: float, rows: int, zero: int)
             for row in range(top[column], bottom[column] + 1):
                 overlap = arm and cells[row, column] in ("fb", "both")
                 cells[row, column] = "both" if overlap else name
+    if limits is not None:  # over the bands: the allowed band is what they are judged by
+        for edge in limits:
+            for column, row in enumerate(_cell_rows(edge, low, high, rows)):
+                if row >= 0:
+                    cells[row, column] = "limit"
     # medians are drawn last so they stay visible on top of the bands
     for arm, name in enumerate(("fb_median", "fbff_median")):
         middle = _cell_rows(grid[arm, 1], low, high, rows)
@@ -136,7 +147,8 @@ def _band_cells(grid: np.ndarray, low: float, high: float, rows: int, zero: int)
 
 
 def band_chart(times: np.ndarray, bands: np.ndarray, width: int, height: int,
-               cv_label: str, time_unit: str) -> Text:
+               cv_label: str, time_unit: str, band: float | None = None,
+               setpoint: np.ndarray | None = None) -> Text:
     """Band plot of the CV: P5..P95 and median over time for both arms.
 
     Parameters
@@ -147,6 +159,11 @@ def band_chart(times: np.ndarray, bands: np.ndarray, width: int, height: int,
         P5, P50, P95 per arm (arm 0 feedback only), CV units.
     width, height : int
         Character cells available (at least 24 x 8).
+    band : float, optional
+        ``[signals.controlled] band``: the allowed deviation from the setpoint, CV units; drawn
+        as two lines at setpoint +- band (one more legend line).
+    setpoint : ndarray, shape (P,), optional
+        The setpoint at ``times`` as a deviation from the start, CV units (default 0).
     """
     width, height = max(width, 24), max(height, 8)
     columns, rows = width - _LABEL, height - 4
@@ -155,10 +172,16 @@ def band_chart(times: np.ndarray, bands: np.ndarray, width: int, height: int,
     grid = _resample(times, bands, columns)
     low = float(np.nanmin(np.minimum(grid.min(axis=(0, 1)), 0.0)))
     high = float(np.nanmax(np.maximum(grid.max(axis=(0, 1)), 0.0)))
+    limits = None
+    if band is not None:
+        centre = np.zeros(times.size) if setpoint is None else np.asarray(setpoint, dtype=float)
+        centre = centre[np.linspace(0, times.size - 1, columns).round().astype(int)]
+        limits = np.stack([centre - band, centre + band])
+        low, high = min(low, float(limits[0].min())), max(high, float(limits[1].max()))
     if not high > low:
         low, high = low - 1.0, high + 1.0
     zero = int(_cell_rows(np.array([0.0]), low, high, rows)[0])
-    cells = _band_cells(grid, low, high, rows, zero)
+    cells = _band_cells(grid, low, high, rows, zero, limits)
     text = Text(f"{cv_label}: P5-P95 band and median, deviation from start\n", style="bold")
     for row in range(rows):
         label = _fmt(high) if row == 0 else _fmt(low) if row == rows - 1 else (
@@ -173,4 +196,60 @@ def band_chart(times: np.ndarray, bands: np.ndarray, width: int, height: int,
     g = BAND_GLYPHS
     text.append(f"{g['fb']} fb  {g['fbff']} fbff  {g['both']} both  median: "
                 f"{g['fb_median']} fb, {g['fbff_median']} fbff")
+    if band is not None:
+        unit = cv_label.rsplit("[", 1)[1].rstrip("]") if cv_label.endswith("]") else ""
+        text.append(f"\n{g['limit']} allowed band: setpoint +-{band:g} {unit}".rstrip())
+    return text
+
+
+def trace_chart(times: np.ndarray, values: np.ndarray, width: int, height: int,
+                title: str, unit: str, time_unit: str) -> Text:
+    """A recorded trace over time: each column spans the lowest to the highest value recorded
+    in its time slice, so steps, drifts and the noise's spread all show.
+
+    Parameters
+    ----------
+    times : ndarray, shape (M,)
+        Time units, increasing (the simulated window's time, the record's start at its event).
+    values : ndarray, shape (M,)
+        Deviation from the record's baseline, disturbance units.
+    width, height : int
+        Character cells available (at least 24 x 7).
+    title : str
+        First line (which record, which disturbance).
+    unit : str
+        The disturbance's unit.
+    """
+    width, height = max(width, 24), max(height, 7)
+    columns, rows = width - _LABEL, height - 3
+    if times.size < 2:
+        return Text(f"{title}: the record holds fewer than two rows")
+    slot = np.clip(((times - times[0]) / (times[-1] - times[0]) * columns).astype(int),
+                   0, columns - 1)
+    lowest = np.full(columns, np.nan)
+    highest = np.full(columns, np.nan)
+    np.fmin.at(lowest, slot, values)
+    np.fmax.at(highest, slot, values)
+    low = float(min(np.nanmin(values), 0.0))
+    high = float(max(np.nanmax(values), 0.0))
+    if not high > low:
+        low, high = low - 1.0, high + 1.0
+    top, bottom = _cell_rows(highest, low, high, rows), _cell_rows(lowest, low, high, rows)
+    zero = int(_cell_rows(np.array([0.0]), low, high, rows)[0])
+    text = Text(title + "\n", style="bold")
+    for row in range(rows):
+        label = _fmt(high) if row == 0 else _fmt(low) if row == rows - 1 else (
+            "0" if row == zero else "")
+        text.append(label.rjust(_LABEL - 1) + "│")
+        for column in range(columns):
+            if top[column] >= 0 and top[column] <= row <= bottom[column]:
+                text.append(TRACE_GLYPH, _STYLES["fbff"])
+            else:
+                text.append(BAND_GLYPHS["zero"] if row == zero else " ", _STYLES["zero"])
+        text.append("\n")
+    span = f"{times[0]:g} .. {times[-1]:g} {time_unit}"
+    text.append(" " * (_LABEL - 1) + "└" + "─" * columns + "\n")
+    text.append(" " * _LABEL + span.rjust(columns) + "\n")
+    text.append(f"{TRACE_GLYPH} lowest to highest recorded in each column"
+                + (f", {unit}" if unit else ""))
     return text

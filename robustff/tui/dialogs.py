@@ -42,6 +42,16 @@ The loop as installed
   SIMC's settings), tau_c, scans per primary scan. A case without one
   gets it in the case file ([secondary]).
 
+Disturbances
+  F8  add a disturbance (a default FOPDT with a new name; a case with
+      one [disturbance] table then names it, e.g. cold_water_flow)
+  A case that names its disturbances shows each: name (renaming moves
+  its events, ranges and [feedforward.NAME]), unit, measured yes/no
+  (no: feedback alone; its transmitter, transmitter ranges and
+  [feedforward.NAME] go), path model, meter lag and noise, and
+  [remove NAME...] (asks first; its events, ranges and override go
+  too; the last disturbance or the only events cannot be removed).
+
 Files
   Ctrl+S  save the case (atomic; file mode and comments kept where
           possible, else you are told; asks first if it does not
@@ -82,7 +92,15 @@ Reading the results
   Unstable loops: plants whose closed loop is unstable, per arm.
   Histogram: IAE of fbff divided by fb per plant; ┃ marks 1.0 (right
   of it feedforward hurts).
-  Band plot: ░ fb, ▒ fbff, ▓ both; medians: o fb, x fbff.
+  Band plot: ░ fb, ▒ fbff, ▓ both; medians: o fb, x fbff; ╌ the
+  allowed band setpoint +- [signals.controlled] band, when given.
+  Record: a recorded disturbance trace as replayed (each column spans
+  its lowest to highest value there), in the disturbance's unit.
+  Where feedforward helps (one chart per measured disturbance): the
+  error ratio fbff/fb over frequency (log axis, rad per time unit),
+  ░ P5-P95 of the plants, o P50; below the ┄ line at 1 feedforward
+  reduces the error. ┃ the crossover: up to it, it helps in 90 % of
+  the plants; with a record, the share of its variance below it.
   The caution folds to one sentence after the first results; F9 shows
   it in full.
 

@@ -36,8 +36,8 @@ if TYPE_CHECKING:
                         what: str = "the last edit") -> None:
             """Make ``case`` current: autosave, refresh the design, restart the study."""
 
-        def rebuild_panes(self) -> None:
-            """Recompose the editor panes from the current case."""
+        def rebuild_panes(self, focus: str | None = None) -> None:
+            """Recompose the editor panes from the current case (then focus ``focus``)."""
 
         def show_design(self) -> None:
             """Show the nominal design of the current case."""

@@ -7,7 +7,8 @@ a laggy SSH link, ``tmux send-keys``) would then land in the field the burst sta
 
 :class:`KeyOrder` (a mixin of the studio app) lets one key through at a time: while a key and
 everything it set off (focus moves, edits, dialogs being mounted) is still being processed, the
-keys behind it wait in a backlog, and each is released only once the screen has settled.
+keys behind it wait in a backlog, and each is released only once the screen has settled (the
+editor panes being rebuilt after an edit count as not settled: the keys are for the new rows).
 """
 
 from __future__ import annotations
@@ -21,13 +22,18 @@ from textual.message_pump import MessagePump
 
 from robustff.tui.host import StudioHost
 
-__all__ = ["KeyOrder", "SETTLE_SECONDS"]
+__all__ = ["KeyOrder", "SETTLE_SECONDS", "REBUILD_SECONDS"]
 
 #: Longest wait (seconds) for the screen to settle before the next key is released anyway
 #: (a widget that never falls idle must not hold the keyboard).
 SETTLE_SECONDS = 1.0
+#: Longest extra wait (seconds) while the editor panes are being rebuilt (they always finish;
+#: a loaded machine may take a few seconds to mount a large case's rows).
+REBUILD_SECONDS = 10.0
 
 _ORDERED = (events.Key, events.Paste)
+#: Most time one turn of the event loop counts towards the settling limit (seconds).
+_TURN_SECONDS = 0.05
 
 
 class KeyOrder(StudioHost):
@@ -78,16 +84,26 @@ class KeyOrder(StudioHost):
         """Wait until the app and every widget of the screen have empty message queues.
 
         Checked twice in a row, with a turn of the event loop between, so a widget that is
-        still handling a message (and may post more) is waited for too.
+        still handling a message (and may post more) is waited for too. The time limit counts
+        the turns of the event loop, each at most :data:`_TURN_SECONDS`: a handler that holds
+        the loop for long (a design recomputed while a study thread runs) is progress, and must
+        not use up the limit before the messages it posts are seen.
         """
         loop = asyncio.get_running_loop()
-        deadline = loop.time() + SETTLE_SECONDS
-        quiet = 0
-        while quiet < 2 and loop.time() < deadline:
+        waited, quiet = 0.0, 0
+        while quiet < 2 and waited < SETTLE_SECONDS + (
+                REBUILD_SECONDS if self._rebuilding() else 0.0):
+            before = loop.time()
             await asyncio.sleep(0)
-            idle = self._key_released is None and all(
+            waited += min(loop.time() - before, _TURN_SECONDS)
+            idle = self._key_released is None and not self._rebuilding() and all(
                 node._message_queue.empty() for node in self._live_nodes())
             quiet = quiet + 1 if idle else 0
+
+    def _rebuilding(self) -> bool:
+        """True while the editor panes are being recomposed (the app's ``rebuild`` workers)."""
+        return any(worker.group == "rebuild" and not worker.is_finished
+                   for worker in self.workers)
 
     def _live_nodes(self) -> list[MessagePump]:
         try:

@@ -5,7 +5,7 @@ from __future__ import annotations
 from textual.message import Message
 
 __all__ = ["FieldEdited", "DistributionEdited", "KindChanged", "RowAdded", "RowRemoved",
-           "RangeFixAsked", "field_id"]
+           "RangeFixAsked", "DisturbanceAddAsked", "DisturbanceRemoveAsked", "field_id"]
 
 
 def field_id(name: str) -> str:
@@ -60,3 +60,15 @@ class RangeFixAsked(Message):
     def __init__(self, key: str) -> None:
         super().__init__()
         self.key = key
+
+
+class DisturbanceAddAsked(Message):
+    """The engineer asked for one more disturbance."""
+
+
+class DisturbanceRemoveAsked(Message):
+    """The engineer asked to remove a disturbance (the app asks to confirm)."""
+
+    def __init__(self, disturbance: str) -> None:
+        super().__init__()
+        self.disturbance = disturbance

@@ -63,7 +63,8 @@ def risk_text(view: StudyView) -> Text:
                     f"{100 * low:.1f}-{100 * high:.1f} %; {view.harm_count} of {view.harm_n})\n")
     warn = "  ⚠ check" if view.unstable_fb or view.unstable_fbff else ""
     text.append(f"Unstable loops: fb {view.unstable_fb}, fbff {view.unstable_fbff}{warn}")
-    for line in (*view.design_lines, *view.margin_lines, *view.driver_lines):
+    for line in (*view.design_lines, *view.compensator_lines, *view.margin_lines,
+                 *view.driver_lines):
         text.append("\n" + line, "bold" if line.startswith("⚠") else "")
     return text
 

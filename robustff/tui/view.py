@@ -11,6 +11,15 @@ from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 
+from robustff.tui.disturbance_view import (
+    FrequencyView,
+    RecordView,
+    compensator_lines,
+    frequency_views,
+    record_views,
+    setpoint_profile,
+)
+
 if TYPE_CHECKING:
     from robustff.study import StudyResult
     from robustff.study.summary_types import Arm, Summary
@@ -80,6 +89,16 @@ class StudyView:
         The uncertain parameters ranked by their rank correlation with the IAE ratio.
     design_lines : list of str
         With several feedforward designs (``[[design]]``): one line each, on the same plants.
+    compensator_lines : list of str
+        With named disturbances: each one's compensator (designed from the nominal models).
+    frequencies : tuple of FrequencyView
+        Where in frequency feedforward helps, per measured disturbance.
+    records : tuple of RecordView
+        The recorded disturbance traces replayed.
+    cv_band : float or None
+        ``[signals.controlled] band``, CV units (None: not given).
+    setpoint : ndarray, shape (P,) or None
+        The setpoint at ``times`` as a deviation from its start, CV units.
     """
 
     samples: int
@@ -102,6 +121,11 @@ class StudyView:
     margin_lines: tuple[str, ...] = ()
     driver_lines: tuple[str, ...] = ()
     design_lines: tuple[str, ...] = ()
+    compensator_lines: tuple[str, ...] = ()
+    frequencies: tuple[FrequencyView, ...] = ()
+    records: tuple[RecordView, ...] = ()
+    cv_band: float | None = None
+    setpoint: np.ndarray | None = None
 
 
 def verdict(fb: float, fbff: float) -> str:
@@ -216,14 +240,18 @@ def build_view(result: StudyResult, summary: Summary, quick: bool) -> StudyView:
     # The interval is None only without usable samples (probability None too); NaN keeps the
     # view's tuple of floats.
     low, high = (float("nan") if bound is None else bound for bound in harm["ci95"])
+    times = np.asarray(result.envelope.times, dtype=float)
     return StudyView(
         samples=result.samples, requested=result.requested, partial=result.partial, quick=quick,
         elapsed=result.elapsed, rows=[_row(summary, m) for m in TABLE_METRICS],
         harm_probability=harm["probability"], harm_interval=(low, high),
         harm_count=int(harm["count"]), harm_n=int(harm["n"]),
         unstable_fb=summary["unstable"]["fb"], unstable_fbff=summary["unstable"]["fbff"],
-        ratio=ratio, times=np.asarray(result.envelope.times, dtype=float), bands=bands,
+        ratio=ratio, times=times, bands=bands,
         cv_label=result.case.signals.controlled.label(), time_unit=result.case.time_unit,
         margin_lines=margin_lines(summary), driver_lines=driver_lines(summary),
-        design_lines=design_lines(summary),
+        design_lines=design_lines(summary), compensator_lines=compensator_lines(result),
+        frequencies=frequency_views(result), records=record_views(result.case),
+        cv_band=result.case.signals.controlled.band,
+        setpoint=setpoint_profile(result.case, times),
     )
