@@ -42,16 +42,6 @@ The loop as installed
   SIMC's settings), tau_c, scans per primary scan. A case without one
   gets it in the case file ([secondary]).
 
-Disturbances
-  F8  add a disturbance (a default FOPDT with a new name; a case with
-      one [disturbance] table then names it, e.g. cold_water_flow)
-  A case that names its disturbances shows each: name (renaming moves
-  its events, ranges and [feedforward.NAME]), unit, measured yes/no
-  (no: feedback alone; its transmitter, transmitter ranges and
-  [feedforward.NAME] go), path model, meter lag and noise, and
-  [remove NAME...] (asks first; its events, ranges and override go
-  too; the last disturbance or the only events cannot be removed).
-
 Files
   Ctrl+S  save the case (atomic; file mode and comments kept where
           possible, else you are told; asks first if it does not
@@ -83,6 +73,16 @@ Models from plant data
       process or disturbance model (to 4 significant digits; times
       converted to the case's unit when the data's unit is given, else
       assumed equal) and reruns; [p] saves a PNG/SVG picture.
+
+Disturbances
+  F8  add a disturbance (a default FOPDT with a new name; a case with
+      one [disturbance] table then names it, e.g. cold_water_flow)
+  A case that names its disturbances shows each: name (renaming moves
+  its events, ranges and [feedforward.NAME]), unit, measured yes/no
+  (no: feedback alone; its transmitter, transmitter ranges and
+  [feedforward.NAME] go), path model, meter lag and noise, and
+  [remove NAME...] (asks first; its events, ranges and override go
+  too; the last disturbance or the only events cannot be removed).
 
 Reading the results
   fb = feedback only, fbff = feedback with feedforward (as in the
