@@ -16,6 +16,7 @@ from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
+from robustff.case import balance_section
 from robustff.case.disturbance_section import (
     is_named_form,
     read_named_disturbances,
@@ -32,8 +33,10 @@ from robustff.case.schema import (
     CONTROLLER_STRUCTURES,
     DESIGN_NAME_CHARACTERS,
     EVENT_KINDS,
+    FEEDFORWARD_LAWS,
     FEEDFORWARD_STRUCTURES,
     TIME_UNITS,
+    TRIM_MODES,
     Case,
     DesignSpec,
     Event,
@@ -46,7 +49,7 @@ from robustff.case.schema import (
     StudySpec,
 )
 from robustff.case.secondary_section import read_secondary
-from robustff.case.uncertainty_section import INVALID_BLOCK, read_uncertainty
+from robustff.case.uncertainty_section import INVALID_BLOCK, Models, read_uncertainty
 from robustff.case.valve_section import read_valve
 from robustff.errors import CaseError
 from robustff.plant.models import MODEL_KINDS, MODEL_PARAMETERS, SensorModel, TransferModel
@@ -149,13 +152,29 @@ def _build_case(problems: Problems, raw: dict[str, Any], base_dir: Path | None =
     if title is not None and not title.strip():
         problems.add("title", "must not be empty", title)
     time_unit = top.text("time_unit", choices=TIME_UNITS)
+    balance_form = balance_section.is_balance_process(raw.get("process"))
+    balance = (balance_section.read_balance_process(problems, raw["process"]) if balance_form
+               else None)
     for name in _REQUIRED_TABLES:
-        if name not in raw:
+        if name not in raw and not (name == "disturbance" and balance_form):
             problems.add(name, f"missing table [{name}]")
-    process = _read_model(problems, raw, "process")
+    if balance_form:
+        process = balance.process_model() if balance is not None else None
+    else:
+        process = _read_model(problems, raw, "process")
     feedback = _read_feedback(problems, raw.get("feedback", {}))
+    if balance is not None:
+        feedback = balance_section.balance_feedback(problems, raw.get("feedback"), balance,
+                                                    feedback)
     named = None
-    if is_named_form(raw.get("disturbance")):
+    balance_inputs: tuple = ()
+    if balance_form:  # the plant's own inputs are its disturbances
+        feedforward = _read_feedforward(problems, raw.get("feedforward", {}))
+        sensor = _read_sensor(problems, raw.get("sensor", {}))
+        if balance is not None and sensor is not None:
+            balance_inputs = balance_section.balance_disturbances(balance, sensor, time_unit)
+        disturbance = balance_inputs[0].model if balance_inputs else None
+    elif is_named_form(raw.get("disturbance")):
         named = read_named_disturbances(problems, raw, _read_model, _read_sensor,
                                         _read_feedforward, _merged_feedforward)
         disturbance = named.inputs[0].model if named is not None else None
@@ -168,29 +187,42 @@ def _build_case(problems: Problems, raw: dict[str, Any], base_dir: Path | None =
         sensor = _read_sensor(problems, raw.get("sensor", {}))
     valve = read_valve(problems, raw.get("valve"))
     signals = _read_signals(problems, raw.get("signals", {}))
+    if balance is not None:
+        signals = balance_section.balance_signals(problems, raw.get("signals"), balance, signals,
+                                                  time_unit)
     if feedback is not None and signals is not None:
         _check_spans(problems, feedback, signals)
     simulation = _read_simulation(problems, raw)
     secondary = read_secondary(problems, raw.get("secondary"),
                                simulation.substeps if simulation is not None else None)
     events = _read_events(problems, raw, simulation, base_dir, time_unit)
-    if events is not None:
+    if events is not None and not balance_form:  # a balance plant names its inputs itself
         events = _check_event_disturbances(problems, events, raw.get("disturbance"), named)
     if simulation is not None and events is not None:
         simulation = records_cover(problems, simulation, events, MAX_STEPS, time_unit or "")
     study = _read_study(problems, raw.get("study", {}))
     recommendation = _read_recommendation(problems, raw.get("recommendation", {}))
     designs = _read_designs(problems, raw)
-    models = {"process": process,
-              "valve": valve if valve is not None or "valve" not in raw else INVALID_BLOCK,
-              "secondary": secondary.model if secondary is not None
-              else INVALID_BLOCK if "secondary" in raw else None}
-    if named is None:
+    models: Models = {"process": process,
+                      "valve": valve if valve is not None or "valve" not in raw
+                      else INVALID_BLOCK,
+                      "secondary": secondary.model if secondary is not None
+                      else INVALID_BLOCK if "secondary" in raw else None}
+    if balance is not None:  # its parameters are the physical ones; its paths follow from them
+        models.update({"process": balance.plant, "disturbance": balance.plant,
+                       "sensor": sensor})
+    elif named is None:
         models.update({"disturbance": disturbance, "sensor": sensor})
     else:
         for item in named.inputs:
             models.update({item.key_prefix: item.model, item.sensor_prefix: item.sensor})
     uncertainty, correlations = read_uncertainty(problems, raw.get("uncertainty", {}), models)
+    if balance is not None:
+        balance_section.check_balance_case(problems, raw, balance, feedforward, events,
+                                           designs)
+        balance_section.check_operating_range(problems, balance, uncertainty, events, feedback)
+    elif not balance_form:
+        balance_section.refuse_balance_keys(problems, feedforward, designs)
     parts = (title, time_unit, process, disturbance, feedback, feedforward, sensor, signals,
              simulation, events, study, uncertainty, correlations, designs,
              recommendation)
@@ -202,8 +234,8 @@ def _build_case(problems: Problems, raw: dict[str, Any], base_dir: Path | None =
         events=events, sensor=sensor, signals=signals, uncertainty=uncertainty,  # type: ignore[arg-type]
         correlations=correlations, study=study, designs=designs,  # type: ignore[arg-type]
         recommendation=recommendation,  # type: ignore[arg-type]
-        valve=valve, secondary=secondary,
-        disturbances=named.inputs if named is not None else (),
+        valve=valve, secondary=secondary, balance=balance,
+        disturbances=named.inputs if named is not None else balance_inputs,
     )
 
 
@@ -391,7 +423,20 @@ def _read_feedforward(
         input_filter=table.number(
             "input_filter", None, minimum=0.0,
             what=f"the filter time constant on the feedforward input, {_UNIT}"),
+        law=table.text("law", default.law, FEEDFORWARD_LAWS) or default.law,
+        trim=table.text("trim", default.trim, TRIM_MODES) or default.trim,
     )
+    if spec.law == "balance":
+        if not table.has("trim"):  # a ratio law is trimmed as a ratio (docs/balance-plants.md)
+            spec = replace(spec, trim="multiply")
+        if not table.has("structure"):  # the balance law itself is static
+            spec = replace(spec, structure="static")
+        elif structure == "none":
+            problems.add(join(path, "structure"), "the balance law needs a structure, 'static' "
+                         "or 'lead-lag' (its dynamics)", structure)
+    elif spec.trim != "add":
+        problems.add(join(path, "trim"), "used only with law = 'balance' (the feedback of the "
+                     "linear law adds to the compensator's output)", spec.trim)
     if structure == "none":
         table.forbid("input_filter", "used only with a feedforward (structure is 'none')")
     if structure is not None and structure not in ("lead-lag", "lead-lag-delay"):
@@ -419,6 +464,8 @@ def _merged_feedforward(base: dict[str, Any], overrides: dict[str, Any]) -> dict
         for key, structures in _STRUCTURE_KEYS.items():
             if structure not in structures:
                 merged.pop(key, None)
+    if "law" in overrides and overrides["law"] != "balance":
+        merged.pop("trim", None)  # a linear design has no trim to inherit
     merged.update(overrides)
     return merged
 

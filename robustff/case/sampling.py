@@ -30,6 +30,7 @@ from statistics import NormalDist
 
 import numpy as np
 
+from robustff.case.balance_sampling import balance_plant_batch
 from robustff.case.schema import Case, Correlation, Distribution, UncertainParameter
 from robustff.errors import CaseError
 from robustff.plant.models import PlantBatch
@@ -318,6 +319,8 @@ def plant_batch(case: Case, names: Sequence[str], values: np.ndarray) -> PlantBa
     values = np.asarray(values, dtype=np.float64)
     if values.ndim != 2 or values.shape[1] != len(names):
         raise ValueError(f"values must have shape (n, {len(names)}), got {values.shape}")
+    if case.balance is not None:
+        return balance_plant_batch(case, names, values)
     batch = nominal_plants(case, values.shape[0])
     for column, name in enumerate(names):
         batch.set_parameter(name, np.ascontiguousarray(values[:, column]))

@@ -11,6 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from robustff.case.balance_spec import BalanceSpec
 from robustff.case.record import DisturbanceRecord
 from robustff.plant.models import SensorModel, TransferModel
 from robustff.plant.valve import VALVE_PARAMETER_UNITS, ValveModel
@@ -20,6 +21,9 @@ __all__ = [
     "EVENT_KINDS",
     "DISTRIBUTION_KINDS",
     "CONTROLLER_STRUCTURES",
+    "FEEDFORWARD_LAWS",
+    "TRIM_MODES",
+    "BalanceSpec",
     "FeedbackSpec",
     "FeedforwardSpec",
     "DesignSpec",
@@ -49,6 +53,11 @@ EVENT_KINDS: tuple[str, ...] = (
 )
 DISTRIBUTION_KINDS: tuple[str, ...] = ("uniform", "relative", "normal", "triangular", "lognormal")
 FEEDFORWARD_STRUCTURES: tuple[str, ...] = ("none", "static", "lead-lag", "lead-lag-delay")
+#: How the feedforward is computed: the linear compensator -Gd/Gp, or the steady-state balance
+#: of a balance plant solved for the manipulated flow.
+FEEDFORWARD_LAWS: tuple[str, ...] = ("linear", "balance")
+#: How the feedback output trims the balance law's flow.
+TRIM_MODES: tuple[str, ...] = ("add", "multiply")
 #: How the control system writes the PID algorithm (see :mod:`robustff.design.controller_forms`).
 CONTROLLER_STRUCTURES: tuple[str, ...] = ("ideal", "series", "parallel")
 
@@ -127,6 +136,14 @@ class FeedforwardSpec:
         Time constant of a first-order filter on the measured disturbance before the
         compensator, time units (None: no filter). Keeps transmitter noise off the valve at the
         cost of a slower feedforward.
+    law : {"linear", "balance"}
+        ``"linear"``: the compensator ``-Gd/Gp`` reduced to ``structure``; ``"balance"`` (balance
+        plants only): the steady-state balance solved for the manipulated flow at every scan,
+        with the lead-lag of ``structure`` on it.
+    trim : {"add", "multiply"}
+        With ``law = "balance"``: whether the feedback output adds to the computed flow or
+        multiplies it (a ratio trim, whose loop gain stays the same at every throughput; the
+        default with the balance law, set by the loader).
     """
 
     structure: str = "none"
@@ -135,6 +152,8 @@ class FeedforwardSpec:
     lag: float | None = None
     delay: float | None = None
     input_filter: float | None = None
+    law: str = "linear"
+    trim: str = "add"
 
 
 #: Characters a design name may use (it becomes part of column names in ``samples.csv``).
@@ -259,8 +278,9 @@ class Event:
         The recorded trace replayed from ``at`` (``disturbance-record`` only; its ``size`` is
         then the trace's largest deviation from its baseline, read from the file).
     disturbance : str
-        Name of the disturbance the event moves (``""``: the first, or only, one); unused by
-        setpoint steps.
+        Name of the disturbance the event moves (``""``: the first, or only, one); for a plant
+        built from balances, the input it moves (``"wild_flow"``, ...); unused by setpoint
+        steps.
     """
 
     kind: str
@@ -442,8 +462,13 @@ class Case:
     recommendation: RecommendationSpec = RecommendationSpec()
     #: Named disturbances (``[disturbance.NAME]``) in file order; empty for the single
     #: ``[disturbance]`` table, whose model and sensor are ``disturbance`` and ``sensor``. With
-    #: names, ``disturbance`` and ``sensor`` are the first named one's.
+    #: names, ``disturbance`` and ``sensor`` are the first named one's. For a plant built from
+    #: balances, its disturbance inputs, each with its path linearised at the operating point.
     disturbances: tuple[DisturbanceInput, ...] = ()
+    #: The plant built from balances (``[process] model = "blending-tank"``, ...); None for a
+    #: case of transfer-function models. ``process`` and the ``disturbances`` paths are then
+    #: its linearisation at the nominal operating point.
+    balance: BalanceSpec | None = None
     source_path: Path | None = field(default=None, compare=False)
     #: SHA-256 (hex) of the case file's bytes as read by ``load_case``; None for text cases.
     source_sha256: str | None = field(default=None, compare=False)
@@ -524,6 +549,9 @@ class Case:
         """Engineering unit of a plant parameter such as ``"process.gain"`` (from ``[signals]``)."""
         block, item, name = self.split_key(key)
         signals = self.signals
+        if block == "process" and self.balance is not None and (
+                name in self.balance.plant.parameter_names()):
+            return self.balance.plant.parameter(name).unit_text(self.time_unit)
         if block == "valve":
             return VALVE_PARAMETER_UNITS[name].format(time=self.time_unit)
         if block == "secondary" and self.secondary is not None:
@@ -544,8 +572,12 @@ class Case:
     def nominal_value(self, key: str) -> float:
         """Nominal value of a plant parameter such as ``"process.gain"``."""
         block, item, parameter = self.split_key(key)
+        if block == "process" and self.balance is not None and (
+                parameter in self.balance.plant.parameter_names()):
+            return self.balance.plant.parameters()[parameter]
         if item is not None:
             return float(getattr(item.sensor if block == "sensor" else item.model, parameter))
         owner = {"process": self.process, "valve": self.valve or ValveModel(),
+                 "sensor": self.sensor,  # a balance plant's one transmitter lag
                  "secondary": self.secondary.model if self.secondary else None}[block]
         return float(getattr(owner, parameter))

@@ -27,10 +27,12 @@ from robustff.case.schema import (
     UncertainParameter,
 )
 from robustff.errors import CaseError
+from robustff.plant.balance_plant import BalancePlant
 from robustff.plant.models import MODEL_PARAMETERS, SENSOR_PARAMETERS, SensorModel, TransferModel
 from robustff.plant.valve import VALVE_PARAMETERS, ValveModel
 
-__all__ = ["read_uncertainty", "NON_NEGATIVE_PARAMETERS", "UNCERTAIN_BLOCKS", "INVALID_BLOCK"]
+__all__ = ["read_uncertainty", "NON_NEGATIVE_PARAMETERS", "UNCERTAIN_BLOCKS", "INVALID_BLOCK",
+           "support", "check_balance_support", "Models"]
 
 #: Stands for a ``[valve]`` or ``[secondary]`` table that is present but has problems (None:
 #: absent), so that its uncertain parameters are not also said to lack their table.
@@ -59,7 +61,7 @@ _CHOICES = (
 )
 _HOW = 'name it "block.parameter", e.g. "process.gain" = { relative = 0.2 }'
 
-Models = dict[str, TransferModel | SensorModel | ValveModel | object | None]
+Models = dict[str, TransferModel | SensorModel | ValveModel | BalancePlant | object | None]
 Result = tuple[tuple[UncertainParameter, ...] | None, tuple[Correlation, ...] | None]
 
 
@@ -75,8 +77,13 @@ def read_uncertainty(problems: Problems, value: object, models: Models) -> Resul
         path = f"uncertainty.{key}"
         known, nominal = _check_key(problems, path, key, models)
         distribution = _read_distribution(problems, path, item)
+        model = models.get(key.partition(".")[0])
         if known and distribution is not None and nominal is not None:
-            _check_physical(problems, path, key, distribution, nominal)
+            if isinstance(model, BalancePlant):
+                check_balance_support(problems, path, model, key.partition(".")[2],
+                                      distribution, nominal)
+            else:
+                _check_physical(problems, path, key, distribution, nominal)
         if distribution is not None:
             parameters.append(UncertainParameter(key, distribution))
     correlations = _read_correlations(problems, raw.get("correlation"), [k for k, _ in entries])
@@ -136,6 +143,9 @@ def _check_key(
         problems.add(path, f"unknown block {block!r}: uncertain parameters belong to "
                      f"{', '.join(UNCERTAIN_BLOCKS)}; {_HOW}")
         return False, None
+    balance = models.get("process")
+    if isinstance(balance, BalancePlant) and block in ("process", "disturbance"):
+        return _check_balance_key(problems, path, block, key.partition(".")[2], balance)
     if owner not in models and block in ("disturbance", "sensor"):
         named = sorted({key.split(".")[1] for key in models if key.startswith("disturbance.")})
         how = ("the case names its disturbances: write disturbance.NAME.parameter or "
@@ -182,6 +192,32 @@ def _owner(key: str, models: Models) -> tuple[str, str]:
         return prefix, name
     block, _, rest = key.partition(".")
     return block, rest
+def _check_balance_key(problems: Problems, path: str, block: str, name: str,
+                       plant: BalancePlant) -> tuple[bool, float | None]:
+    """A balance plant's uncertain parameters are its physical ones, ``process.NAME``."""
+    names = ", ".join(plant.parameter_names())
+    if block == "disturbance":
+        problems.add(path, f"the disturbance paths of a {plant.KIND} follow from its balances; "
+                     f"make its physical parameters or operating point uncertain instead "
+                     f"(process.{plant.DISTURBANCES[0]}, ...: {names})")
+        return False, None
+    if name not in plant.parameter_names():
+        problems.add(path, f"a {plant.KIND} has no parameter {name!r} (it has {names})")
+        return False, None
+    return True, plant.parameters()[name]
+
+
+def check_balance_support(problems: Problems, path: str, plant: BalancePlant, name: str,
+                          distribution: Distribution, nominal: float) -> None:
+    """Both ends of a balance parameter's distribution must be physical values."""
+    parameter = plant.parameter(name)
+    low, high = support(distribution, nominal)
+    for end in (low, high):
+        why = parameter.violation(end) if math.isfinite(end) else None
+        if why is not None:
+            problems.add(join(path, distribution.kind), f"can give {end:g}, but the "
+                         f"{parameter.meaning} {why}", _written(distribution))
+            return
 
 
 def _read_distribution(problems: Problems, path: str, item: object) -> Distribution | None:

@@ -152,6 +152,8 @@ def _reads_back(text: str, case: Case) -> bool:
 
 def _plain(case: Case) -> dict[str, Any]:
     """Nested dicts/lists in canonical key order (``None`` fields left out)."""
+    if case.balance is not None:
+        return _plain_balance(case)
     return {
         "title": case.title,
         "time_unit": case.time_unit,
@@ -168,10 +170,59 @@ def _plain(case: Case) -> dict[str, Any]:
         "uncertainty": _uncertainty(case),
         "study": _dataclass(case.study),
         "recommendation": _dataclass(case.recommendation),
-    } | ({"design": [{"name": design.name} | _dataclass(design.feedforward)
+    } | ({"design": [{"name": design.name} | _design_keys(case, design.feedforward)
                      for design in case.designs]} if case.designs else {}) | (
         {"valve": _valve(case.valve)} if case.valve is not None else {}) | (
         {"secondary": _secondary(case.secondary)} if case.secondary is not None else {})
+
+
+def _design_keys(case: Case, spec: FeedforwardSpec) -> dict[str, Any]:
+    """A design's keys that differ from the case's ``[feedforward]`` (the rest it inherits);
+    a linear design's trim is left out (it can only add)."""
+    own = _dataclass(case.feedforward)
+    keys = {key: value for key, value in _dataclass(spec).items() if own.get(key) != value}
+    if spec.law == "linear" and spec.trim == "add":
+        keys.pop("trim", None)
+    return keys
+
+
+def _balance_signals(case: Case) -> dict[str, Any]:
+    """The signals a balance plant's case gives beyond the plant's own names and units."""
+    assert case.balance is not None
+    plant, spec = case.balance.plant, case.balance
+    defaults = {"controlled": plant.OUTPUT, "output": plant.MANIPULATED,
+                "disturbance": spec.feedforward_input}
+    out: dict[str, Any] = {}
+    for slot, signal_name in defaults.items():
+        signal = getattr(case.signals, slot)
+        entry = {key: value for key, value in _dataclass(signal).items()
+                 if key not in ("name", "unit")}
+        if signal.name != plant.SIGNAL_NAMES[signal_name]:
+            entry["name"] = signal.name
+        if entry:
+            out[slot] = entry
+    return out
+
+
+def _plain_balance(case: Case) -> dict[str, Any]:
+    """A plant built from balances: its physical ``[process]``, no ``[disturbance]``, the
+    controller without the output bias (the steady state sets it)."""
+    assert case.balance is not None
+    # The plant's inputs are its disturbances: written as the plant, not as [disturbance.NAME].
+    plain = {key: value for key, value in
+             _plain(replace(case, balance=None, disturbances=())).items()
+             if key != "disturbance"}
+    plant = case.balance.plant
+    plain["process"] = {"model": plant.KIND, **plant.parameters(),
+                        "measured": list(case.balance.measured)}
+    plain["feedback"] = {key: value for key, value in plain["feedback"].items()
+                         if key != "output_bias"}
+    signals = _balance_signals(case)
+    if signals:
+        plain["signals"] = signals
+    else:
+        plain.pop("signals")
+    return plain
 
 
 def _secondary(spec: SecondarySpec) -> dict[str, Any]:

@@ -24,6 +24,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "robustff.cli.run_command",
     "robustff.cli.tune_command",
     "robustff.cli.fit_command",
+    "robustff.cli.excursion_command",
     "robustff.cli.studio_command",
 )
 

@@ -8,6 +8,7 @@ controller and feedforward designed from the nominal models. A bad case raises
 from __future__ import annotations
 
 import argparse
+import json
 from typing import TYPE_CHECKING, Any
 
 from robustff import CAUTION
@@ -18,7 +19,7 @@ from robustff.errors import CaseError
 if TYPE_CHECKING:
     from robustff.design.case_review import CaseReview
 
-__all__ = ["register", "run_check", "check_lines", "parameter_unit", "refuse_errors",
+__all__ = ["register", "run_check", "check_lines", "check_json", "parameter_unit", "refuse_errors",
            "warning_lines"]
 
 
@@ -32,6 +33,9 @@ def register(subparsers: Any) -> None:
         "feedforward designed from the nominal models (exit status 0).",
     )
     parser.add_argument("case", metavar="CASE.toml", help="the case file")
+    parser.add_argument("--json", action="store_true",
+                        help="print the nominal path models (and a balance plant's steady "
+                        "state) as JSON instead of the text summary")
     parser.set_defaults(func=run_check)
 
 
@@ -43,9 +47,34 @@ def run_check(args: argparse.Namespace) -> int:
     """
     case = load_case(args.case)
     review = refuse_errors(case)
+    if getattr(args, "json", False):
+        print(json.dumps(check_json(case, review), indent=2))
+        return 0
     for line in check_lines(case, review):
         print(line)
     return 0
+
+
+def check_json(case: Case, review: CaseReview) -> dict[str, object]:
+    """What ``robustff check --json`` prints: the path models with units (``process`` and
+    each disturbance with ``gain``, ``time_constant``, ``dead_time``), a balance plant's steady
+    state, the warnings and the caution."""
+    from robustff.design.path_models import path_summary, steady_state
+    from robustff.jsonvalues import json_safe
+
+    paths = path_summary(case)
+    result: dict[str, object] = {
+        "case": case.title, "file": str(case.source_path) if case.source_path else None,
+        "time_unit": case.time_unit,
+        "plant": case.balance.kind if case.balance is not None else "transfer-function",
+    }
+    if case.balance is not None:
+        result["steady_state"] = steady_state(case)
+    result["process"] = paths.pop("process")
+    result["disturbances"] = paths
+    result["warnings"] = [finding.text() for finding in review.warnings]
+    result["caution"] = CAUTION
+    return json_safe(result)  # type: ignore[return-value]
 
 
 def refuse_errors(case: Case) -> CaseReview:
@@ -101,6 +130,8 @@ def parameter_unit(case: Case, key: str) -> str:
 
 
 def _model_lines(case: Case) -> list[str]:
+    if case.balance is not None:
+        return _balance_lines(case)
     s, unit = case.signals, case.time_unit
     sensor = case.sensor
     if case.disturbances:
@@ -133,6 +164,33 @@ def _disturbance_lines(case: Case) -> list[str]:
                          f"{item.sensor.noise_std:g} {item.unit}".rstrip())
         else:
             lines.append("    not measured (no feedforward: feedback alone handles it)")
+    return lines
+
+
+def _balance_lines(case: Case) -> list[str]:
+    """A balance plant: its parameters, the steady state and the linearised paths there."""
+    from robustff.design.path_models import path_summary, steady_state
+
+    assert case.balance is not None
+    plant, unit = case.balance.plant, case.time_unit
+    lines = ["", f"Plant from balances ({plant.KIND}):"]
+    for parameter in plant.PARAMETERS:
+        lines.append(f"  {parameter.name} = {getattr(plant, parameter.name):.6g} "
+                     f"{parameter.unit_text(unit)} ({parameter.meaning})")
+    measured = ", ".join(case.balance.measured) or "none"
+    lines += [f"  measured by the feedforward: {measured}", "",
+              "Steady state at the nominal operating point:"]
+    for name, row in steady_state(case).items():
+        lines.append(f"  {name} = {row['value']:.6g} {row['unit']} ({row['meaning']})")
+    lines += ["", "Nominal models: linearised at the nominal operating point (what a small bump "
+              "test there would give):"]
+    for path, entry in path_summary(case).items():
+        lines.append(f"  {path:<18} gain {entry['gain']:.5g} {entry['gain_unit']}, time constant "
+                     f"{entry['time_constant']:.4g} {unit}, dead time {entry['dead_time']:.4g} "
+                     f"{unit}")
+    if case.sensor.time_constant > 0.0:
+        lines.append(f"  transmitters of the measured inputs: time constant "
+                     f"{case.sensor.time_constant:g} {unit}")
     return lines
 
 

@@ -27,6 +27,10 @@ def execute(args: argparse.Namespace) -> int:
 
     path = Path(args.case) if args.case else demo_case_path("wash-water-heater")
     case = load_case(path)  # errors go to the CLI's one-line messages before the screen opens
+    if case.balance is not None:
+        raise RobustffError(f"the studio does not yet edit plants built from balances "
+                            f"({case.balance.kind}); use 'robustff check' and 'robustff run' "
+                            "on this case")
     _require_terminal()
     from robustff.tui.app import StudioApp  # Textual is imported only here
 

@@ -14,7 +14,7 @@ __all__ = ["DEMO_CASES", "demo_case_path"]
 #: Names of the demo cases (file stems).
 DEMO_CASES: tuple[str, ...] = (
     "wash-water-heater", "syrup-dilution", "surge-tank-level", "steam-heater-sticky-valve",
-    "pasteuriser-tempering-tank",
+    "pasteuriser-tempering-tank", "brine-makeup-tank", "rinse-water-heater",
 )
 
 

@@ -231,7 +231,11 @@ def _window_warnings(case: Case) -> list[Finding]:
     return warnings
 
 
-def _is_time_parameter(key: str) -> bool:
+def _is_time_parameter(case: Case, key: str) -> bool:
+    block, name = key.split(".", 1)
+    if block == "process" and case.balance is not None and (
+            name in case.balance.plant.parameter_names()):
+        return case.balance.plant.parameter(name).unit == "{time}"  # a physical parameter
     name = key.rsplit(".", 1)[1]
     return name not in ("gain", "noise_std")
 
@@ -263,7 +267,7 @@ def _uncertainty_warnings(case: Case) -> list[Finding]:
                 f"the nominal value {nominal:g} {own} lies outside its "
                 f"uncertainty range {low:.4g} .. {high:.4g} {own}: the controller and "
                 "feedforward are designed for a plant that no sample contains"))
-        if _is_time_parameter(key) and high > sim.duration:
+        if _is_time_parameter(case, key) and high > sim.duration:
             warnings.append(Finding(
                 f"uncertainty.{key}",
                 f"the range reaches {high:.4g} {unit}, beyond the {sim.duration:g} {unit} "

@@ -43,7 +43,7 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 
-from robustff.case import Case, FeedbackSpec, FeedforwardSpec, Signals
+from robustff.case import BalanceSpec, Case, FeedbackSpec, FeedforwardSpec, Signals
 from robustff.design.controller_forms import (
     form_lines,
     ideal_notes,
@@ -143,6 +143,11 @@ class FeedforwardSettings:
     input_filter : float
         Time constant of the first-order filter on the measured disturbance before the
         compensator, time units (0: none).
+    law : {"linear", "balance"}
+        The compensator above (``"linear"``), or a balance plant's steady-state balance solved
+        for the manipulated flow with this lead-lag on it (``"balance"``).
+    trim : {"add", "multiply"}
+        How the feedback output trims the balance law's flow.
     """
 
     structure: str
@@ -152,12 +157,17 @@ class FeedforwardSettings:
     delay: float
     gain_factor: float
     input_filter: float = 0.0
+    law: str = "linear"
+    trim: str = "add"
 
     @property
     def active(self) -> bool:
+        if self.law == "balance":
+            return self.structure != "none"
         return self.structure != "none" and self.gain != 0.0
 
-    def to_dict(self) -> dict[str, float | str]:
+    def to_dict(self) -> dict[str, object]:
+        """The fields of ``summary.json``."""
         return dict(self.__dict__)
 
 
@@ -201,6 +211,9 @@ class LoopDesign:
     #: The secondary (flow) controller, PI in ideal form, output in % (None without one).
     secondary: FeedbackSettings | None = None
     compensators: tuple[FeedforwardSettings, ...] = ()
+    #: The nominal plant built from balances the balance law and the linear designs were
+    #: designed from, with its measured inputs (None for transfer-function models).
+    balance: BalanceSpec | None = None
 
     @property
     def all_compensators(self) -> tuple[FeedforwardSettings, ...]:
@@ -221,7 +234,7 @@ class LoopDesign:
         """The same feedback loop with another feedforward design (no alternatives):
         ``feedforward`` and, with several disturbances, every one's ``compensators``."""
         return LoopDesign(self.feedback, feedforward, self.notes, secondary=self.secondary,
-                          compensators=compensators)
+                          compensators=compensators, balance=self.balance)
 
     def to_dict(self, case: Case | None = None) -> dict[str, object]:
         """``summary.json``'s ``design``; with several disturbances (``case`` given) also
@@ -264,22 +277,27 @@ class LoopDesign:
         out_unit = case.signals.output.unit or "output units"
         lines = self.feedback_lines(case)
         several = len(self.all_compensators) > 1
-        for item, ff in zip(case.disturbance_inputs, self.all_compensators, strict=True):
-            source = f" from {item.name}" if several else ""
-            dist_unit = (item.unit if case.disturbances else case.signals.disturbance.unit)
-            if not item.measured:
-                lines.append(f"Feedforward{source}: none (not measured)")
-            elif ff.structure == "none":
-                lines.append(f"Feedforward{source}: none")
-            else:
-                lines.append(
-                    f"Feedforward{source} ({ff.structure}): gain = {ff.gain:.4g} "
-                    f"{per_unit(out_unit, dist_unit or 'disturbance unit')} "
-                    f"(gain factor {ff.gain_factor:g}), lead = {ff.lead:.4g} {unit}, "
-                    f"lag = {ff.lag:.4g} {unit}, delay = {ff.delay:.4g} {unit}"
-                    + (f", input filter = {ff.input_filter:.4g} {unit}" if ff.input_filter
-                       else "")
-                )
+        if case.balance is not None and self.feedforward.law == "balance":
+            lines.extend(_balance_law_lines(self.feedforward, case))
+            several = False
+        else:
+            for item, ff in zip(case.disturbance_inputs, self.all_compensators,
+                                strict=True):
+                source = f" from {item.name}" if several else ""
+                dist_unit = (item.unit if case.disturbances else case.signals.disturbance.unit)
+                if not item.measured:
+                    lines.append(f"Feedforward{source}: none (not measured)")
+                elif ff.structure == "none":
+                    lines.append(f"Feedforward{source}: none")
+                else:
+                    lines.append(
+                        f"Feedforward{source} ({ff.structure}): gain = {ff.gain:.4g} "
+                        f"{per_unit(out_unit, dist_unit or 'disturbance unit')} "
+                        f"(gain factor {ff.gain_factor:g}), lead = {ff.lead:.4g} {unit}, "
+                        f"lag = {ff.lag:.4g} {unit}, delay = {ff.delay:.4g} {unit}"
+                        + (f", input filter = {ff.input_filter:.4g} {unit}" if ff.input_filter
+                           else "")
+                    )
         if several:
             lines.append("  the compensators' outputs add at the controller output")
         lines.extend(f"  note: {note}" for note in self.notes)
@@ -291,6 +309,19 @@ def compensator_dicts(case: Case, compensators: tuple[FeedforwardSettings, ...]
     """Each disturbance's compensator as ``summary.json`` writes it (name, measured, settings)."""
     return [{"disturbance": item.label, "measured": item.measured} | ff.to_dict()
             for item, ff in zip(case.disturbance_inputs, compensators, strict=True)]
+
+
+def _balance_law_lines(ff: FeedforwardSettings, case: Case) -> list[str]:
+    """A balance plant's balance-law feedforward in words."""
+    assert case.balance is not None
+    plant, unit = case.balance.plant, case.time_unit
+    dynamics = (f", lead = {ff.lead:.4g} {unit}, lag = {ff.lag:.4g} {unit}"
+                if ff.structure == "lead-lag" else "")
+    measured = ", ".join(case.balance.measured) or "none"
+    return [f"Feedforward (balance law, {ff.structure}): {plant.LAW_TEXT} at every scan "
+            f"(measured: {measured}; the others at their nominal values; gain factor "
+            f"{ff.gain_factor:g}){dynamics}; the feedback output "
+            f"{'multiplies' if ff.trim == 'multiply' else 'adds to'} the computed flow"]
 
 
 def half_rule(model: TransferModel) -> TransferModel:
@@ -464,7 +495,8 @@ def design_feedforward(
     structure = spec.structure
     unit = f" {time_unit}" if time_unit else ""
     if structure == "none":
-        return FeedforwardSettings("none", 0.0, 0.0, 0.0, 0.0, spec.gain_factor), notes
+        return FeedforwardSettings("none", 0.0, 0.0, 0.0, 0.0, spec.gain_factor,
+                                   law=spec.law, trim=spec.trim), notes
     if process.integrating != disturbance.integrating:
         raise DesignError(
             "feedforward: an integrating and a self-regulating path cannot be compensated by a "
@@ -499,7 +531,7 @@ def design_feedforward(
     if lead > 0.0 and lag <= 0.0:
         raise DesignError("feedforward: a lead needs a lag > 0 (the compensator must be proper)")
     return FeedforwardSettings(structure, gain, lead, lag, delay, spec.gain_factor,
-                               spec.input_filter or 0.0), notes
+                               spec.input_filter or 0.0, spec.law, spec.trim), notes
 
 
 def _lags(model: TransferModel) -> list[float]:
@@ -579,7 +611,7 @@ def design_loop(case: Case) -> LoopDesign:
     if actuation is not None and (any(c.active for c in compensators) or alternatives):
         ff_notes.append(actuation.note)
     return LoopDesign(feedback, feedforward, tuple(notes + ff_notes), tuple(alternatives),
-                      secondary, _several(compensators))
+                      secondary, _several(compensators), case.balance)
 
 
 def _compensators(case: Case, spec: FeedforwardSpec | None,

@@ -12,9 +12,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.case import Case
-from robustff.case.sampling import nominal_plants
+from robustff.case.sampling import nominal_plants, plant_batch
 from robustff.design.margins import loop_margins
 from robustff.design.tuning import LoopDesign
+from robustff.engine.balance_scenario import balance_scenario
+from robustff.engine.balance_simulation import run_balance_kernel
 from robustff.engine.kernel import ACCUMULATOR_NAMES, N_ACCUMULATORS, simulate_kernel
 from robustff.engine.metrics import metrics_from_accumulators
 from robustff.engine.scenario import (
@@ -224,6 +226,8 @@ def simulate(
     -------
     SimulationResult
     """
+    if batch.balance is not None:
+        return _simulate_balance(batch, design, scenario, envelope, keep, reference)
     n = batch.size
     n_steps = scenario.n_steps
     if seeds is None:
@@ -308,6 +312,43 @@ def simulate(
     )
 
 
+def _simulate_balance(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
+                      envelope: EnvelopeGrid | None, keep: np.ndarray | None,
+                      reference: SimulationResult | None) -> SimulationResult:
+    """:func:`simulate` for plants built from balances (the nonlinear kernel).
+
+    The loop's stability is that of each sample's linearisation at its own operating point
+    (the loop as simulated, controller sampled at the scan): a nonlinear plant is locally
+    stable where its linearisation is.
+    """
+    feedback_arm = reference is None
+    run = run_balance_kernel(
+        batch, design, scenario, _controller_vector(design, scenario),
+        edges=envelope.edges if envelope is not None and feedback_arm else None,
+        index=envelope.index if envelope is not None and feedback_arm else None,
+        keep=keep if feedback_arm else None, feedback_arm=feedback_arm)
+    accumulators, unstable = run.accumulators, run.unstable
+    if reference is not None:
+        loop_unstable = reference.loop_unstable.copy()
+        unstable[:, 0] = reference.unstable[:, 0]
+        accumulators[:, 0] = reference.accumulators[:, 0]
+    else:
+        try:
+            stable = loop_margins(batch, design.feedback, sample_time=scenario.step).stable
+            loop_unstable = ~np.asarray(stable, dtype=bool)
+        except DesignError:  # a loop the margins do not handle: the run's verdict stands
+            loop_unstable = np.zeros(batch.size, dtype=bool)
+    unstable |= loop_unstable[:, None]
+    accumulators[unstable] = np.nan
+    metrics = metrics_from_accumulators(accumulators, ACCUMULATOR_NAMES, scenario.setpoint_step,
+                                        window=scenario.n_steps * scenario.step,
+                                        cv_band=scenario.cv_band)
+    kept = keep is not None and np.asarray(keep).size > 0 and feedback_arm
+    return SimulationResult(metrics, unstable,
+                            run.envelope_counts if envelope is not None and feedback_arm else None,
+                            run.trajectories if kept else None, loop_unstable, accumulators)
+
+
 def _confirmed_unstable(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
                         probe: np.ndarray) -> np.ndarray:
     """The probe's unstable samples that the exact sampled loop confirms.
@@ -333,6 +374,8 @@ def _confirmed_unstable(batch: PlantBatch, design: LoopDesign, scenario: Scenari
 
 def nominal_batch(case: Case, n: int = 1) -> PlantBatch:
     """``n`` copies of the case's nominal plant."""
+    if case.balance is not None:
+        return plant_batch(case, [], np.zeros((n, 0)))
     return nominal_plants(case, n)
 
 
@@ -342,9 +385,24 @@ def build_scenario(case: Case, design: LoopDesign, settling_band: float | None =
     The band is 2 % of the setpoint step, or 2 % of the nominal plant's feedback-only peak
     deviation for disturbance events (see :mod:`robustff.engine.metrics`).
     """
+    if case.balance is not None:
+        scenario = balance_scenario(case, design, np.inf)
+    else:
+        scenario = _transfer_scenario(case, design)
+    if settling_band is None:
+        if scenario.setpoint_step:
+            settling_band = 0.02 * abs(scenario.setpoint_step)
+        else:
+            nominal = simulate(nominal_batch(case), design, scenario)
+            settling_band = 0.02 * float(nominal.metrics["peak_deviation"][0, 0])
+    return Scenario(**{**scenario.__dict__, "settling_band": settling_band})
+
+
+def _transfer_scenario(case: Case, design: LoopDesign) -> Scenario:
+    """The scenario of a case of transfer-function models, without its settling band."""
     disturbance, setpoint, noise = event_profiles(case)
     direction, setpoint_step, start = disturbance_direction(case)
-    scenario = Scenario(
+    return Scenario(
         case.simulation.step,
         disturbance,
         setpoint,
@@ -359,10 +417,3 @@ def build_scenario(case: Case, design: LoopDesign, settling_band: float | None =
         case.secondary.scans_per_primary if case.secondary else 1,
         case.signals.controlled.band,
     )
-    if settling_band is None:
-        if setpoint_step:
-            settling_band = 0.02 * abs(setpoint_step)
-        else:
-            nominal = simulate(nominal_batch(case), design, scenario)
-            settling_band = 0.02 * float(nominal.metrics["peak_deviation"][0, 0])
-    return Scenario(**{**scenario.__dict__, "settling_band": settling_band})

@@ -90,6 +90,8 @@ class BalancePlant:
     MANIPULATED: ClassVar[str] = ""
     DISTURBANCES: ClassVar[tuple[str, ...]] = ()
     OUTPUT: ClassVar[str] = ""
+    #: The balance law solved for the manipulated input, as printed.
+    LAW_TEXT: ClassVar[str] = ""
     #: The operating-point parameter that is the controlled variable's value (the setpoint).
     SETPOINT: ClassVar[str] = ""
     PARAMETERS: ClassVar[tuple[BalanceParameter, ...]] = ()
@@ -189,12 +191,20 @@ class BalancePlant:
         unit per input unit (analytic; see each kind)."""
         raise NotImplementedError
 
+    def flow_lag(self) -> float:
+        """Lag of the manipulated stream's flow loop, time units (0: ideal)."""
+        return float(getattr(self, "flow_loop_time_constant", 0.0))
+
     def linear_paths(self) -> dict[str, TransferModel]:
-        """The linearisation at the operating point: ``"process"`` (the manipulated input)
-        and one FOPDT per disturbance, gains in output unit per input unit."""
+        """The linearisation at the operating point: ``"process"`` (the manipulated input's
+        flow setpoint: FOPDT, or SOPDT with the flow loop's lag) and one FOPDT per
+        disturbance, gains in output unit per input unit."""
         tau, theta = self.time_constant(), self.dead_time()
         gains = self.gains()
-        paths = {PATH_PROCESS: TransferModel("fopdt", gains[self.MANIPULATED], tau, 0.0, theta)}
+        lag = self.flow_lag()
+        process = (TransferModel("sopdt", gains[self.MANIPULATED], tau, lag, theta) if lag > 0.0
+                   else TransferModel("fopdt", gains[self.MANIPULATED], tau, 0.0, theta))
+        paths = {PATH_PROCESS: process}
         for name in self.DISTURBANCES:
             paths[name] = TransferModel("fopdt", gains[name], tau, 0.0, theta)
         return paths
@@ -214,11 +224,12 @@ class BalancePlant:
         """The numbers the compiled simulation reads for this plant (see
         :mod:`robustff.engine.balance_kernel`): hold-up kg, pipe hold-up kg, measurement dead
         time, the kind's constant, the manipulated input and the disturbances at the
-        operating point, the steady output."""
+        operating point, the steady output, the flow loop's lag (time units)."""
         inputs = self.operating_inputs()
         return np.array([self.holdup(), self.pipe_holdup(), self.measurement_dead_time(),
                          self.kernel_constant(), inputs[self.MANIPULATED],
-                         *(inputs[name] for name in self.DISTURBANCES), self.setpoint()])
+                         *(inputs[name] for name in self.DISTURBANCES), self.setpoint(),
+                         self.flow_lag()])
 
     def kernel_constant(self) -> float:
         """The kind's one constant in the compiled balance (see each kind)."""

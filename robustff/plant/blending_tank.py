@@ -54,6 +54,9 @@ class BlendingTank(BalancePlant):
         Volume of the sample pipe from the tank to the analyzer, m3 (plug flow).
     analyzer_dead_time : float
         The analyzer's own dead time, time units.
+    flow_loop_time_constant : float
+        Lag of the manipulated stream's flow loop (its flow follows the controller's setpoint
+        as a first-order lag), time units; 0 for an ideal flow loop.
     """
 
     density: float
@@ -64,11 +67,13 @@ class BlendingTank(BalancePlant):
     outlet_composition: float
     pipe_volume: float = 0.0
     analyzer_dead_time: float = 0.0
+    flow_loop_time_constant: float = 0.0
 
     KIND: ClassVar[str] = "blending-tank"
     CODE: ClassVar[int] = 0
     MANIPULATED: ClassVar[str] = "manipulated_flow"
     DISTURBANCES: ClassVar[tuple[str, ...]] = ("wild_flow", "wild_composition")
+    LAW_TEXT: ClassVar[str] = "w2 = w1 (x_sp - x1) / (x2 - x_sp)"
     OUTPUT: ClassVar[str] = "outlet_composition"
     SETPOINT: ClassVar[str] = "outlet_composition"
     PARAMETERS: ClassVar[tuple[BalanceParameter, ...]] = (
@@ -80,11 +85,13 @@ class BlendingTank(BalancePlant):
         BalanceParameter("manipulated_composition", "mass fraction",
                          "manipulated stream's composition", "fraction"),
         BalanceParameter("outlet_composition", "mass fraction",
-                         "outlet composition at the operating point (the setpoint)", "fraction"),
+                         "outlet composition at the operating point, the setpoint", "fraction"),
         BalanceParameter("pipe_volume", "m3", "sample pipe volume, tank to analyzer",
                          "non-negative", False),
         BalanceParameter("analyzer_dead_time", "{time}", "the analyzer's own dead time",
                          "non-negative", False),
+        BalanceParameter("flow_loop_time_constant", "{time}",
+                         "lag of the manipulated stream's flow loop", "non-negative", False),
     )
     SIGNAL_UNITS: ClassVar[dict[str, str]] = {
         "manipulated_flow": "kg/{time}", "wild_flow": "kg/{time}",

@@ -56,6 +56,9 @@ class HeatedTank(BalancePlant):
         Volume of the outlet pipe from the tank to the temperature element, m3 (plug flow).
     sensor_dead_time : float
         The temperature measurement's own dead time, time units.
+    flow_loop_time_constant : float
+        Lag of the steam flow loop (the steam flow follows the controller's setpoint as a
+        first-order lag), time units; 0 for an ideal flow loop.
     """
 
     density: float
@@ -67,11 +70,13 @@ class HeatedTank(BalancePlant):
     outlet_temperature: float
     pipe_volume: float = 0.0
     sensor_dead_time: float = 0.0
+    flow_loop_time_constant: float = 0.0
 
     KIND: ClassVar[str] = "heated-tank"
     CODE: ClassVar[int] = 1
     MANIPULATED: ClassVar[str] = "steam_flow"
     DISTURBANCES: ClassVar[tuple[str, ...]] = ("process_flow", "inlet_temperature")
+    LAW_TEXT: ClassVar[str] = "w_s = w c_p (T_sp - T_in) / lambda"
     OUTPUT: ClassVar[str] = "outlet_temperature"
     SETPOINT: ClassVar[str] = "outlet_temperature"
     PARAMETERS: ClassVar[tuple[BalanceParameter, ...]] = (
@@ -85,12 +90,14 @@ class HeatedTank(BalancePlant):
                          "process stream's inlet temperature at the operating point",
                          "temperature"),
         BalanceParameter("outlet_temperature", "degC",
-                         "outlet temperature at the operating point (the setpoint)",
+                         "outlet temperature at the operating point, the setpoint",
                          "temperature"),
         BalanceParameter("pipe_volume", "m3", "outlet pipe volume, tank to temperature element",
                          "non-negative", False),
         BalanceParameter("sensor_dead_time", "{time}",
                          "the temperature measurement's own dead time", "non-negative", False),
+        BalanceParameter("flow_loop_time_constant", "{time}", "lag of the steam flow loop",
+                         "non-negative", False),
     )
     SIGNAL_UNITS: ClassVar[dict[str, str]] = {
         "steam_flow": "kg/{time}", "process_flow": "kg/{time}", "inlet_temperature": "degC",

@@ -18,6 +18,7 @@ from typing import Any
 
 import numpy as np
 
+from robustff.plant.balance_batch import BalanceBatch
 from robustff.plant.kinds import ALL_PARAMETERS, ModelKind, kind_names, model_kind, registered_kinds
 from robustff.plant.valve import VALVE_PARAMETERS, ValveModel
 
@@ -203,6 +204,9 @@ class PlantBatch:
     #: ``"disturbance.NAME.sensor"``), and whether it is measured. Empty: the one path
     #: ``(disturbance_kind, "disturbance", "sensor", True)``.
     disturbance_paths: tuple[tuple[str, str, str, bool], ...] = ()
+    #: Sampled plants built from balances (their physical numbers; the path models above are
+    #: then each sample's linearisation at its operating point). None for transfer functions.
+    balance: BalanceBatch | None = None
 
     @property
     def paths(self) -> tuple[tuple[str, str, str, bool], ...]:
@@ -275,6 +279,7 @@ class PlantBatch:
             self.valve,
             self.secondary_kind,
             self.disturbance_paths,
+            self.balance.subset(index) if self.balance is not None else None,
         )
 
     def model(self, block: str, i: int) -> TransferModel:

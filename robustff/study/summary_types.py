@@ -219,6 +219,8 @@ class FeedforwardDesign(TypedDict):
     delay: float  #: time units
     gain_factor: float  #: detuning factor applied, dimensionless
     input_filter: float  #: time units; 0 = no filter on the feedforward input
+    law: str  #: "linear" or "balance" (balance plants only)
+    trim: str  #: "add" or "multiply": how the feedback trims the balance law
 
 
 class DisturbanceDriverDict(TypedDict):

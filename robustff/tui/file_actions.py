@@ -215,6 +215,10 @@ class FileActions(StudioHost):
         except (RobustffError, OSError) as exc:
             self.notify(f"not reloaded: {exc}", severity="error", timeout=8)
             return
+        if case.balance is not None:  # its physical [process] has no editor yet
+            self.notify("not reloaded: the studio does not yet edit plants built from balances",
+                        severity="error", timeout=8)
+            return
         self.remember("the reload from disk")
         self.case = self.saved_case = replace(case, source_path=self.case_path)
         self.original_text = text

@@ -84,7 +84,8 @@ def test_small_step_of_the_ode_is_the_first_order_response(plant) -> None:
     for name, value in base.items():
         step = 1e-3 * max(abs(value), 1.0)
         inputs = dict(base, **{name: value + step})
-        solution = solve_ivp(lambda t, y: [plant.derivative(y[0], inputs)], (0.0, times[-1]),
+        solution = solve_ivp(lambda t, y, inputs=inputs: [plant.derivative(y[0], inputs)],
+                             (0.0, times[-1]),
                              [y0], t_eval=times, rtol=1e-11, atol=1e-13)
         linear = gains[name] * step * (1.0 - np.exp(-times / tau))
         final = abs(gains[name] * step)

@@ -57,10 +57,10 @@ def test_the_schema_is_a_valid_draft_2020_12_schema() -> None:
     jsonschema.Draft202012Validator.check_schema(SCHEMA)
 
 
-def test_there_are_five_demo_cases() -> None:
+def test_there_are_seven_demo_cases() -> None:
     assert [case.stem for case in CASES] == [
-        "pasteuriser-tempering-tank", "steam-heater-sticky-valve", "surge-tank-level",
-        "syrup-dilution", "wash-water-heater"
+        "brine-makeup-tank", "pasteuriser-tempering-tank", "rinse-water-heater",
+        "steam-heater-sticky-valve", "surge-tank-level", "syrup-dilution", "wash-water-heater",
     ]
 
 
