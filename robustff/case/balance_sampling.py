@@ -57,9 +57,9 @@ def balance_plant_batch(case: Case, names: Sequence[str], values: np.ndarray) ->
                 columns[path, key][i] = getattr(model, key)
         rows[i, :-1] = plant.kernel_row()
     rows[:, -1] = sensor
-    for (path, key), column in columns.items():
+    for (path, key), sampled in columns.items():
         prefix = "process" if path == "process" else f"disturbance.{path}"
-        batch.set_parameter(f"{prefix}.{key}", column)
+        batch.set_parameter(f"{prefix}.{key}", sampled)
     for name in nominal.DISTURBANCES:
         batch.set_parameter(f"disturbance.{name}.sensor.time_constant", sensor)
     batch.balance = BalanceBatch(nominal.CODE, rows)

@@ -281,8 +281,7 @@ class LoopDesign:
             lines.extend(_balance_law_lines(self.feedforward, case))
             several = False
         else:
-            for item, ff in zip(case.disturbance_inputs, self.all_compensators,
-                                strict=True):
+            for item, ff in zip(case.disturbance_inputs, self.all_compensators, strict=True):
                 source = f" from {item.name}" if several else ""
                 dist_unit = (item.unit if case.disturbances else case.signals.disturbance.unit)
                 if not item.measured:

@@ -12,7 +12,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from robustff.design.tuning import LoopDesign
-from robustff.errors import DesignError
 from robustff.engine.balance_kernel import (
     BALANCE_ACCUMULATORS,
     LAW_BALANCE,
@@ -22,6 +21,7 @@ from robustff.engine.balance_kernel import (
 )
 from robustff.engine.kernel import ACCUMULATOR_NAMES, N_ACCUMULATORS
 from robustff.engine.scenario import Scenario
+from robustff.errors import DesignError
 from robustff.plant.models import PlantBatch
 
 __all__ = ["BalanceRun", "run_balance_kernel", "feedforward_vector"]
