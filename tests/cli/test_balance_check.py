@@ -79,3 +79,13 @@ def test_tune_and_the_studio_refuse_a_balance_plant_in_words(tmp_path: Path, cap
     assert main([command, _write(tmp_path, CASE)]) == 2
     err = capsys.readouterr().err
     assert "built from balances" in err and "Traceback" not in err
+
+
+def test_json_of_named_disturbances_lists_each_path(capsys) -> None:
+    from robustff.demo import demo_case_path
+
+    assert main(["check", "--json", str(demo_case_path("pasteuriser-tempering-tank"))]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert list(report["disturbances"]) == ["feed_flow", "feed_temperature", "steam_pressure"]
+    assert all({"gain", "time_constant", "dead_time", "gain_unit"} <= set(entry)
+               for entry in report["disturbances"].values())
