@@ -36,9 +36,9 @@ __all__ = ["is_balance_process", "read_balance_process", "balance_feedback", "ba
            "check_balance_case", "check_operating_range", "refuse_balance_keys",
            "BALANCE_EVENT_KINDS"]
 
-#: Event kinds a balance plant runs (filtered noise and recorded traces are not yet simulated
-#: on balance plants).
-BALANCE_EVENT_KINDS: tuple[str, ...] = ("disturbance-step", "disturbance-ramp", "setpoint-step")
+#: Event kinds a balance plant runs (recorded traces are not yet simulated on balance plants).
+BALANCE_EVENT_KINDS: tuple[str, ...] = ("disturbance-step", "disturbance-ramp",
+                                        "disturbance-noise", "setpoint-step")
 #: Tables a balance plant has no use for, and why.
 _NOT_WITH_BALANCE = {
     "disturbance": "the disturbances of a balance plant are its own inputs: name them in "
@@ -222,7 +222,7 @@ def _check_event(problems: Problems, index: int, event: Event, plant: BalancePla
                      f"{', '.join(repr(k) for k in BALANCE_EVENT_KINDS)})", event.kind)
     elif event.kind != "setpoint-step" and not event.disturbance:
         problems.add(f"{path}.disturbance", f"missing key (which input of the {plant.KIND} "
-                     f"steps: one of {names})")
+                     f"the event moves: one of {names})")
     elif event.disturbance and event.disturbance not in plant.DISTURBANCES:
         problems.add(f"{path}.disturbance", f"a {plant.KIND} has the disturbance inputs {names}",
                      event.disturbance)
@@ -302,7 +302,7 @@ def _check_event_flows(problems: Problems, spec: BalanceSpec,
         lowest = ranges.get(name, (plant.parameters()[name],) * 2)[0]
         change = 0.0
         for index, event in sorted(enumerate(events), key=lambda item: item[1].at):
-            if event.disturbance != name:
+            if event.disturbance != name or event.kind == "disturbance-noise":
                 continue
             change += event.size
             if lowest + change <= 0.0:

@@ -227,7 +227,7 @@ def simulate(
     SimulationResult
     """
     if batch.balance is not None:
-        return _simulate_balance(batch, design, scenario, envelope, keep, reference)
+        return _simulate_balance(batch, design, scenario, envelope, keep, reference, seeds)
     n = batch.size
     n_steps = scenario.n_steps
     if seeds is None:
@@ -314,7 +314,8 @@ def simulate(
 
 def _simulate_balance(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
                       envelope: EnvelopeGrid | None, keep: np.ndarray | None,
-                      reference: SimulationResult | None) -> SimulationResult:
+                      reference: SimulationResult | None,
+                      seeds: np.ndarray | None) -> SimulationResult:
     """:func:`simulate` for plants built from balances (the nonlinear kernel).
 
     The loop's stability is that of each sample's linearisation at its own operating point
@@ -326,7 +327,7 @@ def _simulate_balance(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
         batch, design, scenario, _controller_vector(design, scenario),
         edges=envelope.edges if envelope is not None and feedback_arm else None,
         index=envelope.index if envelope is not None and feedback_arm else None,
-        keep=keep if feedback_arm else None, feedback_arm=feedback_arm)
+        keep=keep if feedback_arm else None, feedback_arm=feedback_arm, seeds=seeds)
     accumulators, unstable = run.accumulators, run.unstable
     if reference is not None:
         loop_unstable = reference.loop_unstable.copy()

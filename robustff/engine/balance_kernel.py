@@ -53,6 +53,26 @@ def _decay(h: float, tau: float) -> float:
 
 
 @njit(cache=True, nogil=True)
+def _splitmix64(state: np.uint64) -> tuple[np.uint64, np.uint64]:
+    # splitmix64: small, fast and reproducible per sample, whatever the thread or chunk.
+    state += np.uint64(0x9E3779B97F4A7C15)
+    z = state
+    z = (z ^ (z >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
+    z = (z ^ (z >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
+    return state, z ^ (z >> np.uint64(31))
+
+
+@njit(cache=True, nogil=True)
+def _random_normal(state: np.uint64) -> tuple[np.uint64, float]:
+    """Next standard normal draw (Box-Muller); returns ``(new state, draw)``."""
+    state, z1 = _splitmix64(state)
+    state, z2 = _splitmix64(state)
+    u1 = (float(z1 >> np.uint64(11)) + 1.0) * 2.0 ** -53
+    u2 = float(z2 >> np.uint64(11)) * 2.0 ** -53
+    return state, math.sqrt(-2.0 * math.log(u1)) * math.cos(2.0 * math.pi * u2)
+
+
+@njit(cache=True, nogil=True)
 def _rates(kind: int, constant: float, u: float, d1: float, d2: float) -> tuple[float, float]:
     """Outflow ``w`` (kg per time unit) and inflow ``S`` of the balanced quantity; flows below
     zero are taken as zero (a stream cannot run backwards)."""
@@ -200,8 +220,14 @@ def _simulate_sample(i: int, kind: int, row: np.ndarray, h: float, substeps: int
                      edges: np.ndarray, envelope_index: np.ndarray, slot: int,
                      history: np.ndarray, acc: np.ndarray, closure: np.ndarray,
                      alive: np.ndarray, env_buf: np.ndarray, trajectories: np.ndarray,
-                     feedback_arm: bool, limit: float) -> tuple[float, float]:
-    """Both arms of sample ``i``; returns the last times outside the band (fb, fbff)."""
+                     feedback_arm: bool, limit: float, seed: np.uint64,
+                     noise: np.ndarray) -> tuple[float, float]:
+    """Both arms of sample ``i``; returns the last times outside the band (fb, fbff).
+
+    ``noise`` rows (filtered-noise events on an input): start scan, filter pole per scan,
+    innovation scale, state (updated in place), stationary standard deviation, input row.
+    The noise is drawn once per scan and held, the same for both arms.
+    """
     n_steps = envelope_index.shape[0]
     hi = h / substeps
     m, pipe, dead, constant = row[0], row[1], row[2], row[3]
@@ -229,11 +255,22 @@ def _simulate_sample(i: int, kind: int, row: np.ndarray, h: float, substeps: int
         alive[arm] = arm == 1 or feedback_arm
     n_bins = edges.shape[0] - 1
     width = (edges[-1] - edges[0]) / n_bins
+    noise[:, 3] = 0.0
     for k in range(n_steps):
+        held = np.zeros(2)
+        for j in range(noise.shape[0]):
+            if k >= noise[j, 0]:
+                if k == noise[j, 0]:  # start from the stationary distribution
+                    seed, draw = _random_normal(seed)
+                    noise[j, 3] = noise[j, 4] * draw
+                held[int(noise[j, 5])] += noise[j, 3]
+                seed, draw = _random_normal(seed)
+                noise[j, 3] = noise[j, 1] * noise[j, 3] + noise[j, 2] * draw
         for sub in range(substeps):
             q = k * substeps + sub
             t = q * hi
-            d1, d2 = row[5] + inputs[0, q], row[6] + inputs[1, q]
+            d1 = row[5] + inputs[0, q] + held[0]
+            d2 = row[6] + inputs[1, q] + held[1]
             sp = setpoint[q]
             if sub == 0:
                 # Feedforward: the transmitters' readings (the input itself without a
@@ -332,6 +369,8 @@ def balance_kernel(
     trajectories: np.ndarray,    # out (S, 4, T): CV fb, CV fbff, output fb, output fbff
     closure: np.ndarray,         # out (N, 2, 3): in, out, accumulation of the balanced quantity
     feedback_arm: bool,          # False: only the feedforward arm
+    seeds: np.ndarray,           # (N,) uint64 per-sample seeds of the filtered noise
+    noise_events: np.ndarray,    # (E, 4): start scan, stationary std, filter time constant, row
 ) -> None:
     n_steps = envelope_index.shape[0]
     n_internal = n_steps * substeps
@@ -340,6 +379,12 @@ def balance_kernel(
                          controller[5], controller[6], controller[7], controller[8],
                          controller[9], 1.0 if td > 0.0 else 0.0])
     history = np.zeros((2, 4, n_internal + 1))
+    noise = np.zeros((noise_events.shape[0], 6))
+    for j in range(noise_events.shape[0]):
+        pole = _decay(h, noise_events[j, 2])
+        noise[j, 0], noise[j, 1] = noise_events[j, 0], pole
+        noise[j, 2] = noise_events[j, 1] * math.sqrt(1.0 - pole * pole)
+        noise[j, 4], noise[j, 5] = noise_events[j, 1], noise_events[j, 3]
     env_buf = np.full((2, envelope_counts.shape[1]), -1, dtype=np.int64)
     acc = np.zeros((2, 10))
     alive = np.zeros(2, dtype=np.bool_)
@@ -351,7 +396,8 @@ def balance_kernel(
         last0, last1 = _simulate_sample(
             i, kind, rows[i], h, substeps, inputs, setpoint, direction, segments, settings,
             bias, law, trim, ff, dynamics, metric, edges, envelope_index, slots[i], history,
-            acc, closure, alive, env_buf, trajectories, feedback_arm, controller[7])
+            acc, closure, alive, env_buf, trajectories, feedback_arm, controller[7], seeds[i],
+            noise)
         final_segment = segments[n_internal - 1]
         for arm in range(2):
             last = last0 if arm == 0 else last1

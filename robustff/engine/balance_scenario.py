@@ -9,7 +9,7 @@ from robustff.case import Case
 from robustff.design.tuning import LoopDesign
 from robustff.engine.scenario import Scenario, settling_segments
 
-__all__ = ["balance_scenario", "balance_input_profiles"]
+__all__ = ["balance_scenario", "balance_input_profiles", "balance_noise_events"]
 
 
 def balance_input_profiles(case: Case) -> tuple[np.ndarray, np.ndarray]:
@@ -34,12 +34,25 @@ def balance_input_profiles(case: Case) -> tuple[np.ndarray, np.ndarray]:
         if event.kind == "setpoint-step":
             setpoint += np.where(t >= start - 1e-9 * h, event.size, 0.0)
             continue
+        if event.kind == "disturbance-noise":
+            continue  # drawn by the kernel (see balance_noise_events)
         row = names.index(event.disturbance)
         if event.kind == "disturbance-step":
             inputs[row] += np.where(t >= start - 1e-9 * h, event.size, 0.0)
         elif event.kind == "disturbance-ramp":
             inputs[row] += event.size * np.clip((t - start) / max(event.duration, h), 0.0, 1.0)
     return inputs, setpoint
+
+
+def balance_noise_events(case: Case) -> np.ndarray:
+    """The filtered-noise events on the plant's inputs, shape (E, 4): start scan, stationary
+    standard deviation (the input's unit), filter time constant, input row."""
+    assert case.balance is not None
+    names = case.balance.plant.DISTURBANCES
+    rows = [(round(event.at / case.simulation.step), abs(event.size), event.time_constant,
+             names.index(event.disturbance))
+            for event in case.events if event.kind == "disturbance-noise"]
+    return np.array(rows, dtype=np.float64).reshape(-1, 4)
 
 
 def _direction(case: Case) -> np.ndarray:
@@ -53,14 +66,18 @@ def _direction(case: Case) -> np.ndarray:
     n = case.simulation.n_steps * case.simulation.substeps
     ordered = sorted(case.events, key=lambda event: event.at)
 
-    def sign(event) -> float:
+    def sign(event, previous: float) -> float:
         if event.kind == "setpoint-step":
             return -float(np.sign(event.size) or 1.0)
+        if event.kind == "disturbance-noise":  # no direction of its own
+            return previous
         return float(np.sign(paths[event.disturbance].gain * event.size) or 1.0)
 
-    direction = np.full(n, sign(ordered[0]))
+    current = sign(ordered[0], 1.0)
+    direction = np.full(n, current)
     for event in ordered[1:]:
-        direction[min(max(round(event.at / h), 0), n):] = sign(event)
+        current = sign(event, current)
+        direction[min(max(round(event.at / h), 0), n):] = current
     return direction
 
 
@@ -85,7 +102,7 @@ def balance_scenario(case: Case, design: LoopDesign, settling_band: float) -> Sc
     first = min(case.events, key=lambda event: event.at)
     setpoint_step = first.size if first.kind == "setpoint-step" else None
     return Scenario(
-        case.simulation.step, inputs, setpoint, np.zeros((0, 4)), first.at,
+        case.simulation.step, inputs, setpoint, balance_noise_events(case), first.at,
         _direction(case), setpoint_step, settling_band,
         _divergence_limit(case, design, inputs, setpoint), settling_segments(case),
         case.simulation.substeps, 1, case.signals.controlled.band,

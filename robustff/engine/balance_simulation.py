@@ -88,7 +88,8 @@ def feedforward_vector(design: LoopDesign) -> tuple[int, int, np.ndarray, np.nda
 def run_balance_kernel(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
                        controller: np.ndarray, *, edges: np.ndarray | None = None,
                        index: np.ndarray | None = None, keep: np.ndarray | None = None,
-                       feedback_arm: bool = True) -> BalanceRun:
+                       feedback_arm: bool = True,
+                       seeds: np.ndarray | None = None) -> BalanceRun:
     """Simulate the balance plants of ``batch`` in both arms.
 
     Parameters
@@ -108,6 +109,8 @@ def run_balance_kernel(batch: PlantBatch, design: LoopDesign, scenario: Scenario
         Samples whose trajectories are returned.
     feedback_arm : bool
         False: only the feedforward arm (arm 0 is returned as NaN, unstable).
+    seeds : ndarray of uint64, shape (N,), optional
+        Per-sample seeds of the filtered noise on the inputs (default 0..N-1).
     """
     assert batch.balance is not None
     n, n_steps = batch.size, scenario.n_steps
@@ -134,5 +137,7 @@ def run_balance_kernel(batch: PlantBatch, design: LoopDesign, scenario: Scenario
         np.asarray(edges, dtype=np.float64), np.asarray(index, dtype=np.int64), slots, _SLOTS,
         run.accumulators, run.unstable, run.envelope_counts, run.trajectories, run.closure,
         feedback_arm,
+        np.asarray(np.arange(n) if seeds is None else seeds, dtype=np.uint64),
+        np.ascontiguousarray(scenario.noise_events, dtype=np.float64).reshape(-1, 4),
     )
     return run

@@ -59,9 +59,10 @@ class ExcursionRow:
 
 
 def scaled_events(case: Case, input_name: str, fraction: float) -> tuple[Case, float]:
-    """The case with its events on ``input_name`` scaled so that the first (earliest) moves
-    it by ``fraction`` of its nominal operating value; returns the case and that change (in
-    the input's unit). The sign is the first event's; ``fraction`` must be > 0.
+    """The case with its step and ramp events on ``input_name`` scaled so that the first
+    (earliest) moves it by ``fraction`` of its nominal operating value; returns the case and
+    that change (in the input's unit). The sign is the first event's; ``fraction`` must be
+    > 0. Filtered noise is left as it is.
 
     Raises
     ------
@@ -76,8 +77,9 @@ def scaled_events(case: Case, input_name: str, fraction: float) -> tuple[Case, f
         names = ", ".join(plant.DISTURBANCES)
         raise CaseError(f"--input: a {plant.KIND} has the disturbance inputs {names} "
                         f"(got {input_name!r})")
-    moving = sorted((e for e in case.events if e.disturbance == input_name and e.size != 0.0),
-                    key=lambda e: e.at)
+    steps = ("disturbance-step", "disturbance-ramp")
+    moving = sorted((e for e in case.events if e.disturbance == input_name and e.size != 0.0
+                     and e.kind in steps), key=lambda e: e.at)
     if not moving:
         raise CaseError(f"--input: no step or ramp event of the case moves {input_name}")
     if not fraction > 0.0:
@@ -85,7 +87,8 @@ def scaled_events(case: Case, input_name: str, fraction: float) -> tuple[Case, f
     operating = plant.parameters()[input_name]
     change = math.copysign(fraction * abs(operating), moving[0].size)
     factor = change / moving[0].size
-    events = tuple(replace(e, size=e.size * factor) if e.disturbance == input_name else e
+    events = tuple(replace(e, size=e.size * factor)
+                   if e.disturbance == input_name and e.kind in steps else e
                    for e in case.events)
     return replace(case, events=events), change
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import pytest
 from balance_cases import BLENDING, HEATER, balance_case, event
 from case_texts import MINIMAL
@@ -47,6 +49,11 @@ def test_a_balance_case_reads_back_from_what_the_writer_writes() -> None:
     assert parse_case(case_to_toml(case)) == case
 
 
+RECORD = Path(__file__).resolve().parents[2] / "cases" / "data" / "tempering-feed-record.csv"
+RECORD_EVENT = (f'[[event]]\nkind = "disturbance-record"\nfile = "{RECORD.as_posix()}"\n'
+                'time_column = "timestamp"\nvalue_column = "FT210_m3h"\n'
+                'disturbance = "wild_flow"\n')
+
 PROBLEMS = {
     "unknown key": (_text().replace("density = 900.0", "density = 900.0\ndensty = 1.0"),
                     "process.densty"),
@@ -64,8 +71,10 @@ PROBLEMS = {
                                 "event[1].disturbance"),
     "event naming another input": (_text(events=event("steam_flow", 2.0, 1.0)),
                                    "event[1].disturbance"),
-    "noise event": (_text(events='[[event]]\nkind = "disturbance-noise"\nat = 1.0\nsize = 1.0\n'
-                          'time_constant = 2.0\n'), "event[1].kind"),
+    "noise event without its input": (
+        _text(events='[[event]]\nkind = "disturbance-noise"\nat = 1.0\nsize = 1.0\n'
+              'time_constant = 2.0\n'), "event[1].disturbance"),
+    "recorded trace": (_text(events=RECORD_EVENT), "event[1].kind"),
     "a disturbance table": (_text(extra='[disturbance]\nmodel = "fopdt"\ngain = 1.0\n'
                                         'time_constant = 1.0\ndead_time = 0.0\n'), "disturbance"),
     "a valve": (_text(extra="[valve]\ncharacteristic = 'linear'\n"), "valve"),
