@@ -33,7 +33,7 @@ class BalanceSpec:
 
     @property
     def feedforward_input(self) -> str:
-        """The input whose path is the case's ``disturbance`` model: the first measured one
+        """The headline input (the case's ``[signals] disturbance``): the first measured one
         (the first disturbance when none is measured)."""
         return (self.measured or self.plant.DISTURBANCES)[0]
 
@@ -45,7 +45,3 @@ class BalanceSpec:
     def process_model(self) -> TransferModel:
         """Manipulated input -> measured CV, linearised at the operating point."""
         return self.paths()[PATH_PROCESS]
-
-    def disturbance_model(self) -> TransferModel:
-        """:attr:`feedforward_input` -> measured CV, linearised at the operating point."""
-        return self.paths()[self.feedforward_input]
