@@ -3,8 +3,8 @@
 The ranking (:mod:`robustff.stats.sensitivity`) correlates each uncertain parameter with the
 IAE ratio; with several disturbances the engineer also asks which disturbance matters. Each
 disturbance is credited with the strongest rank correlation among its own parameters (its path
-and its transmitter): the parameter a better model or a better test of that disturbance would
-pin down.
+and its transmitter; for a plant built from balances, the input's operating value): the
+parameter a better model or a better test of that disturbance would pin down.
 """
 
 from __future__ import annotations
@@ -52,6 +52,10 @@ def disturbance_drivers(case: Case, ranking: Sequence[Mapping[str, object]]
         if not isinstance(rho, float | int):
             continue
         _, item, _ = case.split_key(str(row["name"]))
+        if item is None and case.balance is not None:
+            # A plant built from balances: an input's own parameter is its operating value.
+            item = next((i for i in case.disturbance_inputs
+                         if row["name"] == f"process.{i.name}"), None)
         if item is None:
             continue
         if item.label not in best or abs(rho) > abs(best[item.label][1]):

@@ -79,3 +79,13 @@ def test_the_command_refuses_a_bad_fraction_list(tmp_path: Path, capsys) -> None
     path.write_text(case_to_toml(_case()), encoding="utf-8")
     assert main(["excursions", str(path), "--input", "wild_flow", "--fractions", "0,x"]) == 2
     assert "fraction" in capsys.readouterr().err
+
+
+def test_a_balance_inputs_driver_is_its_operating_value() -> None:
+    from robustff.study.disturbance_drivers import disturbance_drivers
+
+    case = _case()
+    ranking = [{"name": "process.volume", "rho": 0.7}, {"name": "process.wild_flow", "rho": -0.4}]
+    drivers = {d.disturbance: (d.key, d.rho) for d in disturbance_drivers(case, ranking)}
+    assert drivers == {"wild_flow": ("process.wild_flow", -0.4),
+                       "wild_composition": (None, None)}
