@@ -136,6 +136,9 @@ def excursion_study(case: Case, input_name: str, fractions: Sequence[float], *,
     CaseError
         As :func:`scaled_events`, or when a scaled case is not valid (a flow stepped to zero
         or below, the steady flow beyond the output range).
+    KeyboardInterrupt
+        When a study was stopped part-way: an excursion row from part of the plants would
+        not compare with the others.
     """
     cases = [scaled_events(case, input_name, fraction) for fraction in fractions]
     rows: list[ExcursionRow] = []
@@ -147,6 +150,8 @@ def excursion_study(case: Case, input_name: str, fractions: Sequence[float], *,
             raise CaseError([f"--fractions {fraction:g}: {line}" for line in exc.problems]
                             ) from None
         result = run_study(checked, samples=samples, seed=seed, jobs=jobs, margins=False)
+        if result.partial:  # stopped (Ctrl-C): no table from part of the plants
+            raise KeyboardInterrupt
         rows += _rows(fraction, change, result)
         if progress is not None:
             progress(done + 1, len(fractions))
