@@ -31,12 +31,14 @@ ROOT = Path(__file__).resolve().parents[1]
 
 
 def _linear_twin(case):
-    """The case with its balance plant replaced by the linearisation (one disturbance path)."""
+    """The case with its balance plant replaced by its linearisation: the same named
+    disturbance paths, simulated by the transfer-function kernel."""
     names = [p for p in case.uncertainty if not p.key.startswith("process.")]
-    events = tuple(replace(e, disturbance=None) for e in case.events
-                   if e.disturbance in (None, case.balance.feedforward_input))
-    return replace(case, balance=None, uncertainty=tuple(names), events=events,
-                   designs=(), feedforward=replace(case.feedforward, law="linear", trim="add"))
+    linear = replace(case.feedforward, law="linear", trim="add")
+    return replace(case, balance=None, uncertainty=tuple(names), designs=(),
+                   feedforward=linear,
+                   disturbances=tuple(replace(item, feedforward=None)
+                                      for item in case.disturbances))
 
 
 def _best(batch, design, scenario, repeat: int) -> float:
