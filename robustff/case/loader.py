@@ -197,7 +197,7 @@ def _build_case(problems: Problems, raw: dict[str, Any], base_dir: Path | None =
                                simulation.substeps if simulation is not None else None)
     events = _read_events(problems, raw, simulation, base_dir, time_unit)
     if events is not None and not balance_form:  # a balance plant names its inputs itself
-        events = _check_event_disturbances(problems, events, raw.get("disturbance"), named)
+        events = _check_event_disturbances(problems, events, raw.get("disturbance"))
     if simulation is not None and events is not None:
         simulation = records_cover(problems, simulation, events, MAX_STEPS, time_unit or "")
     study = _read_study(problems, raw.get("study", {}))
@@ -239,8 +239,8 @@ def _build_case(problems: Problems, raw: dict[str, Any], base_dir: Path | None =
     )
 
 
-def _check_event_disturbances(problems: Problems, events: tuple[Event, ...], table: object,
-                              named: object) -> tuple[Event, ...] | None:
+def _check_event_disturbances(problems: Problems, events: tuple[Event, ...], table: object
+                              ) -> tuple[Event, ...] | None:
     """Every disturbance event names a disturbance of the case (optional when there is one)."""
     names = tuple(table) if is_named_form(table) else ()
     before = len(problems)

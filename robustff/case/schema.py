@@ -8,7 +8,7 @@ types every other layer uses and re-exports :func:`load_case`, :func:`parse_case
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from robustff.case.balance_spec import BalanceSpec
@@ -515,8 +515,6 @@ class Case:
     def with_disturbance_input(self, name: str, item: DisturbanceInput) -> Case:
         """A copy with the named disturbance replaced by ``item`` (``name`` ``""``: the single
         one; ``disturbance`` and ``sensor`` follow the first)."""
-        from dataclasses import replace
-
         if not self.disturbances:
             return replace(self, disturbance=item.model, sensor=item.sensor)
         inputs = tuple(item if old.name == name else old for old in self.disturbances)

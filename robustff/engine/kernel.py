@@ -509,18 +509,18 @@ def _commit_envelope(env_buf: np.ndarray, envelope_counts: np.ndarray, keep: boo
 @njit(cache=True, nogil=True)
 def _disturbance_inputs(i: int, seed: np.uint64, disturbances: np.ndarray,
                         disturbance_profile: np.ndarray, noise: np.ndarray, substeps: int,
-                        inputs: np.ndarray, measured: np.ndarray) -> None:
+                        inputs: np.ndarray, measured: np.ndarray, held: np.ndarray) -> None:
     """Every disturbance's input at every internal step (``inputs``, shape (J, T S)) and its
     transmitter noise at every scan (written into ``measured``, shape (J, T)).
 
     ``noise`` rows: start scan, filter pole, innovation scale, state (updated in place),
-    stationary standard deviation, disturbance index. Per scan the filtered-noise events draw
+    stationary standard deviation, disturbance index; ``held`` (J,) is scratch for the noise
+    each disturbance holds over a scan. Per scan the filtered-noise events draw
     first (in order), then each noisy transmitter (in disturbance order); filtered noise is drawn
     once per scan and held over it, so it does not change with ``substeps``.
     """
     n_d, n_steps = inputs.shape[0], measured.shape[1]
     noise[:, 3] = 0.0
-    held = np.zeros(n_d)
     for k in range(n_steps):
         held[:] = 0.0
         for e in range(noise.shape[0]):
@@ -825,6 +825,7 @@ def simulate_kernel(
     measured = np.zeros((n_d, n_steps))
     filtered = np.zeros(n_steps)
     ff_total = np.zeros(n_steps)
+    held = np.zeros(n_d)
     replay, record = noise_replay.shape[1] > 0, noise_record.shape[1] > 0
     for i in range(plant.shape[0]):
         if replay:
@@ -834,7 +835,7 @@ def simulate_kernel(
                                               n_internal + (j + 1) * n_steps]
         else:
             _disturbance_inputs(i, seeds[i], disturbances, disturbance_profile, noise, substeps,
-                                inputs, measured)
+                                inputs, measured, held)
             _disturbance_paths(i, disturbance_kinds, disturbances, hi, substeps, inputs, effect,
                                measured)
         if record:
