@@ -148,6 +148,9 @@ class FeedforwardSettings:
         for the manipulated flow with this lead-lag on it (``"balance"``).
     trim : {"add", "multiply"}
         How the feedback output trims the balance law's flow.
+    path_lag : float
+        The nominal disturbance path's largest lag, time units (0: none): what a compensator
+        without a lag of its own has its delay's fraction ride on (see :attr:`delay_lag`).
     """
 
     structure: str
@@ -159,6 +162,7 @@ class FeedforwardSettings:
     input_filter: float = 0.0
     law: str = "linear"
     trim: str = "add"
+    path_lag: float = 0.0
 
     @property
     def active(self) -> bool:
@@ -166,9 +170,16 @@ class FeedforwardSettings:
             return self.structure != "none"
         return self.structure != "none" and self.gain != 0.0
 
+    @property
+    def delay_lag(self) -> float:
+        """The lag the sampled delay's fraction is made exact for, time units: the
+        compensator's own lag (it stands for the disturbance path's), else :attr:`path_lag`."""
+        return self.lag if self.lag > 0.0 else self.path_lag
+
     def to_dict(self) -> dict[str, object]:
-        """The fields of ``summary.json``."""
-        return dict(self.__dict__)
+        """The fields of ``summary.json`` (``path_lag``, a discretisation detail, not among
+        them)."""
+        return {key: value for key, value in self.__dict__.items() if key != "path_lag"}
 
 
 @dataclass(frozen=True)
@@ -530,7 +541,8 @@ def design_feedforward(
     if lead > 0.0 and lag <= 0.0:
         raise DesignError("feedforward: a lead needs a lag > 0 (the compensator must be proper)")
     return FeedforwardSettings(structure, gain, lead, lag, delay, spec.gain_factor,
-                               spec.input_filter or 0.0, spec.law, spec.trim), notes
+                               spec.input_filter or 0.0, spec.law, spec.trim,
+                               path_lag=max(_lags(disturbance), default=0.0)), notes
 
 
 def _lags(model: TransferModel) -> list[float]:

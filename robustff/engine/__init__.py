@@ -171,15 +171,16 @@ def _secondary_vector(design: LoopDesign, scans_per_primary: int) -> np.ndarray:
 
 
 def _feedforward_matrix(design: LoopDesign, n_paths: int) -> np.ndarray:
-    """(J, 6): gain, lead, lag, delay, input filter, has a feedforward; one row per path."""
+    """(J, 7): gain, lead, lag, delay, input filter, has a feedforward, and the lag its delay's
+    fraction rides on (:attr:`FeedforwardSettings.delay_lag`); one row per path."""
     compensators = design.all_compensators
     if len(compensators) != n_paths:
         raise DesignError(f"the design has {len(compensators)} feedforward compensators for "
                           f"{n_paths} disturbances")
-    rows = np.zeros((n_paths, 6))
+    rows = np.zeros((n_paths, 7))
     for row, ff in zip(rows, compensators, strict=True):
         if ff.active:
-            row[:] = (ff.gain, ff.lead, ff.lag, ff.delay, ff.input_filter, 1.0)
+            row[:] = (ff.gain, ff.lead, ff.lag, ff.delay, ff.input_filter, 1.0, ff.delay_lag)
     return rows
 
 

@@ -22,7 +22,8 @@ from numba import njit
 
 from robustff.plant.kinds import FOPDT, IPDT, SOPDT
 
-__all__ = ["decay", "phi1", "coupling", "second_step", "block_coefficients", "split_delay"]
+__all__ = ["decay", "phi1", "coupling", "second_step", "block_coefficients", "split_delay",
+           "delay_weights"]
 
 # Simulator codes from the kind registry; numba compiles module-level ints in as constants.
 _FOPDT, _SOPDT, _IPDT = FOPDT.code, SOPDT.code, IPDT.code
@@ -72,6 +73,31 @@ def split_delay(dead_time: float, h: float) -> tuple[int, float]:
     if f < 1e-12:
         f = 0.0
     return m, f
+
+
+@njit(cache=True, nogil=True)
+def delay_weights(f: float, h: float, tau: float) -> tuple[float, float]:
+    """Weights ``(w_new, w_old)`` of a compensator's delay ``(m + f) h`` written as
+    ``z^-m (w_new + w_old z^-1)``, exact for a signal that rides on a first-order lag ``tau``.
+
+    With ``p = exp(-h/tau)``, sampling ``e^{-(m+f) h s}/(tau s + 1)`` behind a zero-order hold
+    gives ``z^-m-1 ((1 - p^(1-f)) + (p^(1-f) - p) z^-1) / (1 - p z^-1)`` (the modified
+    z-transform; Astrom & Wittenmark, Computer-Controlled Systems, 3rd ed., 1997, sec. 2.6),
+    against ``z^-1 (1 - p) / (1 - p z^-1)`` without the delay: their ratio gives the weights,
+    which add to 1 (unit steady-state gain). A very slow lag gives linear interpolation
+    ``(1 - f, f)``; no lag (``tau = 0``) gives ``(1, 0)``: the hold already carries the
+    fraction. ``h`` and ``tau`` in the same time unit.
+    """
+    if f <= 0.0:
+        return 1.0, 0.0
+    if tau <= 0.0:
+        return 1.0, 0.0
+    x = h / tau
+    if x < 1e-9:
+        return 1.0 - f, f
+    # expm1 keeps both weights accurate when the lag is much slower than the scan.
+    w_new = math.expm1(-(1.0 - f) * x) / math.expm1(-x)
+    return w_new, 1.0 - w_new
 
 
 @njit(cache=True, nogil=True)

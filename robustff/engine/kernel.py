@@ -28,7 +28,7 @@ from collections import namedtuple
 import numpy as np
 from numba import njit
 
-from robustff.engine.discretise import block_coefficients, decay, split_delay
+from robustff.engine.discretise import block_coefficients, decay, delay_weights, split_delay
 
 __all__ = [
     "simulate_kernel", "ACCUMULATOR_NAMES", "N_ACCUMULATORS", "ACCUMULATOR_INIT", "Accumulators",
@@ -756,8 +756,9 @@ def simulate_kernel(
                                   # disturbance index
     controller: np.ndarray,       # (10,): kc, ti, td, tf, tt, u_low, u_high, divergence limit,
                                   # setpoint weights b and c
-    feedforward: np.ndarray,      # (J, 6): gain, lead, lag, delay, input filter time constant,
-                                  # has a feedforward (1) or not (0: unmeasured or none)
+    feedforward: np.ndarray,      # (J, 7): gain, lead, lag, delay, input filter time constant,
+                                  # has a feedforward (1) or not (0: unmeasured or none),
+                                  # lag the delay's fraction rides on (see delay_weights)
     metric_setup: np.ndarray,     # (4,): event start time, settling band, unused, CV band
     direction_profile: np.ndarray,  # (T S,): sign of e that counts as an opposite excursion
     segment_profile: np.ndarray,  # (T S,): start time of the latest event (settling segments)
@@ -801,7 +802,8 @@ def simulate_kernel(
         m_ff, f_ff = split_delay(feedforward[j, 3], h)
         ff_delays[j] = min(m_ff, n_steps)
         ffp[j, 0], ffp[j, 1], ffp[j, 2] = ff_pole, ff_zero, ff_scale
-        ffp[j, 3], ffp[j, 4], ffp[j, 5] = 1.0 - f_ff, f_ff, decay(h, feedforward[j, 4])
+        ffp[j, 3], ffp[j, 4] = delay_weights(f_ff, h, feedforward[j, 6])
+        ffp[j, 5] = decay(h, feedforward[j, 4])
         ffp[j, 6] = feedforward[j, 5]
     scans = max(int(secondary[6]), 1)
     h_s = h / scans

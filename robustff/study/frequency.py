@@ -37,6 +37,7 @@ from robustff.case.sampling import nominal_plants
 from robustff.design.margins import actuation_response
 from robustff.design.sampled_loop import split_delay, zoh_coefficients
 from robustff.design.tuning import LoopDesign
+from robustff.engine.discretise import delay_weights
 from robustff.plant.kinds import model_kind
 from robustff.plant.models import PlantBatch
 from robustff.study.summary_types import FrequencyDict, FrequencyRecordDict
@@ -148,7 +149,8 @@ def compensator_response(design: LoopDesign, h: float, omega: np.ndarray,
                          index: int = 0) -> np.ndarray:
     """The simulated feedforward compensator at ``z = exp(j w h)``, complex, shape (F,).
 
-    Digital input filter ``(1 - a) / (1 - a z^-1)``, delay ``z^-m ((1 - f) + f z^-1)``, and
+    Digital input filter ``(1 - a) / (1 - a z^-1)``, delay ``z^-m (w_new + w_old z^-1)`` (see
+    :func:`robustff.engine.discretise.delay_weights`), and
     the matched pole-zero lead-lag ``s (1 - q z^-1) / (1 - p z^-1)`` with ``p = exp(-h/lag)``,
     ``q = exp(-h/lead)`` and ``s = K (1 - p) / (1 - q)`` (unit gain at ``z = 1`` times K).
     ``index``: the disturbance (case order) whose compensator it is.
@@ -162,7 +164,8 @@ def compensator_response(design: LoopDesign, h: float, omega: np.ndarray,
     m, f = split_delay(np.array([ff.delay]), h)
     a = float(_decay(h, ff.input_filter))
     lead_lag = scale * (1.0 - zero * zi) / (1.0 - pole * zi)
-    delay = zi ** m[0] * ((1.0 - f[0]) + f[0] * zi)
+    w_new, w_old = delay_weights(float(f[0]), h, ff.delay_lag)
+    delay = zi ** m[0] * (w_new + w_old * zi)
     return (1.0 - a) / (1.0 - a * zi) * delay * lead_lag
 
 

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from path_stepping import step_path
 
-from robustff.engine.discretise import split_delay
+from robustff.engine.discretise import delay_weights, split_delay
 
 
 @pytest.mark.parametrize(("dead_time", "h"), [(2.37, 0.1), (0.05, 0.1), (3.0, 0.25), (0.0, 0.2)])
@@ -99,3 +99,42 @@ def test_split_delay_whole_and_fractional_samples(dead_time, h, expected):
     assert f == pytest.approx(expected[1], abs=1e-9)
     assert (m + f) * h == pytest.approx(dead_time, abs=1e-12)
     assert 0.0 <= f < 1.0 and not math.isnan(f)
+
+
+@pytest.mark.parametrize(("delay", "h", "tau"), [(1.23, 0.1, 5.0), (0.35, 0.5, 2.0),
+                                                 (2.0, 0.5, 4.0), (0.7, 0.2, 0.05)])
+def test_delay_weights_reproduce_the_sampled_delayed_lag(delay, h, tau):
+    # Source: the modified z-transform of a first-order lag behind a zero-order hold with a
+    # fractional dead time (Astrom and Wittenmark, Computer-Controlled Systems, 3rd ed., 1997,
+    # sec. 2.6): a unit step through z^-m (w_new + w_old z^-1) and the sampled undelayed lag
+    # (1 - p) z^-1 / (1 - p z^-1) must equal the analytic 1 - exp(-(t - theta)/tau) at the
+    # samples after the delay, and 0 before it.
+    m, f = split_delay(delay, h)
+    w_new, w_old = delay_weights(f, h, tau)
+    n = 200
+    step = np.ones(n)
+    delayed = np.zeros(n)
+    for k in range(n):
+        newer = step[k - m] if k >= m else 0.0
+        older = step[k - m - 1] if k >= m + 1 else 0.0
+        delayed[k] = w_new * newer + w_old * older
+    pole = math.exp(-h / tau)
+    y = np.zeros(n)
+    for k in range(1, n):
+        y[k] = pole * y[k - 1] + (1.0 - pole) * delayed[k - 1]
+    t = np.arange(n) * h
+    expected = np.where(t >= delay, 1.0 - np.exp(-(t - delay) / tau), 0.0)
+    np.testing.assert_allclose(y, expected, rtol=0, atol=1e-12)
+
+
+def test_delay_weights_limits():
+    # Analytic limits of the weights above: a lag much slower than the scan gives linear
+    # interpolation (1 - f, f); no lag gives (1, 0); a whole-scan delay gives (1, 0); the
+    # weights always add to 1 (unit steady-state gain).
+    assert delay_weights(0.3, 0.1, 1e9) == pytest.approx((0.7, 0.3), abs=1e-8)
+    assert delay_weights(0.3, 0.1, 0.0) == (1.0, 0.0)
+    assert delay_weights(0.0, 0.1, 5.0) == (1.0, 0.0)
+    for f in (0.1, 0.5, 0.9):
+        w_new, w_old = delay_weights(f, 0.5, 3.0)
+        assert w_new + w_old == pytest.approx(1.0, abs=1e-15)
+        assert 1.0 - f < w_new < 1.0

@@ -6,6 +6,8 @@ final-value theorem, and closed forms that follow from linearity.
 """
 
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
 from numba import njit
@@ -272,19 +274,28 @@ def test_perfect_feedforward_cancels_the_disturbance_exactly_on_whole_samples(
     assert iae[1] < 1e-9 * iae[0]
 
 
-def test_perfect_feedforward_with_fractional_delay_difference_converges():
-    # Source: as above; the fractional part of the compensator delay is interpolated between
-    # samples, a second-order discretisation error: the residual IAE must stay below
-    # (h / tau_p)^2 of the feedback-only IAE and shrink as h is refined.
-    ratios = []
-    for h in (0.1, 0.05, 0.025):
-        case = make_case(Model("fopdt", 2.0, 10.0, 0.0, 3.0), Model("fopdt", 1.5, 5.0, 0.0, 4.23),
-                         "lead-lag-delay", h, 100.0)
-        _, result, _ = run_engine(case)
-        iae = result.metrics["iae"][0]
-        ratios.append(iae[1] / iae[0])
-        assert iae[1] < (h / 10.0) ** 2 * iae[0]
-    assert ratios[0] > 2 * ratios[1] > 4 * ratios[2]
+@pytest.mark.parametrize(("structure", "disturbance_lag", "explicit_delay", "h"), [
+    ("lead-lag-delay", 5.0, None, 0.1), ("lead-lag-delay", 5.0, None, 0.5),
+    ("lead-lag-delay", 10.0, None, 0.1), ("static", 10.0, 1.23, 0.1), ("static", 10.0, 1.23, 0.5),
+])
+def test_perfect_feedforward_cancels_exactly_with_a_fractional_delay_difference(
+        structure, disturbance_lag, explicit_delay, h):
+    # Source: as above, with the compensator delay theta_d - theta_p = 1.23 not a whole number of
+    # scans: the delay's fraction is the exact modified z-transform of the lag it rides on
+    # (Astrom and Wittenmark, Computer-Controlled Systems, 3rd ed., 1997, sec. 2.6), the
+    # compensator's lag (= the disturbance lag) or, with equal lags (lead-lag cancels to a
+    # static gain), the disturbance path's lag. The ratio of the two sampled paths is then
+    # matched exactly at every scan; linear interpolation of the fraction left a residual of
+    # order (h / tau)^2 of the feedback-only IAE (about 1e-3 at h = 0.5).
+    case = make_case(Model("fopdt", 2.0, 10.0, 0.0, 3.0),
+                     Model("fopdt", 1.5, disturbance_lag, 0.0, 4.23), structure, h, 100.0)
+    if explicit_delay is not None:
+        case = replace(case, feedforward=replace(case.feedforward, delay=explicit_delay))
+    design, result, error = run_engine(case)
+    assert design.feedforward.delay == pytest.approx(1.23)
+    iae = result.metrics["iae"][0]
+    assert iae[1] < 1e-9 * iae[0]
+    assert np.max(np.abs(error[1])) < 1e-9 * np.max(np.abs(error[0]))
 
 
 def test_gain_errors_scale_the_error_by_r0():
