@@ -33,6 +33,8 @@ import math
 import numpy as np
 from numba import njit
 
+from robustff.engine.random_draws import next_normal, normal_stream
+
 __all__ = ["balance_kernel", "BALANCE_ACCUMULATORS", "LAW_NONE", "LAW_LINEAR", "LAW_BALANCE"]
 
 #: The accumulators this kernel computes, in its own order (the caller maps them to the
@@ -50,26 +52,6 @@ _IE, _IAE, _ISE, _ITAE, _PEAK, _OPPOSITE, _SETTLING, _TRAVEL, _AT_LIMIT, _OUTSID
 def _decay(h: float, tau: float) -> float:
     """``exp(-h / tau)``, 0 without a lag."""
     return math.exp(-h / tau) if tau > 0.0 else 0.0
-
-
-@njit(cache=True, nogil=True)
-def _splitmix64(state: np.uint64) -> tuple[np.uint64, np.uint64]:
-    # splitmix64: small, fast and reproducible per sample, whatever the thread or chunk.
-    state += np.uint64(0x9E3779B97F4A7C15)
-    z = state
-    z = (z ^ (z >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
-    z = (z ^ (z >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
-    return state, z ^ (z >> np.uint64(31))
-
-
-@njit(cache=True, nogil=True)
-def _random_normal(state: np.uint64) -> tuple[np.uint64, float]:
-    """Next standard normal draw (Box-Muller); returns ``(new state, draw)``."""
-    state, z1 = _splitmix64(state)
-    state, z2 = _splitmix64(state)
-    u1 = (float(z1 >> np.uint64(11)) + 1.0) * 2.0 ** -53
-    u2 = float(z2 >> np.uint64(11)) * 2.0 ** -53
-    return state, math.sqrt(-2.0 * math.log(u1)) * math.cos(2.0 * math.pi * u2)
 
 
 @njit(cache=True, nogil=True)
@@ -256,15 +238,16 @@ def _simulate_sample(i: int, kind: int, row: np.ndarray, h: float, substeps: int
     n_bins = edges.shape[0] - 1
     width = (edges[-1] - edges[0]) / n_bins
     noise[:, 3] = 0.0
+    draws = normal_stream(seed)
     for k in range(n_steps):
         held = np.zeros(2)
         for j in range(noise.shape[0]):
             if k >= noise[j, 0]:
                 if k == noise[j, 0]:  # start from the stationary distribution
-                    seed, draw = _random_normal(seed)
+                    draws, draw = next_normal(draws)
                     noise[j, 3] = noise[j, 4] * draw
                 held[int(noise[j, 5])] += noise[j, 3]
-                seed, draw = _random_normal(seed)
+                draws, draw = next_normal(draws)
                 noise[j, 3] = noise[j, 1] * noise[j, 3] + noise[j, 2] * draw
         for sub in range(substeps):
             q = k * substeps + sub

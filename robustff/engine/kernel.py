@@ -29,6 +29,7 @@ import numpy as np
 from numba import njit
 
 from robustff.engine.discretise import block_coefficients, decay, delay_weights, split_delay
+from robustff.engine.random_draws import next_normal, normal_stream
 
 __all__ = [
     "simulate_kernel", "ACCUMULATOR_NAMES", "N_ACCUMULATORS", "ACCUMULATOR_INIT", "Accumulators",
@@ -171,26 +172,6 @@ _D_GAIN, _D_TAU1, _D_TAU2, _D_DELAY, _D_SENSOR, _D_NOISE = range(6)
 
 # Hot helpers take and return scalars and tuples only: an array argument would cost reference
 # counting on every call inside the time loop.
-
-
-@njit(cache=True, nogil=True, inline="always")
-def _splitmix64(state: np.uint64) -> tuple[np.uint64, np.uint64]:
-    # splitmix64: small, fast and reproducible per sample, independent of thread or chunk.
-    state += np.uint64(0x9E3779B97F4A7C15)
-    z = state
-    z = (z ^ (z >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
-    z = (z ^ (z >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
-    return state, z ^ (z >> np.uint64(31))
-
-
-@njit(cache=True, nogil=True, inline="always")
-def _random_normal(state: np.uint64) -> tuple[np.uint64, float]:
-    """Next standard normal draw (Box-Muller); returns ``(new state, draw)``."""
-    state, z1 = _splitmix64(state)
-    state, z2 = _splitmix64(state)
-    u1 = (float(z1 >> np.uint64(11)) + 1.0) * 2.0 ** -53
-    u2 = float(z2 >> np.uint64(11)) * 2.0 ** -53
-    return state, math.sqrt(-2.0 * math.log(u1)) * math.cos(2.0 * math.pi * u2)
 
 
 @njit(cache=True, nogil=True)
@@ -521,16 +502,24 @@ def _disturbance_inputs(i: int, seed: np.uint64, disturbances: np.ndarray,
     """
     n_d, n_steps = inputs.shape[0], measured.shape[1]
     noise[:, 3] = 0.0
+    draws = normal_stream(seed)
+    noisy = noise.shape[0] > 0
+    for j in range(n_d):
+        noisy = noisy or disturbances[i, j, _D_NOISE] > 0.0
+    if not noisy:  # the common case: the deterministic profile, no draws
+        inputs[:, :] = disturbance_profile
+        measured[:, :] = 0.0
+        return
     for k in range(n_steps):
         held[:] = 0.0
         for e in range(noise.shape[0]):
             if k >= noise[e, 0]:
                 if k == noise[e, 0]:
                     # Start from the stationary distribution: the noise is already running.
-                    seed, draw = _random_normal(seed)
+                    draws, draw = next_normal(draws)
                     noise[e, 3] = noise[e, 4] * draw
                 held[int(noise[e, 5])] += noise[e, 3]
-                seed, draw = _random_normal(seed)
+                draws, draw = next_normal(draws)
                 noise[e, 3] = noise[e, 1] * noise[e, 3] + noise[e, 2] * draw
         for j in range(n_d):
             for sub in range(substeps):
@@ -539,7 +528,7 @@ def _disturbance_inputs(i: int, seed: np.uint64, disturbances: np.ndarray,
         for j in range(n_d):
             measured[j, k] = 0.0
             if disturbances[i, j, _D_NOISE] > 0.0:
-                seed, draw = _random_normal(seed)
+                draws, draw = next_normal(draws)
                 measured[j, k] = disturbances[i, j, _D_NOISE] * draw
 
 

@@ -51,8 +51,10 @@ def test_a_fast_secondary_loop_leaves_the_results_of_the_direct_loop():
         inner = _percentiles(substepped + _secondary(45.0 / ratio, 20))
         differences.append(max(float(np.max(np.abs(inner[n] / direct[n] - 1.0)))
                                for n in direct))
-    assert differences[1] < 0.01, differences
-    assert differences[1] < differences[0], differences
+    # The inner loop adds a lag of about its closed-loop time, so the difference shrinks about
+    # in proportion to it: a tenfold faster secondary, about a tenfold smaller difference.
+    assert differences[1] < 0.02, differences
+    assert differences[1] < differences[0] / 5.0, differences
 
 
 def test_a_slow_secondary_loop_costs_performance():
