@@ -137,6 +137,9 @@ class StudyResult:
     nominal_margins: MarginResult | None = None
     nominal_continuous_margins: MarginResult | None = None
     alternatives: list[DesignArm] = field(default_factory=list)
+    #: Results derived from this one, kept so that the summary, the files and the plots
+    #: compute each once (see :func:`robustff.study.summary.study_frequencies`).
+    derived: dict[str, object] = field(default_factory=dict, repr=False, compare=False)
 
     @property
     def samples(self) -> int:

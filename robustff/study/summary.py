@@ -294,10 +294,18 @@ def study_frequency(result: StudyResult) -> FrequencyResult:
 
 def study_frequencies(result: StudyResult) -> list[FrequencyResult]:
     """:func:`study_frequency` for every measured disturbance, in case order (the bands of
-    frequency.csv); the first disturbance alone when none is measured."""
+    frequency.csv); the first disturbance alone when none is measured. Computed once per
+    result, case, design and sample count (the summary, the files and the plots share it)."""
+    cached = result.derived.get("frequencies")
+    if isinstance(cached, tuple):
+        case, design, samples, studies = cached
+        if case is result.case and design is result.design and samples == result.samples:
+            return list(studies)
     batch = plant_batch(result.case, result.names, result.parameters[:MAX_PLANTS])
     indices = measured_disturbances(result.case) or [0]
-    return [frequency_study(result.case, result.design, batch, index) for index in indices]
+    studies = [frequency_study(result.case, result.design, batch, index) for index in indices]
+    result.derived["frequencies"] = (result.case, result.design, result.samples, tuple(studies))
+    return studies
 
 
 def summarize_study(

@@ -231,8 +231,9 @@ def test_a_large_study_takes_the_bands_over_its_first_plants_only() -> None:
     rng = np.random.default_rng(3)
     gains = rng.uniform(0.45, 0.75, n)
     result = SimpleNamespace(case=case, design=design_loop(case), names=["process.gain"],
-                             parameters=gains[:, None])
+                             parameters=gains[:, None], samples=n, derived={})
     frequency = study_frequency(result)
+    assert study_frequency(result) is frequency  # computed once, shared by summary and files
     assert frequency.plants == MAX_PLANTS and frequency.omega.size == FREQUENCY_POINTS
     batch = nominal_batch(case, MAX_PLANTS)
     batch.set_parameter("process.gain", gains[:MAX_PLANTS])
