@@ -24,7 +24,8 @@ from robustff.design.tuning import design_loop
 from robustff.engine import build_scenario, simulate
 from robustff.tune.search import robust_search
 
-TARGET_SECONDS = 60.0
+#: The speed issue's target for `robustff tune` on each demo case, whole search.
+TARGET_SECONDS = 3.0
 
 
 def baseline_seconds(case, samples: int, jobs: int) -> float:
@@ -54,6 +55,10 @@ def main() -> int:
     worst = 0.0
     for path in paths:
         case = load_case(path)
+        if case.balance is not None:
+            print(f"{path.name}: skipped (robustff tune does not handle plants built from "
+                  "balances yet)")
+            continue
         base = baseline_seconds(case, args.samples, args.jobs)
         cpu, started = time.process_time(), time.perf_counter()
         result = robust_search(case, samples=args.samples, jobs=args.jobs)

@@ -42,7 +42,7 @@ from robustff.tune.objectives import (
     search_score,
     unknown_objective,
 )
-from robustff.tune.simulation import simulate_iae
+from robustff.tune.simulation import iae_columns, reference_run, simulate_iae
 from robustff.tune.sobol import sobol_sensitivity
 from robustff.tune.verdict import TuneVerdict, judge_fresh, tune_verdict
 
@@ -243,16 +243,29 @@ class _SampleSet:
         self.spans = chunk_spans(n, max(64, math.ceil(n / max(jobs, 1))))
         self.batches = [plant_batch(case, self.names, self.values[a:b]) for a, b in self.spans]
         self.case, self.design, self.scenario, self.pool = case, design, scenario, pool
-        both = self._run(design.feedforward)  # the feedback arm does not depend on feedforward
+        # The feedback arm does not depend on the feedforward: it is simulated once here, and
+        # each later design runs its feedforward arm alone on the recorded disturbance.
+        self.references = [
+            job.result() for job in [
+                pool.submit(reference_run, batch, self._with(design.feedforward), scenario,
+                            self.seeds[a:b])
+                for batch, (a, b) in zip(self.batches, self.spans, strict=True)]]
+        both = (np.concatenate([iae_columns(r) for r in self.references]) if self.references
+                else np.empty((0, 2)))
         self.keep = np.isfinite(both[:, 0])
         self.iae_fb = both[self.keep, 0]
         self._nominal = (design.feedforward, both[self.keep, 1])
         self._recent: dict[FeedforwardSettings, np.ndarray] = {}  # the last few designs
 
+    def _with(self, settings: FeedforwardSettings) -> LoopDesign:
+        return self.design.with_headline(settings, self.case)
+
     def _run(self, settings: FeedforwardSettings) -> np.ndarray:
-        design = self.design.with_headline(settings, self.case)
-        jobs = [self.pool.submit(simulate_iae, batch, design, self.scenario, self.seeds[a:b])
-                for batch, (a, b) in zip(self.batches, self.spans, strict=True)]
+        design = self._with(settings)
+        jobs = [self.pool.submit(simulate_iae, batch, design, self.scenario, self.seeds[a:b],
+                                 reference)
+                for batch, (a, b), reference in zip(self.batches, self.spans, self.references,
+                                                    strict=True)]
         return np.concatenate([job.result() for job in jobs]) if jobs else np.empty((0, 2))
 
     def iae_fbff(self, settings: FeedforwardSettings) -> np.ndarray:

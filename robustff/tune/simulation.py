@@ -9,14 +9,15 @@ from __future__ import annotations
 import numpy as np
 
 from robustff.design.tuning import LoopDesign
-from robustff.engine import Scenario, simulate
+from robustff.engine import Scenario, SimulationResult, simulate
 from robustff.plant.models import PlantBatch
+from robustff.study.runner import NOISE_REPLAY_LIMIT
 
-__all__ = ["simulate_iae"]
+__all__ = ["simulate_iae", "reference_run", "iae_columns"]
 
 
 def simulate_iae(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
-                 seeds: np.ndarray) -> np.ndarray:
+                 seeds: np.ndarray, reference: SimulationResult | None = None) -> np.ndarray:
     """IAE without and with feedforward, shape (samples, 2); inf where the loop is unstable.
 
     Parameters
@@ -29,11 +30,28 @@ def simulate_iae(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
         Events and time grid.
     seeds : ndarray of uint64, shape (samples,)
         Per-sample noise seeds.
+    reference : SimulationResult, optional
+        A run of the same plants, feedback design, scenario and seeds (see
+        :func:`reference_run`): only the feedforward arm is then simulated, the same numbers.
 
     Returns
     -------
     ndarray, shape (samples, 2)
         Column 0 feedback only, column 1 feedback plus feedforward (CV units x time units).
     """
-    result = simulate(batch, design, scenario, seeds=seeds)
+    result = simulate(batch, design, scenario, seeds=seeds, reference=reference)
+    return iae_columns(result)
+
+
+def reference_run(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
+                  seeds: np.ndarray) -> SimulationResult:
+    """A full run of the batch kept as the reference of later designs: with its disturbance
+    recorded for them to replay when it is small enough (:data:`NOISE_REPLAY_LIMIT`)."""
+    size = batch.size * scenario.n_steps * (scenario.substeps + len(batch.paths))
+    return simulate(batch, design, scenario, seeds=seeds,
+                    record_noise=size <= NOISE_REPLAY_LIMIT)
+
+
+def iae_columns(result: SimulationResult) -> np.ndarray:
+    """IAE of both arms of a result, shape (samples, 2); inf where unstable."""
     return np.where(result.unstable, np.inf, result.metrics["iae"])
