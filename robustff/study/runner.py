@@ -28,6 +28,7 @@ from robustff.design.tuning import FeedforwardSettings, LoopDesign, design_loop
 from robustff.engine import (
     EnvelopeGrid,
     Scenario,
+    SimulationResult,
     build_scenario,
     nominal_batch,
     simulate,
@@ -297,17 +298,16 @@ def run_study(
         )
         for c in chunks
     ]
-    results, partial = [], False
+    collected = _Collected(design, n, scenario.n_steps)
+    partial = False
     # Envelope histograms are summed as chunks arrive so memory does not grow with their count.
     counts = np.zeros((2, grid.times.size, grid.edges.size - 1), np.int64)
     cancel = cancel or threading.Event()
     generator = _parallel_results(tasks, jobs, cluster)
     try:
         for chunk, (result, alternatives) in zip(chunks, generator, strict=False):
-            result.alternatives = alternatives
             counts += result.envelope_counts
-            result.envelope_counts = None
-            results.append(result)
+            collected.add(chunk, result, alternatives)
             if progress is not None:
                 progress(chunk.stop, n)
             if cancel.is_set():
@@ -319,11 +319,11 @@ def run_study(
         close = getattr(generator, "close", None)
         if close is not None:
             close()
-    metrics, unstable, kept = _concatenate(results, scenario.n_steps)
+    metrics, unstable = collected.metrics(), collected.unstable()
     result = StudyResult(
-        case, design, scenario, names, values[: unstable.shape[0]], metrics, unstable, grid,
-        counts, nominal_traj, kept, seed, n, partial or len(results) < len(chunks), 0.0,
-        alternatives=_alternative_arms(design, results),
+        case, design, scenario, names, values[: collected.filled], metrics, unstable, grid,
+        counts, nominal_traj, collected.kept, seed, n,
+        partial or collected.filled < n, 0.0, alternatives=collected.arms(),
     )
     if margins:
         subset = min(result.samples, MARGIN_SAMPLES)
@@ -339,28 +339,51 @@ def run_study(
     return result
 
 
-def _alternative_arms(design: LoopDesign, results: list) -> list[DesignArm]:
-    """The alternative designs' per-sample results of the finished chunks, in order."""
-    arms = []
-    for index, alternative in enumerate(design.alternatives):
-        parts = [r.alternatives[index] for r in results]
-        metrics = {name: np.concatenate([p[0][name] for p in parts]) if parts else np.empty(0)
-                   for name in METRIC_NAMES}
-        unstable = (np.concatenate([p[1] for p in parts]) if parts
-                    else np.empty(0, dtype=bool))
-        arms.append(DesignArm(alternative.name, alternative.settings, metrics, unstable,
-                              alternative.compensators))
-    return arms
+class _Collected:
+    """The finished chunks' per-sample results, copied into arrays of the study's size as the
+    chunks arrive (in order), so that no chunk is kept and nothing is concatenated at the end:
+    the peak memory is the study's arrays plus the chunks in flight."""
+
+    def __init__(self, design: LoopDesign, n: int, n_steps: int) -> None:
+        self.design = design
+        self.filled = 0
+        self.kept = np.empty((0, 4, n_steps))
+        self._metrics = {name: np.empty((n, 2)) for name in METRIC_NAMES}
+        self._unstable = np.zeros((n, 2), dtype=bool)
+        self._arms = [({name: np.empty(n) for name in METRIC_NAMES}, np.zeros(n, dtype=bool))
+                      for _ in design.alternatives]
+
+    def add(self, chunk: _Chunk, result: SimulationResult, alternatives: list) -> None:
+        """Copy one chunk's results in; chunks arrive in order."""
+        span = slice(chunk.start, chunk.stop)
+        for name in METRIC_NAMES:
+            self._metrics[name][span] = result.metrics[name]
+        self._unstable[span] = result.unstable
+        if chunk.index == 0 and result.trajectories is not None:
+            self.kept = result.trajectories
+        for (metrics, unstable), (chunk_metrics, chunk_unstable) in zip(
+                self._arms, alternatives, strict=True):
+            for name in METRIC_NAMES:
+                metrics[name][span] = chunk_metrics[name]
+            unstable[span] = chunk_unstable
+        self.filled = chunk.stop
+
+    def metrics(self) -> dict[str, np.ndarray]:
+        """Per-sample metrics of the finished chunks, (filled, 2) each."""
+        return {name: _trimmed(values, self.filled) for name, values in self._metrics.items()}
+
+    def unstable(self) -> np.ndarray:
+        return _trimmed(self._unstable, self.filled)
+
+    def arms(self) -> list[DesignArm]:
+        """The alternative designs' per-sample results of the finished chunks."""
+        return [DesignArm(alternative.name, alternative.settings,
+                          {name: _trimmed(values, self.filled) for name, values in metrics.items()},
+                          _trimmed(unstable, self.filled), alternative.compensators)
+                for alternative, (metrics, unstable) in zip(self.design.alternatives,
+                                                            self._arms, strict=True)]
 
 
-def _concatenate(
-    results: list, n_steps: int
-) -> tuple[dict[str, np.ndarray], np.ndarray, np.ndarray]:
-    """Per-sample metrics, unstable flags and kept trajectories of the finished chunks, in order."""
-    if not results:
-        empty = {name: np.empty((0, 2)) for name in METRIC_NAMES}
-        return empty, np.empty((0, 2), dtype=bool), np.empty((0, 4, n_steps))
-    metrics = {name: np.concatenate([r.metrics[name] for r in results]) for name in METRIC_NAMES}
-    unstable = np.concatenate([r.unstable for r in results])
-    kept = results[0].trajectories
-    return metrics, unstable, kept if kept is not None else np.empty((0, 4, n_steps))
+def _trimmed(values: np.ndarray, filled: int) -> np.ndarray:
+    # An interrupted study keeps a copy of what finished, not the whole unfilled array.
+    return values if filled == values.shape[0] else values[:filled].copy()
