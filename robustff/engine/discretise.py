@@ -88,9 +88,7 @@ def delay_weights(f: float, h: float, tau: float) -> tuple[float, float]:
     ``(1 - f, f)``; no lag (``tau = 0``) gives ``(1, 0)``: the hold already carries the
     fraction. ``h`` and ``tau`` in the same time unit.
     """
-    if f <= 0.0:
-        return 1.0, 0.0
-    if tau <= 0.0:
+    if f <= 0.0 or tau <= 0.0:
         return 1.0, 0.0
     x = h / tau
     if x < 1e-9:

@@ -34,6 +34,7 @@ from robustff.engine import (
     simulate,
 )
 from robustff.engine.metrics import METRIC_NAMES
+from robustff.plant.models import PlantBatch
 from robustff.study.cluster import cluster_results
 
 __all__ = ["StudyResult", "DesignArm", "run_study", "noise_seeds", "chunk_spans", "CHUNK_SIZE",
@@ -187,6 +188,13 @@ def noise_seeds(seed: int, n: int, chunk_size: int = CHUNK_SIZE) -> np.ndarray:
     return np.concatenate(parts) if parts else np.empty(0, dtype=np.uint64)
 
 
+def replay_fits(batch: PlantBatch, scenario: Scenario) -> bool:
+    """Whether the batch's disturbance is small enough (:data:`NOISE_REPLAY_LIMIT`) to record
+    for other designs to replay."""
+    size = batch.size * scenario.n_steps * (scenario.substeps + len(batch.paths))
+    return size <= NOISE_REPLAY_LIMIT
+
+
 def _run_chunk(
     case: Case,
     design: LoopDesign,
@@ -201,9 +209,7 @@ def _run_chunk(
     # With other designs to run, keep this chunk's disturbance (its effect on the CV and its
     # measurement, noise included) so that they replay it instead of simulating it again,
     # when it stays small.
-    record = (bool(design.alternatives)
-              and batch.size * scenario.n_steps * (scenario.substeps + len(batch.paths))
-              <= NOISE_REPLAY_LIMIT)
+    record = bool(design.alternatives) and replay_fits(batch, scenario)
     result = simulate(
         batch, design, scenario, seeds=seeds, envelope=grid, keep=np.arange(min(keep, batch.size)),
         record_noise=record,

@@ -245,11 +245,10 @@ class _SampleSet:
         self.case, self.design, self.scenario, self.pool = case, design, scenario, pool
         # The feedback arm does not depend on the feedforward: it is simulated once here, and
         # each later design runs its feedforward arm alone on the recorded disturbance.
-        self.references = [
-            job.result() for job in [
-                pool.submit(reference_run, batch, self._with(design.feedforward), scenario,
+        jobs = [pool.submit(reference_run, batch, self._with(design.feedforward), scenario,
                             self.seeds[a:b])
-                for batch, (a, b) in zip(self.batches, self.spans, strict=True)]]
+                for batch, (a, b) in zip(self.batches, self.spans, strict=True)]
+        self.references = [job.result() for job in jobs]
         both = (np.concatenate([iae_columns(r) for r in self.references]) if self.references
                 else np.empty((0, 2)))
         self.keep = np.isfinite(both[:, 0])

@@ -11,7 +11,7 @@ import numpy as np
 from robustff.design.tuning import LoopDesign
 from robustff.engine import Scenario, SimulationResult, simulate
 from robustff.plant.models import PlantBatch
-from robustff.study.runner import NOISE_REPLAY_LIMIT
+from robustff.study.runner import replay_fits
 
 __all__ = ["simulate_iae", "reference_run", "iae_columns"]
 
@@ -46,10 +46,10 @@ def simulate_iae(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
 def reference_run(batch: PlantBatch, design: LoopDesign, scenario: Scenario,
                   seeds: np.ndarray) -> SimulationResult:
     """A full run of the batch kept as the reference of later designs: with its disturbance
-    recorded for them to replay when it is small enough (:data:`NOISE_REPLAY_LIMIT`)."""
-    size = batch.size * scenario.n_steps * (scenario.substeps + len(batch.paths))
+    recorded for them to replay when it is small enough (see
+    :func:`robustff.study.runner.replay_fits`)."""
     return simulate(batch, design, scenario, seeds=seeds,
-                    record_noise=size <= NOISE_REPLAY_LIMIT)
+                    record_noise=replay_fits(batch, scenario))
 
 
 def iae_columns(result: SimulationResult) -> np.ndarray:
