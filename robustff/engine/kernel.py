@@ -35,7 +35,7 @@ __all__ = [
     "simulate_kernel", "ACCUMULATOR_NAMES", "N_ACCUMULATORS", "ACCUMULATOR_INIT", "Accumulators",
     "INITIAL_ACCUMULATORS", "accumulator_slot", "ArmState", "ProbeState", "ControllerParams",
     "MetricParams", "PathCoefficients", "FeedforwardParams", "BinGrid", "ValveParams",
-    "ValveState", "SecondaryParams",
+    "ValveState", "SecondaryParams", "loop_setup", "feedforward_setup", "noise_setup", "open_loop",
 ]
 
 # Records. The kernel keeps its state in small tuples so that the compiler holds them in
@@ -731,6 +731,87 @@ def _record(trajectories: np.ndarray, slot: int, k: int, alive0: bool, alive1: b
 
 
 @njit(cache=True, nogil=True)
+def loop_setup(controller: np.ndarray, metric_setup: np.ndarray, envelope_edges: np.ndarray,
+                h: float, hi: float) -> tuple:
+    """The controller's, the metrics' and the envelope grid's constants, computed once:
+    ``(ControllerParams, MetricParams, BinGrid)`` for scan ``h`` and internal step ``hi``."""
+    kc, ti, td, tf, tt = controller[0], controller[1], controller[2], controller[3], controller[4]
+    # The textbook expressions, evaluated once in the same operation order.
+    p = ControllerParams(kc, tf / (tf + h), kc * td / (tf + h), kc * h / ti, h / tt,
+                         controller[5], controller[6], td > 0.0, controller[8], controller[9])
+    # The direction slot is filled per step from direction_profile (metric_setup[2] is unused).
+    mp = MetricParams(hi, metric_setup[0], metric_setup[1], metric_setup[2], 0.0, 0.0,
+                      metric_setup[3])
+    n_bins = envelope_edges.shape[0] - 1
+    grid = BinGrid(envelope_edges[0], (envelope_edges[-1] - envelope_edges[0]) / n_bins, n_bins)
+    return p, mp, grid
+
+
+@njit(cache=True, nogil=True)
+def feedforward_setup(feedforward: np.ndarray, h: float, n_steps: int) -> tuple:
+    """Each disturbance's discrete feedforward (rows as :func:`_feedforward_output` reads
+    them) and the whole scans of its delay."""
+    n_d = feedforward.shape[0]
+    # Matched pole-zero compensators: exact inverse of ZOH first-order paths at the samples.
+    ffp = np.zeros((n_d, 7))
+    ff_delays = np.zeros(n_d, dtype=np.int64)
+    for j in range(n_d):
+        ff_pole, ff_zero = decay(h, feedforward[j, 2]), decay(h, feedforward[j, 1])
+        ff_gain = feedforward[j, 0]
+        ff_scale = ff_gain * (1.0 - ff_pole) / (1.0 - ff_zero) if ff_zero < 1.0 else ff_gain
+        m_ff, f_ff = split_delay(feedforward[j, 3], h)
+        ff_delays[j] = min(m_ff, n_steps)
+        ffp[j, 0], ffp[j, 1], ffp[j, 2] = ff_pole, ff_zero, ff_scale
+        ffp[j, 3], ffp[j, 4] = delay_weights(f_ff, h, feedforward[j, 6])
+        ffp[j, 5] = decay(h, feedforward[j, 4])
+        ffp[j, 6] = feedforward[j, 5]
+    return ffp, ff_delays
+
+
+@njit(cache=True, nogil=True)
+def noise_setup(noise_events: np.ndarray, h: float) -> np.ndarray:
+    """The filtered-noise events' rows as :func:`_disturbance_inputs` reads them."""
+    noise = np.zeros((noise_events.shape[0], 6))
+    for e in range(noise_events.shape[0]):
+        pole = decay(h, noise_events[e, 2])
+        noise[e, 0], noise[e, 1] = noise_events[e, 0], pole
+        noise[e, 2] = noise_events[e, 1] * math.sqrt(1.0 - pole * pole)
+        noise[e, 4], noise[e, 5] = noise_events[e, 1], noise_events[e, 3]
+    return noise
+
+
+@njit(cache=True, nogil=True)
+def open_loop(i: int, seeds: np.ndarray, disturbance_kinds: np.ndarray,
+              disturbances: np.ndarray, disturbance_profile: np.ndarray, noise: np.ndarray,
+              hi: float, substeps: int, ffp: np.ndarray, ff_delays: np.ndarray,
+              noise_record: np.ndarray, noise_replay: np.ndarray, inputs: np.ndarray,
+              effect: np.ndarray, measured: np.ndarray, held: np.ndarray,
+              filtered: np.ndarray, ff_total: np.ndarray) -> None:
+    """Sample ``i``'s open-loop signals: the disturbances' summed effect on the CV at every
+    internal step (``effect``) and the summed feedforward at every scan (``ff_total``),
+    simulated or replayed from ``noise_replay`` (and kept in ``noise_record``) when those have
+    columns. The rest of the arrays are scratch (see :func:`simulate_kernel`)."""
+    n_internal, n_steps = effect.shape[0], measured.shape[1]
+    if noise_replay.shape[1] > 0:
+        effect[:] = noise_replay[i, :n_internal]
+        for j in range(measured.shape[0]):
+            measured[j, :] = noise_replay[i, n_internal + j * n_steps:
+                                          n_internal + (j + 1) * n_steps]
+    else:
+        _disturbance_inputs(i, seeds[i], disturbances, disturbance_profile, noise, substeps,
+                            inputs, measured, held)
+        _disturbance_paths(i, disturbance_kinds, disturbances, hi, substeps, inputs, effect,
+                           measured)
+    if noise_record.shape[1] > 0:
+        noise_record[i, :n_internal] = effect
+        for j in range(measured.shape[0]):
+            noise_record[i, n_internal + j * n_steps:
+                         n_internal + (j + 1) * n_steps] = measured[j, :]
+    _feedforward_output(measured, ffp, ff_delays, filtered, ff_total)
+
+
+
+@njit(cache=True, nogil=True)
 def simulate_kernel(
     kinds: np.ndarray,            # (2,) int: process and secondary path kinds
     plant: np.ndarray,            # (N, 14): Kp, tp1, tp2, thp, valve: rangeability, rate limit,
@@ -772,28 +853,8 @@ def simulate_kernel(
     n_steps, n_internal = envelope_index.shape[0], setpoint_profile.shape[0]
     n_d = disturbances.shape[1]
     hi = h / substeps
-    kc, ti, td, tf, tt = controller[0], controller[1], controller[2], controller[3], controller[4]
-    # The textbook expressions, evaluated once in the same operation order.
-    p = ControllerParams(kc, tf / (tf + h), kc * td / (tf + h), kc * h / ti, h / tt,
-                         controller[5], controller[6], td > 0.0, controller[8], controller[9])
-    # The direction slot is filled per step from direction_profile (metric_setup[2] is unused).
-    mp = MetricParams(hi, metric_setup[0], metric_setup[1], metric_setup[2], 0.0, 0.0,
-                      metric_setup[3])
-    n_bins = envelope_edges.shape[0] - 1
-    grid = BinGrid(envelope_edges[0], (envelope_edges[-1] - envelope_edges[0]) / n_bins, n_bins)
-    # Matched pole-zero compensators: exact inverse of ZOH first-order paths at the samples.
-    ffp = np.zeros((n_d, 7))
-    ff_delays = np.zeros(n_d, dtype=np.int64)
-    for j in range(n_d):
-        ff_pole, ff_zero = decay(h, feedforward[j, 2]), decay(h, feedforward[j, 1])
-        ff_gain = feedforward[j, 0]
-        ff_scale = ff_gain * (1.0 - ff_pole) / (1.0 - ff_zero) if ff_zero < 1.0 else ff_gain
-        m_ff, f_ff = split_delay(feedforward[j, 3], h)
-        ff_delays[j] = min(m_ff, n_steps)
-        ffp[j, 0], ffp[j, 1], ffp[j, 2] = ff_pole, ff_zero, ff_scale
-        ffp[j, 3], ffp[j, 4] = delay_weights(f_ff, h, feedforward[j, 6])
-        ffp[j, 5] = decay(h, feedforward[j, 4])
-        ffp[j, 6] = feedforward[j, 5]
+    p, mp, grid = loop_setup(controller, metric_setup, envelope_edges, h, hi)
+    ffp, ff_delays = feedforward_setup(feedforward, h, n_steps)
     scans = max(int(secondary[6]), 1)
     h_s = h / scans
     sec = SecondaryParams(
@@ -801,12 +862,7 @@ def simulate_kernel(
         secondary[1] * h_s / secondary[2] if secondary[0] > 0.0 else 0.0,
         h_s / secondary[3] if secondary[0] > 0.0 else 0.0,
         secondary[4], secondary[5], max(substeps // scans, 1))
-    noise = np.zeros((noise_events.shape[0], 6))
-    for e in range(noise_events.shape[0]):
-        pole = decay(h, noise_events[e, 2])
-        noise[e, 0], noise[e, 1] = noise_events[e, 0], pole
-        noise[e, 2] = noise_events[e, 1] * math.sqrt(1.0 - pole * pole)
-        noise[e, 4], noise[e, 5] = noise_events[e, 1], noise_events[e, 3]
+    noise = noise_setup(noise_events, h)
     ring = np.zeros(_RING_ROWS * _ring_size(n_internal))
     env_buf = np.full((2, envelope_counts.shape[1]), -1, dtype=np.int64)
     # Per-sample scratch: each disturbance's input, the summed effect, the measurements, the
@@ -817,24 +873,10 @@ def simulate_kernel(
     filtered = np.zeros(n_steps)
     ff_total = np.zeros(n_steps)
     held = np.zeros(n_d)
-    replay, record = noise_replay.shape[1] > 0, noise_record.shape[1] > 0
     for i in range(plant.shape[0]):
-        if replay:
-            effect[:] = noise_replay[i, :n_internal]
-            for j in range(n_d):
-                measured[j, :] = noise_replay[i, n_internal + j * n_steps:
-                                              n_internal + (j + 1) * n_steps]
-        else:
-            _disturbance_inputs(i, seeds[i], disturbances, disturbance_profile, noise, substeps,
-                                inputs, measured, held)
-            _disturbance_paths(i, disturbance_kinds, disturbances, hi, substeps, inputs, effect,
-                               measured)
-        if record:
-            noise_record[i, :n_internal] = effect
-            for j in range(n_d):
-                noise_record[i, n_internal + j * n_steps:
-                             n_internal + (j + 1) * n_steps] = measured[j, :]
-        _feedforward_output(measured, ffp, ff_delays, filtered, ff_total)
+        open_loop(i, seeds, disturbance_kinds, disturbances, disturbance_profile, noise, hi,
+                  substeps, ffp, ff_delays, noise_record, noise_replay, inputs, effect,
+                  measured, held, filtered, ff_total)
         acc0, acc1, last0, last1, alive0, alive1, probe = _simulate_sample(
             i, kinds, plant, effect, ff_total, setpoint_profile, direction_profile,
             segment_profile, p, mp, controller[7], grid, envelope_index, trajectory_slot[i],
