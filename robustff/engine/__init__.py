@@ -18,6 +18,7 @@ from robustff.design.tuning import LoopDesign
 from robustff.engine.balance_scenario import balance_scenario
 from robustff.engine.balance_simulation import run_balance_kernel
 from robustff.engine.kernel import ACCUMULATOR_NAMES, N_ACCUMULATORS, simulate_kernel
+from robustff.engine.lane_kernel import simulate_lanes
 from robustff.engine.metrics import metrics_from_accumulators
 from robustff.engine.scenario import (
     Scenario,
@@ -256,7 +257,11 @@ def simulate(
     accumulators = np.empty((n, 2, N_ACCUMULATORS))
     unstable = np.zeros((n, 2), dtype=np.bool_)
     loop_unstable = np.zeros(n, dtype=np.bool_)
-    simulate_kernel(
+    secondary = _secondary_vector(design, scenario.secondary_scans)
+    # The lane layout covers loops without a valve element or a secondary loop (same numbers,
+    # several times faster); the general kernel runs the rest.
+    kernel = simulate_kernel if batch.valve is not None or secondary[0] > 0.0 else simulate_lanes
+    kernel(
         np.array([model_kind(batch.process_kind).code,
                   model_kind(batch.secondary_kind or "fopdt").code]),
         plant_matrix(batch),
@@ -285,7 +290,7 @@ def simulate(
         scenario.substeps,
         valve_code(batch.valve),
         batch.valve.table() if batch.valve is not None else np.zeros((0, 2)),
-        _secondary_vector(design, scenario.secondary_scans),
+        secondary,
         recorded,
         replayed,
     )

@@ -532,37 +532,20 @@ def _disturbance_inputs(i: int, seed: np.uint64, disturbances: np.ndarray,
                 measured[j, k] = disturbances[i, j, _D_NOISE] * draw
 
 
-@njit(cache=True, nogil=True)
-def _disturbance_paths(i: int, kinds: np.ndarray, disturbances: np.ndarray, hi: float,
-                       substeps: int, inputs: np.ndarray, effect: np.ndarray,
-                       measured: np.ndarray) -> None:
-    """The disturbances' summed effect on the CV at every internal step (``effect``, (T S,)) and
-    each one's measurement at every scan, added to its transmitter noise in ``measured``.
-
-    Each path is stepped exactly for its input held over an internal step (the plant's own
-    discretisation, fractional dead time included); the transmitter is a first-order lag, or
-    reads the disturbance directly when its time constant is zero.
-    """
-    n_internal = inputs.shape[1]
-    effect[:] = 0.0
-    for j in range(inputs.shape[0]):
-        m_d, f_d = split_delay(disturbances[i, j, _D_DELAY], hi)
-        m_d = min(m_d, n_internal)
-        cd = _coefficients(kinds[j], disturbances[i, j, _D_GAIN], disturbances[i, j, _D_TAU1],
-                           disturbances[i, j, _D_TAU2], hi, f_d)
-        a_sensor = decay(hi, disturbances[i, j, _D_SENSOR])
-        gain_sensor, direct = 1.0 - a_sensor, disturbances[i, j, _D_SENSOR] <= 0.0
-        xd = (0.0, 0.0)
-        sensor = 0.0
-        for q in range(n_internal):
-            effect[q] += _output(xd, cd)
-            d = inputs[j, q]
-            if q % substeps == 0:
-                measured[j, q // substeps] += d if direct else sensor
-            new = inputs[j, q - m_d] if q >= m_d else 0.0
-            old = inputs[j, q - m_d - 1] if q >= m_d + 1 else 0.0
-            xd = _path_step(xd, cd, new, old)
-            sensor = a_sensor * sensor + gain_sensor * d
+@njit(cache=True, nogil=True, inline="always")
+def _feedforward_step(state: tuple, d: float, k: int, filtered: np.ndarray, ffp_row: np.ndarray,
+                      m_ff: int) -> tuple:
+    """One scan of one disturbance's feedforward: its input filter on the measurement ``d``
+    (written to ``filtered[k]``), the fractional delay and the discrete lead-lag. ``state`` and
+    the result are ``(filter, lead-lag output, previous lead-lag input)``."""
+    pole, zero, scale = ffp_row[0], ffp_row[1], ffp_row[2]
+    weight_new, weight_old, input_pole = ffp_row[3], ffp_row[4], ffp_row[5]
+    smoothed = input_pole * state[0] + (1.0 - input_pole) * d
+    filtered[k] = smoothed
+    newer = filtered[k - m_ff] if k >= m_ff else 0.0
+    older = filtered[k - m_ff - 1] if k >= m_ff + 1 else 0.0
+    ff_in = weight_new * newer + weight_old * older
+    return smoothed, pole * state[1] + scale * (ff_in - zero * state[2]), ff_in
 
 
 @njit(cache=True, nogil=True)
@@ -575,26 +558,59 @@ def _feedforward_output(measured: np.ndarray, ffp: np.ndarray, delays: np.ndarra
     disturbance has a feedforward (1) or not (0); ``delays`` the whole scans of each delay.
     The input filter is a control system's digital first-order filter on the measurement.
     """
-    n_steps = out.shape[0]
     out[:] = 0.0
     for j in range(measured.shape[0]):
         if ffp[j, 6] == 0.0:
             continue
-        pole, zero, scale = ffp[j, 0], ffp[j, 1], ffp[j, 2]
-        weight_new, weight_old, input_pole = ffp[j, 3], ffp[j, 4], ffp[j, 5]
-        m_ff = delays[j]
-        state = 0.0
+        state = (0.0, 0.0, 0.0)
+        for k in range(out.shape[0]):
+            state = _feedforward_step(state, measured[j, k], k, filtered, ffp[j], delays[j])
+            out[k] += state[1]
+
+
+@njit(cache=True, nogil=True)
+def _disturbances_and_feedforward(i: int, kinds: np.ndarray, disturbances: np.ndarray,
+                                  hi: float, substeps: int, inputs: np.ndarray,
+                                  effect: np.ndarray, measured: np.ndarray, ffp: np.ndarray,
+                                  delays: np.ndarray, filtered: np.ndarray,
+                                  out: np.ndarray) -> None:
+    """The disturbances' summed effect on the CV at every internal step (``effect``, (T S,)),
+    each one's measurement at every scan added to its transmitter noise in ``measured``, and
+    the summed feedforward at every scan (``out``, as :func:`_feedforward_output`).
+
+    Each path is stepped exactly for its input held over an internal step (the plant's own
+    discretisation, fractional dead time included); the transmitter is a first-order lag, or
+    reads the disturbance directly when its time constant is zero. The path, its transmitter
+    and its feedforward are independent recursions: one loop lets their latencies overlap."""
+    n_steps = measured.shape[1]
+    n_internal = inputs.shape[1]
+    effect[:] = 0.0
+    out[:] = 0.0
+    for j in range(inputs.shape[0]):
+        m_d, f_d = split_delay(disturbances[i, j, _D_DELAY], hi)
+        m_d = min(m_d, n_internal)
+        cd = _coefficients(kinds[j], disturbances[i, j, _D_GAIN], disturbances[i, j, _D_TAU1],
+                           disturbances[i, j, _D_TAU2], hi, f_d)
+        a_sensor = decay(hi, disturbances[i, j, _D_SENSOR])
+        gain_sensor, direct = 1.0 - a_sensor, disturbances[i, j, _D_SENSOR] <= 0.0
+        with_ff = ffp[j, 6] != 0.0
+        xd = (0.0, 0.0)
+        sensor = 0.0
+        state = (0.0, 0.0, 0.0)
         for k in range(n_steps):
-            state = input_pole * state + (1.0 - input_pole) * measured[j, k]
-            filtered[k] = state
-        ff_out = ff_in_prev = 0.0
-        for k in range(n_steps):
-            newer = filtered[k - m_ff] if k >= m_ff else 0.0
-            older = filtered[k - m_ff - 1] if k >= m_ff + 1 else 0.0
-            ff_in = weight_new * newer + weight_old * older
-            ff_out = pole * ff_out + scale * (ff_in - zero * ff_in_prev)
-            ff_in_prev = ff_in
-            out[k] += ff_out
+            for sub in range(substeps):
+                q = k * substeps + sub
+                effect[q] += _output(xd, cd)
+                d = inputs[j, q]
+                if sub == 0:
+                    measured[j, k] += d if direct else sensor
+                new = inputs[j, q - m_d] if q >= m_d else 0.0
+                old = inputs[j, q - m_d - 1] if q >= m_d + 1 else 0.0
+                xd = _path_step(xd, cd, new, old)
+                sensor = a_sensor * sensor + gain_sensor * d
+            if with_ff:
+                state = _feedforward_step(state, measured[j, k], k, filtered, ffp[j], delays[j])
+                out[k] += state[1]
 
 
 @njit(cache=True, nogil=True)
@@ -610,9 +626,9 @@ def _simulate_sample(
     alive fb, alive fbff, unstable)``.
 
     ``effect`` is the disturbances' summed effect on the CV at every internal step and
-    ``ff_total`` the summed feedforward at every scan (see :func:`_disturbance_paths` and
-    :func:`_feedforward_output`): the disturbance paths and the feedforward are open loop, so
-    they are computed before the loop. The controller and the stability probe run once per
+    ``ff_total`` the summed feedforward at every scan (see
+    :func:`_disturbances_and_feedforward`): the disturbance paths and the feedforward are open
+    loop, so they are computed before the loop. The controller and the stability probe run once per
     scan ``h`` (``envelope_index`` has one entry per scan); the process paths and the error
     metrics run ``substeps`` times per scan at ``mp.h = h / substeps``, the controller output
     held. Without ``feedback_arm`` only the feedforward arm runs (another design on the same
@@ -797,17 +813,17 @@ def open_loop(i: int, seeds: np.ndarray, disturbance_kinds: np.ndarray,
         for j in range(measured.shape[0]):
             measured[j, :] = noise_replay[i, n_internal + j * n_steps:
                                           n_internal + (j + 1) * n_steps]
+        _feedforward_output(measured, ffp, ff_delays, filtered, ff_total)
     else:
         _disturbance_inputs(i, seeds[i], disturbances, disturbance_profile, noise, substeps,
                             inputs, measured, held)
-        _disturbance_paths(i, disturbance_kinds, disturbances, hi, substeps, inputs, effect,
-                           measured)
+        _disturbances_and_feedforward(i, disturbance_kinds, disturbances, hi, substeps, inputs,
+                                      effect, measured, ffp, ff_delays, filtered, ff_total)
     if noise_record.shape[1] > 0:
         noise_record[i, :n_internal] = effect
         for j in range(measured.shape[0]):
             noise_record[i, n_internal + j * n_steps:
                          n_internal + (j + 1) * n_steps] = measured[j, :]
-    _feedforward_output(measured, ffp, ff_delays, filtered, ff_total)
 
 
 

@@ -40,16 +40,20 @@ def test_kernel_writes_every_accumulator_column(monkeypatch: pytest.MonkeyPatch)
     scenario = build_scenario(case, design)
     batch = nominal_batch(case, 3)
     batch.set_parameter("process.gain", np.array([2.0, 1.5, 2.6]))
-    real_kernel, seen = engine.simulate_kernel, []
+    seen: list[np.ndarray] = []
 
-    def spying_kernel(*args: object) -> None:
-        acc = next(a for a in args if isinstance(a, np.ndarray)
-                   and a.ndim == 3 and a.shape[1:] == (2, N_ACCUMULATORS))
-        acc.fill(SENTINEL)
-        real_kernel(*args)
-        seen.append(acc)
+    def spying(real_kernel):  # noqa: ANN001, ANN202 - a wrapper of either kernel layout
+        def spying_kernel(*args: object) -> None:
+            acc = next(a for a in args if isinstance(a, np.ndarray)
+                       and a.ndim == 3 and a.shape[1:] == (2, N_ACCUMULATORS))
+            acc.fill(SENTINEL)
+            real_kernel(*args)
+            seen.append(acc)
+        return spying_kernel
 
-    monkeypatch.setattr(engine, "simulate_kernel", spying_kernel)
+    # This loop has no valve or secondary loop, so the lane layout runs it; both are spied on.
+    monkeypatch.setattr(engine, "simulate_kernel", spying(engine.simulate_kernel))
+    monkeypatch.setattr(engine, "simulate_lanes", spying(engine.simulate_lanes))
     result = simulate(batch, design, scenario)
     assert len(seen) == 1 and not result.unstable.any()
     acc = seen[0]

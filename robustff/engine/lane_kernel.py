@@ -1,0 +1,470 @@
+"""The compiled simulation kernel laid out across plants: the loop without a valve or a secondary
+loop, many samples advanced together so the compiler vectorises across them.
+
+:func:`simulate_lanes` takes the arguments of :func:`robustff.engine.kernel.simulate_kernel` and
+writes the same outputs, bit for bit, for every case without a valve element and without a
+secondary loop (the caller chooses; the general kernel runs the rest). Each sample's arithmetic
+is the general kernel's, operation for operation and without fast-math, so the results do not
+depend on which samples share a block.
+
+Layout. Samples are grouped by their process dead time in whole internal steps and whole scans
+(and by the path's order), and advanced :data:`LANES` at a time: the time loop is outside, the
+loop over the lanes of a block inside. Every state and per-sample constant of a block lives in
+one flat buffer, field ``f`` of lane ``l`` at ``f * LANES + l``, so the compiler sees constant
+distances between fields and vectorises the lane loop without run-time alias checks; within a
+group every lane reads its delayed input from the same ring slot, so no gather is needed. Lanes
+of a block beyond its last sample repeat its first sample and are never written out.
+
+The open-loop signals (the disturbances' effect on the CV and the feedforward) are computed per
+sample by the general kernel's :func:`robustff.engine.kernel.open_loop` and laid across the
+lanes.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit
+
+from robustff.engine.discretise import block_coefficients, split_delay
+from robustff.engine.kernel import (
+    N_ACCUMULATORS,
+    MetricParams,
+    feedforward_setup,
+    loop_setup,
+    noise_setup,
+    open_loop,
+)
+
+__all__ = ["simulate_lanes", "LANES"]
+
+#: Samples advanced together. 32 lets the vectoriser pay for the few alias checks left between
+#: the buffer, the ring and the open-loop signals (16 was judged not worth vectorising).
+LANES = 32
+
+# Fields of the block buffer (each LANES wide). Per-sample path coefficients of the process at
+# the internal step (CP) and at the scan for the stability probe (CQ), as block_coefficients
+# orders them: phi11, phi21, phi22, g1_new, g2_new, g1_old, g2_old.
+_CP, _CQ = 0, 7
+# Path states (x1, x2) of the feedback-only arm, the feedforward arm and the probe.
+_X0, _X1, _XQ = 14, 16, 18
+# Controller states (integral, derivative, previous derivative input, previous output) of the
+# two arms, then their outputs, CVs and alive flags (1.0 / 0.0).
+_S0, _S1 = 20, 24
+_U0, _U1, _UQ, _Y0, _Y1, _ALIVE0, _ALIVE1 = 28, 29, 30, 31, 32, 33, 34
+# Last time outside the settling band (-1: not since the latest event).
+_LAST0, _LAST1 = 35, 36
+# Probe: integral, derivative, previous CV, early and late peak, diverged (1.0 / 0.0).
+_PQ = 37
+# Accumulators of the two arms, in ACCUMULATOR_NAMES order.
+_A0 = 43
+_A1 = _A0 + N_ACCUMULATORS
+# The delayed inputs of the path being stepped (newer and older sample), copied from the ring.
+_DELAYED = _A1 + N_ACCUMULATORS
+_N_FIELDS = _DELAYED + 2
+
+
+@njit(cache=True, nogil=True)
+def _group_keys(plant: np.ndarray, kinds: np.ndarray, h: float, hi: float, n_internal: int,
+                n_steps: int) -> np.ndarray:
+    """Each sample's block key: its process dead time in whole internal steps and whole scans
+    and its path order, so that the samples of a block share their ring slots."""
+    keys = np.empty(plant.shape[0], dtype=np.int64)
+    for i in range(plant.shape[0]):
+        m_p = min(split_delay(plant[i, 3], hi)[0], n_internal)
+        m_q = min(split_delay(plant[i, 3], h)[0], n_steps)
+        order = block_coefficients(kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], hi, 0.0)[7]
+        keys[i] = (m_p * (n_steps + 1) + m_q) * 2 + (1 if order == 2.0 else 0)
+    return keys
+
+
+@njit(cache=True, nogil=True)
+def _load_lane(w: np.ndarray, lane: int, kind: int, plant_row: np.ndarray, h: float,
+               hi: float, substeps: int) -> None:
+    """Reset lane ``lane`` of the block buffer to rest with the coefficients of one sample."""
+    L = LANES
+    for f in range(_N_FIELDS):
+        w[f * L + lane] = 0.0
+    _, f_p = split_delay(plant_row[3], hi)
+    cp = block_coefficients(kind, plant_row[0], plant_row[1], plant_row[2], hi, f_p)
+    cq = cp
+    if substeps > 1:  # the probe runs at the scan (see the general kernel)
+        _, f_q = split_delay(plant_row[3], h)
+        cq = block_coefficients(kind, plant_row[0], plant_row[1], plant_row[2], h, f_q)
+    for c in range(7):
+        w[(_CP + c) * L + lane] = cp[c]
+        w[(_CQ + c) * L + lane] = cq[c]
+    w[_ALIVE0 * L + lane] = 1.0
+    w[_ALIVE1 * L + lane] = 1.0
+    w[_LAST0 * L + lane] = -1.0
+    w[_LAST1 * L + lane] = -1.0
+
+
+@njit(cache=True, nogil=True)
+def _scan(w: np.ndarray, ring: np.ndarray, ff: np.ndarray, k: int, sp: float, first: bool,
+          p: tuple, h: float, second_order: bool, feedback_arm: bool, size: int, m_q: int,
+          q2: int, q3: int) -> None:
+    """The controllers and the stability probe of every lane at scan ``k`` (the general
+    kernel's ``_arm_control`` and ``_probe_control``, the same operations per lane)."""
+    if feedback_arm:
+        _control_arm(w, ff, False, _S0, _A0, _Y0, _U0, _ALIVE0, k, sp, first, p, h)
+    _control_arm(w, ff, True, _S1, _A1, _Y1, _U1, _ALIVE1, k, sp, first, p, h)
+    if feedback_arm:
+        _probe(w, ring, k, p, second_order, size, m_q, q2, q3)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _control_arm(w: np.ndarray, ff: np.ndarray, with_ff: bool, s: int, a: int, yf: int,
+                 uf: int, af: int, k: int, sp: float, first: bool, p: tuple,
+                 h: float) -> None:
+    # One arm of _scan, inlined with constant field offsets (see _advance_arm).
+    L = LANES
+    ff_now = ff[k * L:(k + 1) * L]
+    for lane in range(L):
+        # Every lane computes; a lane whose arm ran away keeps its values (a select, not a
+        # branch, so the loop stays vectorised).
+        live = w[af * L + lane] != 0.0
+        y = w[yf * L + lane]
+        ffk = ff_now[lane] if with_ff else 0.0
+        e = sp - y
+        yd = y - p.derivative_setpoint_weight * sp
+        deriv = w[(s + 1) * L + lane]
+        if p.has_derivative:
+            deriv = p.derivative_pole * deriv - p.derivative_gain * (
+                yd - (yd if first else w[(s + 2) * L + lane]))
+        v = p.kc * (p.setpoint_weight * sp - y) + w[s * L + lane] + deriv + ffk
+        u = min(max(v, p.u_low), p.u_high)
+        integral = w[s * L + lane] + (p.integral_gain * e + p.tracking_gain * (u - v))
+        travel = (a + 7) * L + lane
+        at_limit = (a + 8) * L + lane
+        moved = w[travel] + abs(u - w[(s + 3) * L + lane])
+        limited = w[at_limit] + h if u != v else w[at_limit]
+        _keep_or_set(w, s * L + lane, integral, live)
+        _keep_or_set(w, travel, moved, live)
+        _keep_or_set(w, at_limit, limited, live)
+        _keep_or_set(w, (s + 1) * L + lane, deriv, live)
+        _keep_or_set(w, (s + 2) * L + lane, yd, live)
+        _keep_or_set(w, (s + 3) * L + lane, u, live)
+        _keep_or_set(w, uf * L + lane, u, live)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _store_and_fetch(w: np.ndarray, ring: np.ndarray, field: int, unit_load: bool, base: int,
+                     q: int, m: int, size: int) -> None:
+    # Write the field (plus 1 with unit_load: the probe's load) into the ring row of step q,
+    # then copy the rows of the delay m
+    # (steps q - m and q - m - 1) into the _DELAYED fields: the loop that steps the path then
+    # touches the buffer alone, at constant offsets. The rows are views, so these loops index
+    # from 0 and the compiler sees contiguous, non-negative indices (no gathers).
+    L = LANES
+    mask = size - 1
+    r_new, r_now = (base + (q & mask)) * L, (base + ((q - m) & mask)) * L
+    r_old = (base + ((q - m - 1) & mask)) * L
+    new = ring[r_new:r_new + L]
+    for lane in range(L):
+        new[lane] = w[field * L + lane] + 1.0 if unit_load else w[field * L + lane]
+    now, old = ring[r_now:r_now + L], ring[r_old:r_old + L]
+    for lane in range(L):
+        w[_DELAYED * L + lane] = now[lane]
+        w[(_DELAYED + 1) * L + lane] = old[lane]
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _keep_or_set(w: np.ndarray, slot: int, value: float, live: bool) -> None:
+    w[slot] = value if live else w[slot]
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _probe(w: np.ndarray, ring: np.ndarray, k: int, p: tuple, second_order: bool, size: int,
+           m_q: int, q2: int, q3: int) -> None:
+    # The stability probe of _scan: the controller, then (after the ring is written in a loop
+    # of its own) the process step at the scan.
+    L = LANES
+    for lane in range(L):
+        x1, x2 = w[_XQ * L + lane], w[(_XQ + 1) * L + lane]
+        y = x2 if second_order else x1
+        diverged = (w[(_PQ + 5) * L + lane] != 0.0 or not math.isfinite(y) or abs(y) > 1e12)
+        e = -y
+        deriv = (p.derivative_pole * w[(_PQ + 1) * L + lane]
+                 - p.derivative_gain * (y - w[(_PQ + 2) * L + lane])
+                 if p.has_derivative else w[(_PQ + 1) * L + lane])
+        u = p.kc * e + w[_PQ * L + lane] + deriv
+        if k >= q3:
+            w[(_PQ + 4) * L + lane] = max(w[(_PQ + 4) * L + lane], abs(e))
+        elif k >= q2:
+            w[(_PQ + 3) * L + lane] = max(w[(_PQ + 3) * L + lane], abs(e))
+        w[_PQ * L + lane] = w[_PQ * L + lane] + p.integral_gain * e
+        w[(_PQ + 1) * L + lane] = deriv
+        w[(_PQ + 2) * L + lane] = y
+        w[(_PQ + 5) * L + lane] = 1.0 if diverged else 0.0
+        w[_UQ * L + lane] = u
+    _store_and_fetch(w, ring, _UQ, True, 2 * size, k, m_q, size)
+    for lane in range(L):
+        x1, x2 = w[_XQ * L + lane], w[(_XQ + 1) * L + lane]
+        u_new, u_old = w[_DELAYED * L + lane], w[(_DELAYED + 1) * L + lane]
+        first_state = (w[_CQ * L + lane] * x1 + w[(_CQ + 3) * L + lane] * u_new
+                       + w[(_CQ + 5) * L + lane] * u_old)
+        if second_order:
+            x2 = (w[(_CQ + 1) * L + lane] * x1 + w[(_CQ + 2) * L + lane] * x2
+                  + w[(_CQ + 4) * L + lane] * u_new + w[(_CQ + 6) * L + lane] * u_old)
+        w[_XQ * L + lane] = first_state
+        w[(_XQ + 1) * L + lane] = x2
+
+
+@njit(cache=True, nogil=True)
+def _measure(w: np.ndarray, effect: np.ndarray, q: int, limit: float,
+             second_order: bool) -> None:
+    """Every lane's CV at internal step ``q`` and whether each arm is still alive."""
+    _measure_arm(w, effect, _X0, _Y0, _ALIVE0, q, limit, second_order)
+    _measure_arm(w, effect, _X1, _Y1, _ALIVE1, q, limit, second_order)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _measure_arm(w: np.ndarray, effect: np.ndarray, x: int, yf: int, af: int, q: int,
+                 limit: float, second_order: bool) -> None:
+    L = LANES
+    now = effect[q * L:(q + 1) * L]
+    for lane in range(L):
+        y = (w[(x + 1) * L + lane] if second_order else w[x * L + lane]) + now[lane]
+        alive = w[af * L + lane] != 0.0 and math.isfinite(y) and not abs(y) > limit
+        w[yf * L + lane] = y
+        w[af * L + lane] = 1.0 if alive else 0.0
+
+
+@njit(cache=True, nogil=True)
+def _advance(w: np.ndarray, ring: np.ndarray, q: int, sp: float, t: float, weight: float,
+             mp: tuple, second_order: bool, feedback_arm: bool, size: int, m_p: int) -> None:
+    """Error metrics and the process step of every live lane over internal step ``q`` (the
+    general kernel's ``_arm_metrics`` and ``_path_step``, the same operations per lane)."""
+    if feedback_arm:
+        _advance_arm(w, ring, _X0, _A0, _Y0, _U0, _ALIVE0, _LAST0, 0, q, sp, t, weight, mp,
+                     second_order, size, m_p)
+    _advance_arm(w, ring, _X1, _A1, _Y1, _U1, _ALIVE1, _LAST1, size, q, sp, t, weight, mp,
+                 second_order, size, m_p)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: int, af: int,
+                 lf: int, base: int, q: int, sp: float, t: float, weight: float, mp: tuple,
+                 second_order: bool, size: int, m_p: int) -> None:
+    # One arm of _advance. Inlined with constant field offsets, so the compiler knows how far
+    # apart the fields are; the ring is written in a loop of its own, so the loop that reads
+    # it does not write it.
+    L = LANES
+    h = mp.h
+    new_event = mp.segment != mp.previous_segment
+    _store_and_fetch(w, ring, uf, False, base, q, m_p, size)
+    for lane in range(L):
+        live = w[af * L + lane] != 0.0  # see _control_arm
+        e = sp - w[yf * L + lane]
+        ae = abs(e)
+        last = w[lf * L + lane]
+        longest = w[(a + 6) * L + lane]
+        if new_event:  # the previous event's settling is known
+            if last >= 0.0:
+                longest = max(longest, last + h - mp.previous_segment)
+            last = -1.0
+        if ae > mp.band and t >= mp.t_start:
+            last = t
+        outside = (a + 9) * L + lane
+        beyond = w[outside] + h if ae > mp.cv_band else w[outside]
+        _keep_or_set(w, lf * L + lane, last, live)
+        _keep_or_set(w, a * L + lane, w[a * L + lane] + e * h, live)
+        _keep_or_set(w, (a + 1) * L + lane, w[(a + 1) * L + lane] + ae * h, live)
+        _keep_or_set(w, (a + 2) * L + lane, w[(a + 2) * L + lane] + e * e * h, live)
+        _keep_or_set(w, (a + 3) * L + lane, w[(a + 3) * L + lane] + weight * ae * h, live)
+        _keep_or_set(w, (a + 4) * L + lane, max(w[(a + 4) * L + lane], ae), live)
+        _keep_or_set(w, (a + 5) * L + lane, max(w[(a + 5) * L + lane], mp.direction * e), live)
+        _keep_or_set(w, (a + 6) * L + lane, longest, live)
+        _keep_or_set(w, outside, beyond, live)
+        u_new, u_old = w[_DELAYED * L + lane], w[(_DELAYED + 1) * L + lane]
+        x1, x2 = w[x * L + lane], w[(x + 1) * L + lane]
+        first_state = (w[_CP * L + lane] * x1 + w[(_CP + 3) * L + lane] * u_new
+                       + w[(_CP + 5) * L + lane] * u_old)
+        if second_order:
+            x2 = (w[(_CP + 1) * L + lane] * x1 + w[(_CP + 2) * L + lane] * x2
+                  + w[(_CP + 4) * L + lane] * u_new + w[(_CP + 6) * L + lane] * u_old)
+        _keep_or_set(w, x * L + lane, first_state, live)
+        _keep_or_set(w, (x + 1) * L + lane, x2, live)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _bin(y: float, grid: tuple) -> int:
+    # The general kernel's envelope bin: outside the grid, the first or last bin.
+    return min(max(int((y - grid.low) / grid.width), 0), grid.n_bins - 1)
+
+
+@njit(cache=True, nogil=True)
+def _record_scan(w: np.ndarray, k: int, lanes: np.ndarray, count: int, slots: np.ndarray,
+                 trajectories: np.ndarray, env: np.ndarray, point: int, grid: tuple) -> None:
+    """Trajectories of the kept samples and the envelope bins (``point >= 0``) at scan ``k``."""
+    L = LANES
+    for lane in range(count):
+        alive0, alive1 = w[_ALIVE0 * L + lane] != 0.0, w[_ALIVE1 * L + lane] != 0.0
+        y0, y1 = w[_Y0 * L + lane], w[_Y1 * L + lane]
+        slot = slots[lanes[lane]]
+        if slot >= 0:
+            if alive0:
+                trajectories[slot, 0, k], trajectories[slot, 2, k] = y0, w[_U0 * L + lane]
+            if alive1:
+                trajectories[slot, 1, k], trajectories[slot, 3, k] = y1, w[_U1 * L + lane]
+        if point >= 0:
+            env[(2 * point) * L + lane] = _bin(y0, grid) if alive0 else -1
+            env[(2 * point + 1) * L + lane] = _bin(y1, grid) if alive1 else -1
+
+
+@njit(cache=True, nogil=True)
+def _write_out(w: np.ndarray, env: np.ndarray, lanes: np.ndarray, count: int, feedback_arm: bool,
+               t_end: float, last_segment: float, h: float, accumulators: np.ndarray,
+               unstable: np.ndarray, loop_unstable: np.ndarray,
+               envelope_counts: np.ndarray) -> None:
+    """Each real lane's accumulators, run-away flags, probe verdict and envelope bins (the
+    general kernel's ``_finish`` and ``_commit_envelope``)."""
+    L = LANES
+    n_points = envelope_counts.shape[1]
+    for lane in range(count):
+        i = lanes[lane]
+        early, late = w[(_PQ + 3) * L + lane], w[(_PQ + 4) * L + lane]
+        probe = feedback_arm and (
+            w[(_PQ + 5) * L + lane] != 0.0 or (late > early and late > 1e-9))
+        loop_unstable[i] = probe
+        for arm in range(2):
+            a, lf, af = (_A0, _LAST0, _ALIVE0) if arm == 0 else (_A1, _LAST1, _ALIVE1)
+            alive = w[af * L + lane] != 0.0
+            last = w[lf * L + lane]
+            final = 0.0 if last < 0.0 else min(last + h, t_end) - last_segment
+            for c in range(N_ACCUMULATORS):
+                value = w[(a + c) * L + lane]
+                if c == 6:
+                    value = max(value, final)
+                elif c == 5:
+                    value = max(value, 0.0)
+                accumulators[i, arm, c] = value if alive else math.nan
+            unstable[i, arm] = not alive
+            for point in range(n_points):
+                b = env[(2 * point + arm) * L + lane]
+                if not probe and b >= 0:
+                    envelope_counts[arm, point, b] += 1
+                env[(2 * point + arm) * L + lane] = -1
+
+
+@njit(cache=True, nogil=True)
+def simulate_lanes(
+    kinds: np.ndarray, plant: np.ndarray, disturbance_kinds: np.ndarray,
+    disturbances: np.ndarray, seeds: np.ndarray, h: float, disturbance_profile: np.ndarray,
+    setpoint_profile: np.ndarray, noise_events: np.ndarray, controller: np.ndarray,
+    feedforward: np.ndarray, metric_setup: np.ndarray, direction_profile: np.ndarray,
+    segment_profile: np.ndarray, envelope_edges: np.ndarray, envelope_index: np.ndarray,
+    trajectory_slot: np.ndarray, accumulators: np.ndarray, unstable: np.ndarray,
+    envelope_counts: np.ndarray, trajectories: np.ndarray, loop_unstable: np.ndarray,
+    feedback_arm: bool, substeps: int, valve_kind: int, valve_table: np.ndarray,
+    secondary: np.ndarray, noise_record: np.ndarray, noise_replay: np.ndarray,
+) -> None:
+    """:func:`robustff.engine.kernel.simulate_kernel` for loops with no valve element
+    (``valve_kind`` 0) and no secondary loop (``secondary[0]`` 0), across lanes of samples.
+
+    Same arguments, same outputs bit for bit; ``valve_table`` and ``secondary`` are not read.
+    """
+    L = LANES
+    n, n_steps, n_internal = plant.shape[0], envelope_index.shape[0], setpoint_profile.shape[0]
+    n_d = disturbances.shape[1]
+    hi = h / substeps
+    p, mp, grid = loop_setup(controller, metric_setup, envelope_edges, h, hi)
+    ffp, ff_delays = feedforward_setup(feedforward, h, n_steps)
+    noise = noise_setup(noise_events, h)
+    limit = controller[7]
+    q2, q3 = n_steps // 2, (3 * n_steps) // 4
+    keys = _group_keys(plant, kinds, h, hi, n_internal, n_steps)
+    order = np.argsort(keys, kind="mergesort")
+    # Per-sample open-loop scratch, as the general kernel's, then laid across the lanes.
+    inputs = np.zeros((n_d, n_internal))
+    measured = np.zeros((n_d, n_steps))
+    filtered = np.zeros(n_steps)
+    held = np.zeros(n_d)
+    effect_rows = np.zeros((L, n_internal))
+    ff_rows = np.zeros((L, n_steps))
+    effect_lanes = np.zeros(n_internal * L)
+    ff_lanes = np.zeros(n_steps * L)
+    w = np.zeros(_N_FIELDS * L)
+    ring_rows = 3 * _ring_capacity(n_internal)
+    ring = np.zeros(ring_rows * L)
+    n_points = envelope_counts.shape[1]
+    env = np.full(2 * n_points * L, -1, dtype=np.int64)
+    lanes = np.zeros(L, dtype=np.int64)
+    last_segment = segment_profile[n_internal - 1]
+    start = 0
+    while start < n:
+        key = keys[order[start]]
+        count = 0
+        while start + count < n and count < L and keys[order[start + count]] == key:
+            lanes[count] = order[start + count]
+            count += 1
+        start += count
+        keep = False
+        for lane in range(L):
+            i = lanes[lane] if lane < count else lanes[0]
+            if lane < count:
+                keep = keep or trajectory_slot[i] >= 0
+                open_loop(i, seeds, disturbance_kinds, disturbances, disturbance_profile,
+                          noise, hi, substeps, ffp, ff_delays, noise_record, noise_replay,
+                          inputs, effect_rows[lane], measured, held, filtered, ff_rows[lane])
+            else:  # a spare lane repeats the first sample and is never written out
+                effect_rows[lane] = effect_rows[0]
+                ff_rows[lane] = ff_rows[0]
+            _load_lane(w, lane, kinds[0], plant[i], h, hi, substeps)
+        _transpose(effect_rows, effect_lanes)
+        _transpose(ff_rows, ff_lanes)
+        m_p = min(split_delay(plant[lanes[0], 3], hi)[0], n_internal)
+        m_q = min(split_delay(plant[lanes[0], 3], h)[0], n_steps)
+        size = _ring_capacity(max(m_p, m_q))
+        ring[:3 * size * L] = 0.0
+        second_order = key % 2 == 1
+        record = keep or n_points > 0
+        for k in range(n_steps):
+            for sub in range(substeps):
+                q = k * substeps + sub
+                t = q * hi
+                weight = max(t - mp.t_start, 0.0)
+                mpk = MetricParams(hi, mp.t_start, mp.band, direction_profile[q],
+                                   segment_profile[q],
+                                   segment_profile[q - 1] if q > 0 else segment_profile[0],
+                                   mp.cv_band)
+                sp = setpoint_profile[q]
+                _measure(w, effect_lanes, q, limit, second_order)
+                if sub == 0:
+                    _scan(w, ring, ff_lanes, k, sp, k == 0, p, h, second_order,
+                          feedback_arm, size, m_q, q2, q3)
+                    if record and (keep or envelope_index[k] >= 0):
+                        _record_scan(w, k, lanes, count, trajectory_slot, trajectories, env,
+                                     envelope_index[k], grid)
+                _advance(w, ring, q, sp, t, weight, mpk, second_order, feedback_arm, size, m_p)
+        _write_out(w, env, lanes, count, feedback_arm, n_steps * h, last_segment, mp.h,
+                   accumulators, unstable, loop_unstable, envelope_counts)
+
+
+@njit(cache=True, nogil=True)
+def _transpose(rows: np.ndarray, lanes: np.ndarray) -> None:
+    """Lay ``rows`` (LANES, T), one sample per row, across the lanes: ``lanes[t * LANES + l]``.
+
+    In tiles of 64 time steps, so the strided writes stay within the first-level cache (a plain
+    loop over each sample's row misses on every write).
+    """
+    L = LANES
+    n = rows.shape[1]
+    for start in range(0, n, 64):
+        stop = min(start + 64, n)
+        for lane in range(L):
+            row = rows[lane]
+            for t in range(start, stop):
+                lanes[t * L + lane] = row[t]
+
+
+@njit(cache=True, nogil=True)
+def _ring_capacity(longest_delay: int) -> int:
+    # Power of two >= delay + 2, as the general kernel's rings (reads never meet the slot
+    # written at the same step; slots not yet written read as zero).
+    size = 2
+    while size < longest_delay + 2:
+        size *= 2
+    return size
