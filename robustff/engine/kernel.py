@@ -36,6 +36,7 @@ __all__ = [
     "INITIAL_ACCUMULATORS", "accumulator_slot", "ArmState", "ProbeState", "ControllerParams",
     "MetricParams", "PathCoefficients", "FeedforwardParams", "BinGrid", "ValveParams",
     "ValveState", "SecondaryParams", "loop_setup", "feedforward_setup", "noise_setup", "open_loop",
+    "feedforward_constants", "feedforward_step", "disturbance_inputs", "path_coefficients",
 ]
 
 # Records. The kernel keeps its state in small tuples so that the compiler holds them in
@@ -167,7 +168,7 @@ _SECONDARY_ROW = 3
 
 # Disturbance columns (axis 2 of the kernel's ``disturbances``): path gain, lags, dead time,
 # transmitter lag and noise.
-_D_GAIN, _D_TAU1, _D_TAU2, _D_DELAY, _D_SENSOR, _D_NOISE = range(6)
+D_GAIN, D_TAU1, D_TAU2, D_DELAY, D_SENSOR, D_NOISE = range(6)
 
 
 # Hot helpers take and return scalars and tuples only: an array argument would cost reference
@@ -185,7 +186,7 @@ def _ring_size(longest_delay: int) -> int:
 
 
 @njit(cache=True, nogil=True)
-def _coefficients(kind: int, gain: float, tau1: float, tau2: float, h: float,
+def path_coefficients(kind: int, gain: float, tau1: float, tau2: float, h: float,
                   f: float) -> PathCoefficients:
     """:func:`block_coefficients` as a record (kept in registers by the compiler)."""
     c = block_coefficients(kind, gain, tau1, tau2, h, f)
@@ -200,7 +201,7 @@ def _output(x: tuple, c: PathCoefficients) -> float:
 @njit(cache=True, nogil=True, inline="always")
 def _path_step(x: tuple, c: PathCoefficients, u_new: float,
                u_old: float) -> tuple[float, float]:
-    """One exact step of a path; ``x = (x1, x2)``, ``c`` from :func:`_coefficients`."""
+    """One exact step of a path; ``x = (x1, x2)``, ``c`` from :func:`path_coefficients`."""
     first = c.phi11 * x[0] + c.g1_new * u_new + c.g1_old * u_old
     second = x[1]
     if c.second_order:
@@ -488,7 +489,7 @@ def _commit_envelope(env_buf: np.ndarray, envelope_counts: np.ndarray, keep: boo
 
 
 @njit(cache=True, nogil=True)
-def _disturbance_inputs(i: int, seed: np.uint64, disturbances: np.ndarray,
+def disturbance_inputs(i: int, seed: np.uint64, disturbances: np.ndarray,
                         disturbance_profile: np.ndarray, noise: np.ndarray, substeps: int,
                         inputs: np.ndarray, measured: np.ndarray, held: np.ndarray) -> None:
     """Every disturbance's input at every internal step (``inputs``, shape (J, T S)) and its
@@ -505,7 +506,7 @@ def _disturbance_inputs(i: int, seed: np.uint64, disturbances: np.ndarray,
     draws = normal_stream(seed)
     noisy = noise.shape[0] > 0
     for j in range(n_d):
-        noisy = noisy or disturbances[i, j, _D_NOISE] > 0.0
+        noisy = noisy or disturbances[i, j, D_NOISE] > 0.0
     if not noisy:  # the common case: the deterministic profile, no draws
         inputs[:, :] = disturbance_profile
         measured[:, :] = 0.0
@@ -527,23 +528,32 @@ def _disturbance_inputs(i: int, seed: np.uint64, disturbances: np.ndarray,
                 inputs[j, q] = disturbance_profile[j, q] + held[j]
         for j in range(n_d):
             measured[j, k] = 0.0
-            if disturbances[i, j, _D_NOISE] > 0.0:
+            if disturbances[i, j, D_NOISE] > 0.0:
                 draws, draw = next_normal(draws)
-                measured[j, k] = disturbances[i, j, _D_NOISE] * draw
+                measured[j, k] = disturbances[i, j, D_NOISE] * draw
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _feedforward_step(state: tuple, d: float, k: int, filtered: np.ndarray, ffp_row: np.ndarray,
-                      m_ff: int) -> tuple:
+def feedforward_constants(ffp: np.ndarray, j: int) -> tuple:
+    """Row ``j`` of the feedforward set-up as the tuple :func:`feedforward_step` reads."""
+    return ffp[j, 0], ffp[j, 1], ffp[j, 2], ffp[j, 3], ffp[j, 4], ffp[j, 5]
+
+
+@njit(cache=True, nogil=True, inline="always")
+def feedforward_step(state: tuple, d: float, k: int, filtered: np.ndarray, row: int,
+                     c: tuple, m_ff: int) -> tuple:
     """One scan of one disturbance's feedforward: its input filter on the measurement ``d``
-    (written to ``filtered[k]``), the fractional delay and the discrete lead-lag. ``state`` and
-    the result are ``(filter, lead-lag output, previous lead-lag input)``."""
-    pole, zero, scale = ffp_row[0], ffp_row[1], ffp_row[2]
-    weight_new, weight_old, input_pole = ffp_row[3], ffp_row[4], ffp_row[5]
+    (written to ``filtered[row, k]``), the fractional delay and the discrete lead-lag.
+
+    ``c`` is :func:`feedforward_constants`' tuple (pole, zero and gain scale of the lead-lag,
+    the weights of the newer and older delayed sample, the input filter's pole); ``state`` and
+    the result are ``(filter, lead-lag output, previous lead-lag input)``.
+    """
+    pole, zero, scale, weight_new, weight_old, input_pole = c
     smoothed = input_pole * state[0] + (1.0 - input_pole) * d
-    filtered[k] = smoothed
-    newer = filtered[k - m_ff] if k >= m_ff else 0.0
-    older = filtered[k - m_ff - 1] if k >= m_ff + 1 else 0.0
+    filtered[row, k] = smoothed
+    newer = filtered[row, k - m_ff] if k >= m_ff else 0.0
+    older = filtered[row, k - m_ff - 1] if k >= m_ff + 1 else 0.0
     ff_in = weight_new * newer + weight_old * older
     return smoothed, pole * state[1] + scale * (ff_in - zero * state[2]), ff_in
 
@@ -563,8 +573,9 @@ def _feedforward_output(measured: np.ndarray, ffp: np.ndarray, delays: np.ndarra
         if ffp[j, 6] == 0.0:
             continue
         state = (0.0, 0.0, 0.0)
+        c = feedforward_constants(ffp, j)
         for k in range(out.shape[0]):
-            state = _feedforward_step(state, measured[j, k], k, filtered, ffp[j], delays[j])
+            state = feedforward_step(state, measured[j, k], k, filtered, 0, c, delays[j])
             out[k] += state[1]
 
 
@@ -587,13 +598,14 @@ def _disturbances_and_feedforward(i: int, kinds: np.ndarray, disturbances: np.nd
     effect[:] = 0.0
     out[:] = 0.0
     for j in range(inputs.shape[0]):
-        m_d, f_d = split_delay(disturbances[i, j, _D_DELAY], hi)
+        m_d, f_d = split_delay(disturbances[i, j, D_DELAY], hi)
         m_d = min(m_d, n_internal)
-        cd = _coefficients(kinds[j], disturbances[i, j, _D_GAIN], disturbances[i, j, _D_TAU1],
-                           disturbances[i, j, _D_TAU2], hi, f_d)
-        a_sensor = decay(hi, disturbances[i, j, _D_SENSOR])
-        gain_sensor, direct = 1.0 - a_sensor, disturbances[i, j, _D_SENSOR] <= 0.0
+        cd = path_coefficients(kinds[j], disturbances[i, j, D_GAIN], disturbances[i, j, D_TAU1],
+                           disturbances[i, j, D_TAU2], hi, f_d)
+        a_sensor = decay(hi, disturbances[i, j, D_SENSOR])
+        gain_sensor, direct = 1.0 - a_sensor, disturbances[i, j, D_SENSOR] <= 0.0
         with_ff = ffp[j, 6] != 0.0
+        c = feedforward_constants(ffp, j)
         xd = (0.0, 0.0)
         sensor = 0.0
         state = (0.0, 0.0, 0.0)
@@ -609,7 +621,7 @@ def _disturbances_and_feedforward(i: int, kinds: np.ndarray, disturbances: np.nd
                 xd = _path_step(xd, cd, new, old)
                 sensor = a_sensor * sensor + gain_sensor * d
             if with_ff:
-                state = _feedforward_step(state, measured[j, k], k, filtered, ffp[j], delays[j])
+                state = feedforward_step(state, measured[j, k], k, filtered, 0, c, delays[j])
                 out[k] += state[1]
 
 
@@ -641,17 +653,17 @@ def _simulate_sample(
     m_q, f_q = split_delay(plant[i, 3], h)
     # longer delays only ever read zeros
     m_p, m_q = min(m_p, n_internal), min(m_q, n_steps)
-    cp = _coefficients(kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], hi, f_p)
+    cp = path_coefficients(kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], hi, f_p)
     # The probe's actuator lag (the valve linearised at its nominal position: slope 1).
     pole_q = decay(hi, plant[i, 9]) if valve_kind > 0 and plant[i, 9] > 0.0 else 0.0
     fine_q = sec.present or pole_q > 0.0
     # The probe runs at the scan: the process stepped exactly over a scan with its input held
     # (with a secondary loop or an actuator lag it runs with them, at the internal step).
-    cq = cp if substeps == 1 or fine_q else _coefficients(
+    cq = cp if substeps == 1 or fine_q else path_coefficients(
         kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], h, f_q)
     m_s, f_s = split_delay(plant[i, 13], hi)
     m_s = min(m_s, n_internal)
-    cs = _coefficients(kinds[1], plant[i, 10], plant[i, 11], plant[i, 12], hi, f_s)
+    cs = path_coefficients(kinds[1], plant[i, 10], plant[i, 11], plant[i, 12], hi, f_s)
     # The probe's secondary loop is linear: no output limits.
     secq = SecondaryParams(sec.present, sec.kc, sec.integral_gain, 0.0, -math.inf, math.inf,
                            sec.every)
@@ -786,7 +798,7 @@ def feedforward_setup(feedforward: np.ndarray, h: float, n_steps: int) -> tuple:
 
 @njit(cache=True, nogil=True)
 def noise_setup(noise_events: np.ndarray, h: float) -> np.ndarray:
-    """The filtered-noise events' rows as :func:`_disturbance_inputs` reads them."""
+    """The filtered-noise events' rows as :func:`disturbance_inputs` reads them."""
     noise = np.zeros((noise_events.shape[0], 6))
     for e in range(noise_events.shape[0]):
         pole = decay(h, noise_events[e, 2])
@@ -815,7 +827,7 @@ def open_loop(i: int, seeds: np.ndarray, disturbance_kinds: np.ndarray,
                                           n_internal + (j + 1) * n_steps]
         _feedforward_output(measured, ffp, ff_delays, filtered, ff_total)
     else:
-        _disturbance_inputs(i, seeds[i], disturbances, disturbance_profile, noise, substeps,
+        disturbance_inputs(i, seeds[i], disturbances, disturbance_profile, noise, substeps,
                             inputs, measured, held)
         _disturbances_and_feedforward(i, disturbance_kinds, disturbances, hi, substeps, inputs,
                                       effect, measured, ffp, ff_delays, filtered, ff_total)
@@ -886,7 +898,7 @@ def simulate_kernel(
     inputs = np.zeros((n_d, n_internal))
     effect = np.zeros(n_internal)
     measured = np.zeros((n_d, n_steps))
-    filtered = np.zeros(n_steps)
+    filtered = np.zeros((1, n_steps))
     ff_total = np.zeros(n_steps)
     held = np.zeros(n_d)
     for i in range(plant.shape[0]):

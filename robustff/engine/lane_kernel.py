@@ -27,14 +27,20 @@ import math
 import numpy as np
 from numba import njit
 
-from robustff.engine.discretise import block_coefficients, split_delay
+from robustff.engine.discretise import block_coefficients, decay, split_delay
 from robustff.engine.kernel import (
+    D_DELAY,
+    D_GAIN,
+    D_SENSOR,
+    D_TAU1,
+    D_TAU2,
     N_ACCUMULATORS,
     MetricParams,
+    disturbance_inputs,
+    feedforward_constants,
     feedforward_setup,
     loop_setup,
     noise_setup,
-    open_loop,
 )
 
 __all__ = ["simulate_lanes", "LANES"]
@@ -377,13 +383,15 @@ def simulate_lanes(
     q2, q3 = n_steps // 2, (3 * n_steps) // 4
     keys = _group_keys(plant, kinds, h, hi, n_internal, n_steps)
     order = np.argsort(keys, kind="mergesort")
-    # Per-sample open-loop scratch, as the general kernel's, then laid across the lanes.
-    inputs = np.zeros((n_d, n_internal))
-    measured = np.zeros((n_d, n_steps))
-    filtered = np.zeros(n_steps)
+    # Open-loop scratch: each lane's disturbance inputs and measurements, the feedforward's
+    # filtered measurements, the effect on the CV and the feedforward across the lanes.
+    inputs = np.zeros((L, n_d, n_internal))
+    measured = np.zeros((L, n_d, n_steps))
+    filtered = np.zeros(n_steps * L)
+    measured_lanes = np.zeros(n_steps * L)
+    ff_state = np.zeros(2 * L)
     held = np.zeros(n_d)
     effect_rows = np.zeros((L, n_internal))
-    ff_rows = np.zeros((L, n_steps))
     effect_lanes = np.zeros(n_internal * L)
     ff_lanes = np.zeros(n_steps * L)
     w = np.zeros(_N_FIELDS * L)
@@ -403,18 +411,13 @@ def simulate_lanes(
         start += count
         keep = False
         for lane in range(L):
-            i = lanes[lane] if lane < count else lanes[0]
-            if lane < count:
-                keep = keep or trajectory_slot[i] >= 0
-                open_loop(i, seeds, disturbance_kinds, disturbances, disturbance_profile,
-                          noise, hi, substeps, ffp, ff_delays, noise_record, noise_replay,
-                          inputs, effect_rows[lane], measured, held, filtered, ff_rows[lane])
-            else:  # a spare lane repeats the first sample and is never written out
-                effect_rows[lane] = effect_rows[0]
-                ff_rows[lane] = ff_rows[0]
+            i = lanes[lane] if lane < count else lanes[0]  # a spare lane repeats the first
+            keep = keep or (lane < count and trajectory_slot[i] >= 0)
             _load_lane(w, lane, kinds[0], plant[i], h, hi, substeps)
-        _transpose(effect_rows, effect_lanes)
-        _transpose(ff_rows, ff_lanes)
+        _open_loop_lanes(lanes, count, seeds, disturbance_kinds, disturbances,
+                         disturbance_profile, noise, hi, substeps, ffp, ff_delays, noise_record,
+                         noise_replay, inputs, measured, held, filtered, measured_lanes,
+                         ff_state, effect_rows, effect_lanes, ff_lanes)
         m_p = min(split_delay(plant[lanes[0], 3], hi)[0], n_internal)
         m_q = min(split_delay(plant[lanes[0], 3], h)[0], n_steps)
         size = _ring_capacity(max(m_p, m_q))
@@ -441,6 +444,173 @@ def simulate_lanes(
                 _advance(w, ring, q, sp, t, weight, mpk, second_order, feedback_arm, size, m_p)
         _write_out(w, env, lanes, count, feedback_arm, n_steps * h, last_segment, mp.h,
                    accumulators, unstable, loop_unstable, envelope_counts)
+
+
+@njit(cache=True, nogil=True)
+def _open_loop_lanes(lanes: np.ndarray, count: int, seeds: np.ndarray, kinds: np.ndarray,
+                     disturbances: np.ndarray, disturbance_profile: np.ndarray,
+                     noise: np.ndarray, hi: float, substeps: int, ffp: np.ndarray,
+                     ff_delays: np.ndarray, noise_record: np.ndarray, noise_replay: np.ndarray,
+                     inputs: np.ndarray, measured: np.ndarray, held: np.ndarray,
+                     filtered: np.ndarray, measured_lanes: np.ndarray, ff_state: np.ndarray,
+                     effect_rows: np.ndarray, effect_lanes: np.ndarray,
+                     ff_lanes: np.ndarray) -> None:
+    """The open-loop signals of a block across its lanes: the disturbances' summed effect on
+    the CV at every internal step (``effect_lanes``) and the summed feedforward at every scan
+    (``ff_lanes``), simulated, or replayed from ``noise_replay`` (and kept in
+    ``noise_record``) when those have columns; the general kernel's ``open_loop``, the same
+    operations per sample.
+
+    Each lane's inputs and noise come from its own seed (``disturbance_inputs``); the paths,
+    transmitters and feedforwards then advance with time outside and the lanes inside, so the
+    recursions of different samples overlap instead of waiting on each other.
+    """
+    L = LANES
+    n_d, n_internal, n_steps = inputs.shape[1], effect_rows.shape[1], measured.shape[2]
+    replay = noise_replay.shape[1] > 0
+    for lane in range(L):
+        if lane >= count:  # a spare lane repeats the first sample
+            inputs[lane] = inputs[0]
+            measured[lane] = measured[0]
+            effect_rows[lane] = effect_rows[0]
+            continue
+        i = lanes[lane]
+        if replay:
+            effect_rows[lane] = noise_replay[i, :n_internal]
+            for j in range(n_d):
+                measured[lane, j] = noise_replay[i, n_internal + j * n_steps:
+                                                 n_internal + (j + 1) * n_steps]
+        else:
+            disturbance_inputs(i, seeds[i], disturbances, disturbance_profile, noise, substeps,
+                               inputs[lane], measured[lane], held)
+    if replay:
+        _transpose(effect_rows, effect_lanes)
+    else:
+        effect_lanes[:] = 0.0
+        for j in range(n_d):
+            _disturbance_lanes(j, lanes, count, kinds[j], disturbances, hi, substeps, inputs,
+                               measured, effect_lanes)
+        if noise_record.shape[1] > 0:
+            _untranspose(effect_lanes, effect_rows)
+    if noise_record.shape[1] > 0:
+        for lane in range(count):
+            i = lanes[lane]
+            noise_record[i, :n_internal] = effect_rows[lane]
+            for j in range(n_d):
+                noise_record[i, n_internal + j * n_steps:
+                             n_internal + (j + 1) * n_steps] = measured[lane, j]
+    ff_lanes[:] = 0.0
+    for j in range(n_d):
+        if ffp[j, 6] != 0.0:
+            _transpose(measured[:, j, :], measured_lanes)
+            _feedforward_lanes(feedforward_constants(ffp, j), ff_delays[j], measured_lanes,
+                               filtered, ff_state, ff_lanes)
+
+
+@njit(cache=True, nogil=True)
+def _disturbance_lanes(j: int, lanes: np.ndarray, count: int, kind: int,
+                       disturbances: np.ndarray, hi: float, substeps: int, inputs: np.ndarray,
+                       measured: np.ndarray, effect_lanes: np.ndarray) -> None:
+    """Disturbance ``j`` of every lane: its effect added to ``effect_lanes`` at every internal
+    step, its transmitter's reading added to ``measured`` at every scan (the general kernel's
+    ``_disturbances_and_feedforward``, the same operations per sample)."""
+    L = LANES
+    n_steps, n_internal = measured.shape[2], inputs.shape[2]
+    coefficients = np.zeros((L, 8))
+    delay = np.zeros(L, dtype=np.int64)
+    a_sensor, gain_sensor = np.zeros(L), np.zeros(L)
+    direct = np.zeros(L, dtype=np.bool_)
+    x1, x2, sensor = np.zeros(L), np.zeros(L), np.zeros(L)
+    for lane in range(L):
+        i = lanes[lane] if lane < count else lanes[0]
+        m_d, f_d = split_delay(disturbances[i, j, D_DELAY], hi)
+        delay[lane] = min(m_d, n_internal)
+        coefficients[lane] = block_coefficients(
+            kind, disturbances[i, j, D_GAIN], disturbances[i, j, D_TAU1],
+            disturbances[i, j, D_TAU2], hi, f_d)
+        a_sensor[lane] = decay(hi, disturbances[i, j, D_SENSOR])
+        gain_sensor[lane] = 1.0 - a_sensor[lane]
+        direct[lane] = disturbances[i, j, D_SENSOR] <= 0.0
+    for k in range(n_steps):
+        for sub in range(substeps):
+            q = k * substeps + sub
+            for lane in range(L):
+                second_order = coefficients[lane, 7] == 2.0
+                effect_lanes[q * L + lane] += x2[lane] if second_order else x1[lane]
+                d = inputs[lane, j, q]
+                if sub == 0:
+                    measured[lane, j, k] += d if direct[lane] else sensor[lane]
+                m_d = delay[lane]
+                new = inputs[lane, j, q - m_d] if q >= m_d else 0.0
+                old = inputs[lane, j, q - m_d - 1] if q >= m_d + 1 else 0.0
+                first = (coefficients[lane, 0] * x1[lane] + coefficients[lane, 3] * new
+                         + coefficients[lane, 5] * old)
+                if second_order:
+                    x2[lane] = (coefficients[lane, 1] * x1[lane] + coefficients[lane, 2] * x2[lane]
+                                + coefficients[lane, 4] * new + coefficients[lane, 6] * old)
+                x1[lane] = first
+                sensor[lane] = a_sensor[lane] * sensor[lane] + gain_sensor[lane] * d
+
+
+@njit(cache=True, nogil=True)
+def _feedforward_lanes(c: tuple, m_ff: int, measured_lanes: np.ndarray, filtered: np.ndarray,
+                       state: np.ndarray, ff_lanes: np.ndarray) -> None:
+    """One disturbance's feedforward of every lane added to ``ff_lanes`` at every scan (the
+    general kernel's ``feedforward_step``, the same operations per sample): the input filter
+    over the whole window first, then the delay and the lead-lag. Every lane has the same
+    delay (a design setting), so both loops run across contiguous lanes and vectorise;
+    ``state`` (2 LANES) is scratch."""
+    L = LANES
+    pole, zero, scale, weight_new, weight_old, input_pole = c
+    n_steps = ff_lanes.shape[0] // L
+    for k in range(n_steps):
+        now, row = measured_lanes[k * L:(k + 1) * L], filtered[k * L:(k + 1) * L]
+        before = filtered[(k - 1) * L:k * L] if k > 0 else state[:L]
+        if k == 0:
+            state[:L] = 0.0
+        for lane in range(L):
+            row[lane] = input_pole * before[lane] + (1.0 - input_pole) * now[lane]
+    state[:] = 0.0  # the lead-lag's output and input at the previous scan
+    for k in range(n_steps):
+        out = ff_lanes[k * L:(k + 1) * L]
+        if k >= m_ff + 1:
+            newer = filtered[(k - m_ff) * L:(k - m_ff + 1) * L]
+            older = filtered[(k - m_ff - 1) * L:(k - m_ff) * L]
+            for lane in range(L):
+                ff_in = weight_new * newer[lane] + weight_old * older[lane]
+                _lead_lag_lane(state, out, lane, ff_in, pole, zero, scale)
+        elif k == m_ff:
+            newer = filtered[(k - m_ff) * L:(k - m_ff + 1) * L]
+            for lane in range(L):
+                ff_in = weight_new * newer[lane] + weight_old * 0.0
+                _lead_lag_lane(state, out, lane, ff_in, pole, zero, scale)
+        else:
+            for lane in range(L):
+                ff_in = weight_new * 0.0 + weight_old * 0.0
+                _lead_lag_lane(state, out, lane, ff_in, pole, zero, scale)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _lead_lag_lane(state: np.ndarray, out: np.ndarray, lane: int, ff_in: float, pole: float,
+                   zero: float, scale: float) -> None:
+    L = LANES
+    ff_out = pole * state[lane] + scale * (ff_in - zero * state[L + lane])
+    state[lane] = ff_out
+    state[L + lane] = ff_in
+    out[lane] += ff_out
+
+
+@njit(cache=True, nogil=True)
+def _untranspose(lanes: np.ndarray, rows: np.ndarray) -> None:
+    """The inverse of :func:`_transpose`: ``rows[l, t] = lanes[t * LANES + l]``."""
+    L = LANES
+    n = rows.shape[1]
+    for start in range(0, n, 64):
+        stop = min(start + 64, n)
+        for lane in range(L):
+            row = rows[lane]
+            for t in range(start, stop):
+                row[t] = lanes[t * L + lane]
 
 
 @njit(cache=True, nogil=True)
