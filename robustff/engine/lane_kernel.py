@@ -7,17 +7,16 @@ secondary loop (the caller chooses; the general kernel runs the rest). Each samp
 is the general kernel's, operation for operation and without fast-math, so the results do not
 depend on which samples share a block.
 
-Layout. Samples are grouped by their process dead time in whole internal steps and whole scans
-(and by the path's order), and advanced :data:`LANES` at a time: the time loop is outside, the
-loop over the lanes of a block inside. Every state and per-sample constant of a block lives in
-one flat buffer, field ``f`` of lane ``l`` at ``f * LANES + l``, so the compiler sees constant
-distances between fields and vectorises the lane loop without run-time alias checks; within a
-group every lane reads its delayed input from the same ring slot, so no gather is needed. Lanes
-of a block beyond its last sample repeat its first sample and are never written out.
+Layout. Samples are advanced :data:`LANES` at a time (grouped only by the order of their
+process path): the time loop is outside, the loop over the lanes of a block inside. Every state
+and per-sample constant of a block lives in one flat buffer, field ``f`` of lane ``l`` at
+``f * LANES + l``, so the compiler sees constant distances between fields and vectorises the
+lane loops without run-time alias checks. Each lane's delayed process input is copied from the
+ring (its own dead time) into the buffer before the loop that steps the path. Lanes of a block
+beyond its last sample repeat its first sample and are never written out.
 
-The open-loop signals (the disturbances' effect on the CV and the feedforward) are computed per
-sample by the general kernel's :func:`robustff.engine.kernel.open_loop` and laid across the
-lanes.
+The open-loop signals (the disturbances' effect on the CV and the feedforward) advance across
+the lanes too, from each sample's own inputs and noise (see :func:`_open_loop_lanes`).
 """
 
 from __future__ import annotations
@@ -72,16 +71,13 @@ _N_FIELDS = _DELAYED + 2
 
 
 @njit(cache=True, nogil=True)
-def _group_keys(plant: np.ndarray, kinds: np.ndarray, h: float, hi: float, n_internal: int,
-                n_steps: int) -> np.ndarray:
-    """Each sample's block key: its process dead time in whole internal steps and whole scans
-    and its path order, so that the samples of a block share their ring slots."""
+def _group_keys(plant: np.ndarray, kinds: np.ndarray, hi: float) -> np.ndarray:
+    """Each sample's block key, its process path's order (1 or 2): the samples of a block
+    share the code that steps the path."""
     keys = np.empty(plant.shape[0], dtype=np.int64)
     for i in range(plant.shape[0]):
-        m_p = min(split_delay(plant[i, 3], hi)[0], n_internal)
-        m_q = min(split_delay(plant[i, 3], h)[0], n_steps)
-        order = block_coefficients(kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], hi, 0.0)[7]
-        keys[i] = (m_p * (n_steps + 1) + m_q) * 2 + (1 if order == 2.0 else 0)
+        keys[i] = int(block_coefficients(kinds[0], plant[i, 0], plant[i, 1], plant[i, 2], hi,
+                                         0.0)[7])
     return keys
 
 
@@ -109,7 +105,7 @@ def _load_lane(w: np.ndarray, lane: int, kind: int, plant_row: np.ndarray, h: fl
 
 @njit(cache=True, nogil=True)
 def _scan(w: np.ndarray, ring: np.ndarray, ff: np.ndarray, k: int, sp: float, first: bool,
-          p: tuple, h: float, second_order: bool, feedback_arm: bool, size: int, m_q: int,
+          p: tuple, h: float, second_order: bool, feedback_arm: bool, size: int, m_q: np.ndarray,
           q2: int, q3: int) -> None:
     """The controllers and the stability probe of every lane at scan ``k`` (the general
     kernel's ``_arm_control`` and ``_probe_control``, the same operations per lane)."""
@@ -157,23 +153,21 @@ def _control_arm(w: np.ndarray, ff: np.ndarray, with_ff: bool, s: int, a: int, y
 
 @njit(cache=True, nogil=True, inline="always")
 def _store_and_fetch(w: np.ndarray, ring: np.ndarray, field: int, unit_load: bool, base: int,
-                     q: int, m: int, size: int) -> None:
+                     q: int, m: np.ndarray, size: int) -> None:
     # Write the field (plus 1 with unit_load: the probe's load) into the ring row of step q,
-    # then copy the rows of the delay m
-    # (steps q - m and q - m - 1) into the _DELAYED fields: the loop that steps the path then
-    # touches the buffer alone, at constant offsets. The rows are views, so these loops index
-    # from 0 and the compiler sees contiguous, non-negative indices (no gathers).
+    # then copy each lane's delayed inputs (steps q - m and q - m - 1, m its own dead time)
+    # into the _DELAYED fields: the loop that steps the path then touches the buffer alone, at
+    # constant offsets. The row written is a view, so that loop indexes from 0 and the
+    # compiler sees contiguous, non-negative indices.
     L = LANES
     mask = size - 1
-    r_new, r_now = (base + (q & mask)) * L, (base + ((q - m) & mask)) * L
-    r_old = (base + ((q - m - 1) & mask)) * L
+    r_new = (base + (q & mask)) * L
     new = ring[r_new:r_new + L]
     for lane in range(L):
         new[lane] = w[field * L + lane] + 1.0 if unit_load else w[field * L + lane]
-    now, old = ring[r_now:r_now + L], ring[r_old:r_old + L]
     for lane in range(L):
-        w[_DELAYED * L + lane] = now[lane]
-        w[(_DELAYED + 1) * L + lane] = old[lane]
+        w[_DELAYED * L + lane] = ring[(base + ((q - m[lane]) & mask)) * L + lane]
+        w[(_DELAYED + 1) * L + lane] = ring[(base + ((q - m[lane] - 1) & mask)) * L + lane]
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -183,7 +177,7 @@ def _keep_or_set(w: np.ndarray, slot: int, value: float, live: bool) -> None:
 
 @njit(cache=True, nogil=True, inline="always")
 def _probe(w: np.ndarray, ring: np.ndarray, k: int, p: tuple, second_order: bool, size: int,
-           m_q: int, q2: int, q3: int) -> None:
+           m_q: np.ndarray, q2: int, q3: int) -> None:
     # The stability probe of _scan: the controller, then (after the ring is written in a loop
     # of its own) the process step at the scan.
     L = LANES
@@ -240,7 +234,7 @@ def _measure_arm(w: np.ndarray, effect: np.ndarray, x: int, yf: int, af: int, q:
 
 @njit(cache=True, nogil=True)
 def _advance(w: np.ndarray, ring: np.ndarray, q: int, sp: float, t: float, weight: float,
-             mp: tuple, second_order: bool, feedback_arm: bool, size: int, m_p: int) -> None:
+             mp: tuple, second_order: bool, feedback_arm: bool, size: int, m_p: np.ndarray) -> None:
     """Error metrics and the process step of every live lane over internal step ``q`` (the
     general kernel's ``_arm_metrics`` and ``_path_step``, the same operations per lane)."""
     if feedback_arm:
@@ -253,7 +247,7 @@ def _advance(w: np.ndarray, ring: np.ndarray, q: int, sp: float, t: float, weigh
 @njit(cache=True, nogil=True, inline="always")
 def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: int, af: int,
                  lf: int, base: int, q: int, sp: float, t: float, weight: float, mp: tuple,
-                 second_order: bool, size: int, m_p: int) -> None:
+                 second_order: bool, size: int, m_p: np.ndarray) -> None:
     # One arm of _advance. Inlined with constant field offsets, so the compiler knows how far
     # apart the fields are; the ring is written in a loop of its own, so the loop that reads
     # it does not write it.
@@ -303,21 +297,34 @@ def _bin(y: float, grid: tuple) -> int:
 
 @njit(cache=True, nogil=True)
 def _record_scan(w: np.ndarray, k: int, lanes: np.ndarray, count: int, slots: np.ndarray,
-                 trajectories: np.ndarray, env: np.ndarray, point: int, grid: tuple) -> None:
-    """Trajectories of the kept samples and the envelope bins (``point >= 0``) at scan ``k``."""
+                 trajectories: np.ndarray, env: np.ndarray, point: int, grid: tuple,
+                 keep: bool) -> None:
+    """The envelope bins at scan ``k`` (``point >= 0``) and the trajectories of the kept
+    samples (``keep``: the block has one)."""
     L = LANES
+    if point >= 0:
+        _bin_arm(w, env[(2 * point) * L:(2 * point + 1) * L], _Y0, _ALIVE0, grid)
+        _bin_arm(w, env[(2 * point + 1) * L:(2 * point + 2) * L], _Y1, _ALIVE1, grid)
+    if not keep:
+        return
     for lane in range(count):
-        alive0, alive1 = w[_ALIVE0 * L + lane] != 0.0, w[_ALIVE1 * L + lane] != 0.0
-        y0, y1 = w[_Y0 * L + lane], w[_Y1 * L + lane]
         slot = slots[lanes[lane]]
         if slot >= 0:
-            if alive0:
-                trajectories[slot, 0, k], trajectories[slot, 2, k] = y0, w[_U0 * L + lane]
-            if alive1:
-                trajectories[slot, 1, k], trajectories[slot, 3, k] = y1, w[_U1 * L + lane]
-        if point >= 0:
-            env[(2 * point) * L + lane] = _bin(y0, grid) if alive0 else -1
-            env[(2 * point + 1) * L + lane] = _bin(y1, grid) if alive1 else -1
+            if w[_ALIVE0 * L + lane] != 0.0:
+                trajectories[slot, 0, k], trajectories[slot, 2, k] = (w[_Y0 * L + lane],
+                                                                       w[_U0 * L + lane])
+            if w[_ALIVE1 * L + lane] != 0.0:
+                trajectories[slot, 1, k], trajectories[slot, 3, k] = (w[_Y1 * L + lane],
+                                                                       w[_U1 * L + lane])
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _bin_arm(w: np.ndarray, row: np.ndarray, yf: int, af: int, grid: tuple) -> None:
+    # Every lane's bin, -1 where the arm ran away (spare lanes too: never counted).
+    L = LANES
+    for lane in range(L):
+        b = _bin(w[yf * L + lane], grid)
+        row[lane] = b if w[af * L + lane] != 0.0 else -1
 
 
 @njit(cache=True, nogil=True)
@@ -348,11 +355,18 @@ def _write_out(w: np.ndarray, env: np.ndarray, lanes: np.ndarray, count: int, fe
                     value = max(value, 0.0)
                 accumulators[i, arm, c] = value if alive else math.nan
             unstable[i, arm] = not alive
-            for point in range(n_points):
-                b = env[(2 * point + arm) * L + lane]
-                if not probe and b >= 0:
+    # The envelope point by point, every lane of a point together: the counts of one point are
+    # one short row, where the lane-by-lane order would jump across the whole histogram.
+    for arm in range(2):
+        for point in range(n_points):
+            row = (2 * point + arm) * L
+            for lane in range(count):
+                b = env[row + lane]
+                if b >= 0 and not loop_unstable[lanes[lane]]:
                     envelope_counts[arm, point, b] += 1
-                env[(2 * point + arm) * L + lane] = -1
+                env[row + lane] = -1
+            for lane in range(count, L):
+                env[row + lane] = -1
 
 
 @njit(cache=True, nogil=True)
@@ -381,7 +395,7 @@ def simulate_lanes(
     noise = noise_setup(noise_events, h)
     limit = controller[7]
     q2, q3 = n_steps // 2, (3 * n_steps) // 4
-    keys = _group_keys(plant, kinds, h, hi, n_internal, n_steps)
+    keys = _group_keys(plant, kinds, hi)
     order = np.argsort(keys, kind="mergesort")
     # Open-loop scratch: each lane's disturbance inputs and measurements, the feedforward's
     # filtered measurements, the effect on the CV and the feedforward across the lanes.
@@ -400,6 +414,8 @@ def simulate_lanes(
     n_points = envelope_counts.shape[1]
     env = np.full(2 * n_points * L, -1, dtype=np.int64)
     lanes = np.zeros(L, dtype=np.int64)
+    m_p = np.zeros(L, dtype=np.int64)  # each lane's dead time in whole internal steps
+    m_q = np.zeros(L, dtype=np.int64)  # and in whole scans (the probe)
     last_segment = segment_profile[n_internal - 1]
     start = 0
     while start < n:
@@ -418,11 +434,15 @@ def simulate_lanes(
                          disturbance_profile, noise, hi, substeps, ffp, ff_delays, noise_record,
                          noise_replay, inputs, measured, held, filtered, measured_lanes,
                          ff_state, effect_rows, effect_lanes, ff_lanes)
-        m_p = min(split_delay(plant[lanes[0], 3], hi)[0], n_internal)
-        m_q = min(split_delay(plant[lanes[0], 3], h)[0], n_steps)
-        size = _ring_capacity(max(m_p, m_q))
+        longest = 0
+        for lane in range(L):
+            i = lanes[lane] if lane < count else lanes[0]
+            m_p[lane] = min(split_delay(plant[i, 3], hi)[0], n_internal)
+            m_q[lane] = min(split_delay(plant[i, 3], h)[0], n_steps)
+            longest = max(longest, m_p[lane], m_q[lane])
+        size = _ring_capacity(longest)
         ring[:3 * size * L] = 0.0
-        second_order = key % 2 == 1
+        second_order = key == 2
         record = keep or n_points > 0
         for k in range(n_steps):
             for sub in range(substeps):
@@ -440,7 +460,7 @@ def simulate_lanes(
                           feedback_arm, size, m_q, q2, q3)
                     if record and (keep or envelope_index[k] >= 0):
                         _record_scan(w, k, lanes, count, trajectory_slot, trajectories, env,
-                                     envelope_index[k], grid)
+                                     envelope_index[k], grid, keep)
                 _advance(w, ring, q, sp, t, weight, mpk, second_order, feedback_arm, size, m_p)
         _write_out(w, env, lanes, count, feedback_arm, n_steps * h, last_segment, mp.h,
                    accumulators, unstable, loop_unstable, envelope_counts)
