@@ -106,7 +106,7 @@ def _load_lane(w: np.ndarray, lane: int, kind: int, plant_row: np.ndarray, h: fl
 
 @njit(cache=True, nogil=True)
 def _scan(w: np.ndarray, ring: np.ndarray, ff: np.ndarray, k: int, sp: float, first: bool,
-          p: tuple, h: float, second_order: bool, feedback_arm: bool, size: int, m_q: np.ndarray,
+          p: tuple, h: float, second_order: bool, feedback_arm: bool, size: int, runs_q: np.ndarray,
           q2: int, q3: int) -> None:
     """The controllers and the stability probe of every lane at scan ``k`` (the general
     kernel's ``_arm_control`` and ``_probe_control``, the same operations per lane)."""
@@ -114,7 +114,7 @@ def _scan(w: np.ndarray, ring: np.ndarray, ff: np.ndarray, k: int, sp: float, fi
         _control_arm(w, ff, False, _S0, _A0, _Y0, _U0, _ALIVE0, k, sp, first, p, h)
     _control_arm(w, ff, True, _S1, _A1, _Y1, _U1, _ALIVE1, k, sp, first, p, h)
     if feedback_arm:
-        _probe(w, ring, k, p, second_order, size, m_q, q2, q3)
+        _probe(w, ring, k, p, second_order, size, runs_q, q2, q3)
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -154,21 +154,43 @@ def _control_arm(w: np.ndarray, ff: np.ndarray, with_ff: bool, s: int, a: int, y
 
 @njit(cache=True, nogil=True, inline="always")
 def _store_and_fetch(w: np.ndarray, ring: np.ndarray, field: int, unit_load: bool, base: int,
-                     q: int, m: np.ndarray, size: int) -> None:
+                     q: int, segments: np.ndarray, size: int) -> None:
     # Write the field (plus 1 with unit_load: the probe's load) into the ring row of step q,
     # then copy each lane's delayed inputs (steps q - m and q - m - 1, m its own dead time)
     # into the _DELAYED fields: the loop that steps the path then touches the buffer alone, at
-    # constant offsets. The row written is a view, so that loop indexes from 0 and the
-    # compiler sees contiguous, non-negative indices.
+    # constant offsets. The lanes come sorted by dead time, so they fall in a few runs of
+    # equal delay (segments[s] = (first lane, delay), see _delay_runs), each copied as one
+    # contiguous row.
     L = LANES
     mask = size - 1
     r_new = (base + (q & mask)) * L
     new = ring[r_new:r_new + L]
     for lane in range(L):
         new[lane] = w[field * L + lane] + 1.0 if unit_load else w[field * L + lane]
+    for s in range(segments.shape[0] - 1):
+        first, stop, m = segments[s, 0], segments[s + 1, 0], segments[s, 1]
+        if first == stop:
+            break
+        now = ring[(base + ((q - m) & mask)) * L:(base + ((q - m) & mask) + 1) * L]
+        old = ring[(base + ((q - m - 1) & mask)) * L:(base + ((q - m - 1) & mask) + 1) * L]
+        delayed = w[_DELAYED * L:(_DELAYED + 2) * L]
+        for lane in range(first, stop):
+            delayed[lane] = now[lane]
+            delayed[L + lane] = old[lane]
+
+
+@njit(cache=True, nogil=True)
+def _delay_runs(delays: np.ndarray, segments: np.ndarray) -> None:
+    """Runs of equal delay among the lanes: ``segments[s] = (first lane, delay)`` for each run,
+    then ``(LANES, 0)`` rows (a run ends where the next begins)."""
+    L = LANES
+    s = 0
     for lane in range(L):
-        w[_DELAYED * L + lane] = ring[(base + ((q - m[lane]) & mask)) * L + lane]
-        w[(_DELAYED + 1) * L + lane] = ring[(base + ((q - m[lane] - 1) & mask)) * L + lane]
+        if lane == 0 or delays[lane] != delays[lane - 1]:
+            segments[s, 0], segments[s, 1] = lane, delays[lane]
+            s += 1
+    for rest in range(s, segments.shape[0]):
+        segments[rest, 0], segments[rest, 1] = L, 0
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -178,29 +200,31 @@ def _keep_or_set(w: np.ndarray, slot: int, value: float, live: bool) -> None:
 
 @njit(cache=True, nogil=True, inline="always")
 def _probe(w: np.ndarray, ring: np.ndarray, k: int, p: tuple, second_order: bool, size: int,
-           m_q: np.ndarray, q2: int, q3: int) -> None:
+           runs_q: np.ndarray, q2: int, q3: int) -> None:
     # The stability probe of _scan: the controller, then (after the ring is written in a loop
     # of its own) the process step at the scan.
     L = LANES
+    # Which peak this scan counts for (the window's third and last quarter), decided once.
+    late, early = k >= q3, k < q3 and k >= q2
     for lane in range(L):
         x1, x2 = w[_XQ * L + lane], w[(_XQ + 1) * L + lane]
         y = x2 if second_order else x1
-        diverged = (w[(_PQ + 5) * L + lane] != 0.0 or not math.isfinite(y) or abs(y) > 1e12)
+        # | rather than or: no branch per lane, so the loop stays vectorised
+        diverged = (w[(_PQ + 5) * L + lane] != 0.0) | (not math.isfinite(y)) | (abs(y) > 1e12)
         e = -y
         deriv = (p.derivative_pole * w[(_PQ + 1) * L + lane]
                  - p.derivative_gain * (y - w[(_PQ + 2) * L + lane])
                  if p.has_derivative else w[(_PQ + 1) * L + lane])
         u = p.kc * e + w[_PQ * L + lane] + deriv
-        if k >= q3:
-            w[(_PQ + 4) * L + lane] = max(w[(_PQ + 4) * L + lane], abs(e))
-        elif k >= q2:
-            w[(_PQ + 3) * L + lane] = max(w[(_PQ + 3) * L + lane], abs(e))
+        late_peak, early_peak = w[(_PQ + 4) * L + lane], w[(_PQ + 3) * L + lane]
+        w[(_PQ + 4) * L + lane] = max(late_peak, abs(e)) if late else late_peak
+        w[(_PQ + 3) * L + lane] = max(early_peak, abs(e)) if early else early_peak
         w[_PQ * L + lane] = w[_PQ * L + lane] + p.integral_gain * e
         w[(_PQ + 1) * L + lane] = deriv
         w[(_PQ + 2) * L + lane] = y
         w[(_PQ + 5) * L + lane] = 1.0 if diverged else 0.0
         w[_UQ * L + lane] = u
-    _store_and_fetch(w, ring, _UQ, True, 2 * size, k, m_q, size)
+    _store_and_fetch(w, ring, _UQ, True, 2 * size, k, runs_q, size)
     for lane in range(L):
         x1, x2 = w[_XQ * L + lane], w[(_XQ + 1) * L + lane]
         u_new, u_old = w[_DELAYED * L + lane], w[(_DELAYED + 1) * L + lane]
@@ -228,34 +252,35 @@ def _measure_arm(w: np.ndarray, effect: np.ndarray, x: int, yf: int, af: int, q:
     now = effect[q * L:(q + 1) * L]
     for lane in range(L):
         y = (w[(x + 1) * L + lane] if second_order else w[x * L + lane]) + now[lane]
-        alive = w[af * L + lane] != 0.0 and math.isfinite(y) and not abs(y) > limit
+        alive = (w[af * L + lane] != 0.0) & math.isfinite(y) & (not abs(y) > limit)
         w[yf * L + lane] = y
         w[af * L + lane] = 1.0 if alive else 0.0
 
 
 @njit(cache=True, nogil=True)
 def _advance(w: np.ndarray, ring: np.ndarray, q: int, sp: float, t: float, weight: float,
-             mp: tuple, second_order: bool, feedback_arm: bool, size: int, m_p: np.ndarray) -> None:
+             mp: tuple, second_order: bool, feedback_arm: bool, size: int,
+             runs_p: np.ndarray) -> None:
     """Error metrics and the process step of every live lane over internal step ``q`` (the
     general kernel's ``_arm_metrics`` and ``_path_step``, the same operations per lane)."""
     if feedback_arm:
         _advance_arm(w, ring, _X0, _A0, _Y0, _U0, _ALIVE0, _LAST0, 0, q, sp, t, weight, mp,
-                     second_order, size, m_p)
+                     second_order, size, runs_p)
     _advance_arm(w, ring, _X1, _A1, _Y1, _U1, _ALIVE1, _LAST1, size, q, sp, t, weight, mp,
-                 second_order, size, m_p)
+                 second_order, size, runs_p)
 
 
 @njit(cache=True, nogil=True, inline="always")
 def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: int, af: int,
                  lf: int, base: int, q: int, sp: float, t: float, weight: float, mp: tuple,
-                 second_order: bool, size: int, m_p: np.ndarray) -> None:
+                 second_order: bool, size: int, runs_p: np.ndarray) -> None:
     # One arm of _advance. Inlined with constant field offsets, so the compiler knows how far
     # apart the fields are; the ring is written in a loop of its own, so the loop that reads
     # it does not write it.
     L = LANES
     h = mp.h
     new_event = mp.segment != mp.previous_segment
-    _store_and_fetch(w, ring, uf, False, base, q, m_p, size)
+    _store_and_fetch(w, ring, uf, False, base, q, runs_p, size)
     for lane in range(L):
         live = w[af * L + lane] != 0.0  # see _control_arm
         e = sp - w[yf * L + lane]
@@ -397,7 +422,9 @@ def simulate_lanes(
     limit = controller[7]
     q2, q3 = n_steps // 2, (3 * n_steps) // 4
     keys = _group_keys(plant, kinds, hi)
-    order = np.argsort(keys, kind="mergesort")
+    # By path order, and by dead time within an order: a block's lanes then share a few delays.
+    by_delay = np.argsort(plant[:, 3], kind="mergesort")
+    order = by_delay[np.argsort(keys[by_delay], kind="mergesort")]
     scratch = _open_loop_scratch(n_d, n_internal, n_steps)
     effect_lanes, ff_lanes = scratch[6], scratch[7]
     w = np.zeros(_N_FIELDS * L)
@@ -408,6 +435,8 @@ def simulate_lanes(
     lanes = np.zeros(L, dtype=np.int64)
     m_p = np.zeros(L, dtype=np.int64)  # each lane's dead time in whole internal steps
     m_q = np.zeros(L, dtype=np.int64)  # and in whole scans (the probe)
+    runs_p = np.zeros((L + 1, 2), dtype=np.int64)  # their runs (see _delay_runs)
+    runs_q = np.zeros((L + 1, 2), dtype=np.int64)
     last_segment = segment_profile[n_internal - 1]
     start = 0
     while start < n:
@@ -432,6 +461,8 @@ def simulate_lanes(
             m_q[lane] = min(split_delay(plant[i, 3], h)[0], n_steps)
             longest = max(longest, m_p[lane], m_q[lane])
         size = _ring_capacity(longest)
+        _delay_runs(m_p, runs_p)
+        _delay_runs(m_q, runs_q)
         ring[:3 * size * L] = 0.0
         second_order = key == 2
         record = keep or n_points > 0
@@ -448,11 +479,12 @@ def simulate_lanes(
                 _measure(w, effect_lanes, q, limit, second_order)
                 if sub == 0:
                     _scan(w, ring, ff_lanes, k, sp, k == 0, p, h, second_order,
-                          feedback_arm, size, m_q, q2, q3)
+                          feedback_arm, size, runs_q, q2, q3)
                     if record and (keep or envelope_index[k] >= 0):
                         _record_scan(w, k, lanes, count, trajectory_slot, trajectories, env,
                                      envelope_index[k], grid, keep)
-                _advance(w, ring, q, sp, t, weight, mpk, second_order, feedback_arm, size, m_p)
+                _advance(w, ring, q, sp, t, weight, mpk, second_order, feedback_arm, size,
+                         runs_p)
         _write_out(w, env, lanes, count, feedback_arm, n_steps * h, last_segment, mp.h,
                    accumulators, unstable, loop_unstable, envelope_counts)
 
