@@ -17,6 +17,7 @@ from robustff.cli.interrupts import InterruptGuard
 from robustff.errors import RobustffError
 
 if TYPE_CHECKING:
+    from robustff.output.samples_file import SamplesCsvStream
     from robustff.study.summary_types import MarginsSummary, Summary
 
 __all__ = ["register", "parse_percentiles", "ProgressPrinter"]
@@ -234,6 +235,7 @@ def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case
     from robustff.cli.check_command import refuse_errors, warning_lines
     from robustff.output.result_files import check_output_folder
+    from robustff.output.samples_file import SamplesCsvStream
     from robustff.stats import DEFAULT_PERCENTILES
     from robustff.study import run_study
 
@@ -251,35 +253,44 @@ def execute(args: argparse.Namespace) -> int:
     if args.cluster:
         _check_cluster_address(args.cluster)
     cancel = threading.Event()
-    with InterruptGuard() as guard:
-        printer = ProgressPrinter()
+    # samples.csv is written as the chunks finish, while the next ones are simulated.
+    stream = SamplesCsvStream(out) if args.samples_format == "csv" else None
+    try:
+        with InterruptGuard() as guard:
+            printer = ProgressPrinter()
 
-        def progress(done: int, total: int) -> None:
-            printer(done, total)
-            if done >= total:
-                guard.keep()  # every sample simulated: an interrupt now would only lose them
+            def progress(done: int, total: int) -> None:
+                printer(done, total)
+                if done >= total:
+                    guard.keep()  # every sample simulated: an interrupt now would only lose them
 
-        try:
-            result = run_study(
-                case,
-                samples=args.samples,
-                seed=args.seed,
-                jobs=args.jobs,
-                cluster=args.cluster,
-                progress=progress,
-                cancel=cancel,
-            )
-        except KeyboardInterrupt:  # before the first chunk (design, nominal run, compilation)
-            result = None
-        guard.keep()
-        if result is None or result.samples == 0:
-            print(NOTHING_KEPT, file=sys.stderr)
-            return EXIT_INTERRUPTED
-        return _report(args, case, result, out, percentiles)
+            try:
+                result = run_study(
+                    case,
+                    samples=args.samples,
+                    seed=args.seed,
+                    jobs=args.jobs,
+                    cluster=args.cluster,
+                    progress=progress,
+                    cancel=cancel,
+                    on_rows=stream.add if stream is not None else None,
+                )
+            except KeyboardInterrupt:  # before the first chunk (design, nominal run, compiling)
+                result = None
+            guard.keep()
+            if result is None or result.samples == 0:
+                print(NOTHING_KEPT, file=sys.stderr)
+                return EXIT_INTERRUPTED
+            return _report(args, case, result, out, percentiles, stream)
+    finally:
+        if stream is not None:
+            stream.discard()  # a table moved into the result folder is not touched
 
 
-def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> int:
-    """Summarise a finished (or interrupted) study, write its files and print the outcome."""
+def _report(args: argparse.Namespace, case, result, out: Path, percentiles,
+            stream: SamplesCsvStream | None = None) -> int:
+    """Summarise a finished (or interrupted) study, write its files and print the outcome;
+    ``stream`` holds ``samples.csv`` as written while the study ran."""
     from robustff.case.text import printable_title
     from robustff.output.result_files import risk_sentence, write_results
     from robustff.study.summary import summarize_study
@@ -308,7 +319,8 @@ def _report(args: argparse.Namespace, case, result, out: Path, percentiles) -> i
             report_notes.extend(files.notes)
 
     write_results(result, summary, out, percentiles, extra=extra,
-                  samples_format=args.samples_format)
+                  samples_format=args.samples_format,
+                  samples_file=stream.finish(result) if stream is not None else None)
     print(printable_title(case.title))
     print(
         f"{result.samples} samples"

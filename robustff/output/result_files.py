@@ -174,6 +174,7 @@ def write_results(
     percentiles: Sequence[float],
     extra: Callable[[Path], None] | None = None,
     samples_format: str = "csv",
+    samples_file: Path | None = None,
 ) -> Path:
     """Write the result files into ``folder``, replacing an earlier run's files as a whole.
 
@@ -190,6 +191,10 @@ def write_results(
     samples_format : {"csv", "npy"}
         The per-sample table as ``samples.csv`` (default) or ``samples.npy``
         (see :mod:`robustff.output.samples_file`).
+    samples_file : Path, optional
+        ``samples.csv`` already written while the study ran
+        (:meth:`robustff.output.samples_file.SamplesCsvStream.finish`): moved into the folder
+        instead of written again (only with the ``csv`` format).
 
     Returns
     -------
@@ -211,7 +216,10 @@ def write_results(
                           json.dumps(json_safe(summary), indent=2, allow_nan=False) + "\n")
         write_text_atomic(staging / "percentiles.csv", percentiles_csv(summary, percentiles))
         write_text_atomic(staging / "percentiles.md", percentiles_markdown(summary, percentiles))
-        write_samples(staging, sample_columns(result), samples_format)
+        if samples_file is not None and samples_format == "csv":
+            os.replace(samples_file, staging / samples_file_name(samples_format))
+        else:
+            write_samples(staging, sample_columns(result), samples_format)
         write_text_atomic(staging / SAMPLES_UNITS_FILE, samples_units_csv(result, summary))
         write_text_atomic(staging / "frequency.csv",
                           frequency_csv(study_frequencies(result), result.case.time_unit))

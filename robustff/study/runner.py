@@ -37,8 +37,8 @@ from robustff.engine.metrics import METRIC_NAMES
 from robustff.plant.models import PlantBatch
 from robustff.study.cluster import cluster_results
 
-__all__ = ["StudyResult", "DesignArm", "run_study", "noise_seeds", "chunk_spans", "CHUNK_SIZE",
-           "ProgressCallback"]
+__all__ = ["StudyResult", "DesignArm", "SampleRows", "run_study", "noise_seeds", "chunk_spans",
+           "CHUNK_SIZE", "ProgressCallback", "RowsCallback"]
 
 #: Samples per chunk. Fixed (not derived from the number of jobs) so results never depend on it.
 CHUNK_SIZE = 1000
@@ -76,6 +76,42 @@ class DesignArm:
     unstable: np.ndarray
     #: With several disturbances, every one's compensator (empty: ``settings`` alone).
     compensators: tuple[FeedforwardSettings, ...] = ()
+
+
+@dataclass(frozen=True)
+class SampleRows:
+    """Consecutive samples' per-sample results, from sample ``start`` on: a finished chunk as it
+    arrives, or a whole study (:meth:`StudyResult.rows`).
+
+    Attributes
+    ----------
+    start : int
+        Index of the first sample.
+    names : list of str
+        Uncertain parameter keys (columns of ``parameters``).
+    parameters : ndarray, shape (m, p)
+    metrics : dict of str to ndarray (m, 2)
+        Arm 0 feedback only, arm 1 with the case's feedforward.
+    unstable : ndarray of bool, shape (m, 2)
+    arms : list of (str, dict of str to ndarray (m,), ndarray of bool (m,))
+        The case's other feedforward designs: name, metrics, unstable flags.
+    """
+
+    start: int
+    names: list[str]
+    parameters: np.ndarray
+    metrics: dict[str, np.ndarray]
+    unstable: np.ndarray
+    arms: list[tuple[str, dict[str, np.ndarray], np.ndarray]]
+
+    @property
+    def count(self) -> int:
+        """Samples in these rows."""
+        return int(self.parameters.shape[0])
+
+
+#: Called with each finished chunk's rows, in sample order, as the chunks arrive.
+RowsCallback = Callable[[SampleRows], None]
 
 
 @dataclass
@@ -147,6 +183,11 @@ class StudyResult:
     def samples(self) -> int:
         """Samples actually simulated."""
         return int(self.parameters.shape[0])
+
+    def rows(self) -> SampleRows:
+        """Every sample's results as :class:`SampleRows`."""
+        return SampleRows(0, self.names, self.parameters, self.metrics, self.unstable,
+                          [(arm.name, arm.metrics, arm.unstable) for arm in self.alternatives])
 
     def design_arms(self) -> list[DesignArm]:
         """Every feedforward design, the case's own first (named ``"case"``)."""
@@ -254,6 +295,7 @@ def run_study(
     progress: ProgressCallback | None = None,
     cancel: threading.Event | None = None,
     margins: bool = True,
+    on_rows: RowsCallback | None = None,
 ) -> StudyResult:
     """Run the Monte Carlo study of a case.
 
@@ -277,6 +319,10 @@ def run_study(
         Also compute the feedback stability margins (exact dead time) of the nominal loop and
         of the first ``MARGIN_SAMPLES`` samples, as simulated (at the scan period) and, for the
         nominal loop, with a continuous controller.
+    on_rows : callable(SampleRows), optional
+        Called with each finished chunk's rows, in sample order, while the next chunks are
+        simulated (``samples.csv`` is written this way as the study runs). The chunks it is
+        called with are exactly the study's samples, a prefix when the run is stopped.
 
     Returns
     -------
@@ -314,6 +360,12 @@ def run_study(
         for chunk, (result, alternatives) in zip(chunks, generator, strict=False):
             counts += result.envelope_counts
             collected.add(chunk, result, alternatives)
+            if on_rows is not None:
+                on_rows(SampleRows(
+                    chunk.start, names, values[chunk.start:chunk.stop], result.metrics,
+                    result.unstable, [(alternative.name, metrics, unstable) for alternative,
+                                      (metrics, unstable) in zip(design.alternatives,
+                                                                 alternatives, strict=True)]))
             if progress is not None:
                 progress(chunk.stop, n)
             if cancel.is_set():
