@@ -111,23 +111,23 @@ def _scan(w: np.ndarray, ring: np.ndarray, ff: np.ndarray, k: int, sp: float, fi
     """The controllers and the stability probe of every lane at scan ``k`` (the general
     kernel's ``_arm_control`` and ``_probe_control``, the same operations per lane)."""
     if feedback_arm:
-        _control_arm(w, ff, False, _S0, _A0, _Y0, _U0, _ALIVE0, k, sp, first, p, h)
-    _control_arm(w, ff, True, _S1, _A1, _Y1, _U1, _ALIVE1, k, sp, first, p, h)
+        _control_arm(w, ff, False, _S0, _A0, _Y0, _U0, k, sp, first, p, h)
+    _control_arm(w, ff, True, _S1, _A1, _Y1, _U1, k, sp, first, p, h)
     if feedback_arm:
         _probe(w, ring, k, p, second_order, size, runs_q, q2, q3)
 
 
 @njit(cache=True, nogil=True, inline="always")
 def _control_arm(w: np.ndarray, ff: np.ndarray, with_ff: bool, s: int, a: int, yf: int,
-                 uf: int, af: int, k: int, sp: float, first: bool, p: tuple,
+                 uf: int, k: int, sp: float, first: bool, p: tuple,
                  h: float) -> None:
     # One arm of _scan, inlined with constant field offsets (see _advance_arm).
     L = LANES
     ff_now = ff[k * L:(k + 1) * L]
     for lane in range(L):
-        # Every lane computes; a lane whose arm ran away keeps its values (a select, not a
-        # branch, so the loop stays vectorised).
-        live = w[af * L + lane] != 0.0
+        # Every lane computes, a lane whose arm ran away too (no branch, so the loop stays
+        # vectorised): its values are never used again (its CV is no longer recorded and its
+        # accumulators are written as NaN), and its alive flag stays 0.
         y = w[yf * L + lane]
         ffk = ff_now[lane] if with_ff else 0.0
         e = sp - y
@@ -143,13 +143,13 @@ def _control_arm(w: np.ndarray, ff: np.ndarray, with_ff: bool, s: int, a: int, y
         at_limit = (a + 8) * L + lane
         moved = w[travel] + abs(u - w[(s + 3) * L + lane])
         limited = w[at_limit] + h if u != v else w[at_limit]
-        _keep_or_set(w, s * L + lane, integral, live)
-        _keep_or_set(w, travel, moved, live)
-        _keep_or_set(w, at_limit, limited, live)
-        _keep_or_set(w, (s + 1) * L + lane, deriv, live)
-        _keep_or_set(w, (s + 2) * L + lane, yd, live)
-        _keep_or_set(w, (s + 3) * L + lane, u, live)
-        _keep_or_set(w, uf * L + lane, u, live)
+        w[s * L + lane] = integral
+        w[travel] = moved
+        w[at_limit] = limited
+        w[(s + 1) * L + lane] = deriv
+        w[(s + 2) * L + lane] = yd
+        w[(s + 3) * L + lane] = u
+        w[uf * L + lane] = u
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -191,11 +191,6 @@ def _delay_runs(delays: np.ndarray, segments: np.ndarray) -> None:
             s += 1
     for rest in range(s, segments.shape[0]):
         segments[rest, 0], segments[rest, 1] = L, 0
-
-
-@njit(cache=True, nogil=True, inline="always")
-def _keep_or_set(w: np.ndarray, slot: int, value: float, live: bool) -> None:
-    w[slot] = value if live else w[slot]
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -264,15 +259,15 @@ def _advance(w: np.ndarray, ring: np.ndarray, q: int, sp: float, t: float, weigh
     """Error metrics and the process step of every live lane over internal step ``q`` (the
     general kernel's ``_arm_metrics`` and ``_path_step``, the same operations per lane)."""
     if feedback_arm:
-        _advance_arm(w, ring, _X0, _A0, _Y0, _U0, _ALIVE0, _LAST0, 0, q, sp, t, weight, mp,
+        _advance_arm(w, ring, _X0, _A0, _Y0, _U0, _LAST0, 0, q, sp, t, weight, mp,
                      second_order, size, runs_p)
-    _advance_arm(w, ring, _X1, _A1, _Y1, _U1, _ALIVE1, _LAST1, size, q, sp, t, weight, mp,
+    _advance_arm(w, ring, _X1, _A1, _Y1, _U1, _LAST1, size, q, sp, t, weight, mp,
                  second_order, size, runs_p)
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: int, af: int,
-                 lf: int, base: int, q: int, sp: float, t: float, weight: float, mp: tuple,
+def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: int, lf: int,
+                 base: int, q: int, sp: float, t: float, weight: float, mp: tuple,
                  second_order: bool, size: int, runs_p: np.ndarray) -> None:
     # One arm of _advance. Inlined with constant field offsets, so the compiler knows how far
     # apart the fields are; the ring is written in a loop of its own, so the loop that reads
@@ -282,7 +277,7 @@ def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: i
     new_event = mp.segment != mp.previous_segment
     _store_and_fetch(w, ring, uf, False, base, q, runs_p, size)
     for lane in range(L):
-        live = w[af * L + lane] != 0.0  # see _control_arm
+        # every lane, a run-away one too (see _control_arm)
         e = sp - w[yf * L + lane]
         ae = abs(e)
         last = w[lf * L + lane]
@@ -295,15 +290,15 @@ def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: i
             last = t
         outside = (a + 9) * L + lane
         beyond = w[outside] + h if ae > mp.cv_band else w[outside]
-        _keep_or_set(w, lf * L + lane, last, live)
-        _keep_or_set(w, a * L + lane, w[a * L + lane] + e * h, live)
-        _keep_or_set(w, (a + 1) * L + lane, w[(a + 1) * L + lane] + ae * h, live)
-        _keep_or_set(w, (a + 2) * L + lane, w[(a + 2) * L + lane] + e * e * h, live)
-        _keep_or_set(w, (a + 3) * L + lane, w[(a + 3) * L + lane] + weight * ae * h, live)
-        _keep_or_set(w, (a + 4) * L + lane, max(w[(a + 4) * L + lane], ae), live)
-        _keep_or_set(w, (a + 5) * L + lane, max(w[(a + 5) * L + lane], mp.direction * e), live)
-        _keep_or_set(w, (a + 6) * L + lane, longest, live)
-        _keep_or_set(w, outside, beyond, live)
+        w[lf * L + lane] = last
+        w[a * L + lane] = w[a * L + lane] + e * h
+        w[(a + 1) * L + lane] = w[(a + 1) * L + lane] + ae * h
+        w[(a + 2) * L + lane] = w[(a + 2) * L + lane] + e * e * h
+        w[(a + 3) * L + lane] = w[(a + 3) * L + lane] + weight * ae * h
+        w[(a + 4) * L + lane] = max(w[(a + 4) * L + lane], ae)
+        w[(a + 5) * L + lane] = max(w[(a + 5) * L + lane], mp.direction * e)
+        w[(a + 6) * L + lane] = longest
+        w[outside] = beyond
         u_new, u_old = w[_DELAYED * L + lane], w[(_DELAYED + 1) * L + lane]
         x1, x2 = w[x * L + lane], w[(x + 1) * L + lane]
         first_state = (w[_CP * L + lane] * x1 + w[(_CP + 3) * L + lane] * u_new
@@ -311,8 +306,8 @@ def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: i
         if second_order:
             x2 = (w[(_CP + 1) * L + lane] * x1 + w[(_CP + 2) * L + lane] * x2
                   + w[(_CP + 4) * L + lane] * u_new + w[(_CP + 6) * L + lane] * u_old)
-        _keep_or_set(w, x * L + lane, first_state, live)
-        _keep_or_set(w, (x + 1) * L + lane, x2, live)
+        w[x * L + lane] = first_state
+        w[(x + 1) * L + lane] = x2
 
 
 @njit(cache=True, nogil=True, inline="always")
