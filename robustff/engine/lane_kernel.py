@@ -420,11 +420,18 @@ def simulate_lanes(
     # By path order, and by dead time within an order: a block's lanes then share a few delays.
     by_delay = np.argsort(plant[:, 3], kind="mergesort")
     order = by_delay[np.argsort(keys[by_delay], kind="mergesort")]
-    scratch = _open_loop_scratch(n_d, n_internal, n_steps)
+    # Rings as long as the longest delay needs, not the window: memory the pages of which are
+    # touched anyway (a window-long ring costs page faults on every call).
+    longest_process, longest_path = 0, 0
+    for i in range(n):
+        longest_process = max(longest_process, min(split_delay(plant[i, 3], hi)[0], n_internal))
+        for j in range(n_d):
+            longest_path = max(longest_path,
+                               min(split_delay(disturbances[i, j, D_DELAY], hi)[0], n_internal))
+    scratch = _open_loop_scratch(n_d, n_internal, n_steps, longest_path)
     effect_lanes, ff_lanes = scratch[6], scratch[7]
     w = np.zeros(_N_FIELDS * L)
-    ring_rows = 3 * _ring_capacity(n_internal)
-    ring = np.zeros(ring_rows * L)
+    ring = np.zeros(3 * _ring_capacity(longest_process) * L)
     n_points = envelope_counts.shape[1]
     env = np.full(2 * n_points * L, -1, dtype=np.int64)
     lanes = np.zeros(L, dtype=np.int64)
@@ -554,15 +561,16 @@ def _open_loop_lanes(lanes: np.ndarray, count: int, seeds: np.ndarray, kinds: np
 
 
 @njit(cache=True, nogil=True)
-def _open_loop_scratch(n_d: int, n_internal: int, n_steps: int) -> tuple:
+def _open_loop_scratch(n_d: int, n_internal: int, n_steps: int, longest_path: int) -> tuple:
     """The arrays :func:`_open_loop_lanes` works in (memory about (3 J + 5) T S LANES numbers
-    for J disturbances, independent of the number of samples)."""
+    for J disturbances, independent of the number of samples); ``longest_path`` is the longest
+    disturbance dead time in internal steps."""
     L = LANES
     return (np.zeros((L, n_d, n_internal)), np.zeros((L, n_d, n_steps)), np.zeros(n_d),
             np.zeros(n_internal * L), np.zeros((n_d, n_steps * L)), np.zeros((L, n_internal)),
             np.zeros(n_internal * L), np.zeros(n_steps * L), np.zeros(n_steps * L),
             np.zeros(2 * L), np.zeros(_PATH_FIELDS * L),
-            np.zeros(_ring_capacity(n_internal) * L))
+            np.zeros(_ring_capacity(longest_path) * L))
 
 
 # Fields of the disturbance path buffer (each LANES wide): the path's coefficients as
