@@ -36,6 +36,7 @@ from robustff.engine.kernel import (
     D_TAU2,
     N_ACCUMULATORS,
     MetricParams,
+    accumulator_slot,
     disturbance_inputs,
     feedforward_constants,
     feedforward_setup,
@@ -63,7 +64,13 @@ _U0, _U1, _UQ, _Y0, _Y1, _ALIVE0, _ALIVE1 = 28, 29, 30, 31, 32, 33, 34
 _LAST0, _LAST1 = 35, 36
 # Probe: integral, derivative, previous CV, early and late peak, diverged (1.0 / 0.0).
 _PQ = 37
-# Accumulators of the two arms, in ACCUMULATOR_NAMES order.
+# Accumulators of the two arms, in ACCUMULATOR_NAMES order, and each one's slot among them
+# (a metric added to the list must be updated in _control_arm or _advance_arm too: the
+# equality test with the general kernel fails until it is).
+_IE, _IAE, _ISE, _ITAE, _PEAK, _OPPOSITE, _SETTLING, _TRAVEL, _AT_LIMIT, _OUTSIDE = (
+    accumulator_slot(name) for name in (
+        "ie", "iae", "ise", "itae", "peak_deviation", "opposite_excursion", "settling_time",
+        "valve_travel", "time_at_limit", "outside_band"))
 _A0 = 43
 _A1 = _A0 + N_ACCUMULATORS
 # The delayed inputs of the path being stepped (newer and older sample), copied from the ring.
@@ -139,8 +146,8 @@ def _control_arm(w: np.ndarray, ff: np.ndarray, with_ff: bool, s: int, a: int, y
         v = p.kc * (p.setpoint_weight * sp - y) + w[s * L + lane] + deriv + ffk
         u = min(max(v, p.u_low), p.u_high)
         integral = w[s * L + lane] + (p.integral_gain * e + p.tracking_gain * (u - v))
-        travel = (a + 7) * L + lane
-        at_limit = (a + 8) * L + lane
+        travel = (a + _TRAVEL) * L + lane
+        at_limit = (a + _AT_LIMIT) * L + lane
         moved = w[travel] + abs(u - w[(s + 3) * L + lane])
         limited = w[at_limit] + h if u != v else w[at_limit]
         w[s * L + lane] = integral
@@ -281,23 +288,23 @@ def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: i
         e = sp - w[yf * L + lane]
         ae = abs(e)
         last = w[lf * L + lane]
-        longest = w[(a + 6) * L + lane]
+        longest = w[(a + _SETTLING) * L + lane]
         if new_event:  # the previous event's settling is known
             if last >= 0.0:
                 longest = max(longest, last + h - mp.previous_segment)
             last = -1.0
         if ae > mp.band and t >= mp.t_start:
             last = t
-        outside = (a + 9) * L + lane
+        outside = (a + _OUTSIDE) * L + lane
         beyond = w[outside] + h if ae > mp.cv_band else w[outside]
         w[lf * L + lane] = last
-        w[a * L + lane] = w[a * L + lane] + e * h
-        w[(a + 1) * L + lane] = w[(a + 1) * L + lane] + ae * h
-        w[(a + 2) * L + lane] = w[(a + 2) * L + lane] + e * e * h
-        w[(a + 3) * L + lane] = w[(a + 3) * L + lane] + weight * ae * h
-        w[(a + 4) * L + lane] = max(w[(a + 4) * L + lane], ae)
-        w[(a + 5) * L + lane] = max(w[(a + 5) * L + lane], mp.direction * e)
-        w[(a + 6) * L + lane] = longest
+        w[(a + _IE) * L + lane] = w[(a + _IE) * L + lane] + e * h
+        w[(a + _IAE) * L + lane] = w[(a + _IAE) * L + lane] + ae * h
+        w[(a + _ISE) * L + lane] = w[(a + _ISE) * L + lane] + e * e * h
+        w[(a + _ITAE) * L + lane] = w[(a + _ITAE) * L + lane] + weight * ae * h
+        w[(a + _PEAK) * L + lane] = max(w[(a + _PEAK) * L + lane], ae)
+        w[(a + _OPPOSITE) * L + lane] = max(w[(a + _OPPOSITE) * L + lane], mp.direction * e)
+        w[(a + _SETTLING) * L + lane] = longest
         w[outside] = beyond
         u_new, u_old = w[_DELAYED * L + lane], w[(_DELAYED + 1) * L + lane]
         x1, x2 = w[x * L + lane], w[(x + 1) * L + lane]
@@ -370,9 +377,9 @@ def _write_out(w: np.ndarray, env: np.ndarray, lanes: np.ndarray, count: int, fe
             final = 0.0 if last < 0.0 else min(last + h, t_end) - last_segment
             for c in range(N_ACCUMULATORS):
                 value = w[(a + c) * L + lane]
-                if c == 6:
+                if c == _SETTLING:
                     value = max(value, final)
-                elif c == 5:
+                elif c == _OPPOSITE:
                     value = max(value, 0.0)
                 accumulators[i, arm, c] = value if alive else math.nan
             unstable[i, arm] = not alive
