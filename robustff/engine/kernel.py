@@ -37,6 +37,7 @@ __all__ = [
     "MetricParams", "PathCoefficients", "FeedforwardParams", "BinGrid", "ValveParams",
     "ValveState", "SecondaryParams", "loop_setup", "feedforward_setup", "noise_setup", "open_loop",
     "feedforward_constants", "feedforward_step", "disturbance_inputs", "path_coefficients",
+    "step_metric_params",
 ]
 
 # Records. The kernel keeps its state in small tuples so that the compiler holds them in
@@ -207,6 +208,15 @@ def _path_step(x: tuple, c: PathCoefficients, u_new: float,
     if c.second_order:
         second = c.phi21 * x[0] + c.phi22 * x[1] + c.g2_new * u_new + c.g2_old * u_old
     return first, second
+
+
+@njit(cache=True, nogil=True, inline="always")
+def step_metric_params(mp: MetricParams, q: int, direction_profile: np.ndarray,
+                       segment_profile: np.ndarray) -> MetricParams:
+    """The metric conventions at internal step ``q``: the sign of an opposite excursion and
+    the settling segments (this step's and the one before) from the profiles."""
+    return MetricParams(mp.h, mp.t_start, mp.band, direction_profile[q], segment_profile[q],
+                        segment_profile[q - 1] if q > 0 else segment_profile[0], mp.cv_band)
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -692,10 +702,7 @@ def _simulate_sample(
             q = k * substeps + sub
             t = q * hi
             weight = max(t - mp.t_start, 0.0)
-            mpk = MetricParams(hi, mp.t_start, mp.band, direction_profile[q],
-                               segment_profile[q],
-                               segment_profile[q - 1] if q > 0 else segment_profile[0],
-                               mp.cv_band)
+            mpk = step_metric_params(mp, q, direction_profile, segment_profile)
             yd = effect[q]
             sp = setpoint_profile[q]
             y0, y1 = _output(x0, cp) + yd, _output(x1, cp) + yd

@@ -35,13 +35,13 @@ from robustff.engine.kernel import (
     D_TAU1,
     D_TAU2,
     N_ACCUMULATORS,
-    MetricParams,
     accumulator_slot,
     disturbance_inputs,
     feedforward_constants,
     feedforward_setup,
     loop_setup,
     noise_setup,
+    step_metric_params,
 )
 
 __all__ = ["simulate_lanes", "LANES"]
@@ -228,15 +228,7 @@ def _probe(w: np.ndarray, ring: np.ndarray, k: int, p: tuple, second_order: bool
         w[_UQ * L + lane] = u
     _store_and_fetch(w, ring, _UQ, True, 2 * size, k, runs_q, size)
     for lane in range(L):
-        x1, x2 = w[_XQ * L + lane], w[(_XQ + 1) * L + lane]
-        u_new, u_old = w[_DELAYED * L + lane], w[(_DELAYED + 1) * L + lane]
-        first_state = (w[_CQ * L + lane] * x1 + w[(_CQ + 3) * L + lane] * u_new
-                       + w[(_CQ + 5) * L + lane] * u_old)
-        if second_order:
-            x2 = (w[(_CQ + 1) * L + lane] * x1 + w[(_CQ + 2) * L + lane] * x2
-                  + w[(_CQ + 4) * L + lane] * u_new + w[(_CQ + 6) * L + lane] * u_old)
-        w[_XQ * L + lane] = first_state
-        w[(_XQ + 1) * L + lane] = x2
+        _step_path(w, lane, _CQ, _XQ, second_order)
 
 
 @njit(cache=True, nogil=True)
@@ -306,15 +298,23 @@ def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: i
         w[(a + _OPPOSITE) * L + lane] = max(w[(a + _OPPOSITE) * L + lane], mp.direction * e)
         w[(a + _SETTLING) * L + lane] = longest
         w[outside] = beyond
-        u_new, u_old = w[_DELAYED * L + lane], w[(_DELAYED + 1) * L + lane]
-        x1, x2 = w[x * L + lane], w[(x + 1) * L + lane]
-        first_state = (w[_CP * L + lane] * x1 + w[(_CP + 3) * L + lane] * u_new
-                       + w[(_CP + 5) * L + lane] * u_old)
-        if second_order:
-            x2 = (w[(_CP + 1) * L + lane] * x1 + w[(_CP + 2) * L + lane] * x2
-                  + w[(_CP + 4) * L + lane] * u_new + w[(_CP + 6) * L + lane] * u_old)
-        w[x * L + lane] = first_state
-        w[(x + 1) * L + lane] = x2
+        _step_path(w, lane, _CP, x, second_order)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _step_path(w: np.ndarray, lane: int, c: int, x: int, second_order: bool) -> None:
+    # One exact step of a lane's process path (coefficients from field c, states at field x)
+    # on its delayed inputs (the _DELAYED fields): the general kernel's _path_step.
+    L = LANES
+    x1, x2 = w[x * L + lane], w[(x + 1) * L + lane]
+    u_new, u_old = w[_DELAYED * L + lane], w[(_DELAYED + 1) * L + lane]
+    first_state = (w[c * L + lane] * x1 + w[(c + 3) * L + lane] * u_new
+                   + w[(c + 5) * L + lane] * u_old)
+    if second_order:
+        x2 = (w[(c + 1) * L + lane] * x1 + w[(c + 2) * L + lane] * x2
+              + w[(c + 4) * L + lane] * u_new + w[(c + 6) * L + lane] * u_old)
+    w[x * L + lane] = first_state
+    w[(x + 1) * L + lane] = x2
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -480,10 +480,7 @@ def simulate_lanes(
                 q = k * substeps + sub
                 t = q * hi
                 weight = max(t - mp.t_start, 0.0)
-                mpk = MetricParams(hi, mp.t_start, mp.band, direction_profile[q],
-                                   segment_profile[q],
-                                   segment_profile[q - 1] if q > 0 else segment_profile[0],
-                                   mp.cv_band)
+                mpk = step_metric_params(mp, q, direction_profile, segment_profile)
                 sp = setpoint_profile[q]
                 _measure(w, effect_lanes, q, limit, second_order)
                 if sub == 0:
