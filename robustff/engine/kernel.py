@@ -37,7 +37,7 @@ __all__ = [
     "MetricParams", "PathCoefficients", "FeedforwardParams", "BinGrid", "ValveParams",
     "ValveState", "SecondaryParams", "loop_setup", "feedforward_setup", "noise_setup", "open_loop",
     "feedforward_constants", "feedforward_step", "disturbance_inputs", "path_coefficients",
-    "step_metric_params",
+    "step_metric_params", "ring_size",
 ]
 
 # Records. The kernel keeps its state in small tuples so that the compiler holds them in
@@ -177,7 +177,7 @@ D_GAIN, D_TAU1, D_TAU2, D_DELAY, D_SENSOR, D_NOISE = range(6)
 
 
 @njit(cache=True, nogil=True)
-def _ring_size(longest_delay: int) -> int:
+def ring_size(longest_delay: int) -> int:
     # Power of two >= delay + 2: reads of u[k - m - 1] never meet the slot written at step k, and
     # slots not yet written read as zero (the input before the window starts).
     size = 2
@@ -677,7 +677,7 @@ def _simulate_sample(
     # The probe's secondary loop is linear: no output limits.
     secq = SecondaryParams(sec.present, sec.kc, sec.integral_gain, 0.0, -math.inf, math.inf,
                            sec.every)
-    size = _ring_size(max(m_p, m_q, m_s))
+    size = ring_size(max(m_p, m_q, m_s))
     mask = size - 1
     ring[:_RING_ROWS * size] = 0.0
     vp = _valve_params(valve_kind, plant, i, hi, sec.u_low if sec.present else p.u_low,
@@ -898,7 +898,7 @@ def simulate_kernel(
         h_s / secondary[3] if secondary[0] > 0.0 else 0.0,
         secondary[4], secondary[5], max(substeps // scans, 1))
     noise = noise_setup(noise_events, h)
-    ring = np.zeros(_RING_ROWS * _ring_size(n_internal))
+    ring = np.zeros(_RING_ROWS * ring_size(n_internal))
     env_buf = np.full((2, envelope_counts.shape[1]), -1, dtype=np.int64)
     # Per-sample scratch: each disturbance's input, the summed effect, the measurements, the
     # summed feedforward (memory T S (J + 1) + T (J + 2), independent of N).

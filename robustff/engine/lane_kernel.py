@@ -41,6 +41,7 @@ from robustff.engine.kernel import (
     feedforward_setup,
     loop_setup,
     noise_setup,
+    ring_size,
     step_metric_params,
 )
 
@@ -438,7 +439,7 @@ def simulate_lanes(
     scratch = _open_loop_scratch(n_d, n_internal, n_steps, longest_path)
     effect_lanes, ff_lanes = scratch[6], scratch[7]
     w = np.zeros(_N_FIELDS * L)
-    ring = np.zeros(3 * _ring_capacity(longest_process) * L)
+    ring = np.zeros(3 * ring_size(longest_process) * L)
     n_points = envelope_counts.shape[1]
     env = np.full(2 * n_points * L, -1, dtype=np.int64)
     lanes = np.zeros(L, dtype=np.int64)
@@ -469,7 +470,7 @@ def simulate_lanes(
             m_p[lane] = min(split_delay(plant[i, 3], hi)[0], n_internal)
             m_q[lane] = min(split_delay(plant[i, 3], h)[0], n_steps)
             longest = max(longest, m_p[lane], m_q[lane])
-        size = _ring_capacity(longest)
+        size = ring_size(longest)
         _delay_runs(m_p, runs_p)
         _delay_runs(m_q, runs_q)
         ring[:3 * size * L] = 0.0
@@ -574,7 +575,7 @@ def _open_loop_scratch(n_d: int, n_internal: int, n_steps: int, longest_path: in
             np.zeros(n_internal * L), np.zeros((n_d, n_steps * L)), np.zeros((L, n_internal)),
             np.zeros(n_internal * L), np.zeros(n_steps * L), np.zeros(n_steps * L),
             np.zeros(2 * L), np.zeros(_PATH_FIELDS * L),
-            np.zeros(_ring_capacity(longest_path) * L))
+            np.zeros(ring_size(longest_path) * L))
 
 
 # Fields of the disturbance path buffer (each LANES wide): the path's coefficients as
@@ -620,7 +621,7 @@ def _disturbance_lanes(j: int, lanes: np.ndarray, count: int, kind: int,
         buffer[_P_X1 * L + lane] = 0.0
         buffer[_P_X2 * L + lane] = 0.0
         buffer[_P_SENSOR * L + lane] = 0.0
-    mask = _ring_capacity(longest) - 1
+    mask = ring_size(longest) - 1
     zero = inputs_lanes[0:0]
     for k in range(n_steps):
         reading = measured_lanes[k * L:(k + 1) * L]
@@ -747,13 +748,3 @@ def _transpose(rows: np.ndarray, lanes: np.ndarray) -> None:
             row = rows[lane]
             for t in range(start, stop):
                 lanes[t * L + lane] = row[t]
-
-
-@njit(cache=True, nogil=True)
-def _ring_capacity(longest_delay: int) -> int:
-    # Power of two >= delay + 2, as the general kernel's rings (reads never meet the slot
-    # written at the same step; slots not yet written read as zero).
-    size = 2
-    while size < longest_delay + 2:
-        size *= 2
-    return size
