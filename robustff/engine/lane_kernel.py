@@ -475,7 +475,6 @@ def simulate_lanes(
         _delay_runs(m_q, runs_q)
         ring[:3 * size * L] = 0.0
         second_order = key == 2
-        record = keep or n_points > 0
         for k in range(n_steps):
             for sub in range(substeps):
                 q = k * substeps + sub
@@ -487,7 +486,7 @@ def simulate_lanes(
                 if sub == 0:
                     _scan(w, ring, ff_lanes, k, sp, k == 0, p, h, second_order,
                           feedback_arm, size, runs_q, q2, q3)
-                    if record and (keep or envelope_index[k] >= 0):
+                    if keep or envelope_index[k] >= 0:
                         _record_scan(w, k, lanes, count, trajectory_slot, trajectories, env,
                                      envelope_index[k], grid, keep)
                 _advance(w, ring, q, sp, t, weight, mpk, second_order, feedback_arm, size,
