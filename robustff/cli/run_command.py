@@ -105,6 +105,13 @@ def parse_percentiles(text: str) -> tuple[float, ...]:
     return values
 
 
+#: Seconds without a finished chunk after which ``run`` says what it is doing.
+WAITING_SECONDS = 3.0
+#: What it says then (the first run on a machine compiles the simulator before any chunk).
+WAITING_NOTICE = ("robustff: simulating; no chunk has finished yet (the first run on a machine "
+                  "also compiles the simulator, which can take up to a minute)")
+
+
 class ProgressPrinter:
     """Progress on stderr: a bar on a terminal, plain lines (every 10 %) otherwise."""
 
@@ -113,8 +120,33 @@ class ProgressPrinter:
         self.tty = self.stream.isatty()
         self.started = time.perf_counter()
         self.last_tenth = -1
+        self._waiting: threading.Timer | None = None
+        self._lock = threading.Lock()
+        self._reported = False
+
+    def notice_if_slow(self, seconds: float | None = None) -> None:
+        """Write :data:`WAITING_NOTICE` once if no progress is reported within ``seconds``
+        (default :data:`WAITING_SECONDS`)."""
+        self._waiting = threading.Timer(WAITING_SECONDS if seconds is None else seconds,
+                                        self._notice)
+        self._waiting.daemon = True
+        self._waiting.start()
+
+    def stop_notice(self) -> None:
+        """No notice any more (the run has reported progress or ended)."""
+        if self._waiting is not None:
+            self._waiting.cancel()
+
+    def _notice(self) -> None:
+        with self._lock:
+            if not self._reported:
+                self.stream.write(WAITING_NOTICE + "\n")
+                self.stream.flush()
 
     def __call__(self, done: int, total: int) -> None:
+        with self._lock:
+            self._reported = True
+        self.stop_notice()
         fraction = done / total if total else 1.0
         elapsed = time.perf_counter() - self.started
         if self.tty:
@@ -264,6 +296,7 @@ def execute(args: argparse.Namespace) -> int:
                 if done >= total:
                     guard.keep()  # every sample simulated: an interrupt now would only lose them
 
+            printer.notice_if_slow()
             try:
                 result = run_study(
                     case,
@@ -277,6 +310,8 @@ def execute(args: argparse.Namespace) -> int:
                 )
             except KeyboardInterrupt:  # before the first chunk (design, nominal run, compiling)
                 result = None
+            finally:
+                printer.stop_notice()
             guard.keep()
             if result is None or result.samples == 0:
                 print(NOTHING_KEPT, file=sys.stderr)
