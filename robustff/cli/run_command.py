@@ -112,6 +112,36 @@ WAITING_NOTICE = ("robustff: simulating; no chunk has finished yet (the first ru
                   "also compiles the simulator, which can take up to a minute)")
 
 
+class WaitingNotice:
+    """Writes :data:`WAITING_NOTICE` once on stderr if :meth:`stop` is not called within
+    ``seconds`` of :meth:`start` (default :data:`WAITING_SECONDS`)."""
+
+    def __init__(self, stream=None, seconds: float | None = None) -> None:
+        self.stream = stream or sys.stderr
+        self.seconds = WAITING_SECONDS if seconds is None else seconds
+        self._lock = threading.Lock()
+        self._stopped = False
+        self._timer: threading.Timer | None = None
+
+    def start(self) -> None:
+        self._timer = threading.Timer(self.seconds, self._write)
+        self._timer.daemon = True
+        self._timer.start()
+
+    def stop(self) -> None:
+        """No notice any more (progress was reported, or the run ended)."""
+        with self._lock:
+            self._stopped = True
+        if self._timer is not None:
+            self._timer.cancel()
+
+    def _write(self) -> None:
+        with self._lock:
+            if not self._stopped:
+                self.stream.write(WAITING_NOTICE + "\n")
+                self.stream.flush()
+
+
 class ProgressPrinter:
     """Progress on stderr: a bar on a terminal, plain lines (every 10 %) otherwise."""
 
@@ -120,33 +150,8 @@ class ProgressPrinter:
         self.tty = self.stream.isatty()
         self.started = time.perf_counter()
         self.last_tenth = -1
-        self._waiting: threading.Timer | None = None
-        self._lock = threading.Lock()
-        self._reported = False
-
-    def notice_if_slow(self, seconds: float | None = None) -> None:
-        """Write :data:`WAITING_NOTICE` once if no progress is reported within ``seconds``
-        (default :data:`WAITING_SECONDS`)."""
-        self._waiting = threading.Timer(WAITING_SECONDS if seconds is None else seconds,
-                                        self._notice)
-        self._waiting.daemon = True
-        self._waiting.start()
-
-    def stop_notice(self) -> None:
-        """No notice any more (the run has reported progress or ended)."""
-        if self._waiting is not None:
-            self._waiting.cancel()
-
-    def _notice(self) -> None:
-        with self._lock:
-            if not self._reported:
-                self.stream.write(WAITING_NOTICE + "\n")
-                self.stream.flush()
 
     def __call__(self, done: int, total: int) -> None:
-        with self._lock:
-            self._reported = True
-        self.stop_notice()
         fraction = done / total if total else 1.0
         elapsed = time.perf_counter() - self.started
         if self.tty:
@@ -290,13 +295,15 @@ def execute(args: argparse.Namespace) -> int:
     try:
         with InterruptGuard() as guard:
             printer = ProgressPrinter()
+            waiting = WaitingNotice()
 
             def progress(done: int, total: int) -> None:
+                waiting.stop()
                 printer(done, total)
                 if done >= total:
                     guard.keep()  # every sample simulated: an interrupt now would only lose them
 
-            printer.notice_if_slow()
+            waiting.start()
             try:
                 result = run_study(
                     case,
@@ -311,7 +318,7 @@ def execute(args: argparse.Namespace) -> int:
             except KeyboardInterrupt:  # before the first chunk (design, nominal run, compiling)
                 result = None
             finally:
-                printer.stop_notice()
+                waiting.stop()
             guard.keep()
             if result is None or result.samples == 0:
                 print(NOTHING_KEPT, file=sys.stderr)

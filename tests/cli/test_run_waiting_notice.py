@@ -12,22 +12,23 @@ import pytest
 
 import robustff.study as study_package
 from robustff.cli import main, run_command
-from robustff.cli.run_command import WAITING_NOTICE, ProgressPrinter
+from robustff.cli.run_command import WAITING_NOTICE, ProgressPrinter, WaitingNotice
 
 DEMO = Path(__file__).resolve().parents[2] / "cases" / "wash-water-heater.toml"
 
 
 def test_the_notice_comes_once_without_progress_and_not_after_it() -> None:
     quiet, waiting = io.StringIO(), io.StringIO()
-    prompt = ProgressPrinter(quiet)
-    prompt.notice_if_slow(0.05)
-    prompt(1, 10)  # progress before the deadline: no notice
-    slow = ProgressPrinter(waiting)
-    slow.notice_if_slow(0.05)
+    prompt = WaitingNotice(quiet, 0.05)
+    prompt.start()
+    prompt.stop()  # progress before the deadline: no notice
+    slow = WaitingNotice(waiting, 0.05)
+    slow.start()
     time.sleep(0.3)
-    slow(1, 10)
-    prompt.stop_notice()
-    assert WAITING_NOTICE not in quiet.getvalue()
+    slow.stop()
+    ProgressPrinter(waiting)(1, 10)
+    time.sleep(0.1)
+    assert quiet.getvalue() == ""
     assert waiting.getvalue().count(WAITING_NOTICE) == 1
     assert waiting.getvalue().index(WAITING_NOTICE) < waiting.getvalue().index("progress:")
 

@@ -1,0 +1,285 @@
+"""The open-loop signals of the lane kernel, across lanes of samples.
+
+For a block of :data:`LANES` samples: the disturbances' summed effect on the CV at every
+internal step and the summed feedforward at every scan, laid out ``t * LANES + lane``, each
+sample's the same numbers as the general kernel's ``open_loop`` (see
+:mod:`robustff.engine.lane_kernel`, which runs the closed loop on them).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+from robustff.engine.discretise import block_coefficients, decay, split_delay
+from robustff.engine.kernel import (
+    D_DELAY,
+    D_GAIN,
+    D_NOISE,
+    D_SENSOR,
+    D_TAU1,
+    D_TAU2,
+    disturbance_inputs,
+    feedforward_constants,
+    ring_size,
+)
+
+__all__ = ["LANES", "open_loop_lanes", "open_loop_scratch", "transpose"]
+
+#: Samples advanced together. 32 lets the vectoriser pay for the few alias checks left between
+#: the buffers (16 was judged not worth vectorising).
+LANES = 32
+
+
+@njit(cache=True, nogil=True)
+def open_loop_lanes(lanes: np.ndarray, count: int, seeds: np.ndarray, kinds: np.ndarray,
+                     disturbances: np.ndarray, disturbance_profile: np.ndarray,
+                     noise: np.ndarray, hi: float, substeps: int, ffp: np.ndarray,
+                     ff_delays: np.ndarray, noise_record: np.ndarray, noise_replay: np.ndarray,
+                     scratch: tuple) -> None:
+    """The open-loop signals of a block across its lanes: the disturbances' summed effect on
+    the CV at every internal step (``effect_lanes``) and the summed feedforward at every scan
+    (``ff_lanes``), simulated, or replayed from ``noise_replay`` (and kept in
+    ``noise_record``) when those have columns; the general kernel's ``open_loop``, the same
+    operations per sample. ``scratch`` is :func:`open_loop_scratch`'s.
+
+    Each lane's inputs and noise come from its own seed (``disturbance_inputs``); without any
+    noise every lane sees the case's profile and nothing is drawn. The paths, transmitters and
+    feedforwards then advance with time outside and the lanes inside.
+    """
+    (inputs, measured, held, inputs_lanes, measured_lanes, effect_rows, effect_lanes, ff_lanes,
+     filtered, ff_state, path_buffer, path_ring) = scratch
+    L = LANES
+    n_d, n_internal, n_steps = inputs.shape[1], effect_rows.shape[1], measured.shape[2]
+    replay = noise_replay.shape[1] > 0
+    noisy = noise.shape[0] > 0
+    for lane in range(count):
+        for j in range(n_d):
+            noisy = noisy or disturbances[lanes[lane], j, D_NOISE] > 0.0
+    for lane in range(L):
+        source = lanes[lane] if lane < count else lanes[0]  # a spare lane repeats the first
+        if replay:
+            effect_rows[lane] = noise_replay[source, :n_internal]
+            for j in range(n_d):
+                measured[lane, j] = noise_replay[source, n_internal + j * n_steps:
+                                                 n_internal + (j + 1) * n_steps]
+        elif noisy:
+            disturbance_inputs(source, seeds[source], disturbances, disturbance_profile, noise,
+                               substeps, inputs[lane], measured[lane], held)
+    for j in range(n_d):
+        if replay or noisy:  # each lane's own measurement noise (or replayed measurement)
+            transpose(measured[:, j, :], measured_lanes[j])
+        else:
+            measured_lanes[j, :] = 0.0
+    if replay:
+        transpose(effect_rows, effect_lanes)
+    else:
+        effect_lanes[:] = 0.0
+        for j in range(n_d):
+            if noisy:
+                transpose(inputs[:, j, :], inputs_lanes)
+            else:
+                _broadcast(disturbance_profile[j], inputs_lanes)
+            _disturbance_lanes(j, lanes, count, kinds[j], disturbances, hi, substeps,
+                               inputs_lanes, measured_lanes[j], effect_lanes, path_buffer,
+                               path_ring)
+    if noise_record.shape[1] > 0:
+        _untranspose(effect_lanes, effect_rows)
+        for j in range(n_d):
+            _untranspose(measured_lanes[j], measured[:, j, :])
+        for lane in range(count):
+            i = lanes[lane]
+            noise_record[i, :n_internal] = effect_rows[lane]
+            for j in range(n_d):
+                noise_record[i, n_internal + j * n_steps:
+                             n_internal + (j + 1) * n_steps] = measured[lane, j]
+    ff_lanes[:] = 0.0
+    for j in range(n_d):
+        if ffp[j, 6] != 0.0:
+            _feedforward_lanes(feedforward_constants(ffp, j), ff_delays[j], measured_lanes[j],
+                               filtered, ff_state, ff_lanes)
+
+
+@njit(cache=True, nogil=True)
+def open_loop_scratch(n_d: int, n_internal: int, n_steps: int, longest_path: int) -> tuple:
+    """The arrays :func:`_open_loop_lanes` works in (memory about (3 J + 5) T S LANES numbers
+    for J disturbances, independent of the number of samples); ``longest_path`` is the longest
+    disturbance dead time in internal steps."""
+    L = LANES
+    return (np.zeros((L, n_d, n_internal)), np.zeros((L, n_d, n_steps)), np.zeros(n_d),
+            np.zeros(n_internal * L), np.zeros((n_d, n_steps * L)), np.zeros((L, n_internal)),
+            np.zeros(n_internal * L), np.zeros(n_steps * L), np.zeros(n_steps * L),
+            np.zeros(2 * L), np.zeros(_PATH_FIELDS * L),
+            np.zeros(ring_size(longest_path) * L))
+
+
+# Fields of the disturbance path buffer (each LANES wide): the path's coefficients as
+# block_coefficients orders them (phi11, phi21, phi22, g1_new, g2_new, g1_old, g2_old), 1.0
+# for a second-order path, the transmitter's pole and gain, 1.0 for a transmitter without lag,
+# then the states x1, x2 and the transmitter's.
+_PC, _P_SECOND, _P_POLE, _P_GAIN, _P_DIRECT, _P_X1, _P_X2, _P_SENSOR = 0, 7, 8, 9, 10, 11, 12, 13
+_PATH_FIELDS = 14
+
+
+@njit(cache=True, nogil=True)
+def _disturbance_lanes(j: int, lanes: np.ndarray, count: int, kind: int,
+                       disturbances: np.ndarray, hi: float, substeps: int,
+                       inputs_lanes: np.ndarray, measured_lanes: np.ndarray,
+                       effect_lanes: np.ndarray, buffer: np.ndarray, ring: np.ndarray) -> None:
+    """Disturbance ``j`` of every lane: its effect added to ``effect_lanes`` at every internal
+    step, its transmitter's reading added to ``measured_lanes`` at every scan (the general
+    kernel's ``_disturbances_and_feedforward``, the same values per sample).
+
+    The path is stepped on its undelayed input, across contiguous lanes (vectorised), and its
+    output kept in a ring; each lane then adds the output of its own dead time earlier. With
+    the input zero before the window this is the delayed path's output exactly: the path's
+    state stays exactly zero until the input arrives, then repeats the undelayed sequence.
+    """
+    L = LANES
+    n_steps, n_internal = measured_lanes.shape[0] // L, inputs_lanes.shape[0] // L
+    delay = np.zeros(L, dtype=np.int64)
+    longest = 0
+    for lane in range(L):
+        i = lanes[lane] if lane < count else lanes[0]
+        m_d, f_d = split_delay(disturbances[i, j, D_DELAY], hi)
+        delay[lane] = min(m_d, n_internal)
+        longest = max(longest, delay[lane])
+        c = block_coefficients(kind, disturbances[i, j, D_GAIN], disturbances[i, j, D_TAU1],
+                               disturbances[i, j, D_TAU2], hi, f_d)
+        for f in range(7):
+            buffer[(_PC + f) * L + lane] = c[f]
+        buffer[_P_SECOND * L + lane] = 1.0 if c[7] == 2.0 else 0.0
+        pole = decay(hi, disturbances[i, j, D_SENSOR])
+        buffer[_P_POLE * L + lane] = pole
+        buffer[_P_GAIN * L + lane] = 1.0 - pole
+        buffer[_P_DIRECT * L + lane] = 1.0 if disturbances[i, j, D_SENSOR] <= 0.0 else 0.0
+        buffer[_P_X1 * L + lane] = 0.0
+        buffer[_P_X2 * L + lane] = 0.0
+        buffer[_P_SENSOR * L + lane] = 0.0
+    mask = ring_size(longest) - 1
+    zero = inputs_lanes[0:0]
+    for k in range(n_steps):
+        reading = measured_lanes[k * L:(k + 1) * L]
+        for sub in range(substeps):
+            q = k * substeps + sub
+            now = inputs_lanes[q * L:(q + 1) * L]
+            before = inputs_lanes[(q - 1) * L:q * L] if q > 0 else zero
+            out = ring[(q & mask) * L:((q & mask) + 1) * L]
+            _path_lanes(buffer, now, before, q > 0, out, reading, sub == 0)
+            for lane in range(L):
+                m_d = delay[lane]
+                effect_lanes[q * L + lane] += (ring[((q - m_d) & mask) * L + lane]
+                                               if q >= m_d else 0.0)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _path_lanes(b: np.ndarray, now: np.ndarray, before: np.ndarray, has_before: bool,
+                out: np.ndarray, reading: np.ndarray, scan: bool) -> None:
+    # One internal step of the undelayed path and its transmitter across the lanes: the output
+    # before the step into out, the transmitter's reading (at a scan) added to reading.
+    L = LANES
+    for lane in range(L):
+        x1, x2 = b[_P_X1 * L + lane], b[_P_X2 * L + lane]
+        second_order = b[_P_SECOND * L + lane] != 0.0
+        out[lane] = x2 if second_order else x1
+        d = now[lane]
+        if scan:
+            sensor = b[_P_SENSOR * L + lane]
+            reading[lane] += d if b[_P_DIRECT * L + lane] != 0.0 else sensor
+        old = before[lane] if has_before else 0.0
+        first = (b[_PC * L + lane] * x1 + b[(_PC + 3) * L + lane] * d
+                 + b[(_PC + 5) * L + lane] * old)
+        second = (b[(_PC + 1) * L + lane] * x1 + b[(_PC + 2) * L + lane] * x2
+                  + b[(_PC + 4) * L + lane] * d + b[(_PC + 6) * L + lane] * old)
+        b[_P_X1 * L + lane] = first
+        b[_P_X2 * L + lane] = second if second_order else x2
+        b[_P_SENSOR * L + lane] = (b[_P_POLE * L + lane] * b[_P_SENSOR * L + lane]
+                                   + b[_P_GAIN * L + lane] * d)
+
+
+@njit(cache=True, nogil=True)
+def _broadcast(row: np.ndarray, lanes: np.ndarray) -> None:
+    """Every lane the same signal: ``lanes[t * LANES + l] = row[t]``."""
+    L = LANES
+    for t in range(row.shape[0]):
+        value = row[t]
+        for lane in range(L):
+            lanes[t * L + lane] = value
+
+
+@njit(cache=True, nogil=True)
+def _feedforward_lanes(c: tuple, m_ff: int, measured_lanes: np.ndarray, filtered: np.ndarray,
+                       state: np.ndarray, ff_lanes: np.ndarray) -> None:
+    """One disturbance's feedforward of every lane added to ``ff_lanes`` at every scan (the
+    general kernel's ``feedforward_step``, the same operations per sample): the input filter
+    over the whole window first, then the delay and the lead-lag. Every lane has the same
+    delay (a design setting), so both loops run across contiguous lanes and vectorise;
+    ``state`` (2 LANES) is scratch."""
+    L = LANES
+    pole, zero, scale, weight_new, weight_old, input_pole = c
+    n_steps = ff_lanes.shape[0] // L
+    for k in range(n_steps):
+        now, row = measured_lanes[k * L:(k + 1) * L], filtered[k * L:(k + 1) * L]
+        before = filtered[(k - 1) * L:k * L] if k > 0 else state[:L]
+        if k == 0:
+            state[:L] = 0.0
+        for lane in range(L):
+            row[lane] = input_pole * before[lane] + (1.0 - input_pole) * now[lane]
+    state[:] = 0.0  # the lead-lag's output and input at the previous scan
+    for k in range(n_steps):
+        out = ff_lanes[k * L:(k + 1) * L]
+        if k >= m_ff + 1:
+            newer = filtered[(k - m_ff) * L:(k - m_ff + 1) * L]
+            older = filtered[(k - m_ff - 1) * L:(k - m_ff) * L]
+            for lane in range(L):
+                ff_in = weight_new * newer[lane] + weight_old * older[lane]
+                _lead_lag_lane(state, out, lane, ff_in, pole, zero, scale)
+        elif k == m_ff:
+            newer = filtered[(k - m_ff) * L:(k - m_ff + 1) * L]
+            for lane in range(L):
+                ff_in = weight_new * newer[lane] + weight_old * 0.0
+                _lead_lag_lane(state, out, lane, ff_in, pole, zero, scale)
+        else:
+            for lane in range(L):
+                ff_in = weight_new * 0.0 + weight_old * 0.0
+                _lead_lag_lane(state, out, lane, ff_in, pole, zero, scale)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _lead_lag_lane(state: np.ndarray, out: np.ndarray, lane: int, ff_in: float, pole: float,
+                   zero: float, scale: float) -> None:
+    L = LANES
+    ff_out = pole * state[lane] + scale * (ff_in - zero * state[L + lane])
+    state[lane] = ff_out
+    state[L + lane] = ff_in
+    out[lane] += ff_out
+
+
+@njit(cache=True, nogil=True)
+def _untranspose(lanes: np.ndarray, rows: np.ndarray) -> None:
+    """The inverse of :func:`transpose`: ``rows[l, t] = lanes[t * LANES + l]``."""
+    L = LANES
+    n = rows.shape[1]
+    for start in range(0, n, 64):
+        stop = min(start + 64, n)
+        for lane in range(L):
+            row = rows[lane]
+            for t in range(start, stop):
+                row[t] = lanes[t * L + lane]
+
+
+@njit(cache=True, nogil=True)
+def transpose(rows: np.ndarray, lanes: np.ndarray) -> None:
+    """Lay ``rows`` (LANES, T), one sample per row, across the lanes: ``lanes[t * LANES + l]``.
+
+    In tiles of 64 time steps, so the strided writes stay within the first-level cache (a plain
+    loop over each sample's row misses on every write).
+    """
+    L = LANES
+    n = rows.shape[1]
+    for start in range(0, n, 64):
+        stop = min(start + 64, n)
+        for lane in range(L):
+            row = rows[lane]
+            for t in range(start, stop):
+                lanes[t * L + lane] = row[t]
