@@ -452,8 +452,8 @@ def simulate_lanes(
             keep = keep or (lane < count and trajectory_slot[i] >= 0)
             _load_lane(w, lane, kinds[0], plant[i], h, hi, substeps)
         open_loop_lanes(lanes, count, seeds, disturbance_kinds, disturbances,
-                         disturbance_profile, noise, hi, substeps, ffp, ff_delays, noise_record,
-                         noise_replay, scratch)
+                        disturbance_profile, noise, hi, substeps, ffp, ff_delays, noise_record,
+                        noise_replay, scratch)
         longest = 0
         for lane in range(L):
             i = lanes[lane] if lane < count else lanes[0]

@@ -24,7 +24,7 @@ from robustff.engine.kernel import (
     ring_size,
 )
 
-__all__ = ["LANES", "open_loop_lanes", "open_loop_scratch", "transpose"]
+__all__ = ["LANES", "open_loop_lanes", "open_loop_scratch"]
 
 #: Samples advanced together. 32 lets the vectoriser pay for the few alias checks left between
 #: the buffers (16 was judged not worth vectorising).
@@ -33,10 +33,10 @@ LANES = 32
 
 @njit(cache=True, nogil=True)
 def open_loop_lanes(lanes: np.ndarray, count: int, seeds: np.ndarray, kinds: np.ndarray,
-                     disturbances: np.ndarray, disturbance_profile: np.ndarray,
-                     noise: np.ndarray, hi: float, substeps: int, ffp: np.ndarray,
-                     ff_delays: np.ndarray, noise_record: np.ndarray, noise_replay: np.ndarray,
-                     scratch: tuple) -> None:
+                    disturbances: np.ndarray, disturbance_profile: np.ndarray,
+                    noise: np.ndarray, hi: float, substeps: int, ffp: np.ndarray,
+                    ff_delays: np.ndarray, noise_record: np.ndarray, noise_replay: np.ndarray,
+                    scratch: tuple) -> None:
     """The open-loop signals of a block across its lanes: the disturbances' summed effect on
     the CV at every internal step (``effect_lanes``) and the summed feedforward at every scan
     (``ff_lanes``), simulated, or replayed from ``noise_replay`` (and kept in
@@ -68,16 +68,16 @@ def open_loop_lanes(lanes: np.ndarray, count: int, seeds: np.ndarray, kinds: np.
                                substeps, inputs[lane], measured[lane], held)
     for j in range(n_d):
         if replay or noisy:  # each lane's own measurement noise (or replayed measurement)
-            transpose(measured[:, j, :], measured_lanes[j])
+            _transpose(measured[:, j, :], measured_lanes[j])
         else:
             measured_lanes[j, :] = 0.0
     if replay:
-        transpose(effect_rows, effect_lanes)
+        _transpose(effect_rows, effect_lanes)
     else:
         effect_lanes[:] = 0.0
         for j in range(n_d):
             if noisy:
-                transpose(inputs[:, j, :], inputs_lanes)
+                _transpose(inputs[:, j, :], inputs_lanes)
             else:
                 _broadcast(disturbance_profile[j], inputs_lanes)
             _disturbance_lanes(j, lanes, count, kinds[j], disturbances, hi, substeps,
@@ -257,7 +257,7 @@ def _lead_lag_lane(state: np.ndarray, out: np.ndarray, lane: int, ff_in: float, 
 
 @njit(cache=True, nogil=True)
 def _untranspose(lanes: np.ndarray, rows: np.ndarray) -> None:
-    """The inverse of :func:`transpose`: ``rows[l, t] = lanes[t * LANES + l]``."""
+    """The inverse of :func:`_transpose`: ``rows[l, t] = lanes[t * LANES + l]``."""
     L = LANES
     n = rows.shape[1]
     for start in range(0, n, 64):
@@ -269,7 +269,7 @@ def _untranspose(lanes: np.ndarray, rows: np.ndarray) -> None:
 
 
 @njit(cache=True, nogil=True)
-def transpose(rows: np.ndarray, lanes: np.ndarray) -> None:
+def _transpose(rows: np.ndarray, lanes: np.ndarray) -> None:
     """Lay ``rows`` (LANES, T), one sample per row, across the lanes: ``lanes[t * LANES + l]``.
 
     In tiles of 64 time steps, so the strided writes stay within the first-level cache (a plain
