@@ -19,6 +19,7 @@ from robustff.engine.balance_scenario import balance_scenario
 from robustff.engine.balance_simulation import run_balance_kernel
 from robustff.engine.kernel import ACCUMULATOR_NAMES, N_ACCUMULATORS, simulate_kernel
 from robustff.engine.lane_kernel import simulate_lanes
+from robustff.engine.lane_open_loop import SCRATCH_LIMIT, scratch_bytes
 from robustff.engine.metrics import metrics_from_accumulators
 from robustff.engine.scenario import (
     Scenario,
@@ -259,8 +260,10 @@ def simulate(
     loop_unstable = np.zeros(n, dtype=np.bool_)
     secondary = _secondary_vector(design, scenario.secondary_scans)
     # The lane layout covers loops without a valve element or a secondary loop (same numbers,
-    # several times faster); the general kernel runs the rest.
-    kernel = simulate_kernel if batch.valve is not None or secondary[0] > 0.0 else simulate_lanes
+    # several times faster) whose window fits its scratch; the general kernel runs the rest.
+    lanes_fit = (batch.valve is None and secondary[0] == 0.0
+                 and scratch_bytes(n_paths, n_steps * scenario.substeps) <= SCRATCH_LIMIT)
+    kernel = simulate_lanes if lanes_fit else simulate_kernel
     kernel(
         np.array([model_kind(batch.process_kind).code,
                   model_kind(batch.secondary_kind or "fopdt").code]),

@@ -24,11 +24,20 @@ from robustff.engine.kernel import (
     ring_size,
 )
 
-__all__ = ["LANES", "open_loop_lanes", "open_loop_scratch"]
+__all__ = ["LANES", "SCRATCH_LIMIT", "scratch_bytes", "open_loop_lanes", "open_loop_scratch"]
 
 #: Samples advanced together. 32 lets the vectoriser pay for the few alias checks left between
 #: the buffers (16 was judged not worth vectorising).
 LANES = 32
+#: Largest scratch (bytes) of one call of the lane layout; a longer window (or more
+#: disturbances) runs in the general kernel, whose scratch is one sample's signals.
+SCRATCH_LIMIT = 128 * 2**20
+
+
+def scratch_bytes(n_disturbances: int, n_internal: int) -> int:
+    """Bytes of :func:`open_loop_scratch` (at most) for a window of ``n_internal`` internal
+    steps and ``n_disturbances`` disturbances: (3 J + 5) T S LANES numbers."""
+    return 8 * LANES * (3 * n_disturbances + 5) * n_internal
 
 
 @njit(cache=True, nogil=True)

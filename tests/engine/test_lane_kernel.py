@@ -21,6 +21,7 @@ from robustff.case.sampling import plant_batch, sample
 from robustff.design.tuning import design_loop
 from robustff.engine import EnvelopeGrid, SimulationResult, build_scenario, simulate
 from robustff.engine.lane_kernel import LANES
+from robustff.engine.lane_open_loop import SCRATCH_LIMIT, scratch_bytes
 
 _HEAD = """\
 time_unit = "min"
@@ -220,3 +221,30 @@ def test_a_sample_does_not_depend_on_its_block(tmp_path: Path) -> None:
     for i in (0, 3, batch.size - 1):
         alone = simulate(batch.subset(np.array([i])), design, scenario, seeds=seeds[i:i + 1])
         np.testing.assert_array_equal(alone.accumulators[0], whole.accumulators[i])
+
+
+def test_a_window_too_long_for_the_lanes_runs_in_the_general_kernel(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # The lane layout's scratch grows with the window (LANES samples' signals at once); past
+    # its limit the general kernel, with one sample's signals, runs the same loop.
+    _, design, scenario, batch, _ = _setup(tmp_path, IPDT_RUNAWAY)
+    calls: list[str] = []
+    real_general, real_lanes = engine.simulate_kernel, engine.simulate_lanes
+
+    def general(*args: object) -> None:
+        calls.append("general")
+        real_general(*args)
+
+    def lanes(*args: object) -> None:
+        calls.append("lanes")
+        real_lanes(*args)
+
+    monkeypatch.setattr(engine, "simulate_kernel", general)
+    monkeypatch.setattr(engine, "simulate_lanes", lanes)
+    fitting = simulate(batch, design, scenario)
+    monkeypatch.setattr(engine, "SCRATCH_LIMIT", scratch_bytes(1, scenario.n_steps) - 1)
+    too_long = simulate(batch, design, scenario)
+    assert calls == ["lanes", "general"]
+    _assert_same(fitting, too_long)
+    # 200,000 internal steps (the most a case may have) with one disturbance do not fit.
+    assert scratch_bytes(1, 200_000) > SCRATCH_LIMIT >= scratch_bytes(3, 7_200)
