@@ -420,9 +420,13 @@ def simulate_lanes(
     order = by_delay[np.argsort(keys[by_delay], kind="mergesort")]
     # Rings as long as the longest delay needs, not the window: memory the pages of which are
     # touched anyway (a window-long ring costs page faults on every call).
+    # Each sample's dead time in whole internal steps and in whole scans (the probe), once.
+    delay_p, delay_q = np.zeros(n, dtype=np.int64), np.zeros(n, dtype=np.int64)
     longest_process, longest_path = 0, 0
     for i in range(n):
-        longest_process = max(longest_process, min(split_delay(plant[i, 3], hi)[0], n_internal))
+        delay_p[i] = min(split_delay(plant[i, 3], hi)[0], n_internal)
+        delay_q[i] = min(split_delay(plant[i, 3], h)[0], n_steps)
+        longest_process = max(longest_process, delay_p[i])
         for j in range(n_d):
             longest_path = max(longest_path,
                                min(split_delay(disturbances[i, j, D_DELAY], hi)[0], n_internal))
@@ -433,8 +437,8 @@ def simulate_lanes(
     n_points = envelope_counts.shape[1]
     env = np.full(2 * n_points * L, -1, dtype=np.int64)
     lanes = np.zeros(L, dtype=np.int64)
-    m_p = np.zeros(L, dtype=np.int64)  # each lane's dead time in whole internal steps
-    m_q = np.zeros(L, dtype=np.int64)  # and in whole scans (the probe)
+    m_p = np.zeros(L, dtype=np.int64)  # the block's lanes' delay_p and delay_q
+    m_q = np.zeros(L, dtype=np.int64)
     runs_p = np.zeros((L + 1, 2), dtype=np.int64)  # their runs (see _delay_runs)
     runs_q = np.zeros((L + 1, 2), dtype=np.int64)
     last_segment = segment_profile[n_internal - 1]
@@ -457,8 +461,7 @@ def simulate_lanes(
         longest = 0
         for lane in range(L):
             i = lanes[lane] if lane < count else lanes[0]
-            m_p[lane] = min(split_delay(plant[i, 3], hi)[0], n_internal)
-            m_q[lane] = min(split_delay(plant[i, 3], h)[0], n_steps)
+            m_p[lane], m_q[lane] = delay_p[i], delay_q[i]
             longest = max(longest, m_p[lane], m_q[lane])
         size = ring_size(longest)
         _delay_runs(m_p, runs_p)

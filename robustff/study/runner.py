@@ -361,11 +361,7 @@ def run_study(
             counts += result.envelope_counts
             collected.add(chunk, result, alternatives)
             if on_rows is not None:
-                on_rows(SampleRows(
-                    chunk.start, names, values[chunk.start:chunk.stop], result.metrics,
-                    result.unstable, [(alternative.name, metrics, unstable) for alternative,
-                                      (metrics, unstable) in zip(design.alternatives,
-                                                                 alternatives, strict=True)]))
+                on_rows(_chunk_rows(chunk, names, values, design, result, alternatives))
             if progress is not None:
                 progress(chunk.stop, n)
             if cancel.is_set():
@@ -440,6 +436,15 @@ class _Collected:
                           _trimmed(unstable, self.filled), alternative.compensators)
                 for alternative, (metrics, unstable) in zip(self.design.alternatives,
                                                             self._arms, strict=True)]
+
+
+def _chunk_rows(chunk: _Chunk, names: list[str], values: np.ndarray, design: LoopDesign,
+                result: SimulationResult, alternatives: list) -> SampleRows:
+    """One finished chunk's results as :class:`SampleRows` (its other designs by name)."""
+    arms = [(alternative.name, metrics, unstable) for alternative, (metrics, unstable)
+            in zip(design.alternatives, alternatives, strict=True)]
+    return SampleRows(chunk.start, names, values[chunk.start:chunk.stop], result.metrics,
+                      result.unstable, arms)
 
 
 def _trimmed(values: np.ndarray, filled: int) -> np.ndarray:
