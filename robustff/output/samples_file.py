@@ -23,6 +23,7 @@ import numpy as np
 from robustff.atomic import open_atomic
 from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
+from robustff.output.csv_numbers import format_csv_rows
 from robustff.study import SampleRows, StudyResult
 
 __all__ = [
@@ -124,7 +125,7 @@ def _write_csv_rows(stream: IO[str], columns: Sequence[Column], rows_per_block: 
         block = np.column_stack(
             [np.asarray(values[start:stop], dtype=np.float64) for _, values in columns]
         )
-        np.savetxt(stream, block, delimiter=",", fmt="%.10g")
+        stream.write(format_csv_rows(block))
 
 
 class SamplesCsvStream:
