@@ -121,13 +121,13 @@ def _control_arm(w: np.ndarray, ff: np.ndarray, with_ff: bool, s: int, a: int, y
                  h: float) -> None:
     # One arm of _scan, inlined with constant field offsets (see _advance_arm).
     L = LANES
-    ff_now = ff[k * L:(k + 1) * L]
+    ff_now = k * L  # offsets, not slices: a slice is a new array view, reference-counted
     for lane in range(L):
         # Every lane computes, a lane whose arm ran away too (no branch, so the loop stays
         # vectorised): its values are never used again (its CV is no longer recorded and its
         # accumulators are written as NaN), and its alive flag stays 0.
         y = w[yf * L + lane]
-        ffk = ff_now[lane] if with_ff else 0.0
+        ffk = ff[ff_now + lane] if with_ff else 0.0
         e = sp - y
         yd = y - p.derivative_setpoint_weight * sp
         deriv = w[(s + 1) * L + lane]
@@ -161,20 +161,19 @@ def _store_and_fetch(w: np.ndarray, ring: np.ndarray, field: int, unit_load: boo
     # contiguous row.
     L = LANES
     mask = size - 1
-    r_new = (base + (q & mask)) * L
-    new = ring[r_new:r_new + L]
+    # Offsets rather than slices (a slice is a new, reference-counted array view).
+    new = (base + (q & mask)) * L
     for lane in range(L):
-        new[lane] = w[field * L + lane] + 1.0 if unit_load else w[field * L + lane]
+        ring[new + lane] = w[field * L + lane] + 1.0 if unit_load else w[field * L + lane]
     for s in range(segments.shape[0] - 1):
         first, stop, m = segments[s, 0], segments[s + 1, 0], segments[s, 1]
         if first == stop:
             break
-        now = ring[(base + ((q - m) & mask)) * L:(base + ((q - m) & mask) + 1) * L]
-        old = ring[(base + ((q - m - 1) & mask)) * L:(base + ((q - m - 1) & mask) + 1) * L]
-        delayed = w[_DELAYED * L:(_DELAYED + 2) * L]
+        now = (base + ((q - m) & mask)) * L
+        old = (base + ((q - m - 1) & mask)) * L
         for lane in range(first, stop):
-            delayed[lane] = now[lane]
-            delayed[L + lane] = old[lane]
+            w[_DELAYED * L + lane] = ring[now + lane]
+            w[(_DELAYED + 1) * L + lane] = ring[old + lane]
 
 
 @njit(cache=True, nogil=True)
@@ -234,9 +233,9 @@ def _measure(w: np.ndarray, effect: np.ndarray, q: int, limit: float,
 def _measure_arm(w: np.ndarray, effect: np.ndarray, x: int, yf: int, af: int, q: int,
                  limit: float, second_order: bool) -> None:
     L = LANES
-    now = effect[q * L:(q + 1) * L]
+    now = q * L  # an offset, not a slice (see _store_and_fetch)
     for lane in range(L):
-        y = (w[(x + 1) * L + lane] if second_order else w[x * L + lane]) + now[lane]
+        y = (w[(x + 1) * L + lane] if second_order else w[x * L + lane]) + effect[now + lane]
         alive = (w[af * L + lane] != 0.0) & math.isfinite(y) & (not abs(y) > limit)
         w[yf * L + lane] = y
         w[af * L + lane] = 1.0 if alive else 0.0
