@@ -17,6 +17,7 @@ import os
 import threading
 import time
 from collections.abc import Callable, Iterator
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -351,6 +352,12 @@ def run_study(
         for c in chunks
     ]
     collected = _Collected(design, n, scenario.n_steps)
+    # The margins need only the samples: computed in a thread of their own while the chunks
+    # are simulated (the kernel threads release the GIL), not after them.
+    planned = min(n, MARGIN_SAMPLES)
+    margin_pool = ThreadPoolExecutor(1, thread_name_prefix="margins") if margins else None
+    margin_work = (margin_pool.submit(_study_margins, case, design, names, values[:planned])
+                   if margin_pool is not None else None)
     partial = False
     # Envelope histograms are summed as chunks arrive so memory does not grow with their count.
     counts = np.zeros((2, grid.times.size, grid.edges.size - 1), np.int64)
@@ -381,16 +388,30 @@ def run_study(
     )
     if margins:
         subset = min(result.samples, MARGIN_SAMPLES)
-        scan = case.simulation.step  # the loop as simulated: sampled controller, output held
-        inner = design.secondary
-        result.margins = loop_margins(plant_batch(case, names, values[:subset]), design.feedback,
-                                      sample_time=scan, secondary=inner)
-        result.nominal_margins = loop_margins(nominal_batch(case), design.feedback,
-                                              sample_time=scan, secondary=inner)
-        result.nominal_continuous_margins = loop_margins(nominal_batch(case), design.feedback,
-                                                         secondary=inner)
+        if subset == planned:
+            margins_found = margin_work.result()
+        else:  # stopped early: the margins of the samples that finished
+            margin_work.cancel()
+            margins_found = _study_margins(case, design, names, values[:subset])
+        result.margins, result.nominal_margins, result.nominal_continuous_margins = margins_found
+    if margin_pool is not None:
+        margin_pool.shutdown(wait=False)
     result.elapsed = time.perf_counter() - started
     return result
+
+
+def _study_margins(case: Case, design: LoopDesign, names: list[str],
+                   values: np.ndarray) -> tuple[MarginResult, MarginResult, MarginResult]:
+    """Feedback margins of the sampled plants ``values`` and of the nominal plant, as simulated
+    (sampled controller at the scan period, output held), and of the nominal plant with a
+    continuous controller."""
+    scan = case.simulation.step
+    inner = design.secondary
+    return (loop_margins(plant_batch(case, names, values), design.feedback, sample_time=scan,
+                         secondary=inner),
+            loop_margins(nominal_batch(case), design.feedback, sample_time=scan,
+                         secondary=inner),
+            loop_margins(nominal_batch(case), design.feedback, secondary=inner))
 
 
 class _Collected:
