@@ -16,8 +16,11 @@ import numpy as np
 import pytest
 
 from robustff.case import parse_case
+from robustff.case.sampling import plant_batch
+from robustff.design.margins import loop_margins
 from robustff.stats import summarize, wilson_interval
 from robustff.study import run_study
+from robustff.study.runner import MARGIN_SAMPLES
 from robustff.study.summary import summarize_study
 
 KD_MODEL = 1.0
@@ -240,6 +243,15 @@ def test_cancel_after_first_chunk_keeps_only_finished_chunks() -> None:
         np.testing.assert_array_equal(partial.metrics[name], values[:k], err_msg=name)
     summary = summarize_study(partial)
     assert summary["partial"] is True and summary["samples"] == k
+    # The margins (computed while the chunks ran, for the samples planned) are those of the
+    # samples that finished, as loop_margins gives them for exactly those plants.
+    assert partial.margins.size == k
+    direct = loop_margins(plant_batch(case, partial.names, partial.parameters),
+                          partial.design.feedback, sample_time=case.simulation.step)
+    for name in ("gain_margin", "phase_margin", "delay_margin", "ms", "stable"):
+        np.testing.assert_array_equal(getattr(partial.margins, name), getattr(direct, name),
+                                      err_msg=name)
+    assert full.margins.size == min(3000, MARGIN_SAMPLES)
 
 
 def test_progress_reports_every_chunk_in_order() -> None:
