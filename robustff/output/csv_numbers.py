@@ -1,9 +1,9 @@
 """Rows of numbers as CSV text, ``%.10g`` per value, compiled.
 
 :func:`format_csv_rows` gives the same text as ``numpy.savetxt(..., delimiter=",",
-fmt="%.10g")`` (Python's own ``%.10g`` of each value), about ten times faster: the per-sample
-table of a large study is tens of millions of values, and formatting them in Python cost more
-than simulating them.
+fmt="%.10g")`` (Python's own ``%.10g`` of each value), about six times faster (3 against 20 us
+a row of 33 values on the development machine): the per-sample table of a large study is tens
+of millions of values.
 
 How a value is formatted. A finite, non-zero value ``x`` is scaled by one exactly representable
 power of ten (``10**k`` with ``|k| <= 22``) to ``m`` in ``[1e9, 1e10)``; the scaling rounds once,
@@ -12,7 +12,7 @@ nearest to the exact value whenever ``m``'s fraction is not within 1e-5 of one h
 the ten significant digits, laid out by the ``%g`` rules (fixed notation for decimal exponents
 from -4 to 9, else exponential; trailing zeros dropped). The rest, rows with a value within
 1e-5 of a rounding tie, with a magnitude outside ``[1e-13, 1e31)`` or of a subnormal, about
-one value in 50,000 here, are formatted by Python itself, so no value ever differs from
+one value in 70,000 in a study's table, are formatted by Python itself, so no value ever differs from
 ``%.10g``.
 """
 
