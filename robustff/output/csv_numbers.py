@@ -11,9 +11,9 @@ so ``m`` is within 1.2e-6 of the exact scaled value, and the nearest integer to 
 nearest to the exact value whenever ``m``'s fraction is not within 1e-5 of one half. Those are
 the ten significant digits, laid out by the ``%g`` rules (fixed notation for decimal exponents
 from -4 to 9, else exponential; trailing zeros dropped). The rest, rows with a value within
-1e-5 of a rounding tie, with a magnitude outside ``[1e-13, 1e31)`` or of a subnormal, about
-one value in 70,000 in a study's table, are formatted by Python itself, so no value ever differs from
-``%.10g``.
+1e-5 of a rounding tie, with a magnitude outside ``[1e-13, 1e31)`` or of a subnormal (about
+one value in 70,000 in a study's table), are formatted by Python itself, so no value ever
+differs from ``%.10g``.
 """
 
 from __future__ import annotations

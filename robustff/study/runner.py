@@ -380,6 +380,8 @@ def run_study(
         close = getattr(generator, "close", None)
         if close is not None:
             close()
+        if margin_pool is not None:  # its one task still runs to the end
+            margin_pool.shutdown(wait=False)
     metrics, unstable = collected.metrics(), collected.unstable()
     result = StudyResult(
         case, design, scenario, names, values[: collected.filled], metrics, unstable, grid,
@@ -394,8 +396,6 @@ def run_study(
             margin_work.cancel()
             margins_found = _study_margins(case, design, names, values[:subset])
         result.margins, result.nominal_margins, result.nominal_continuous_margins = margins_found
-    if margin_pool is not None:
-        margin_pool.shutdown(wait=False)
     result.elapsed = time.perf_counter() - started
     return result
 
