@@ -177,12 +177,12 @@ def format_csv_rows(block: np.ndarray) -> str:
     if block.ndim != 2:
         raise ValueError(f"expected a 2-D array, got {block.ndim} dimensions")
     rows, columns = block.shape
+    if rows == 0:
+        return ""
     out = np.empty(rows * columns * _WIDTH + rows, dtype=np.uint8)
     row_ends = np.empty(rows, dtype=np.int64)
     fallback = np.empty(rows, dtype=np.bool_)
     _format_block(block, out, row_ends, fallback)
-    if rows == 0:
-        return ""
     if not fallback.any():
         return out[:row_ends[-1]].tobytes().decode("ascii")
     pieces: list[str] = []
