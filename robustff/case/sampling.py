@@ -174,7 +174,11 @@ def _latin_hypercube(n: int, d: int, rng: np.random.Generator) -> np.ndarray:
     strata = np.tile(np.arange(1, n + 1), (d, 1))
     for column in range(d):
         child.shuffle(strata[column, :])
-    return (strata.T - offsets) / n
+    # In place, into the offsets' array: the same numbers, one (n, d) array fewer at once.
+    points = np.subtract(strata.T, offsets, out=offsets)
+    del strata
+    points /= n
+    return points
 
 
 def _sobol(d: int, n: int, skip: int, rng: np.random.Generator) -> np.ndarray:

@@ -314,6 +314,7 @@ def execute(args: argparse.Namespace) -> int:
                     progress=progress,
                     cancel=cancel,
                     on_rows=stream.add if stream is not None else None,
+                    spill_folder=out.parent,  # a large study's metrics: the results' disk
                 )
             except KeyboardInterrupt:  # before the first chunk (design, nominal run, compiling)
                 result = None

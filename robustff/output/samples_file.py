@@ -25,6 +25,7 @@ from robustff.engine.metrics import METRIC_NAMES
 from robustff.errors import RobustffError
 from robustff.output.csv_numbers import format_csv_rows
 from robustff.study import SampleRows, StudyResult
+from robustff.study.result_columns import metric_column
 
 __all__ = [
     "SAMPLES_FORMATS",
@@ -43,7 +44,8 @@ __all__ = [
 SAMPLES_FORMATS: tuple[str, ...] = ("csv", "npy")
 #: Rows formatted and written at a time.
 ROWS_PER_BLOCK = 20_000
-#: A column of the table: its header and one value per sample.
+#: A column of the table: its header and one value per sample (an array, or a column that reads
+#: its rows from a file when sliced).
 Column = tuple[str, np.ndarray]
 
 
@@ -64,12 +66,14 @@ def row_columns(rows: SampleRows) -> list[Column]:
     index = np.arange(rows.start, rows.start + rows.count, dtype=np.int64)
     columns: list[Column] = [("sample", index)]
     columns += [(name, rows.parameters[:, j]) for j, name in enumerate(rows.names)]
+    # Columns of a large study's spilled metrics read their rows block by block as written.
     for name in METRIC_NAMES:
-        values = rows.metrics[name]
-        columns += [(f"{name}_fb", values[:, 0]), (f"{name}_fbff", values[:, 1])]
+        columns += [(f"{name}_fb", metric_column(rows.metrics, name, 0)),
+                    (f"{name}_fbff", metric_column(rows.metrics, name, 1))]
     columns += [("unstable_fb", rows.unstable[:, 0]), ("unstable_fbff", rows.unstable[:, 1])]
     for arm_name, metrics, unstable in rows.arms:
-        columns += [(f"{name}_fbff.{arm_name}", metrics[name]) for name in METRIC_NAMES]
+        columns += [(f"{name}_fbff.{arm_name}", metric_column(metrics, name, None))
+                    for name in METRIC_NAMES]
         columns.append((f"unstable_fbff.{arm_name}", unstable))
     return columns
 
@@ -191,7 +195,7 @@ class SamplesCsvStream:
 
 
 def _field_type(values: np.ndarray) -> np.dtype:
-    kind = np.asarray(values).dtype.kind
+    kind = values.dtype.kind if hasattr(values, "dtype") else np.asarray(values).dtype.kind
     if kind == "b":
         return np.dtype(np.bool_)
     if kind in "iu":

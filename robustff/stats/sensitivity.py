@@ -129,9 +129,8 @@ def average_ranks(values: np.ndarray) -> np.ndarray:
     ordered = data[order]
     starts = np.flatnonzero(np.r_[True, ordered[1:] != ordered[:-1]]) if n else np.empty(0, int)
     counts = np.diff(np.r_[starts, n])
-    group = np.repeat(np.arange(starts.size), counts)
     ranks = np.empty(n, dtype=np.float64)
-    ranks[order] = (starts + (counts + 1) / 2.0)[group]
+    ranks[order] = np.repeat(starts + (counts + 1) / 2.0, counts)
     return ranks
 
 
@@ -186,7 +185,9 @@ def rank_sensitivity(
     """
     par, resp, flag = _check_inputs(parameters, names, response, harm)
     # Ranks of a whole column are worked out once and shared by the correlations that use all
-    # of its rows (the usual case: every sample finite); a subset is ranked on its own.
+    # of its rows (the usual case: every sample finite); a subset is ranked on its own. The
+    # response's and the indicator's are kept for every parameter, a parameter's only while
+    # its own correlations are worked out (memory: a few columns, whatever the parameters).
     whole: dict[str, np.ndarray] = {}
 
     def ranks(key: str, values: np.ndarray, rows: np.ndarray) -> np.ndarray:
@@ -199,6 +200,7 @@ def rank_sensitivity(
     finite_response = np.isfinite(resp)
     rows = []
     for j, name in enumerate(names):
+        whole.pop(f"p{j - 1}", None)
         col = par[:, j]
         okh = np.isfinite(col)
         ok = okh & finite_response

@@ -2,8 +2,9 @@
 
 A study keeps, for the whole run, the sampled parameters and every per-sample metric of every
 design (the per-chunk simulation state is bounded by the chunk size and small); the summary
-then works on copies of a few columns at a time. The estimate is deliberately generous (the
-concatenation of the chunks' results holds a second copy for a moment).
+then works on copies of a few columns at a time. A large study keeps its metrics in files
+instead (:mod:`robustff.study.result_columns`), so only the parameters and a few columns count.
+The estimate is deliberately generous (twice what is kept).
 """
 
 from __future__ import annotations
@@ -12,6 +13,7 @@ import os
 
 from robustff.case import Case
 from robustff.engine.metrics import METRIC_NAMES
+from robustff.study.result_columns import spills
 
 __all__ = ["estimated_study_bytes", "available_memory_bytes"]
 
@@ -30,8 +32,12 @@ def estimated_study_bytes(case: Case, samples: int) -> int:
     """
     arms = 2 + len(case.designs)
     per_sample = _BYTES * (len(case.uncertainty) + 1)          # parameters and the seed
-    per_sample += _BYTES * arms * (len(METRIC_NAMES) + 1)      # metrics and unstable flags
-    return int(2 * per_sample * samples + 200e6)               # a copy while concatenating
+    per_sample += arms                                         # unstable flags
+    if not spills(samples, len(METRIC_NAMES), arms):
+        per_sample += _BYTES * arms * len(METRIC_NAMES)        # metrics, unless in files
+    else:
+        per_sample += 4 * _BYTES                               # the columns being summarised
+    return int(2 * per_sample * samples + 200e6)
 
 
 def available_memory_bytes() -> int | None:

@@ -16,9 +16,10 @@ from __future__ import annotations
 import os
 import threading
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 
@@ -37,6 +38,7 @@ from robustff.engine import (
 from robustff.engine.metrics import METRIC_NAMES
 from robustff.plant.models import PlantBatch
 from robustff.study.cluster import cluster_results
+from robustff.study.result_columns import ColumnFiles, SpilledMetrics, arm_metrics, spills
 
 __all__ = ["StudyResult", "DesignArm", "SampleRows", "run_study", "noise_seeds", "chunk_spans",
            "CHUNK_SIZE", "ProgressCallback", "RowsCallback"]
@@ -66,14 +68,14 @@ class DesignArm:
         ``"case"`` for the case's own ``[feedforward]``, else the ``[[design]]`` name.
     settings : FeedforwardSettings
         The designed compensator.
-    metrics : dict of str to ndarray (n,)
+    metrics : mapping of str to ndarray (n,)
         Per-sample metrics with this feedforward (NaN where the sample is unstable).
     unstable : ndarray of bool, shape (n,)
     """
 
     name: str
     settings: FeedforwardSettings
-    metrics: dict[str, np.ndarray]
+    metrics: Mapping[str, np.ndarray]
     unstable: np.ndarray
     #: With several disturbances, every one's compensator (empty: ``settings`` alone).
     compensators: tuple[FeedforwardSettings, ...] = ()
@@ -91,7 +93,7 @@ class SampleRows:
     names : list of str
         Uncertain parameter keys (columns of ``parameters``).
     parameters : ndarray, shape (m, p)
-    metrics : dict of str to ndarray (m, 2)
+    metrics : mapping of str to ndarray (m, 2)
         Arm 0 feedback only, arm 1 with the case's feedforward.
     unstable : ndarray of bool, shape (m, 2)
     arms : list of (str, dict of str to ndarray (m,), ndarray of bool (m,))
@@ -101,7 +103,7 @@ class SampleRows:
     start: int
     names: list[str]
     parameters: np.ndarray
-    metrics: dict[str, np.ndarray]
+    metrics: Mapping[str, np.ndarray]
     unstable: np.ndarray
     arms: list[tuple[str, dict[str, np.ndarray], np.ndarray]]
 
@@ -128,8 +130,11 @@ class StudyResult:
         Uncertain parameter keys (columns of ``parameters``).
     parameters : ndarray, shape (n, p)
         Sampled parameter values of the samples that were simulated.
-    metrics : dict of str to ndarray (n, 2)
-        Per-sample metrics, arm 0 feedback only, arm 1 with feedforward.
+    metrics : mapping of str to ndarray (n, 2)
+        Per-sample metrics, arm 0 feedback only, arm 1 with feedforward: a dict of arrays, or
+        for a large study a :class:`robustff.study.result_columns.SpilledMetrics` that reads
+        each from its file when asked (use :func:`robustff.study.result_columns.arm_metrics`
+        for one arm's columns).
     unstable : ndarray of bool, shape (n, 2)
     envelope : EnvelopeGrid
     envelope_counts : ndarray of int64, shape (2, P, B)
@@ -162,7 +167,7 @@ class StudyResult:
     scenario: Scenario
     names: list[str]
     parameters: np.ndarray
-    metrics: dict[str, np.ndarray]
+    metrics: Mapping[str, np.ndarray]
     unstable: np.ndarray
     envelope: EnvelopeGrid
     envelope_counts: np.ndarray
@@ -192,8 +197,7 @@ class StudyResult:
 
     def design_arms(self) -> list[DesignArm]:
         """Every feedforward design, the case's own first (named ``"case"``)."""
-        own = DesignArm("case", self.design.feedforward,
-                        {name: values[:, 1] for name, values in self.metrics.items()},
+        own = DesignArm("case", self.design.feedforward, arm_metrics(self.metrics, 1),
                         self.unstable[:, 1], self.design.compensators)
         return [own, *self.alternatives]
 
@@ -297,6 +301,7 @@ def run_study(
     cancel: threading.Event | None = None,
     margins: bool = True,
     on_rows: RowsCallback | None = None,
+    spill_folder: Path | None = None,
 ) -> StudyResult:
     """Run the Monte Carlo study of a case.
 
@@ -324,6 +329,10 @@ def run_study(
         Called with each finished chunk's rows, in sample order, while the next chunks are
         simulated (``samples.csv`` is written this way as the study runs). The chunks it is
         called with are exactly the study's samples, a prefix when the run is stopped.
+    spill_folder : Path, optional
+        Where a study too large to keep its metrics in memory writes them (a folder of its own
+        inside, removed with the result; default the system's temporary folder; see
+        :mod:`robustff.study.result_columns`).
 
     Returns
     -------
@@ -351,7 +360,7 @@ def run_study(
         )
         for c in chunks
     ]
-    collected = _Collected(design, n, scenario.n_steps)
+    collected = _Collected(design, n, scenario.n_steps, spill_folder)
     # The margins need only the samples: computed in a thread of their own while the chunks
     # are simulated (the kernel threads release the GIL), not after them.
     planned = min(n, MARGIN_SAMPLES)
@@ -417,34 +426,51 @@ def _study_margins(case: Case, design: LoopDesign, names: list[str],
 class _Collected:
     """The finished chunks' per-sample results, copied into arrays of the study's size as the
     chunks arrive (in order), so that no chunk is kept and nothing is concatenated at the end:
-    the peak memory is the study's arrays plus the chunks in flight."""
+    the peak memory is the study's arrays plus the chunks in flight. A study whose metrics
+    would exceed :data:`robustff.study.result_columns.SPILL_BYTES` appends them to column files
+    in ``spill_folder`` instead (:class:`robustff.study.result_columns.ColumnFiles`)."""
 
-    def __init__(self, design: LoopDesign, n: int, n_steps: int) -> None:
+    def __init__(self, design: LoopDesign, n: int, n_steps: int,
+                 spill_folder: Path | None = None) -> None:
         self.design = design
         self.filled = 0
         self.kept = np.empty((0, 4, n_steps))
-        self._metrics = {name: np.empty((n, 2)) for name in METRIC_NAMES}
         self._unstable = np.zeros((n, 2), dtype=bool)
-        self._arms = [({name: np.empty(n) for name in METRIC_NAMES}, np.zeros(n, dtype=bool))
-                      for _ in design.alternatives]
+        self._arm_unstable = [np.zeros(n, dtype=bool) for _ in design.alternatives]
+        arms = 2 + len(design.alternatives)
+        self._files = (ColumnFiles(spill_folder) if spills(n, len(METRIC_NAMES), arms)
+                       else None)
+        if self._files is None:
+            self._metrics = {name: np.empty((n, 2)) for name in METRIC_NAMES}
+            self._arms = [{name: np.empty(n) for name in METRIC_NAMES}
+                          for _ in design.alternatives]
 
     def add(self, chunk: _Chunk, result: SimulationResult, alternatives: list) -> None:
         """Copy one chunk's results in; chunks arrive in order."""
         span = slice(chunk.start, chunk.stop)
-        for name in METRIC_NAMES:
-            self._metrics[name][span] = result.metrics[name]
         self._unstable[span] = result.unstable
         if chunk.index == 0 and result.trajectories is not None:
             self.kept = result.trajectories
-        for (metrics, unstable), (chunk_metrics, chunk_unstable) in zip(
-                self._arms, alternatives, strict=True):
-            for name in METRIC_NAMES:
-                metrics[name][span] = chunk_metrics[name]
-            unstable[span] = chunk_unstable
+        for k, (_, chunk_unstable) in enumerate(alternatives):
+            self._arm_unstable[k][span] = chunk_unstable
+        files = self._files
+        for name in METRIC_NAMES:
+            if files is None:
+                self._metrics[name][span] = result.metrics[name]
+            else:
+                files.append(f"fb|{name}", result.metrics[name][:, 0])
+                files.append(f"fbff|{name}", result.metrics[name][:, 1])
+            for k, (chunk_metrics, _) in enumerate(alternatives):
+                if files is None:
+                    self._arms[k][name][span] = chunk_metrics[name]
+                else:
+                    files.append(f"design{k}|{name}", chunk_metrics[name])
         self.filled = chunk.stop
 
-    def metrics(self) -> dict[str, np.ndarray]:
+    def metrics(self) -> Mapping[str, np.ndarray]:
         """Per-sample metrics of the finished chunks, (filled, 2) each."""
+        if self._files is not None:
+            return SpilledMetrics(self._files, METRIC_NAMES, ("fb", "fbff"), self.filled)
         return {name: _trimmed(values, self.filled) for name, values in self._metrics.items()}
 
     def unstable(self) -> np.ndarray:
@@ -452,11 +478,16 @@ class _Collected:
 
     def arms(self) -> list[DesignArm]:
         """The alternative designs' per-sample results of the finished chunks."""
-        return [DesignArm(alternative.name, alternative.settings,
-                          {name: _trimmed(values, self.filled) for name, values in metrics.items()},
-                          _trimmed(unstable, self.filled), alternative.compensators)
-                for alternative, (metrics, unstable) in zip(self.design.alternatives,
-                                                            self._arms, strict=True)]
+        out = []
+        for k, alternative in enumerate(self.design.alternatives):
+            metrics: Mapping[str, np.ndarray] = (
+                SpilledMetrics(self._files, METRIC_NAMES, (f"design{k}",), self.filled)
+                if self._files is not None else
+                {name: _trimmed(values, self.filled) for name, values in self._arms[k].items()})
+            out.append(DesignArm(alternative.name, alternative.settings, metrics,
+                                 _trimmed(self._arm_unstable[k], self.filled),
+                                 alternative.compensators))
+        return out
 
 
 def _chunk_rows(chunk: _Chunk, names: list[str], values: np.ndarray, design: LoopDesign,

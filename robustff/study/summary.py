@@ -7,7 +7,7 @@ feedforward makes a metric worse carries a Wilson score interval (see :mod:`robu
 from __future__ import annotations
 
 import platform
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from typing import cast
 
 import numpy as np
@@ -42,6 +42,7 @@ from robustff.study.frequency import (
 from robustff.study.noise_travel import noise_travel_warning
 from robustff.study.provenance import not_settled, reproducibility
 from robustff.study.recommendation import recommend
+from robustff.study.result_columns import arm_metrics, metric_column
 from robustff.study.runner import StudyResult
 from robustff.study.summary_types import (
     ArmStats,
@@ -214,7 +215,7 @@ def nominal_margin_warnings(nominal: NominalMargins) -> list[str]:
 
 
 def _paired(
-    fb: dict[str, np.ndarray], fbff: dict[str, np.ndarray], percentiles: Sequence[float]
+    fb: Mapping[str, np.ndarray], fbff: Mapping[str, np.ndarray], percentiles: Sequence[float]
 ) -> tuple[dict[str, MetricStats], dict[str, MetricStats]]:
     """Per-sample improvement ``fb - fbff`` and ratio ``fbff / fb`` of the paired metrics."""
     improvement: dict[str, MetricStats] = {}
@@ -226,7 +227,8 @@ def _paired(
     return improvement, ratio
 
 
-def _harm(fb: dict[str, np.ndarray], fbff: dict[str, np.ndarray]) -> dict[str, HarmEstimate]:
+def _harm(fb: Mapping[str, np.ndarray],
+          fbff: Mapping[str, np.ndarray]) -> dict[str, HarmEstimate]:
     return {name: probability_worse(fb[name], fbff[name]) for name in HARM_METRICS}
 
 
@@ -243,7 +245,7 @@ def _designs(
     random numbers): the per-sample IAE difference ``IAE(case) - IAE(design)`` (positive: the
     design does better) and the probability that the design does worse than the case's.
     """
-    fb = {name: values[:, 0] for name, values in result.metrics.items()}
+    fb = arm_metrics(result.metrics, 0)
     arms = result.design_arms()
     case_iae = arms[0].metrics["iae"]
     out: list[DesignSummary] = []
@@ -332,19 +334,18 @@ def summarize_study(
     """
     metrics: dict[str, ArmStats] = {
         name: cast(ArmStats, {
-            arm: summarize(result.metrics[name][:, i], percentiles).to_dict()
+            arm: summarize(metric_column(result.metrics, name, i), percentiles).to_dict()
             for i, arm in enumerate(("fb", "fbff"))
         })
         for name in METRIC_NAMES
     }
-    fb = {name: values[:, 0] for name, values in result.metrics.items()}
-    fbff = {name: values[:, 1] for name, values in result.metrics.items()}
+    fb, fbff = arm_metrics(result.metrics, 0), arm_metrics(result.metrics, 1)
     improvement, ratio = _paired(fb, fbff, percentiles)
     harm = _harm(fb, fbff)
     iae_ratio = _ratio(result)
     sensitivity: list[SensitivityRow] = []
     if result.names and result.samples > 3:
-        harmful = result.metrics["iae"][:, 1] > result.metrics["iae"][:, 0]
+        harmful = fbff["iae"] > fb["iae"]
         sensitivity = [
             cast(SensitivityRow, row.to_dict())
             for row in rank_sensitivity(result.parameters, result.names, iae_ratio, harmful)

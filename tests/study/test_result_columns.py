@@ -1,0 +1,179 @@
+"""A large study's metrics kept in column files give the same results as kept in memory."""
+
+from __future__ import annotations
+
+import gc
+import json
+import threading
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import robustff.study.result_columns as result_columns
+from robustff.case import load_case, parse_case
+from robustff.cli import main
+from robustff.study import run_study
+from robustff.study.result_columns import (
+    ColumnFiles,
+    LazyColumn,
+    SpilledMetrics,
+    arm_metrics,
+    metric_column,
+    spills,
+)
+from robustff.study.summary import summarize_study
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMO = ROOT / "cases" / "wash-water-heater.toml"
+PERCENTILES = (5.0, 50.0, 95.0)
+
+
+def _with_design() -> str:
+    return DEMO.read_text() + '\n[[design]]\nname = "soft"\ngain_factor = 0.6\n'
+
+
+def test_columns_read_back_exactly_in_any_range(tmp_path: Path) -> None:
+    rng = np.random.default_rng(3)
+    files = ColumnFiles(tmp_path)
+    parts = [rng.standard_normal(n) for n in (5, 0, 17, 1)]
+    parts[2][4] = np.nan
+    flags = [rng.random(p.size) > 0.5 for p in parts]
+    for values, flag in zip(parts, flags, strict=True):
+        files.append("x", values)
+        files.append("flag", flag)
+    whole, whole_flags = np.concatenate(parts), np.concatenate(flags)
+    np.testing.assert_array_equal(files.read("x"), whole)  # NaN in the same place
+    np.testing.assert_array_equal(files.read("flag"), whole_flags)
+    assert files.read("flag").dtype == np.bool_
+    np.testing.assert_array_equal(files.read("x", 3, 9), whole[3:9])
+    np.testing.assert_array_equal(files.read("x", 20, 99), whole[20:])
+    column = LazyColumn(files, "x", 20)  # the first 20 values only
+    assert len(column) == 20 and column.shape == (20,) and column.dtype == np.float64
+    np.testing.assert_array_equal(column[2:11], whole[2:11])
+    np.testing.assert_array_equal(column[15:40], whole[15:20])
+    np.testing.assert_array_equal(np.asarray(column), whole[:20])
+    np.testing.assert_array_equal(column[::2], whole[:20:2])
+    with pytest.raises(ValueError, match="one-dimensional"):
+        files.append("x", np.zeros((2, 2)))
+
+
+def test_the_column_folder_goes_with_its_object(tmp_path: Path) -> None:
+    files = ColumnFiles(tmp_path)
+    files.append("x", np.arange(4.0))
+    folder = files.path
+    assert folder.parent == tmp_path and folder.name.startswith(".robustff-columns-")
+    files.close()
+    assert not folder.exists()
+    again = ColumnFiles(tmp_path)
+    again.append("x", np.arange(4.0))
+    folder = again.path
+    del again
+    gc.collect()
+    assert not folder.exists()
+
+
+def test_spilled_metrics_and_arm_views_agree_with_the_arrays(tmp_path: Path) -> None:
+    rng = np.random.default_rng(5)
+    arrays = {name: rng.standard_normal((12, 2)) for name in ("iae", "ise")}
+    files = ColumnFiles(tmp_path)
+    for name, values in arrays.items():
+        for arm, key in enumerate(("fb", "fbff")):
+            files.append(f"{key}|{name}", values[:7, arm])
+            files.append(f"{key}|{name}", values[7:, arm])
+    spilled = SpilledMetrics(files, ("iae", "ise"), ("fb", "fbff"), 10)  # a prefix of rows
+    assert list(spilled) == ["iae", "ise"] and len(spilled) == 2
+    for name, values in arrays.items():
+        np.testing.assert_array_equal(spilled[name], values[:10])
+        for arm in (0, 1):
+            np.testing.assert_array_equal(arm_metrics(spilled, arm)[name], values[:10, arm])
+            np.testing.assert_array_equal(arm_metrics(arrays, arm)[name], values[:, arm])
+            np.testing.assert_array_equal(np.asarray(metric_column(spilled, name, arm)),
+                                          values[:10, arm])
+    with pytest.raises(KeyError):
+        spilled["itae"]
+
+
+def test_the_threshold_counts_metrics_arms_and_samples(monkeypatch) -> None:
+    monkeypatch.setattr(result_columns, "SPILL_BYTES", 1000)
+    assert not spills(62, 1, 2)  # 992 bytes
+    assert spills(63, 1, 2)
+
+
+def _summary_without_timing(summary: dict) -> dict:
+    text = json.dumps(summary, sort_keys=True, default=str)
+    out = json.loads(text)
+    out.pop("elapsed_seconds", None)
+    return out
+
+
+@pytest.fixture(scope="module")
+def both_ways(tmp_path_factory):
+    """The same study (a demo case plus one more design) with its metrics in memory and in
+    column files."""
+    case = parse_case(_with_design())
+    kept = run_study(case, samples=150, seed=4, jobs=2, chunk_size=40)
+    patch = pytest.MonkeyPatch()
+    patch.setattr(result_columns, "SPILL_BYTES", 0)
+    try:
+        folder = tmp_path_factory.mktemp("spill")
+        spilled = run_study(case, samples=150, seed=4, jobs=2, chunk_size=40,
+                            spill_folder=folder)
+    finally:
+        patch.undo()
+    return kept, spilled, folder
+
+
+def test_a_spilled_study_summarises_exactly_as_one_kept_in_memory(both_ways) -> None:
+    kept, spilled, folder = both_ways
+    assert isinstance(spilled.metrics, SpilledMetrics) and isinstance(kept.metrics, dict)
+    assert any(path.name.startswith(".robustff-columns-") for path in folder.iterdir())
+    for name, values in kept.metrics.items():
+        np.testing.assert_array_equal(spilled.metrics[name], values)
+    for a, b in zip(kept.design_arms(), spilled.design_arms(), strict=True):
+        assert a.name == b.name
+        np.testing.assert_array_equal(a.unstable, b.unstable)
+        for name in a.metrics:
+            np.testing.assert_array_equal(np.asarray(b.metrics[name]), a.metrics[name])
+    one = _summary_without_timing(summarize_study(kept, PERCENTILES))
+    two = _summary_without_timing(summarize_study(spilled, PERCENTILES))
+    assert one == two
+    assert len(one["designs"]) == 2
+
+
+def test_a_stopped_spilled_study_keeps_exactly_the_finished_samples(tmp_path: Path,
+                                                                       monkeypatch) -> None:
+    case = load_case(DEMO)
+    monkeypatch.setattr(result_columns, "SPILL_BYTES", 0)
+    cancel = threading.Event()
+    result = run_study(case, samples=200, seed=2, jobs=1, chunk_size=50, margins=False,
+                       cancel=cancel, progress=lambda done, total: cancel.set(),
+                       spill_folder=tmp_path)
+    assert result.partial and 0 < result.samples < 200
+    monkeypatch.setattr(result_columns, "SPILL_BYTES", 10**12)
+    whole = run_study(case, samples=200, seed=2, jobs=1, chunk_size=50, margins=False)
+    for name, values in whole.metrics.items():
+        np.testing.assert_array_equal(result.metrics[name], values[:result.samples])
+
+
+@pytest.mark.parametrize("samples_format", ["csv", "npy"])
+def test_the_command_writes_the_same_files_either_way(tmp_path: Path, monkeypatch,
+                                                      samples_format: str) -> None:
+    case = tmp_path / "case.toml"
+    case.write_text(_with_design())
+    arguments = ["run", str(case), "--samples", "90", "--jobs", "2",
+                 "--samples-format", samples_format]
+    assert main([*arguments, "--out", str(tmp_path / "memory")]) == 0
+    monkeypatch.setattr(result_columns, "SPILL_BYTES", 0)
+    assert main([*arguments, "--out", str(tmp_path / "files")]) == 0
+    table = f"samples.{samples_format}"
+    assert ((tmp_path / "memory" / table).read_bytes()
+            == (tmp_path / "files" / table).read_bytes())
+    one, two = (json.loads((tmp_path / folder / "summary.json").read_text())
+                for folder in ("memory", "files"))
+    for summary in (one, two):
+        for key in ("elapsed_seconds", "reproducibility"):  # the clock and the command line
+            summary.pop(key, None)
+    assert one == two
+    # the column folder went with the study
+    assert not [path for path in tmp_path.iterdir() if path.name.startswith(".robustff-col")]
