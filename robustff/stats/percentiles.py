@@ -223,9 +223,14 @@ def percentile_table(
         ``{percentile_key(p): PercentileEstimate}`` in the order given; each estimate carries
         the number of samples used, ``n``.
     """
+    return _table_of_finite(finite_values(values, "metric values"), percentiles, confidence)
+
+
+def _table_of_finite(data: np.ndarray, percentiles: Sequence[float],
+                     confidence: float) -> dict[str, PercentileEstimate]:
+    # percentile_table on finite values the caller no longer needs: reordered in place.
     plist = check_percentiles(percentiles)
     check_confidence(confidence)
-    data = finite_values(values, "metric values")  # a copy, reordered in place below
     n = data.size
     if n == 0:
         return {percentile_key(p): _estimate(data, p, float("nan"), confidence) for p in plist}
@@ -306,7 +311,7 @@ def summarize(
     data = arr[np.isfinite(arr)]
     mean = float(np.mean(data)) if data.size else float("nan")
     std = float(np.std(data, ddof=1)) if data.size > 1 else float("nan")
-    table = percentile_table(data, percentiles, confidence)
+    table = _table_of_finite(data, percentiles, confidence)  # after the mean: reorders data
     return MetricSummary(mean, std, int(data.size), int(arr.size - data.size), confidence, table)
 
 
@@ -330,7 +335,9 @@ def metric_ratio(fb: np.ndarray, fbff: np.ndarray) -> np.ndarray:
     """
     fb_arr, fbff_arr = np.asarray(fb, dtype=float), np.asarray(fbff, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(fb_arr > 0, fbff_arr / fb_arr, np.nan)
+        ratio = np.asarray(np.divide(fbff_arr, fb_arr))
+    ratio[~(fb_arr > 0)] = np.nan  # in place: one array of the samples' size, not three
+    return ratio
 
 
 def paired_comparison(
@@ -360,7 +367,8 @@ def paired_comparison(
     """
     a, b = paired_arrays(fb, fbff)
     both = np.isfinite(a) & np.isfinite(b)
-    improvement = np.where(both, a - b, np.nan)
+    improvement = np.subtract(a, b)
+    improvement[~both] = np.nan  # in place: one array of the samples' size, not two
     ratio = metric_ratio(a, b)
     return {
         "improvement": improvement,

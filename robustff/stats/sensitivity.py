@@ -127,9 +127,14 @@ def average_ranks(values: np.ndarray) -> np.ndarray:
         return np.full(n, np.nan)
     order = np.argsort(data, kind="mergesort")
     ordered = data[order]
-    starts = np.flatnonzero(np.r_[True, ordered[1:] != ordered[:-1]]) if n else np.empty(0, int)
-    counts = np.diff(np.r_[starts, n])
+    new_value = np.r_[True, ordered[1:] != ordered[:-1]] if n else np.empty(0, bool)
+    del ordered
     ranks = np.empty(n, dtype=np.float64)
+    if new_value.all():  # no ties (sampled parameters): the k-th smallest has rank k
+        ranks[order] = np.arange(1.0, n + 1.0)
+        return ranks
+    starts = np.flatnonzero(new_value)
+    counts = np.diff(np.r_[starts, n])
     ranks[order] = np.repeat(starts + (counts + 1) / 2.0, counts)
     return ranks
 

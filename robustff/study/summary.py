@@ -224,6 +224,7 @@ def _paired(
         paired = paired_comparison(fb[name], fbff[name], percentiles)
         improvement[name] = cast(MetricStats, paired["improvement_summary"].to_dict())
         ratio[name] = cast(MetricStats, paired["ratio_summary"].to_dict())
+        del paired  # its per-sample arrays, before the next metric's are made
     return improvement, ratio
 
 

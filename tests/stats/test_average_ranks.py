@@ -18,6 +18,15 @@ def test_ranks_with_ties_equal_scipy_rankdata(seed: int) -> None:
     np.testing.assert_array_equal(average_ranks(values), sps.rankdata(values))
 
 
+@pytest.mark.parametrize("seed", [0, 1])
+def test_ranks_without_ties_equal_scipy_rankdata(seed: int) -> None:
+    # Distinct values (the sampled parameters): the short path that skips the tie groups.
+    values = np.random.default_rng(seed).normal(size=2000)[::2]  # a strided view too
+    assert np.unique(values).size == values.size
+    # Reference: scipy.stats.rankdata, method "average".
+    np.testing.assert_array_equal(average_ranks(values), sps.rankdata(values))
+
+
 def test_ranks_of_edge_inputs() -> None:
     assert average_ranks(np.array([])).shape == (0,)
     np.testing.assert_array_equal(average_ranks(np.array([3.0])), [1.0])
