@@ -140,7 +140,9 @@ def _control_arm(w: np.ndarray, ff: np.ndarray, with_ff: bool, s: int, a: int, y
         travel = (a + _TRAVEL) * L + lane
         at_limit = (a + _AT_LIMIT) * L + lane
         moved = w[travel] + abs(u - w[(s + 3) * L + lane])
-        limited = w[at_limit] + h if u != v else w[at_limit]
+        # Unconditional stores (see _advance_arm): time at the limits is >= +0, so adding 0.0
+        # leaves it bit for bit as it was.
+        limited = w[at_limit] + (h if u != v else 0.0)
         w[s * L + lane] = integral
         w[travel] = moved
         w[at_limit] = limited
@@ -209,8 +211,9 @@ def _probe(w: np.ndarray, ring: np.ndarray, k: int, p: tuple, second_order: bool
                  if p.has_derivative else w[(_PQ + 1) * L + lane])
         u = p.kc * e + w[_PQ * L + lane] + deriv
         late_peak, early_peak = w[(_PQ + 4) * L + lane], w[(_PQ + 3) * L + lane]
-        w[(_PQ + 4) * L + lane] = max(late_peak, abs(e)) if late else late_peak
-        w[(_PQ + 3) * L + lane] = max(early_peak, abs(e)) if early else early_peak
+        # (+ 0.0 on peaks >= +0: the same numbers, unconditional stores, see _advance_arm)
+        w[(_PQ + 4) * L + lane] = (max(late_peak, abs(e)) if late else late_peak) + 0.0
+        w[(_PQ + 3) * L + lane] = (max(early_peak, abs(e)) if early else early_peak) + 0.0
         w[_PQ * L + lane] = w[_PQ * L + lane] + p.integral_gain * e
         w[(_PQ + 1) * L + lane] = deriv
         w[(_PQ + 2) * L + lane] = y
@@ -278,14 +281,20 @@ def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: i
         if ae > mp.band and t >= mp.t_start:
             last = t
         outside = (a + _OUTSIDE) * L + lane
-        beyond = w[outside] + h if ae > mp.cv_band else w[outside]
+        # A field that keeps its old value on some lanes (a max, a conditional sum) would be
+        # compiled as a masked store, microcoded and slow on some x86 cores (AMD Zen 1 and 2):
+        # adding 0.0 makes every store unconditional and, on these fields (all >= +0, never
+        # -0.0), leaves every value bit for bit as it was.
+        beyond = w[outside] + (h if ae > mp.cv_band else 0.0)
         w[lf * L + lane] = last
         w[(a + _IE) * L + lane] = w[(a + _IE) * L + lane] + e * h
         w[(a + _IAE) * L + lane] = w[(a + _IAE) * L + lane] + ae * h
         w[(a + _ISE) * L + lane] = w[(a + _ISE) * L + lane] + e * e * h
         w[(a + _ITAE) * L + lane] = w[(a + _ITAE) * L + lane] + weight * ae * h
-        w[(a + _PEAK) * L + lane] = max(w[(a + _PEAK) * L + lane], ae)
-        w[(a + _OPPOSITE) * L + lane] = max(w[(a + _OPPOSITE) * L + lane], mp.direction * e)
+        w[(a + _PEAK) * L + lane] = max(w[(a + _PEAK) * L + lane], ae) + 0.0
+        # starts at +0.0 and max keeps the first of equals: never -0.0
+        w[(a + _OPPOSITE) * L + lane] = max(w[(a + _OPPOSITE) * L + lane],
+                                            mp.direction * e) + 0.0
         w[(a + _SETTLING) * L + lane] = longest
         w[outside] = beyond
         _step_path(w, lane, _CP, x, second_order)

@@ -187,14 +187,15 @@ def _path_lanes(b: np.ndarray, now: np.ndarray, before: np.ndarray, has_before: 
     # One internal step of the undelayed path and its transmitter across the lanes: the output
     # before the step into out, the transmitter's reading (at a scan) added to reading.
     L = LANES
+    if scan:  # a loop of its own: inside the next one it became a slow masked store
+        for lane in range(L):
+            sensor = b[_P_SENSOR * L + lane]
+            reading[lane] += now[lane] if b[_P_DIRECT * L + lane] != 0.0 else sensor
     for lane in range(L):
         x1, x2 = b[_P_X1 * L + lane], b[_P_X2 * L + lane]
         second_order = b[_P_SECOND * L + lane] != 0.0
         out[lane] = x2 if second_order else x1
         d = now[lane]
-        if scan:
-            sensor = b[_P_SENSOR * L + lane]
-            reading[lane] += d if b[_P_DIRECT * L + lane] != 0.0 else sensor
         old = before[lane] if has_before else 0.0
         first = (b[_PC * L + lane] * x1 + b[(_PC + 3) * L + lane] * d
                  + b[(_PC + 5) * L + lane] * old)
