@@ -121,13 +121,15 @@ def _control_arm(w: np.ndarray, ff: np.ndarray, with_ff: bool, s: int, a: int, y
                  h: float) -> None:
     # One arm of _scan, inlined with constant field offsets (see _advance_arm).
     L = LANES
-    ff_now = k * L  # offsets, not slices: a slice is a new array view, reference-counted
+    # offsets, not slices (a slice is a new array view, reference-counted), unsigned (see
+    # _store_and_fetch)
+    ff_now = np.uint64(k * L)
     for lane in range(L):
         # Every lane computes, a lane whose arm ran away too (no branch, so the loop stays
         # vectorised): its values are never used again (its CV is no longer recorded and its
         # accumulators are written as NaN), and its alive flag stays 0.
         y = w[yf * L + lane]
-        ffk = ff[ff_now + lane] if with_ff else 0.0
+        ffk = ff[ff_now + np.uint64(lane)] if with_ff else 0.0
         e = sp - y
         yd = y - p.derivative_setpoint_weight * sp
         deriv = w[(s + 1) * L + lane]
@@ -163,19 +165,23 @@ def _store_and_fetch(w: np.ndarray, ring: np.ndarray, field: int, unit_load: boo
     # contiguous row.
     L = LANES
     mask = size - 1
-    # Offsets rather than slices (a slice is a new, reference-counted array view).
-    new = (base + (q & mask)) * L
+    # Offsets rather than slices (a slice is a new, reference-counted array view), unsigned:
+    # a signed index gets numba's negative-index wrap-around, which keeps LLVM from
+    # vectorising these copies (it left them scalar, one value at a time).
+    new = np.uint64((base + (q & mask)) * L)
     for lane in range(L):
-        ring[new + lane] = w[field * L + lane] + 1.0 if unit_load else w[field * L + lane]
+        at = new + np.uint64(lane)
+        ring[at] = w[field * L + lane] + 1.0 if unit_load else w[field * L + lane]
     for s in range(segments.shape[0] - 1):
         first, stop, m = segments[s, 0], segments[s + 1, 0], segments[s, 1]
         if first == stop:
             break
-        now = (base + ((q - m) & mask)) * L
-        old = (base + ((q - m - 1) & mask)) * L
+        now = np.uint64((base + ((q - m) & mask)) * L)
+        old = np.uint64((base + ((q - m - 1) & mask)) * L)
         for lane in range(first, stop):
-            w[_DELAYED * L + lane] = ring[now + lane]
-            w[(_DELAYED + 1) * L + lane] = ring[old + lane]
+            offset = np.uint64(lane)
+            w[np.uint64(_DELAYED * L) + offset] = ring[now + offset]
+            w[np.uint64((_DELAYED + 1) * L) + offset] = ring[old + offset]
 
 
 @njit(cache=True, nogil=True)
@@ -236,9 +242,10 @@ def _measure(w: np.ndarray, effect: np.ndarray, q: int, limit: float,
 def _measure_arm(w: np.ndarray, effect: np.ndarray, x: int, yf: int, af: int, q: int,
                  limit: float, second_order: bool) -> None:
     L = LANES
-    now = q * L  # an offset, not a slice (see _store_and_fetch)
+    now = np.uint64(q * L)  # an unsigned offset, not a slice (see _store_and_fetch)
     for lane in range(L):
-        y = (w[(x + 1) * L + lane] if second_order else w[x * L + lane]) + effect[now + lane]
+        y = ((w[(x + 1) * L + lane] if second_order else w[x * L + lane])
+             + effect[now + np.uint64(lane)])
         alive = (w[af * L + lane] != 0.0) & math.isfinite(y) & (not abs(y) > limit)
         w[yf * L + lane] = y
         w[af * L + lane] = 1.0 if alive else 0.0
