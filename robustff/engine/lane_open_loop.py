@@ -166,37 +166,44 @@ def _disturbance_lanes(j: int, lanes: np.ndarray, count: int, kind: int,
         buffer[_P_X2 * L + lane] = 0.0
         buffer[_P_SENSOR * L + lane] = 0.0
     mask = ring_size(longest) - 1
-    zero = inputs_lanes[0:0]
+    # Unsigned offsets rather than slices: a slice is a reference-counted view, and a signed
+    # index gets numba's negative-index wrap-around, which keeps LLVM from vectorising.
+    u = np.uint64
     for k in range(n_steps):
-        reading = measured_lanes[k * L:(k + 1) * L]
+        reading = u(k * L)
         for sub in range(substeps):
             q = k * substeps + sub
-            now = inputs_lanes[q * L:(q + 1) * L]
-            before = inputs_lanes[(q - 1) * L:q * L] if q > 0 else zero
-            out = ring[(q & mask) * L:((q & mask) + 1) * L]
-            _path_lanes(buffer, now, before, q > 0, out, reading, sub == 0)
+            now = u(q * L)
+            before = u((q - 1) * L) if q > 0 else u(0)
+            out = u((q & mask) * L)
+            _path_lanes(buffer, inputs_lanes, now, before, q > 0, ring, out, measured_lanes,
+                        reading, sub == 0)
             for lane in range(L):
                 m_d = delay[lane]
-                effect_lanes[q * L + lane] += (ring[((q - m_d) & mask) * L + lane]
-                                               if q >= m_d else 0.0)
+                effect_lanes[now + u(lane)] += (ring[u(((q - m_d) & mask) * L + lane)]
+                                                if q >= m_d else 0.0)
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _path_lanes(b: np.ndarray, now: np.ndarray, before: np.ndarray, has_before: bool,
-                out: np.ndarray, reading: np.ndarray, scan: bool) -> None:
+def _path_lanes(b: np.ndarray, inputs: np.ndarray, now: np.uint64, before: np.uint64,
+                has_before: bool, ring: np.ndarray, out: np.uint64, measured: np.ndarray,
+                reading: np.uint64, scan: bool) -> None:
     # One internal step of the undelayed path and its transmitter across the lanes: the output
-    # before the step into out, the transmitter's reading (at a scan) added to reading.
+    # before the step into ring[out:], the transmitter's reading (at a scan) added to
+    # measured[reading:]; the inputs at inputs[now:] and (has_before) inputs[before:].
     L = LANES
+    u = np.uint64
     if scan:  # a loop of its own: inside the next one it became a slow masked store
         for lane in range(L):
             sensor = b[_P_SENSOR * L + lane]
-            reading[lane] += now[lane] if b[_P_DIRECT * L + lane] != 0.0 else sensor
+            measured[reading + u(lane)] += (inputs[now + u(lane)]
+                                            if b[_P_DIRECT * L + lane] != 0.0 else sensor)
     for lane in range(L):
         x1, x2 = b[_P_X1 * L + lane], b[_P_X2 * L + lane]
         second_order = b[_P_SECOND * L + lane] != 0.0
-        out[lane] = x2 if second_order else x1
-        d = now[lane]
-        old = before[lane] if has_before else 0.0
+        ring[out + u(lane)] = x2 if second_order else x1
+        d = inputs[now + u(lane)]
+        old = inputs[before + u(lane)] if has_before else 0.0
         first = (b[_PC * L + lane] * x1 + b[(_PC + 3) * L + lane] * d
                  + b[(_PC + 5) * L + lane] * old)
         second = (b[(_PC + 1) * L + lane] * x1 + b[(_PC + 2) * L + lane] * x2
