@@ -6,8 +6,11 @@ feedforward makes a metric worse carries a Wilson score interval (see :mod:`robu
 
 from __future__ import annotations
 
+import os
 import platform
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
+from concurrent.futures import ThreadPoolExecutor
+from functools import partial
 from typing import cast
 
 import numpy as np
@@ -81,6 +84,8 @@ VERDICT_REASONS = ("a loop at the stability limit, a stable loop still recoverin
                    "when the window ends, or a saturated response beyond the divergence limit")
 #: Metrics whose per-sample improvement and ratio are summarised.
 PAIRED_METRICS: tuple[str, ...] = ("iae", "ise", "peak_deviation", "valve_travel")
+#: Samples from which the per-metric statistics are worked out in two threads.
+PARALLEL_SAMPLES = 50_000
 
 
 def metric_unit(result: StudyResult, metric: str) -> str:
@@ -111,6 +116,21 @@ def _versions() -> Versions:
         "numba": numba.__version__,
         "joblib": joblib.__version__,
     }
+
+
+def _column_stats(metrics: Mapping[str, np.ndarray], name: str, arm: int | None,
+                  percentiles: Sequence[float]) -> MetricStats:
+    return cast(MetricStats,
+                summarize(metric_column(metrics, name, arm), percentiles).to_dict())
+
+
+def _summaries(work: list[Callable[[], MetricStats]], samples: int) -> list[MetricStats]:
+    """The results of ``work`` in order; in two threads for a large study (the partial sorts
+    release the GIL; each call is independent, so the numbers do not depend on it)."""
+    if samples < PARALLEL_SAMPLES or (os.cpu_count() or 1) < 2:
+        return [job() for job in work]
+    with ThreadPoolExecutor(2, thread_name_prefix="summary") as pool:
+        return list(pool.map(lambda job: job(), work))
 
 
 def _ratio(result: StudyResult) -> np.ndarray:
@@ -238,34 +258,42 @@ def _harm_dicts(harm: dict[str, HarmEstimate]) -> dict[str, HarmEstimateDict]:
 
 
 def _designs(
-    result: StudyResult, metrics: dict[str, ArmStats], percentiles: Sequence[float]
+    result: StudyResult, metrics: dict[str, ArmStats], percentiles: Sequence[float],
+    own: tuple[dict[str, MetricStats], dict[str, MetricStats], dict[str, HarmEstimate]],
 ) -> list[DesignSummary]:
     """One entry per feedforward design (the case's own first), same form as the top level.
 
     ``versus_case`` pairs each design with the case's own design on the same plants (common
     random numbers): the per-sample IAE difference ``IAE(case) - IAE(design)`` (positive: the
     design does better) and the probability that the design does worse than the case's.
+    ``own`` is the top level's improvement, ratio and harm, which the case's own entry repeats
+    (the same arm: not computed twice).
     """
     fb = arm_metrics(result.metrics, 0)
     arms = result.design_arms()
     case_iae = arms[0].metrics["iae"]
     out: list[DesignSummary] = []
-    for arm in arms:
-        improvement, ratio = _paired(fb, arm.metrics, percentiles)
+    for index, arm in enumerate(arms):
+        if index == 0:  # the case's own design is the top level's feedforward arm
+            improvement, ratio, harm = own
+            fbff_stats = {name: metrics[name]["fbff"] for name in METRIC_NAMES}
+        else:
+            improvement, ratio = _paired(fb, arm.metrics, percentiles)
+            harm = _harm(fb, arm.metrics)
+            fbff_stats = dict(zip(METRIC_NAMES, _summaries(
+                [partial(_column_stats, arm.metrics, name, None, percentiles)
+                 for name in METRIC_NAMES], result.samples), strict=True))
         versus = paired_comparison(case_iae, arm.metrics["iae"], percentiles)
         several = ({"compensators": compensator_dicts(result.case, arm.compensators)}
                    if arm.compensators else {})
         out.append(several | {
             "name": arm.name,
             "feedforward": cast(FeedforwardDesign, arm.settings.to_dict()),
-            "ff_worse": _harm_dicts(_harm(fb, arm.metrics)),
+            "ff_worse": _harm_dicts(harm),
             "ratio": ratio,
             "improvement": improvement,
             "metrics": {
-                name: cast(ArmStats, {
-                    "fb": metrics[name]["fb"],
-                    "fbff": summarize(arm.metrics[name], percentiles).to_dict(),
-                })
+                name: cast(ArmStats, {"fb": metrics[name]["fb"], "fbff": fbff_stats[name]})
                 for name in METRIC_NAMES
             },
             "unstable": int(arm.unstable.sum()),
@@ -333,12 +361,11 @@ def summarize_study(
         The ``summary.json`` content (NaN and inf still present; the writer turns them into
         null). See :mod:`robustff.study.summary_types` and ``docs/summary.schema.json``.
     """
+    stats = _summaries([partial(_column_stats, result.metrics, name, i, percentiles)
+                        for name in METRIC_NAMES for i in (0, 1)], result.samples)
     metrics: dict[str, ArmStats] = {
-        name: cast(ArmStats, {
-            arm: summarize(metric_column(result.metrics, name, i), percentiles).to_dict()
-            for i, arm in enumerate(("fb", "fbff"))
-        })
-        for name in METRIC_NAMES
+        name: cast(ArmStats, {"fb": stats[2 * k], "fbff": stats[2 * k + 1]})
+        for k, name in enumerate(METRIC_NAMES)
     }
     fb, fbff = arm_metrics(result.metrics, 0), arm_metrics(result.metrics, 1)
     improvement, ratio = _paired(fb, fbff, percentiles)
@@ -378,7 +405,7 @@ def summarize_study(
             for d in disturbance_drivers(result.case, cast(list, sensitivity))],
         "margins": _margins(result, percentiles),
         "design": cast(DesignDict, result.design.to_dict(result.case)),
-        "designs": _designs(result, metrics, percentiles),
+        "designs": _designs(result, metrics, percentiles, (improvement, ratio, harm)),
         "settling_band": result.scenario.settling_band,
         "warnings": [text for text in (noise_travel_warning(result),) if text],
         "elapsed_seconds": round(result.elapsed, 3),

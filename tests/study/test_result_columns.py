@@ -177,3 +177,14 @@ def test_the_command_writes_the_same_files_either_way(tmp_path: Path, monkeypatc
     assert one == two
     # the column folder went with the study
     assert not [path for path in tmp_path.iterdir() if path.name.startswith(".robustff-col")]
+
+
+def test_the_statistics_worked_out_in_two_threads_equal_the_serial_ones(both_ways,
+                                                                        monkeypatch) -> None:
+    import robustff.study.summary as summary_module
+
+    kept, spilled, _ = both_ways
+    serial = _summary_without_timing(summarize_study(kept, PERCENTILES))
+    monkeypatch.setattr(summary_module, "PARALLEL_SAMPLES", 0)
+    for result in (kept, spilled):
+        assert _summary_without_timing(summarize_study(result, PERCENTILES)) == serial
