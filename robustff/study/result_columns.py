@@ -22,7 +22,6 @@ import tempfile
 import weakref
 from collections.abc import Iterator, Mapping
 from pathlib import Path
-from typing import IO
 
 import numpy as np
 
@@ -56,21 +55,24 @@ class ColumnFiles:
             Path(folder).mkdir(parents=True, exist_ok=True)
         self.path = Path(tempfile.mkdtemp(prefix=f".robustff-columns-{os.getpid()}-",
                                           dir=folder))
-        self._streams: dict[str, IO[bytes]] = {}
+        self._files: dict[str, Path] = {}
         self._types: dict[str, np.dtype] = {}
         self._rows: dict[str, int] = {}
-        self._finalizer = weakref.finalize(self, _remove, self._streams, self.path)
+        self._finalizer = weakref.finalize(self, shutil.rmtree, self.path, ignore_errors=True)
 
     def append(self, key: str, values: np.ndarray) -> None:
         """Append the one-dimensional ``values`` to column ``key`` (its type fixed by the first)."""
         values = np.ascontiguousarray(values)
         if values.ndim != 1:
             raise ValueError(f"column {key!r}: one-dimensional values expected")
-        if key not in self._streams:
+        if key not in self._files:
             self._types[key] = values.dtype.newbyteorder("<")
             self._rows[key] = 0
-            self._streams[key] = open(self.path / f"{len(self._streams)}.bin", "wb")
-        self._streams[key].write(values.astype(self._types[key], copy=False).tobytes())
+            self._files[key] = self.path / f"{len(self._files)}.bin"
+        # Opened for each chunk rather than kept open: a study with many designs has hundreds
+        # of columns, more than the open files a process may have.
+        with open(self._files[key], "ab") as stream:
+            stream.write(values.astype(self._types[key], copy=False).tobytes())
         self._rows[key] += values.shape[0]
 
     def rows(self, key: str) -> int:
@@ -82,27 +84,20 @@ class ColumnFiles:
 
     def read(self, key: str, start: int = 0, stop: int | None = None) -> np.ndarray:
         """Rows ``start:stop`` of column ``key`` as a new array (native byte order)."""
-        stream = self._streams[key]
-        stream.flush()
+        path = self._files[key]
         stop = self._rows[key] if stop is None else min(stop, self._rows[key])
         count = max(stop - start, 0)
         kind = self._types[key]
-        with open(stream.name, "rb") as source:
+        with open(path, "rb") as source:
             source.seek(start * kind.itemsize)
             values = np.fromfile(source, dtype=kind, count=count)
         if values.shape[0] != count:
-            raise OSError(f"the column file {stream.name} is shorter than it should be")
+            raise OSError(f"the column file {path} is shorter than it should be")
         return values.astype(kind.newbyteorder("="), copy=False)
 
     def close(self) -> None:
         """Remove the folder now (the columns can no longer be read)."""
         self._finalizer()
-
-
-def _remove(streams: dict[str, IO[bytes]], path: Path) -> None:
-    for stream in streams.values():
-        stream.close()
-    shutil.rmtree(path, ignore_errors=True)
 
 
 class LazyColumn:

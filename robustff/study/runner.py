@@ -6,7 +6,8 @@ compiled kernel releases the GIL), or Dask futures on a cluster, which survive a
 (:mod:`robustff.study.cluster`). Each chunk's noise seeds come from
 ``numpy.random.SeedSequence(seed).spawn`` by chunk index, so the results are bit-identical
 whatever the number of jobs. Memory per chunk is bounded by the chunk
-size; only per-sample metrics (a few numbers each) are kept for the whole study.
+size; only per-sample metrics (a few numbers each) are kept for the whole study, in column files
+instead of memory when there are very many (:mod:`robustff.study.result_columns`).
 
 Progress and cancellation cross to the shells as a plain callable and a ``threading.Event``.
 """

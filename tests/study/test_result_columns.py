@@ -58,6 +58,25 @@ def test_columns_read_back_exactly_in_any_range(tmp_path: Path) -> None:
         files.append("x", np.zeros((2, 2)))
 
 
+@pytest.mark.skipif(not Path("/proc/self/fd").is_dir(), reason="counts open files in /proc")
+def test_more_columns_than_open_files_a_process_may_have(tmp_path: Path) -> None:
+    # A study with many designs has hundreds of columns: none is kept open between chunks.
+    import resource
+
+    soft, hard = resource.getrlimit(resource.RLIMIT_NOFILE)
+    resource.setrlimit(resource.RLIMIT_NOFILE, (len(list(Path("/proc/self/fd").iterdir()))
+                                                + 16, hard))
+    try:
+        files = ColumnFiles(tmp_path)
+        for chunk in range(2):
+            for key in range(100):
+                files.append(f"c{key}", np.full(3, key + 0.5 * chunk))
+    finally:
+        resource.setrlimit(resource.RLIMIT_NOFILE, (soft, hard))
+    np.testing.assert_array_equal(files.read("c7"), [7, 7, 7, 7.5, 7.5, 7.5])
+    assert files.rows("c99") == 6
+
+
 def test_the_column_folder_goes_with_its_object(tmp_path: Path) -> None:
     files = ColumnFiles(tmp_path)
     files.append("x", np.arange(4.0))
