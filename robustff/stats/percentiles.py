@@ -236,7 +236,9 @@ def _table_of_finite(data: np.ndarray, percentiles: Sequence[float],
         return {percentile_key(p): _estimate(data, p, float("nan"), confidence) for p in plist}
     # Only a few order statistics are needed: a partial sort (introselect) at those ranks puts
     # exactly the same numbers there as a full sort, at a fraction of its cost for large n.
-    levels = np.percentile(data, plist, method="linear")
+    # overwrite_input: data is this function's to reorder (the order statistics do not depend
+    # on the order it is left in by the partial sort), so numpy makes no copy of its own
+    levels = np.percentile(data, plist, method="linear", overwrite_input=True)
     ranks = {0, n - 1}
     for p in plist:
         r, s, _ = order_statistic_interval(n, p / 100.0, confidence)

@@ -123,6 +123,7 @@ def _summary_without_timing(summary: dict) -> dict:
     text = json.dumps(summary, sort_keys=True, default=str)
     out = json.loads(text)
     out.pop("elapsed_seconds", None)
+    out["reproducibility"].pop("created", None)  # the clock, to the second
     return out
 
 
