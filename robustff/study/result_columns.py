@@ -25,8 +25,8 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["SPILL_BYTES", "ColumnFiles", "LazyColumn", "SpilledMetrics", "ArmMetrics",
-           "arm_metrics", "metric_column", "spills"]
+__all__ = ["SPILL_BYTES", "ColumnFiles", "LazyColumn", "SpilledMetrics", "arm_metrics",
+           "metric_column", "spills"]
 
 #: Per-sample metric bytes of a study (samples x metrics x arms x 8) above which the runner
 #: keeps them in files: about 260,000 plants with two arms.
@@ -168,7 +168,7 @@ class SpilledMetrics(Mapping[str, np.ndarray]):
         return LazyColumn(self.files, f"{key}|{name}", self.rows)
 
 
-class ArmMetrics(Mapping[str, np.ndarray]):
+class _ArmMetrics(Mapping[str, np.ndarray]):
     """One arm of two-arm metrics: ``view[name]`` is metric ``name`` of arm ``arm``, (n,);
     read from its file when the metrics are spilled, a view of the array otherwise."""
 
@@ -187,7 +187,7 @@ class ArmMetrics(Mapping[str, np.ndarray]):
 
 def arm_metrics(metrics: Mapping[str, np.ndarray], arm: int) -> Mapping[str, np.ndarray]:
     """Arm ``arm`` (0 feedback only, 1 with feedforward) of two-arm metrics, by name."""
-    return ArmMetrics(metrics, arm)
+    return _ArmMetrics(metrics, arm)
 
 
 def metric_column(metrics: Mapping[str, np.ndarray], name: str, arm: int | None):

@@ -133,11 +133,6 @@ def _summaries(work: list[Callable[[], MetricStats]], samples: int) -> list[Metr
         return list(pool.map(lambda job: job(), work))
 
 
-def _ratio(result: StudyResult) -> np.ndarray:
-    iae = result.metrics["iae"]
-    return metric_ratio(iae[:, 0], iae[:, 1])
-
-
 def _margins(result: StudyResult, percentiles: Sequence[float]) -> MarginsSummary | None:
     """Margin percentiles, limit fractions, unstable samples, and the nominal loop's margins."""
     if result.margins is None or result.nominal_margins is None:
@@ -370,10 +365,13 @@ def summarize_study(
     fb, fbff = arm_metrics(result.metrics, 0), arm_metrics(result.metrics, 1)
     improvement, ratio = _paired(fb, fbff, percentiles)
     harm = _harm(fb, fbff)
-    iae_ratio = _ratio(result)
+    # The IAE columns read once (from their files, for a large study) for the ratio and harm.
+    iae_fb, iae_fbff = fb["iae"], fbff["iae"]
+    iae_ratio = metric_ratio(iae_fb, iae_fbff)
+    harmful = iae_fbff > iae_fb
+    del iae_fb, iae_fbff
     sensitivity: list[SensitivityRow] = []
     if result.names and result.samples > 3:
-        harmful = fbff["iae"] > fb["iae"]
         sensitivity = [
             cast(SensitivityRow, row.to_dict())
             for row in rank_sensitivity(result.parameters, result.names, iae_ratio, harmful)
