@@ -125,6 +125,10 @@ class RobustResult:
     space : SearchSpace
     evaluations : int
         Objective evaluations (simulations of the whole optimisation sample set).
+    screening_evaluations, screened : int
+        Evaluations of the screening stage and its plants, the first ``screened`` of the
+        optimisation samples (0 and 0 when the set was searched whole; see
+        :func:`screening_samples`).
     samples, seed, fresh_seed : int
     excluded : int
         Optimisation samples left out because feedback alone is unstable.
@@ -162,6 +166,8 @@ class RobustResult:
     sensitivity: list[SensitivityRow]
     improvement_interval: tuple[float, float]
     verdict: TuneVerdict
+    screening_evaluations: int = 0
+    screened: int = 0
 
     @property
     def recommended(self) -> str:
@@ -235,10 +241,12 @@ def _point(settings: FeedforwardSettings, space: SearchSpace) -> np.ndarray:
 class _SampleSet:
     """Plants and noise seeds of one sample set, simulated in parallel chunks."""
 
-    def __init__(self, case: Case, design: LoopDesign, scenario: Scenario, n: int, seed: int,
-                 pool: ThreadPoolExecutor, jobs: int) -> None:
-        self.values, self.names = sample(case, n, seed)
-        self.seeds = _noise_seeds(seed, n)
+    def __init__(self, case: Case, design: LoopDesign, scenario: Scenario,
+                 plants: tuple[np.ndarray, list[str], np.ndarray], pool: ThreadPoolExecutor,
+                 jobs: int) -> None:
+        self.values, self.names, self.seeds = plants
+        n = self.values.shape[0]
+        self.jobs = jobs
         # any chunking gives the same numbers: every sample has its own seed and state
         self.spans = chunk_spans(n, max(64, math.ceil(n / max(jobs, 1))))
         self.batches = [plant_batch(case, self.names, self.values[a:b]) for a, b in self.spans]
@@ -255,6 +263,12 @@ class _SampleSet:
         self.iae_fb = both[self.keep, 0]
         self._nominal = (design.feedforward, both[self.keep, 1])
         self._recent: dict[FeedforwardSettings, np.ndarray] = {}  # the last few designs
+
+    def head(self, m: int) -> _SampleSet:
+        """The first ``m`` plants with their own noise seeds: a subset of these plants, each
+        with the same numbers as here (every sample has its own seed and state)."""
+        return _SampleSet(self.case, self.design, self.scenario,
+                          (self.values[:m], self.names, self.seeds[:m]), self.pool, self.jobs)
 
     def _with(self, settings: FeedforwardSettings) -> LoopDesign:
         return self.design.with_headline(settings, self.case)
@@ -304,18 +318,55 @@ def evaluation_budget(dimensions: int) -> int:
     return 40 + 25 * max(dimensions - 1, 0)
 
 
+#: The screening stage searches on one plant in SCREEN_SHARE of the optimisation samples ...
+SCREEN_SHARE = 8
+#: ... when that subset holds at least this many plants (smaller sets are searched whole).
+MIN_SCREEN = 200
+
+
+def screening_samples(n: int) -> int:
+    """Plants of the screening stage for ``n`` optimisation samples (0: no screening).
+
+    The search runs in two stages, the usual way of sample-average optimisation with growing
+    samples (Homem-de-Mello and Bayraksan, "Monte Carlo sampling-based methods for stochastic
+    optimization", Surveys in Operations Research and Management Science 19, 2014, sec. 4,
+    from memory): the whole budget on the first ``n / SCREEN_SHARE`` plants, then a short
+    polish on all ``n`` from the screening's winner. The subset shares its plants and noise
+    seeds with the whole set, so the polish starts where the whole set's optimum is expected.
+    """
+    m = n // SCREEN_SHARE
+    return m if m >= MIN_SCREEN else 0
+
+
+def polish_budget(dimensions: int) -> int:
+    """Objective evaluations on the whole optimisation set after a screening stage."""
+    return 8 + 6 * dimensions
+
+
+class _Progress:
+    """Evaluations done out of the budget of both stages, reported to the caller's callback."""
+
+    def __init__(self, callback: Callable[[int, int], None] | None, budget: int) -> None:
+        self.callback, self.budget, self.done = callback, budget, 0
+
+    def step(self) -> None:
+        self.done += 1
+        if self.callback is not None:
+            self.callback(min(self.done, self.budget), self.budget)
+
+
 class _Objective:
     """Cached score of a point of the unit box on the optimisation samples."""
 
     def __init__(self, samples: _SampleSet, space: SearchSpace, nominal: FeedforwardSettings,
                  base_gain: float, settings: tuple[str, float, float],
-                 progress: Callable[[int, int], None] | None, budget: int) -> None:
+                 progress: _Progress) -> None:
         self.samples, self.space, self.nominal, self.base_gain = samples, space, nominal, base_gain
         self.objective, self.percentile, self.cvar_alpha = settings
         finite = samples.iae_fb[np.isfinite(samples.iae_fb)]
         self.penalty = 10.0 * float(np.max(finite, initial=1.0))
         self.cache: dict[tuple[float, ...], float] = {}
-        self.progress, self.budget = progress, budget
+        self.progress = progress
 
     def settings_at(self, z: np.ndarray) -> FeedforwardSettings:
         z = np.clip(np.asarray(z, dtype=float), 0.0, 1.0)
@@ -332,8 +383,7 @@ class _Objective:
             fbff = self.samples.iae_fbff(self.settings_at(np.array(key)))
             self.cache[key] = search_score(self.objective, self.samples.iae_fb, fbff, self.penalty,
                                      self.percentile, self.cvar_alpha)
-            if self.progress is not None:
-                self.progress(len(self.cache), self.budget)
+            self.progress.step()
         return self.cache[key]
 
     def best(self) -> np.ndarray:
@@ -349,7 +399,9 @@ def _initial_simplex(start: np.ndarray, size: float = 0.15) -> np.ndarray:
     return simplex
 
 
-def _minimise(objective: _Objective, starts: list[np.ndarray], budget: int) -> str:
+def _minimise(objective: _Objective, starts: list[np.ndarray], budget: int,
+              size: float = 0.15) -> str:
+    """Nelder-Mead from the best of ``starts`` with a simplex of ``size`` (unit box)."""
     from scipy.optimize import minimize
 
     start = min(starts, key=objective)
@@ -357,7 +409,7 @@ def _minimise(objective: _Objective, starts: list[np.ndarray], budget: int) -> s
     fatol = 1e-4 * abs(f0) if math.isfinite(f0) and f0 != 0.0 else 1e-12
     result = minimize(
         objective, start, method="Nelder-Mead", bounds=[(0.0, 1.0)] * start.size,
-        options={"initial_simplex": _initial_simplex(start), "maxfev": budget,
+        options={"initial_simplex": _initial_simplex(start, size), "maxfev": budget,
                  "xatol": 2e-3, "fatol": fatol},
     )
     return str(result.message)
@@ -419,7 +471,9 @@ class _Problem:
 
     def sample_set(self, n: int, seed: int, pool: ThreadPoolExecutor, jobs: int) -> _SampleSet:
         """``n`` sampled plants from ``seed``, with the feedback arm simulated."""
-        return _SampleSet(self.case, self.design, self.scenario, n, seed, pool, jobs)
+        values, names = sample(self.case, n, seed)
+        return _SampleSet(self.case, self.design, self.scenario,
+                          (values, names, _noise_seeds(seed, n)), pool, jobs)
 
     def compare(self, robust: FeedforwardSettings, sets: dict[str, _SampleSet],
                 settings: tuple[str, float, float]) -> dict[str, dict[str, DesignFigures]]:
@@ -432,25 +486,47 @@ class _Problem:
                 for name, design in designs.items()}
 
 
-def _optimise(optimisation: _SampleSet, problem: _Problem, settings: tuple[str, float, float],
-              progress: Callable[[int, int], None] | None) -> tuple[FeedforwardSettings, str, int]:
-    """Minimise the score on the optimisation samples from the nominal design (and the rule).
+@dataclass(frozen=True)
+class _Search:
+    """What :func:`_optimise` found: the rounded winner, the optimiser's message, the
+    evaluations on the whole optimisation set, and those of the screening stage on its
+    ``screened`` first plants (0 and 0 without one)."""
 
-    Returns the winner rounded to 4 significant digits, the optimiser's message and the number
-    of objective evaluations.
-    """
+    robust: FeedforwardSettings
+    message: str
+    evaluations: int
+    screening_evaluations: int
+    screened: int
+
+
+def _optimise(optimisation: _SampleSet, problem: _Problem, settings: tuple[str, float, float],
+              progress: Callable[[int, int], None] | None) -> _Search:
+    """Minimise the score on the optimisation samples from the nominal design (and the rule),
+    screening on a subset first when the set is large (:func:`screening_samples`)."""
     if optimisation.iae_fb.size == 0:
         raise DesignError("tune: feedback alone is unstable on every sample; fix the feedback "
                           "design before tuning the feedforward")
     nominal, space, rule = problem.nominal, problem.space, problem.rule
-    target = _Objective(optimisation, space, nominal, problem.base_gain, settings, progress,
-                        problem.budget)
+    m = screening_samples(optimisation.values.shape[0])
+    polish = polish_budget(len(space.names))
+    counter = _Progress(progress, problem.budget + polish if m else problem.budget)
+    target = _Objective(optimisation, space, nominal, problem.base_gain, settings, counter)
     starts = [target.unit(nominal)]
     if rule is not None and space.names != ("gain_factor",):
         starts.append(target.unit(replace(rule, structure=nominal.structure)))
-    message = _minimise(target, starts, problem.budget)
+    screen = optimisation.head(m) if m else None
+    if screen is None or screen.iae_fb.size == 0:
+        message = _minimise(target, starts, problem.budget)
+        screening = 0
+    else:
+        first = _Objective(screen, space, nominal, problem.base_gain, settings, counter)
+        _minimise(first, starts, problem.budget)
+        # The polish judges the screening's winner against the starts on every plant, so the
+        # result is never worse there than the nominal design.
+        message = _minimise(target, [first.best(), *starts], polish, size=0.05)
+        screening = len(first.cache)
     robust = _rounded(target.settings_at(target.best()), space, problem.base_gain)
-    return robust, message, len(target.cache)
+    return _Search(robust, message, len(target.cache), screening, m if screening else 0)
 
 
 def robust_search(
@@ -512,7 +588,8 @@ def robust_search(
     jobs = jobs or os.cpu_count() or 1
     with ThreadPoolExecutor(max_workers=jobs) as pool:
         optimisation = problem.sample_set(n, seed, pool, jobs)
-        robust, message, evaluations = _optimise(optimisation, problem, settings, progress)
+        search = _optimise(optimisation, problem, settings, progress)
+        robust = search.robust
         fresh = problem.sample_set(n, fresh_seed, pool, jobs)
         sets = {"optimisation": optimisation, "fresh": fresh}
         figures = problem.compare(robust, sets, settings)
@@ -522,8 +599,9 @@ def robust_search(
         objective, problem.nominal, robust, problem.rule,
         figures["robust"]["optimisation"].objective, figures["robust"]["fresh"].objective, figures,
         {label: s.feedback_percentiles() for label, s in sets.items()}, problem.space,
-        evaluations, n, seed, fresh_seed, int(np.sum(~optimisation.keep)), message,
+        search.evaluations, n, seed, fresh_seed, int(np.sum(~optimisation.keep)), search.message,
         _sensitivity(optimisation, problem.nominal), interval, verdict,
+        search.screening_evaluations, search.screened,
     )
 
 
