@@ -19,7 +19,7 @@ from typing import TYPE_CHECKING
 from textual import work
 from textual.app import App, ComposeResult, SystemCommand
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.containers import Horizontal, Vertical
 from textual.screen import Screen
 from textual.widgets import Footer, Header
 
@@ -46,6 +46,7 @@ from robustff.tui.models_pane import FieldRow, ModelsPane
 from robustff.tui.pictures import PicturesPane
 from robustff.tui.results_pane import STARTING, CautionLine, ResultsPane, StaleLine
 from robustff.tui.robust_actions import RobustActions
+from robustff.tui.scroll_pane import ScrollPane
 from robustff.tui.uncertainty_pane import UncertainRow, UncertaintyPane
 from robustff.tui.undo import UndoActions
 from robustff.tui.view import StudyView
@@ -142,12 +143,12 @@ class StudioApp(KeyOrder, UndoActions, FileActions, RobustActions, FitActions,
     def compose(self) -> ComposeResult:
         yield Header(show_clock=False)
         with Horizontal(id="main"):
-            with VerticalScroll(id="editor"):
+            with ScrollPane(id="editor"):
                 yield ModelsPane(self.case, id="models")
                 yield UncertaintyPane(self.case, id="uncertainty")
             with Vertical(id="right"):
                 yield StaleLine()
-                with VerticalScroll(id="results-scroll"):
+                with ScrollPane(id="results-scroll"):
                     yield ResultsPane(id="results")
                     yield PicturesPane(id="pictures")
                 yield CautionLine()

@@ -65,3 +65,44 @@ def test_focus_shows_in_a_16_colour_terminal_without_colour(
             assert all(line[column] == "┃" for line in lines)
 
     asyncio.run(scenario())
+
+
+def test_a_pane_gaining_or_losing_focus_restyles_only_itself(
+        case_file: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Textual restyles a widget's whole subtree on a focus change; the editor holds some 300
+    # widgets, and restyling them cost a quarter of a second at start and at each Tab into or
+    # out of the pane. Its focus bar must still come and go.
+    from textual.css.stylesheet import Stylesheet
+
+    applied: list[object] = []
+    original = Stylesheet.apply
+
+    def counting(self, node, *args, **kwargs):
+        applied.append(node)
+        return original(self, node, *args, **kwargs)
+
+    async def scenario() -> None:
+        app = studio(case_file, tmp_path / "cache", live=False)
+        async with app.run_test(size=(80, 24)) as pilot:
+            editor = app.query_one("#editor")
+            fields = set(editor.query("Input"))
+            assert len(fields) > 20
+
+            def inside(node) -> bool:  # a field of the pane (its own scroll bars aside)
+                return node in fields
+            column = editor.region.x
+            app.set_focus(None)
+            await pilot.pause()
+            assert app.screen_text().splitlines()[editor.region.y + 1][column] == " "
+            monkeypatch.setattr(Stylesheet, "apply", counting)
+            editor.focus()
+            await pilot.pause()
+            assert app.screen_text().splitlines()[editor.region.y + 1][column] == "┃"
+            assert not [node for node in applied if inside(node)]
+            applied.clear()
+            app.set_focus(None)
+            await pilot.pause()
+            assert app.screen_text().splitlines()[editor.region.y + 1][column] == " "
+            assert not [node for node in applied if inside(node)]
+
+    asyncio.run(scenario())
