@@ -1,6 +1,7 @@
 """The kernels' normal draws checked against the standard normal distribution (scipy)."""
 
 import numpy as np
+import pytest
 from numba import njit
 from scipy import stats
 
@@ -17,10 +18,9 @@ def _draws(seed: int, n: int) -> np.ndarray:
 
 
 def test_draws_are_standard_normal_and_uncorrelated():
-    # Source: Box and Muller, "A note on the generation of random normal deviates", Annals of
-    # Mathematical Statistics 29, 1958: both members of a pair are independent N(0, 1). Checked
-    # with scipy.stats.kstest against the standard normal, and the lag-1 and lag-2
-    # autocorrelations (within and across pairs) against zero, each within 4 standard errors.
+    # Checked with scipy.stats.kstest against the standard normal, the mean and standard
+    # deviation, and the lag-1 and lag-2 autocorrelations against zero, each within 4 standard
+    # errors.
     n = 200_000
     x = _draws(12345, n)
     assert stats.kstest(x, "norm").pvalue > 1e-4
@@ -30,10 +30,42 @@ def test_draws_are_standard_normal_and_uncorrelated():
     for lag in (1, 2):
         r = np.corrcoef(x[:-lag], x[lag:])[0, 1]
         assert abs(r) < 4 * standard_error
-    # The cosine and sine members squared add to the pair's -2 ln(u1), an exponential with
-    # mean 2 (chi-square with 2 degrees of freedom).
-    radius_squared = x[0::2] ** 2 + x[1::2] ** 2
-    assert stats.kstest(radius_squared, "chi2", args=(2,)).pvalue > 1e-4
+
+
+def test_tails_and_wedges_follow_the_normal():
+    # The ziggurat's slow paths (the wedges between strips and the tail beyond the base edge
+    # r = 3.654) must give the normal's own tail: counts beyond 2, 3, r and 4.2 against
+    # scipy.stats.norm.sf (Poisson, within 4 standard deviations), and the excess over r
+    # of the draws beyond it against the normal's conditional tail (Kolmogorov-Smirnov).
+    n = 4_000_000
+    x = np.abs(_draws(99, n))
+    for edge in (2.0, 3.0, 3.6541528853610088, 4.2):
+        expected = n * 2.0 * stats.norm.sf(edge)
+        assert abs(np.sum(x > edge) - expected) < 4.0 * np.sqrt(expected) + 1.0
+    beyond = x[x > 3.0]
+    conditional = stats.truncnorm(3.0, np.inf)
+    assert stats.kstest(beyond, conditional.cdf).pvalue > 1e-4
+
+
+def test_ziggurat_tables_match_the_published_256_strip_constants():
+    # Source: Marsaglia and Tsang, "The ziggurat method for generating random variables",
+    # Journal of Statistical Software 5(8), 2000, the 256-strip normal: base edge
+    # r = 3.6541528853610088, strip area v = 4.92867323399e-3 (from memory). Each strip's
+    # area is then v: checked here from the tables (outer edge times height difference).
+    import math
+
+    from robustff.engine.random_draws import ziggurat_tables
+
+    k, w, f, r = ziggurat_tables()
+    assert r == pytest.approx(3.6541528853610088, rel=1e-14)
+    v = 4.92867323399e-3
+    edges = w * 2.0 ** 52
+    base = r * math.exp(-0.5 * r * r) + math.sqrt(math.pi / 2) * math.erfc(r / math.sqrt(2))
+    assert base == pytest.approx(v, rel=1e-10)
+    assert edges[0] * f[-1] == pytest.approx(v, rel=1e-10)  # the base's virtual rectangle
+    areas = edges[1:] * (f[:-1] - f[1:])
+    np.testing.assert_allclose(areas, v, rtol=1e-9)
+    assert k[1] == 0 and np.all(np.diff(edges[1:]) > 0.0)
 
 
 def test_each_seed_gives_its_own_reproducible_stream():
