@@ -388,9 +388,12 @@ def _secondary_control(state: tuple, e: float, sec: SecondaryParams) -> tuple:
 @njit(cache=True, nogil=True, inline="always")
 def _actuate(u: float, q: int, vs: ValveState, ss: tuple, xs: tuple, ring: np.ndarray,
              row: int, size: int, mask: int, m_s: int, cs: PathCoefficients, vp: ValveParams,
-             table: np.ndarray, valve_kind: int, sec: SecondaryParams) -> tuple:
+             table: np.ndarray, valve_kind: int, sec: SecondaryParams,
+             secondary_scan: bool) -> tuple:
     """The process input over internal step ``q`` from the primary output ``u``; returns
-    ``(w, valve state, secondary state, secondary path state)``.
+    ``(w, valve state, secondary state, secondary path state)``. ``secondary_scan``: the
+    secondary controller scans at this step (``q % sec.every == 0``, counted once per step by
+    the caller: an integer division per arm and step took about a tenth of the run).
 
     Without a secondary loop ``u`` goes through the valve (if any) to the process. With one,
     ``u`` is the flow setpoint of the secondary controller, whose output goes through the valve
@@ -402,7 +405,7 @@ def _actuate(u: float, q: int, vs: ValveState, ss: tuple, xs: tuple, ring: np.nd
             vs, w = _valve_step(vs, vp, table)
         return w, vs, ss, xs
     flow = _output(xs, cs)
-    if q % sec.every == 0:
+    if secondary_scan:
         ss = _secondary_control(ss, u - flow, sec)
         if valve_kind > 0:
             vs = _valve_scan(vs, ss[1], vp)
@@ -418,7 +421,7 @@ def _actuate(u: float, q: int, vs: ValveState, ss: tuple, xs: tuple, ring: np.nd
 @njit(cache=True, nogil=True, inline="always")
 def _probe_actuate(u: float, q: int, lag: float, ss: tuple, xs: tuple, ring: np.ndarray,
                    row: int, size: int, mask: int, m_s: int, cs: PathCoefficients,
-                   pole: float, sec: SecondaryParams) -> tuple:
+                   pole: float, sec: SecondaryParams, secondary_scan: bool) -> tuple:
     """The stability probe's process input over internal step ``q``: the loop linearised at the
     nominal position (valve slope 1, the actuator lag with pole ``pole`` per internal step, no
     stiction, deadband, rate limit or limits); returns ``(w, lag state, secondary state,
@@ -427,7 +430,7 @@ def _probe_actuate(u: float, q: int, lag: float, ss: tuple, xs: tuple, ring: np.
         lag = pole * lag + (1.0 - pole) * u
         return lag, lag, ss, xs
     flow = _output(xs, cs)
-    if q % sec.every == 0:
+    if secondary_scan:
         ss = _secondary_control(ss, u - flow, sec)
     lag = pole * lag + (1.0 - pole) * ss[1]
     ring[row * size + (q & mask)] = lag
@@ -694,6 +697,7 @@ def _simulate_sample(
     x0 = x1 = xq = (0.0, 0.0)  # path states (x1, x2)
     sq = ProbeState(0.0, 0.0, 0.0, 0.0, 0.0, False)
     q2, q3 = n_steps // 2, (3 * n_steps) // 4
+    phase = 0  # internal steps since the secondary controller's last scan
     u0 = u1 = uq = 0.0
     row_s = _SECONDARY_ROW
     for k in range(n_steps):
@@ -703,6 +707,9 @@ def _simulate_sample(
             t = q * hi
             weight = max(t - mp.t_start, 0.0)
             mpk = step_metric_params(mp, q, direction_profile, segment_profile)
+            # q % sec.every == 0, counted rather than divided
+            secondary_scan = sec.present and phase == 0
+            phase = phase + 1 if phase + 1 < sec.every else 0
             yd = effect[q]
             sp = setpoint_profile[q]
             y0, y1 = _output(x0, cp) + yd, _output(x1, cp) + yd
@@ -731,20 +738,22 @@ def _simulate_sample(
             if feedback_arm and alive0:
                 acc0, last0 = _arm_metrics(acc0, last0, sp - y0, t, weight, mpk)
                 w0, v0, ss0, xs0 = _actuate(u0, q, v0, ss0, xs0, ring, row_s, size, mask, m_s,
-                                            cs, vp, valve_table, valve_kind, sec)
+                                            cs, vp, valve_table, valve_kind, sec,
+                                            secondary_scan)
                 ring[q & mask] = w0
                 x0 = _path_step(x0, cp, ring[(q - m_p) & mask], ring[(q - m_p - 1) & mask])
             if alive1:
                 acc1, last1 = _arm_metrics(acc1, last1, sp - y1, t, weight, mpk)
                 w1, v1, ss1, xs1 = _actuate(u1, q, v1, ss1, xs1, ring, row_s + 1, size, mask,
-                                            m_s, cs, vp, valve_table, valve_kind, sec)
+                                            m_s, cs, vp, valve_table, valve_kind, sec,
+                                            secondary_scan)
                 ring[size + (q & mask)] = w1
                 x1 = _path_step(x1, cp, ring[size + ((q - m_p) & mask)],
                                 ring[size + ((q - m_p - 1) & mask)])
             if feedback_arm and fine_q:  # the probe with its (linear) secondary loop and lag
                 flow, lag_q, ssq, xsq = _probe_actuate(uq + 1.0, q, lag_q, ssq, xsq, ring,
                                                        row_s + 2, size, mask, m_s, cs, pole_q,
-                                                       secq)
+                                                       secq, secondary_scan)
                 ring[2 * size + (q & mask)] = flow
                 xq = _path_step(xq, cp, ring[2 * size + ((q - m_p) & mask)],
                                 ring[2 * size + ((q - m_p - 1) & mask)])
