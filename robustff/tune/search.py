@@ -332,7 +332,9 @@ def screening_samples(n: int) -> int:
     optimization", Surveys in Operations Research and Management Science 19, 2014, sec. 4,
     from memory): the whole budget on the first ``n / SCREEN_SHARE`` plants, then a short
     polish on all ``n`` from the screening's winner. The subset shares its plants and noise
-    seeds with the whole set, so the polish starts where the whole set's optimum is expected.
+    seeds with the whole set, so the polish starts where the whole set's optimum is expected;
+    its plants spread like the whole set's (a Latin hypercube's columns are shuffled, so its
+    first rows are a random subset of them, and a Sobol sequence's first points are balanced).
     """
     m = n // SCREEN_SHARE
     return m if m >= MIN_SCREEN else 0
