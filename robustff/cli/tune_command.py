@@ -155,20 +155,12 @@ def _print_sobol(case, sobol) -> None:
         print(f"  {name:<28}{first:>12.3f}{total:>10.3f}")
 
 
-def _evaluations_text(result) -> str:
-    """How many evaluations the search made, on how many plants."""
-    if not result.screened:
-        return f"{result.evaluations} evaluations"
-    return (f"{result.screening_evaluations} evaluations on the first {result.screened} samples, "
-            f"then {result.evaluations} on all")
-
-
 def _print_human(case, result, args, written: Path | None, warnings: list[str], elapsed: float,
                  sobol) -> None:
     print(case.title)
     print(f"Objective: {_objective_title(args)}; {result.samples} samples (seed {result.seed}), "
           f"re-checked on {result.samples} fresh samples (seed {result.fresh_seed}); "
-          f"{_evaluations_text(result)}, {elapsed:.1f} s")
+          f"{result.evaluations_text}, {elapsed:.1f} s")
     tuned = (f"; the compensator of {case.headline_input.name} only, the other disturbances "
              "keep theirs" if len(case.disturbance_inputs) > 1 else "")
     print(f"Searched: {', '.join(result.space.names)} (feedback design fixed{tuned})")

@@ -151,7 +151,7 @@ class RobustResultScreen(ModalScreen[bool]):
     def compose(self) -> ComposeResult:
         result = self.result
         head = (f"Robust feedforward, minimising {OBJECTIVE_WORDS[result.objective]}: "
-                f"{_evaluations(result)}, re-checked on {result.samples} fresh ones.")
+                f"{result.evaluations_text}, re-checked on {result.samples} fresh ones.")
         with Vertical(classes="dialog", id="robust-dialog"):
             with VerticalScroll(id="robust-body"):
                 yield Static(head, classes="question")
@@ -188,11 +188,3 @@ def _recommendation(result: RobustResult) -> str:
     """The verdict of ``robustff tune`` in brief (the figures are in the table below; the
     text carries its units, taken from the case as the studio's own are)."""
     return f"Verdict: {result.verdict.brief}"
-
-
-def _evaluations(result: RobustResult) -> str:
-    """The search's evaluations and plants, with its screening stage when it had one."""
-    whole = f"{result.evaluations} evaluations on {result.samples} plants"
-    if not result.screened:
-        return whole
-    return f"{result.screening_evaluations} evaluations on {result.screened} plants, then {whole}"

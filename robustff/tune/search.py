@@ -170,6 +170,15 @@ class RobustResult:
     screened: int = 0
 
     @property
+    def evaluations_text(self) -> str:
+        """The search's evaluations and on how many plants, with the screening stage when it
+        had one (the printout's and the studio's wording)."""
+        if not self.screened:
+            return f"{self.evaluations} evaluations on {self.samples} plants"
+        return (f"{self.screening_evaluations} evaluations on the first {self.screened} plants, "
+                f"then {self.evaluations} on all {self.samples}")
+
+    @property
     def recommended(self) -> str:
         """``"robust"``, ``"nominal"`` or ``"none"`` (:attr:`verdict`)."""
         return self.verdict.recommended
@@ -510,25 +519,27 @@ def _optimise(optimisation: _SampleSet, problem: _Problem, settings: tuple[str, 
                           "design before tuning the feedforward")
     nominal, space, rule = problem.nominal, problem.space, problem.rule
     m = screening_samples(optimisation.values.shape[0])
+    screen = optimisation.head(m) if m else None
+    if screen is not None and screen.iae_fb.size == 0:
+        screen = None  # feedback alone unstable on every screened plant: search them all
     polish = polish_budget(len(space.names))
-    counter = _Progress(progress, problem.budget + polish if m else problem.budget)
+    counter = _Progress(progress, problem.budget + (polish if screen is not None else 0))
     target = _Objective(optimisation, space, nominal, problem.base_gain, settings, counter)
     starts = [target.unit(nominal)]
     if rule is not None and space.names != ("gain_factor",):
         starts.append(target.unit(replace(rule, structure=nominal.structure)))
-    screen = optimisation.head(m) if m else None
-    if screen is None or screen.iae_fb.size == 0:
+    if screen is None:
         message = _minimise(target, starts, problem.budget)
-        screening = 0
+        screening, screened = 0, 0
     else:
         first = _Objective(screen, space, nominal, problem.base_gain, settings, counter)
         _minimise(first, starts, problem.budget)
         # The polish judges the screening's winner against the starts on every plant, so the
         # result is never worse there than the nominal design.
         message = _minimise(target, [first.best(), *starts], polish, size=0.05)
-        screening = len(first.cache)
+        screening, screened = len(first.cache), m
     robust = _rounded(target.settings_at(target.best()), space, problem.base_gain)
-    return _Search(robust, message, len(target.cache), screening, m if screening else 0)
+    return _Search(robust, message, len(target.cache), screening, screened)
 
 
 def robust_search(

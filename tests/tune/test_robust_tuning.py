@@ -134,6 +134,8 @@ def test_screening_stage_finds_the_whole_sets_optimum():
     detuned = replace(case, feedforward=replace(case.feedforward, gain_factor=0.7))
     result = robust_search(detuned, objective="p90")
     assert result.screened == 200 and result.screening_evaluations > 10
+    assert result.evaluations_text == (f"{result.screening_evaluations} evaluations on the "
+                                       f"first 200 plants, then {result.evaluations} on all 1600")
     assert 3 <= result.evaluations <= polish_budget(3) + 3  # + the starts judged on all
     kd, _ = sample(detuned, 1600, 5)
     assert result.robust.gain_factor == pytest.approx(sample_optimum(kd[:, 0] / 1.0), abs=0.01)
