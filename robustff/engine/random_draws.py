@@ -62,6 +62,8 @@ def ziggurat_tables(strips: int = STRIPS) -> tuple[np.ndarray, np.ndarray, np.nd
     low, high = 2.0, 5.0
     for _ in range(200):
         middle = 0.5 * (low + high)
+        if not low < middle < high:  # the bracket is one ulp wide: nothing changes any more
+            break
         # A base edge too far out leaves the top strip too much area, and the other way round.
         if _top_gap(middle, strips) > 0.0:
             high = middle

@@ -46,7 +46,7 @@ def cluster_results(
     Parameters
     ----------
     tasks : sequence of (callable, tuple, dict)
-        As made by ``joblib.delayed``.
+        The function and its arguments.
     address : str
         The scheduler, ``tcp://HOST:PORT``.
     grace : float, optional

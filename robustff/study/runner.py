@@ -1,7 +1,7 @@
 """The study runner: a case in, per-sample results of the whole Monte Carlo out.
 
 The samples are drawn once for the whole study (same case and seed, same samples), split into
-chunks of a fixed size, and the chunks are simulated in parallel: joblib threads locally (the
+chunks of a fixed size, and the chunks are simulated in parallel: a pool of threads locally (the
 compiled kernel releases the GIL), or Dask futures on a cluster, which survive a lost worker
 (:mod:`robustff.study.cluster`). Each chunk's noise seeds come from
 ``numpy.random.SeedSequence(seed).spawn`` by chunk index, so the results are bit-identical
@@ -17,6 +17,7 @@ from __future__ import annotations
 import os
 import threading
 import time
+from collections import deque
 from collections.abc import Callable, Iterator, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -46,6 +47,9 @@ __all__ = ["StudyResult", "DesignArm", "SampleRows", "run_study", "noise_seeds",
 
 #: Samples per chunk. Fixed (not derived from the number of jobs) so results never depend on it.
 CHUNK_SIZE = 1000
+#: Chunks submitted per local job ahead of the one being read: keeps both cores busy while the
+#: main thread stores a result, and bounds the chunks in memory.
+IN_FLIGHT_PER_JOB = 2
 #: Number of samples whose full trajectories are kept for plots.
 KEPT_TRAJECTORIES = 5
 #: Stability margins are computed for the first this many samples (a large subset is enough for
@@ -280,14 +284,33 @@ def _chunks(n: int, size: int) -> list[_Chunk]:
 
 
 def _parallel_results(tasks: list, jobs: int, cluster: str | None) -> Iterator:
-    """Run the delayed tasks in order; local threads, or a Dask cluster when ``cluster`` is set."""
-    import joblib
-
+    """Run the ``(function, args, kwargs)`` tasks; results in task order. Local threads, or a
+    Dask cluster when ``cluster`` is set."""
     if cluster is None:
-        yield from joblib.Parallel(n_jobs=jobs, prefer="threads", return_as="generator")(tasks)
+        yield from _thread_results(tasks, jobs)
         return
     # Chunks as Dask futures: a lost worker's chunks are rerun elsewhere (robustff.study.cluster).
     yield from cluster_results(tasks, cluster)
+
+
+def _thread_results(tasks: list, jobs: int) -> Iterator:
+    """The tasks on ``jobs`` threads, results in task order, at most ``IN_FLIGHT_PER_JOB`` x
+    ``jobs`` submitted and not yet read (memory bounded whatever the number of chunks).
+    Closing the generator cancels the tasks not yet started; running ones finish."""
+    ahead = max(1, IN_FLIGHT_PER_JOB * jobs)
+    pool = ThreadPoolExecutor(jobs, thread_name_prefix="chunk")
+    pending: deque = deque()
+    try:
+        for function, args, kwargs in tasks:
+            pending.append(pool.submit(function, *args, **kwargs))
+            if len(pending) >= ahead:
+                yield pending.popleft().result()
+        while pending:
+            yield pending.popleft().result()
+    finally:
+        for future in pending:
+            future.cancel()
+        pool.shutdown(wait=False)
 
 
 def run_study(
@@ -351,14 +374,10 @@ def run_study(
     grid = _envelope_grid(scenario, nominal_traj)
     values, names = sample(case, n, seed)
     chunks = _chunks(n, chunk_size)
-    from joblib import delayed
-
     seeds = noise_seeds(seed, n, chunk_size)
     tasks = [
-        delayed(_run_chunk)(
-            case, design, scenario, grid, names, values[c.start : c.stop],
-            seeds[c.start : c.stop], KEPT_TRAJECTORIES if c.index == 0 else 0,
-        )
+        (_run_chunk, (case, design, scenario, grid, names, values[c.start : c.stop],
+                      seeds[c.start : c.stop], KEPT_TRAJECTORIES if c.index == 0 else 0), {})
         for c in chunks
     ]
     collected = _Collected(design, n, scenario.n_steps, spill_folder)

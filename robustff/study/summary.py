@@ -104,7 +104,6 @@ def metric_unit(result: StudyResult, metric: str) -> str:
 
 
 def _versions() -> Versions:
-    import joblib
     import numba
     import scipy
 
@@ -114,7 +113,6 @@ def _versions() -> Versions:
         "numpy": np.__version__,
         "scipy": scipy.__version__,
         "numba": numba.__version__,
-        "joblib": joblib.__version__,
     }
 
 

@@ -286,7 +286,6 @@ class Versions(TypedDict):
     numpy: str
     scipy: str
     numba: str
-    joblib: str
 
 
 class CaseFile(TypedDict):
