@@ -42,10 +42,11 @@ _LABELS = {
     "structure": "structure", "gain_factor": "gain factor",
     "lead": "ff lead", "lag": "ff lag", "delay": "ff delay",
     # the valve (the same words as the design summary's installed loop)
-    "valve.characteristic": "characteristic", "valve.rangeability": "rangeability",
+    # (at most 11 characters: the label column holds the focus mark, the label and a space)
+    "valve.characteristic": "curve", "valve.rangeability": "rangeab. R",
     "valve.stiction_s": "stiction S", "valve.stiction_j": "slip jump J",
     "valve.deadband": "deadband", "valve.rate_limit": "rate limit",
-    "valve.time_constant": "actuator lag", INSTALLED_FIELD: "installed",
+    "valve.time_constant": "act. lag", INSTALLED_FIELD: "installed",
     # the controller as the control system writes it
     "feedback.proportional_band": "PB (manual)", "feedback.repeats": "repeats",
     "feedback.ki": "Ki (manual)", "feedback.kd": "Kd (manual)",
@@ -200,16 +201,17 @@ class ModelsPane(Vertical):
         yield Static("Feedforward", classes="section")
         overridden = [item.name for item in case.disturbances if item.feedforward is not None]
         if case.disturbances:  # [feedforward] is every measured disturbance's rule
-            yield Static("  for every measured disturbance" + (
+            yield Static(escape("  for every measured disturbance" + (
                 f"; {', '.join(overridden)} overridden by [feedforward.NAME] in the case file"
-                if overridden else ""), classes="hint")
+                if overridden else "")), classes="hint")
         for name in ("structure", "gain_factor", "lead", "lag", "delay"):
             yield FieldRow(case, f"feedforward.{name}")
         yield Static("Valve (none: ideal actuator)", classes="section")
-        yield Static(f"  stiction S, J and deadband in % of travel; rate limit in "
-                     f"%/{case.time_unit}; actuator lag in {case.time_unit}; rangeability "
-                     "(equal-percentage only) dimensionless; installed: position % : flow "
-                     "fraction pairs", classes="hint")
+        yield Static(f"  curve: the valve's characteristic; stiction S, J and deadband in % of "
+                     f"travel; rate limit in %/{case.time_unit}; act. lag (the actuator's) in "
+                     f"{case.time_unit}; rangeab. R: rangeability (equal-percentage only), "
+                     "dimensionless; installed: position % : flow fraction pairs",
+                     classes="hint")
         for field in VALVE_FIELDS:
             yield FieldRow(case, field)
         yield from self._secondary_rows(case)
@@ -217,7 +219,7 @@ class ModelsPane(Vertical):
 
     def _secondary_rows(self, case: Case) -> ComposeResult:
         if case.secondary is None:
-            yield Static("Secondary loop: none (add [secondary] in the case file)",
+            yield Static(escape("Secondary loop: none (add [secondary] in the case file)"),
                          classes="section")
             return
         flow = case.signals.output.unit or "flow unit"

@@ -6,12 +6,14 @@ from __future__ import annotations
 
 import asyncio
 import math
+import shutil
 from pathlib import Path
 
 import numpy as np
 import pytest
 
 from robustff import CAUTION
+from robustff.demo import demo_case_path
 
 textual = pytest.importorskip("textual")
 
@@ -109,3 +111,30 @@ def test_table_cells_stay_short() -> None:
         assert table_cell(value) == text and len(text) <= 8
         if math.isfinite(value):  # three significant digits at least
             assert float(text) == pytest.approx(value, rel=5e-3)
+
+
+
+@pytest.mark.parametrize("demo", ["wash-water-heater", "steam-heater-sticky-valve",
+                                  "pasteuriser-tempering-tank"])
+def test_every_field_label_keeps_a_space_and_case_keys_show_as_typed(demo: str,
+                                                                    tmp_path: Path) -> None:
+    # "characteristic" ran into its value ("characteristnone"), and "[secondary]" was read as
+    # markup and vanished from "add [secondary] in the case file".
+    source = demo_case_path(demo)
+    folder = shutil.copytree(source.parent, tmp_path / "demo")  # with its recorded traces
+    case_file = Path(folder) / source.name
+
+    async def scenario() -> None:
+        app = studio(case_file, tmp_path / "cache")
+        async with app.run_test(size=(160, 50)) as pilot:
+            await pilot.pause()
+            labels = list(app.query(".field-label"))
+            assert len(labels) > 20
+            for label in labels:
+                text = str(label.render()).rstrip()
+                assert len(text) < label.region.width, (text, label.region.width)
+            section = [str(widget.render()) for widget in app.query(".section")]
+            if app.case.secondary is None:
+                assert "Secondary loop: none (add [secondary] in the case file)" in section
+
+    asyncio.run(scenario())
