@@ -2,12 +2,12 @@
 
 A study keeps every sample's metrics for every arm (12 metrics x 8 bytes x arms per sample:
 192 MB for 10^6 plants and two arms). Above :data:`SPILL_BYTES` the runner appends each
-finished chunk's columns to raw files in a temporary folder (:class:`ColumnFiles`) and hands
-out :class:`SpilledMetrics`, a read-only mapping that reads a column from its file each time it
-is asked for. The summary and the writers then hold a few columns at a time, so the peak memory
-stays near the fixed cost of the process whatever the number of samples. The values are the
-same float64 numbers, bit for bit; the files are removed when the study's result is garbage
-collected or the interpreter exits.
+finished chunk's columns to raw files in a temporary folder (:class:`ColumnFiles`, which writes
+them in batches of a few megabytes) and hands out :class:`SpilledMetrics`, a read-only mapping
+that reads a column from its file each time it is asked for. The summary and the writers then
+hold a few columns at a time, so the peak memory stays near the fixed cost of the process
+whatever the number of samples. The values are the same float64 numbers, bit for bit; the files
+are removed when the study's result is garbage collected or the interpreter exits.
 
 :func:`arm_metrics` and :func:`metric_column` give one arm's columns of either kind of
 metrics (a plain dict of ``(n, 2)`` arrays or a :class:`SpilledMetrics`), so their callers need
@@ -19,6 +19,7 @@ from __future__ import annotations
 import os
 import shutil
 import tempfile
+import threading
 import weakref
 from collections.abc import Iterator, Mapping
 from pathlib import Path
@@ -31,6 +32,8 @@ __all__ = ["SPILL_BYTES", "ColumnFiles", "LazyColumn", "SpilledMetrics", "arm_me
 #: Per-sample metric bytes of a study (samples x metrics x arms x 8) above which the runner
 #: keeps them in files: about 260,000 plants with two arms.
 SPILL_BYTES = 50_000_000
+#: Bytes of appended values a :class:`ColumnFiles` holds before writing them to its files.
+PENDING_BYTES = 8_000_000
 
 
 def spills(samples: int, metrics: int, arms: int) -> bool:
@@ -58,6 +61,11 @@ class ColumnFiles:
         self._files: dict[str, Path] = {}
         self._types: dict[str, np.dtype] = {}
         self._rows: dict[str, int] = {}
+        # Appended values not yet written, by column: written together once they reach
+        # PENDING_BYTES (or before a read), so each file is opened once per few hundred chunks.
+        self._pending: dict[str, list[bytes]] = {}
+        self._pending_bytes = 0
+        self._lock = threading.Lock()  # the summary reads columns from several threads
         self._finalizer = weakref.finalize(self, shutil.rmtree, self.path, ignore_errors=True)
 
     def append(self, key: str, values: np.ndarray) -> None:
@@ -69,11 +77,22 @@ class ColumnFiles:
             self._types[key] = values.dtype.newbyteorder("<")
             self._rows[key] = 0
             self._files[key] = self.path / f"{len(self._files)}.bin"
-        # Opened for each chunk rather than kept open: a study with many designs has hundreds
-        # of columns, more than the open files a process may have.
-        with open(self._files[key], "ab") as stream:
-            stream.write(values.astype(self._types[key], copy=False).tobytes())
-        self._rows[key] += values.shape[0]
+        data = values.astype(self._types[key], copy=False).tobytes()
+        with self._lock:
+            self._pending.setdefault(key, []).append(data)
+            self._pending_bytes += len(data)
+            self._rows[key] += values.shape[0]
+            if self._pending_bytes >= PENDING_BYTES:
+                self._write_pending()
+
+    def _write_pending(self) -> None:
+        # Called with the lock held. One file open at a time, not all kept open: a study with
+        # many designs has hundreds of columns, more than the open files a process may have.
+        for key, parts in self._pending.items():
+            with open(self._files[key], "ab") as stream:
+                stream.write(b"".join(parts))
+        self._pending.clear()
+        self._pending_bytes = 0
 
     def rows(self, key: str) -> int:
         """Values in column ``key``."""
@@ -84,6 +103,9 @@ class ColumnFiles:
 
     def read(self, key: str, start: int = 0, stop: int | None = None) -> np.ndarray:
         """Rows ``start:stop`` of column ``key`` as a new array (native byte order)."""
+        with self._lock:
+            if self._pending:
+                self._write_pending()
         path = self._files[key]
         stop = self._rows[key] if stop is None else min(stop, self._rows[key])
         count = max(stop - start, 0)

@@ -58,6 +58,50 @@ def test_columns_read_back_exactly_in_any_range(tmp_path: Path) -> None:
         files.append("x", np.zeros((2, 2)))
 
 
+@pytest.mark.parametrize("pending_bytes", [0, 100, result_columns.PENDING_BYTES])
+def test_appends_are_written_in_batches_and_every_read_sees_them(tmp_path: Path, monkeypatch,
+                                                                 pending_bytes: int) -> None:
+    # Appended values wait in memory until PENDING_BYTES of them are held (0: written at once);
+    # a read in between must see them all.
+    monkeypatch.setattr(result_columns, "PENDING_BYTES", pending_bytes)
+    rng = np.random.default_rng(11)
+    files = ColumnFiles(tmp_path)
+    seen: list[np.ndarray] = []
+    for size in (3, 7, 0, 12, 5, 9):
+        values = rng.standard_normal(size)
+        seen.append(values)
+        files.append("y", values)
+        on_disk = (files.path / "0.bin").stat().st_size if (files.path / "0.bin").exists() else 0
+        assert on_disk <= 8 * files.rows("y")
+        if pending_bytes == 0:
+            assert on_disk == 8 * files.rows("y")  # nothing held back
+        np.testing.assert_array_equal(files.read("y"), np.concatenate(seen))
+        np.testing.assert_array_equal(files.read("y", 2, 6), np.concatenate(seen)[2:6])
+    if pending_bytes > 1000:  # a large threshold: held until a read
+        files.append("y", np.ones(4))
+        assert (files.path / "0.bin").stat().st_size == 8 * (files.rows("y") - 4)
+        assert files.read("y")[-4:].tolist() == [1.0] * 4
+
+
+def test_columns_held_back_are_read_safely_from_several_threads(tmp_path: Path) -> None:
+    # The summary reads spilled columns from a pool of threads: the first reads write the held
+    # values while the others read (this raised "dictionary changed size during iteration").
+    from concurrent.futures import ThreadPoolExecutor
+
+    files = ColumnFiles(tmp_path)
+    expected = {f"c{key}": np.arange(key, key + 500.0) for key in range(60)}
+    for name, values in expected.items():
+        for part in np.array_split(values, 5):
+            files.append(name, part)
+    for _ in range(3):
+        with ThreadPoolExecutor(8) as pool:
+            read = dict(zip(expected, pool.map(files.read, expected), strict=True))
+        for name, values in expected.items():
+            np.testing.assert_array_equal(read[name], values)
+        files.append("c0", np.array([-1.0]))
+        expected["c0"] = np.append(expected["c0"], -1.0)
+
+
 @pytest.mark.skipif(not Path("/proc/self/fd").is_dir(), reason="counts open files in /proc")
 def test_more_columns_than_open_files_a_process_may_have(tmp_path: Path) -> None:
     # A study with many designs has hundreds of columns: none is kept open between chunks.
