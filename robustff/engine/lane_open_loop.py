@@ -195,9 +195,10 @@ def _path_lanes(b: np.ndarray, inputs: np.ndarray, now: np.uint64, before: np.ui
     u = np.uint64
     if scan:  # a loop of its own: inside the next one it became a slow masked store
         for lane in range(L):
-            sensor = b[_P_SENSOR * L + lane]
-            measured[reading + u(lane)] += (inputs[now + u(lane)]
-                                            if b[_P_DIRECT * L + lane] != 0.0 else sensor)
+            # Both values loaded, then one chosen: a load under the condition made the loop
+            # scalar (the address chosen lane by lane).
+            sensor, direct = b[_P_SENSOR * L + lane], inputs[now + u(lane)]
+            measured[reading + u(lane)] += direct if b[_P_DIRECT * L + lane] != 0.0 else sensor
     for lane in range(L):
         x1, x2 = b[_P_X1 * L + lane], b[_P_X2 * L + lane]
         second_order = b[_P_SECOND * L + lane] != 0.0
@@ -235,41 +236,50 @@ def _feedforward_lanes(c: tuple, m_ff: int, measured_lanes: np.ndarray, filtered
     L = LANES
     pole, zero, scale, weight_new, weight_old, input_pole = c
     n_steps = ff_lanes.shape[0] // L
+    # Unsigned offsets rather than slices (see _disturbance_lanes): a slice per scan is a
+    # reference-counted view, and its atomic count updates cost more than the arithmetic.
+    u = np.uint64
+    for lane in range(L):
+        state[lane] = 0.0
     for k in range(n_steps):
-        now, row = measured_lanes[k * L:(k + 1) * L], filtered[k * L:(k + 1) * L]
-        before = filtered[(k - 1) * L:k * L] if k > 0 else state[:L]
-        if k == 0:
-            state[:L] = 0.0
-        for lane in range(L):
-            row[lane] = input_pole * before[lane] + (1.0 - input_pole) * now[lane]
+        now = u(k * L)
+        if k > 0:
+            before = u((k - 1) * L)
+            for lane in range(L):
+                filtered[now + u(lane)] = (input_pole * filtered[before + u(lane)]
+                                           + (1.0 - input_pole) * measured_lanes[now + u(lane)])
+        else:
+            for lane in range(L):
+                filtered[u(lane)] = (input_pole * state[lane]
+                                     + (1.0 - input_pole) * measured_lanes[u(lane)])
     state[:] = 0.0  # the lead-lag's output and input at the previous scan
     for k in range(n_steps):
-        out = ff_lanes[k * L:(k + 1) * L]
+        out = u(k * L)
         if k >= m_ff + 1:
-            newer = filtered[(k - m_ff) * L:(k - m_ff + 1) * L]
-            older = filtered[(k - m_ff - 1) * L:(k - m_ff) * L]
+            newer, older = u((k - m_ff) * L), u((k - m_ff - 1) * L)
             for lane in range(L):
-                ff_in = weight_new * newer[lane] + weight_old * older[lane]
-                _lead_lag_lane(state, out, lane, ff_in, pole, zero, scale)
+                ff_in = weight_new * filtered[newer + u(lane)] + weight_old * filtered[
+                    older + u(lane)]
+                _lead_lag_lane(state, ff_lanes, out, lane, ff_in, pole, zero, scale)
         elif k == m_ff:
-            newer = filtered[(k - m_ff) * L:(k - m_ff + 1) * L]
+            newer = u((k - m_ff) * L)
             for lane in range(L):
-                ff_in = weight_new * newer[lane] + weight_old * 0.0
-                _lead_lag_lane(state, out, lane, ff_in, pole, zero, scale)
+                ff_in = weight_new * filtered[newer + u(lane)] + weight_old * 0.0
+                _lead_lag_lane(state, ff_lanes, out, lane, ff_in, pole, zero, scale)
         else:
             for lane in range(L):
                 ff_in = weight_new * 0.0 + weight_old * 0.0
-                _lead_lag_lane(state, out, lane, ff_in, pole, zero, scale)
+                _lead_lag_lane(state, ff_lanes, out, lane, ff_in, pole, zero, scale)
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _lead_lag_lane(state: np.ndarray, out: np.ndarray, lane: int, ff_in: float, pole: float,
-                   zero: float, scale: float) -> None:
+def _lead_lag_lane(state: np.ndarray, ff_lanes: np.ndarray, out: np.uint64, lane: int,
+                   ff_in: float, pole: float, zero: float, scale: float) -> None:
     L = LANES
     ff_out = pole * state[lane] + scale * (ff_in - zero * state[L + lane])
     state[lane] = ff_out
     state[L + lane] = ff_in
-    out[lane] += ff_out
+    ff_lanes[out + np.uint64(lane)] += ff_out
 
 
 @njit(cache=True, nogil=True)
