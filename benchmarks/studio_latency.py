@@ -120,7 +120,15 @@ def _launch_to_first_numbers(path: Path, folder: Path, timeout: float = 30.0) ->
                 if b"P(harm)" in seen:
                     found = time.perf_counter() - started
         os.write(master, b"\x11")  # Ctrl-Q: quit
-        child.wait(timeout=10)
+        ended = time.perf_counter() + 10.0
+        while child.poll() is None and time.perf_counter() < ended:
+            # keep reading: a child whose terminal output is not read blocks on its writes
+            ready, _, _ = select.select([master], [], [], 0.05)
+            if ready:
+                try:
+                    os.read(master, 65536)
+                except OSError:
+                    break
     finally:
         if child.poll() is None:
             child.kill()
