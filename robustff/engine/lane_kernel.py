@@ -235,9 +235,11 @@ def _probe(w: np.ndarray, ring: np.ndarray, k: int, p: tuple, second_order: bool
 
 @njit(cache=True, nogil=True, inline="always")
 def _measure(w: np.ndarray, effect: np.ndarray, q: int, limit: float,
-             second_order: bool) -> None:
-    """Every lane's CV at internal step ``q`` and whether each arm is still alive."""
-    _measure_arm(w, effect, _X0, _Y0, _ALIVE0, q, limit, second_order)
+             second_order: bool, feedback_arm: bool) -> None:
+    """Every lane's CV at internal step ``q`` and whether each arm is still alive (the
+    feedforward arm's alone without ``feedback_arm``: the other is taken from the reference)."""
+    if feedback_arm:
+        _measure_arm(w, effect, _X0, _Y0, _ALIVE0, q, limit, second_order)
     _measure_arm(w, effect, _X1, _Y1, _ALIVE1, q, limit, second_order)
 
 
@@ -449,7 +451,7 @@ def simulate_lanes(
             longest_path = max(longest_path,
                                min(split_delay(disturbances[i, j, D_DELAY], hi)[0], n_internal))
     scratch = open_loop_scratch(n_d, n_internal, n_steps, longest_path)
-    effect_lanes, ff_lanes = scratch[6], scratch[7]
+    effect_lanes, ff_lanes = scratch[5], scratch[6]
     w = np.zeros(_N_FIELDS * L)
     ring = np.zeros(3 * ring_size(longest_process) * L)
     n_points = envelope_counts.shape[1]
@@ -493,7 +495,7 @@ def simulate_lanes(
                 weight = max(t - mp.t_start, 0.0)
                 mpk = step_metric_params(mp, q, direction_profile, segment_profile)
                 sp = setpoint_profile[q]
-                _measure(w, effect_lanes, q, limit, second_order)
+                _measure(w, effect_lanes, q, limit, second_order, feedback_arm)
                 if sub == 0:
                     _scan(w, ring, ff_lanes, k, sp, k == 0, p, h, second_order,
                           feedback_arm, size, runs_q, q2, q3)

@@ -36,8 +36,8 @@ SCRATCH_LIMIT = 128 * 2**20
 
 def scratch_bytes(n_disturbances: int, n_internal: int) -> int:
     """Bytes of :func:`open_loop_scratch` (at most) for a window of ``n_internal`` internal
-    steps and ``n_disturbances`` disturbances: (3 J + 5) T S LANES numbers."""
-    return 8 * LANES * (3 * n_disturbances + 5) * n_internal
+    steps and ``n_disturbances`` disturbances: (3 J + 4) T S LANES numbers."""
+    return 8 * LANES * (3 * n_disturbances + 4) * n_internal
 
 
 @njit(cache=True, nogil=True)
@@ -56,32 +56,30 @@ def open_loop_lanes(lanes: np.ndarray, count: int, seeds: np.ndarray, kinds: np.
     noise every lane sees the case's profile and nothing is drawn. The paths, transmitters and
     feedforwards then advance with time outside and the lanes inside.
     """
-    (inputs, measured, held, inputs_lanes, measured_lanes, effect_rows, effect_lanes, ff_lanes,
-     filtered, ff_state, path_buffer, path_ring) = scratch
+    (inputs, measured, held, inputs_lanes, measured_lanes, effect_lanes, ff_lanes, filtered,
+     ff_state, path_buffer, path_ring) = scratch
     L = LANES
-    n_d, n_internal, n_steps = inputs.shape[1], effect_rows.shape[1], measured.shape[2]
+    n_d, n_internal, n_steps = inputs.shape[1], inputs.shape[2], measured.shape[2]
     replay = noise_replay.shape[1] > 0
     noisy = noise.shape[0] > 0
     for lane in range(count):
         for j in range(n_d):
             noisy = noisy or disturbances[lanes[lane], j, D_NOISE] > 0.0
-    for lane in range(L):
-        source = lanes[lane] if lane < count else lanes[0]  # a spare lane repeats the first
-        if replay:
-            effect_rows[lane] = noise_replay[source, :n_internal]
-            for j in range(n_d):
-                measured[lane, j] = noise_replay[source, n_internal + j * n_steps:
-                                                 n_internal + (j + 1) * n_steps]
-        elif noisy:
+    if noisy and not replay:
+        for lane in range(L):
+            source = lanes[lane] if lane < count else lanes[0]  # a spare lane repeats the first
             disturbance_inputs(source, seeds[source], disturbances, disturbance_profile, noise,
                                substeps, inputs[lane], measured[lane], held)
     for j in range(n_d):
-        if replay or noisy:  # each lane's own measurement noise (or replayed measurement)
+        if replay:  # straight from the recorded rows, each lane its own sample's
+            _gather_lanes(noise_replay, lanes, count, n_internal + j * n_steps, n_steps,
+                          measured_lanes[j])
+        elif noisy:  # each lane's own measurement noise
             _transpose(measured[:, j, :], measured_lanes[j])
         else:
             measured_lanes[j, :] = 0.0
     if replay:
-        _transpose(effect_rows, effect_lanes)
+        _gather_lanes(noise_replay, lanes, count, 0, n_internal, effect_lanes)
     else:
         effect_lanes[:] = 0.0
         for j in range(n_d):
@@ -92,16 +90,11 @@ def open_loop_lanes(lanes: np.ndarray, count: int, seeds: np.ndarray, kinds: np.
             _disturbance_lanes(j, lanes, count, kinds[j], disturbances, hi, substeps,
                                inputs_lanes, measured_lanes[j], effect_lanes, path_buffer,
                                path_ring)
-    if noise_record.shape[1] > 0:
-        _untranspose(effect_lanes, effect_rows)
+    if noise_record.shape[1] > 0:  # straight into each sample's row
+        _scatter_lanes(effect_lanes, lanes, count, 0, n_internal, noise_record)
         for j in range(n_d):
-            _untranspose(measured_lanes[j], measured[:, j, :])
-        for lane in range(count):
-            i = lanes[lane]
-            noise_record[i, :n_internal] = effect_rows[lane]
-            for j in range(n_d):
-                noise_record[i, n_internal + j * n_steps:
-                             n_internal + (j + 1) * n_steps] = measured[lane, j]
+            _scatter_lanes(measured_lanes[j], lanes, count, n_internal + j * n_steps, n_steps,
+                           noise_record)
     ff_lanes[:] = 0.0
     for j in range(n_d):
         if ffp[j, 6] != 0.0:
@@ -111,12 +104,12 @@ def open_loop_lanes(lanes: np.ndarray, count: int, seeds: np.ndarray, kinds: np.
 
 @njit(cache=True, nogil=True)
 def open_loop_scratch(n_d: int, n_internal: int, n_steps: int, longest_path: int) -> tuple:
-    """The arrays :func:`_open_loop_lanes` works in (memory about (3 J + 5) T S LANES numbers
+    """The arrays :func:`_open_loop_lanes` works in (memory about (3 J + 4) T S LANES numbers
     for J disturbances, independent of the number of samples); ``longest_path`` is the longest
     disturbance dead time in internal steps."""
     L = LANES
     return (np.zeros((L, n_d, n_internal)), np.zeros((L, n_d, n_steps)), np.zeros(n_d),
-            np.zeros(n_internal * L), np.zeros((n_d, n_steps * L)), np.zeros((L, n_internal)),
+            np.zeros(n_internal * L), np.zeros((n_d, n_steps * L)),
             np.zeros(n_internal * L), np.zeros(n_steps * L), np.zeros(n_steps * L),
             np.zeros(2 * L), np.zeros(_PATH_FIELDS * L),
             np.zeros(ring_size(longest_path) * L))
@@ -283,16 +276,32 @@ def _lead_lag_lane(state: np.ndarray, ff_lanes: np.ndarray, out: np.uint64, lane
 
 
 @njit(cache=True, nogil=True)
-def _untranspose(lanes: np.ndarray, rows: np.ndarray) -> None:
-    """The inverse of :func:`_transpose`: ``rows[l, t] = lanes[t * LANES + l]``."""
+def _gather_lanes(source: np.ndarray, rows: np.ndarray, count: int, start: int, n: int,
+                  lanes: np.ndarray) -> None:
+    """``lanes[t * LANES + l] = source[rows[l], start + t]`` for ``t < n``, a spare lane
+    (``l >= count``) repeating the first: recorded rows laid across the lanes, in tiles of 64
+    steps as :func:`_transpose`."""
     L = LANES
-    n = rows.shape[1]
-    for start in range(0, n, 64):
-        stop = min(start + 64, n)
+    for first in range(0, n, 64):
+        stop = min(first + 64, n)
         for lane in range(L):
+            row = rows[lane] if lane < count else rows[0]
+            for t in range(first, stop):
+                lanes[t * L + lane] = source[row, start + t]
+
+
+@njit(cache=True, nogil=True)
+def _scatter_lanes(lanes: np.ndarray, rows: np.ndarray, count: int, start: int, n: int,
+                   dest: np.ndarray) -> None:
+    """``dest[rows[l], start + t] = lanes[t * LANES + l]`` for ``t < n`` and the block's
+    ``count`` real lanes: the inverse of :func:`_gather_lanes`, in tiles of 64 steps."""
+    L = LANES
+    for first in range(0, n, 64):
+        stop = min(first + 64, n)
+        for lane in range(count):
             row = rows[lane]
-            for t in range(start, stop):
-                row[t] = lanes[t * L + lane]
+            for t in range(first, stop):
+                dest[row, start + t] = lanes[t * L + lane]
 
 
 @njit(cache=True, nogil=True)
