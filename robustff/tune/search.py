@@ -35,6 +35,7 @@ from robustff.jsonvalues import json_float
 from robustff.stats.percentiles import metric_ratio
 from robustff.stats.sensitivity import SensitivityRow, rank_sensitivity
 from robustff.study import CHUNK_SIZE, chunk_spans, noise_seeds
+from robustff.study.runner import NOISE_REPLAY_LIMIT
 from robustff.tune.objectives import (
     OBJECTIVES,
     objective_value,
@@ -252,12 +253,12 @@ class _SampleSet:
 
     def __init__(self, case: Case, design: LoopDesign, scenario: Scenario,
                  plants: tuple[np.ndarray, list[str], np.ndarray], pool: ThreadPoolExecutor,
-                 jobs: int) -> None:
+                 jobs: int, replay: bool = False) -> None:
         self.values, self.names, self.seeds = plants
         n = self.values.shape[0]
-        self.jobs = jobs
+        self.jobs, self.replay = jobs, replay
         # any chunking gives the same numbers: every sample has its own seed and state
-        self.spans = chunk_spans(n, max(64, math.ceil(n / max(jobs, 1))))
+        self.spans = chunk_spans(n, _span_size(case, scenario, n, jobs, replay))
         self.batches = [plant_batch(case, self.names, self.values[a:b]) for a, b in self.spans]
         self.case, self.design, self.scenario, self.pool = case, design, scenario, pool
         # The feedback arm does not depend on the feedforward: it is simulated once here, and
@@ -277,7 +278,8 @@ class _SampleSet:
         """The first ``m`` plants with their own noise seeds: a subset of these plants, each
         with the same numbers as here (every sample has its own seed and state)."""
         return _SampleSet(self.case, self.design, self.scenario,
-                          (self.values[:m], self.names, self.seeds[:m]), self.pool, self.jobs)
+                          (self.values[:m], self.names, self.seeds[:m]), self.pool, self.jobs,
+                          self.replay)
 
     def _with(self, settings: FeedforwardSettings) -> LoopDesign:
         return self.design.with_headline(settings, self.case)
@@ -315,6 +317,24 @@ class _SampleSet:
             float(np.median(self.iae_fb - fbff)) if fbff.size else math.nan,
             int(np.sum(~np.isfinite(fbff))),
         )
+
+
+#: Values (samples x (internal steps + scans x disturbances)) of recorded disturbance the
+#: optimisation set may keep for the searched designs to replay: 512 MB.
+TUNE_REPLAY_LIMIT = 64_000_000
+
+
+def _span_size(case: Case, scenario: Scenario, n: int, jobs: int, replay: bool) -> int:
+    """Samples per chunk of a sample set: one chunk per job, or, with ``replay`` and a
+    disturbance record of the whole set within :data:`TUNE_REPLAY_LIMIT`, chunks small enough
+    to record theirs (:data:`robustff.study.runner.NOISE_REPLAY_LIMIT`). Each searched design
+    then replays the disturbance instead of simulating it again (its noise, paths and
+    transmitters): the pasteuriser's feedforward arm 303 -> 126 us per plant."""
+    size = max(64, math.ceil(n / max(jobs, 1)))
+    per_sample = scenario.n_steps * (scenario.substeps + len(case.disturbance_inputs))
+    if replay and per_sample * n <= TUNE_REPLAY_LIMIT:
+        size = min(size, max(1, NOISE_REPLAY_LIMIT // per_sample))
+    return size
 
 
 def _noise_seeds(seed: int, n: int) -> np.ndarray:
@@ -480,11 +500,14 @@ class _Problem:
         """The model-based feedforward design."""
         return self.design.feedforward
 
-    def sample_set(self, n: int, seed: int, pool: ThreadPoolExecutor, jobs: int) -> _SampleSet:
-        """``n`` sampled plants from ``seed``, with the feedback arm simulated."""
+    def sample_set(self, n: int, seed: int, pool: ThreadPoolExecutor, jobs: int,
+                   replay: bool = False) -> _SampleSet:
+        """``n`` sampled plants from ``seed``, with the feedback arm simulated; ``replay``:
+        keep their disturbance for the designs to replay (the optimisation set, which runs
+        many)."""
         values, names = sample(self.case, n, seed)
         return _SampleSet(self.case, self.design, self.scenario,
-                          (values, names, _noise_seeds(seed, n)), pool, jobs)
+                          (values, names, _noise_seeds(seed, n)), pool, jobs, replay)
 
     def compare(self, robust: FeedforwardSettings, sets: dict[str, _SampleSet],
                 settings: tuple[str, float, float]) -> dict[str, dict[str, DesignFigures]]:
@@ -600,7 +623,7 @@ def robust_search(
     settings = (objective, percentile, cvar_alpha)
     jobs = jobs or os.cpu_count() or 1
     with ThreadPoolExecutor(max_workers=jobs) as pool:
-        optimisation = problem.sample_set(n, seed, pool, jobs)
+        optimisation = problem.sample_set(n, seed, pool, jobs, replay=True)
         search = _optimise(optimisation, problem, settings, progress)
         robust = search.robust
         fresh = problem.sample_set(n, fresh_seed, pool, jobs)
