@@ -209,7 +209,15 @@ def test_progress_printer_writes_to_the_current_stderr(monkeypatch: pytest.Monke
 
 def _first_progress_line(stream, timeout: float) -> str:
     lines: queue.Queue[str] = queue.Queue()
-    threading.Thread(target=lambda: [lines.put(line) for line in stream], daemon=True).start()
+
+    def read() -> None:
+        try:
+            for line in stream:
+                lines.put(line)
+        except ValueError:  # the caller's communicate() closed the stream: nothing more to read
+            pass
+
+    threading.Thread(target=read, daemon=True).start()
     while True:
         line = lines.get(timeout=timeout)
         if line.startswith("progress:"):
