@@ -248,7 +248,7 @@ def simulate(
     feedback_arm = reference is None
     no_noise = np.zeros((0, 0))
     n_paths = len(batch.paths)
-    recorded = (np.zeros((n, n_steps * (scenario.substeps + n_paths))) if record_noise
+    recorded = (np.zeros((n, scenario.noise_record_width(n_paths))) if record_noise
                 else no_noise)
     replayed = (reference.noise if reference is not None and reference.noise is not None
                 else no_noise)

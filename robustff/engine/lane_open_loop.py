@@ -75,7 +75,7 @@ def open_loop_lanes(lanes: np.ndarray, count: int, seeds: np.ndarray, kinds: np.
             _gather_lanes(noise_replay, lanes, count, n_internal + j * n_steps, n_steps,
                           measured_lanes[j])
         elif noisy:  # each lane's own measurement noise
-            _transpose(measured[:, j, :], measured_lanes[j])
+            _gather_lanes(measured[:, j, :], _EVERY_LANE, L, 0, n_steps, measured_lanes[j])
         else:
             measured_lanes[j, :] = 0.0
     if replay:
@@ -84,7 +84,7 @@ def open_loop_lanes(lanes: np.ndarray, count: int, seeds: np.ndarray, kinds: np.
         effect_lanes[:] = 0.0
         for j in range(n_d):
             if noisy:
-                _transpose(inputs[:, j, :], inputs_lanes)
+                _gather_lanes(inputs[:, j, :], _EVERY_LANE, L, 0, n_internal, inputs_lanes)
             else:
                 _broadcast(disturbance_profile[j], inputs_lanes)
             _disturbance_lanes(j, lanes, count, kinds[j], disturbances, hi, substeps,
@@ -114,6 +114,9 @@ def open_loop_scratch(n_d: int, n_internal: int, n_steps: int, longest_path: int
             np.zeros(2 * L), np.zeros(_PATH_FIELDS * L),
             np.zeros(ring_size(longest_path) * L))
 
+
+#: Row l for lane l: a block's own rows (its inputs and measurements) across its lanes.
+_EVERY_LANE = np.arange(LANES)
 
 # Fields of the disturbance path buffer (each LANES wide): the path's coefficients as
 # block_coefficients orders them (phi11, phi21, phi22, g1_new, g2_new, g1_old, g2_old), 1.0
@@ -279,8 +282,11 @@ def _lead_lag_lane(state: np.ndarray, ff_lanes: np.ndarray, out: np.uint64, lane
 def _gather_lanes(source: np.ndarray, rows: np.ndarray, count: int, start: int, n: int,
                   lanes: np.ndarray) -> None:
     """``lanes[t * LANES + l] = source[rows[l], start + t]`` for ``t < n``, a spare lane
-    (``l >= count``) repeating the first: recorded rows laid across the lanes, in tiles of 64
-    steps as :func:`_transpose`."""
+    (``l >= count``) repeating the first: one sample's row per lane laid across the lanes.
+
+    In tiles of 64 time steps, so the strided writes stay within the first-level cache (a plain
+    loop over each sample's row misses on every write).
+    """
     L = LANES
     for first in range(0, n, 64):
         stop = min(first + 64, n)
@@ -302,20 +308,3 @@ def _scatter_lanes(lanes: np.ndarray, rows: np.ndarray, count: int, start: int, 
             row = rows[lane]
             for t in range(first, stop):
                 dest[row, start + t] = lanes[t * L + lane]
-
-
-@njit(cache=True, nogil=True)
-def _transpose(rows: np.ndarray, lanes: np.ndarray) -> None:
-    """Lay ``rows`` (LANES, T), one sample per row, across the lanes: ``lanes[t * LANES + l]``.
-
-    In tiles of 64 time steps, so the strided writes stay within the first-level cache (a plain
-    loop over each sample's row misses on every write).
-    """
-    L = LANES
-    n = rows.shape[1]
-    for start in range(0, n, 64):
-        stop = min(start + 64, n)
-        for lane in range(L):
-            row = rows[lane]
-            for t in range(start, stop):
-                lanes[t * L + lane] = row[t]

@@ -82,6 +82,12 @@ class Scenario:
         """The plant's internal step, time units."""
         return self.step / self.substeps
 
+    def noise_record_width(self, n_paths: int) -> int:
+        """Numbers one sample's recorded disturbance holds (``SimulationResult.noise``): its
+        effect on the CV at every internal step and each of ``n_paths`` measurements at every
+        scan, ``T (S + J)``."""
+        return self.n_steps * (self.substeps + n_paths)
+
     def at_scans(self, profile: np.ndarray) -> np.ndarray:
         """A per-internal-step profile (shape (T S,)) at the scan instants, shape (T,)."""
         return np.asarray(profile)[:: self.substeps]

@@ -242,7 +242,7 @@ def noise_seeds(seed: int, n: int, chunk_size: int = CHUNK_SIZE) -> np.ndarray:
 def replay_fits(batch: PlantBatch, scenario: Scenario) -> bool:
     """Whether the batch's disturbance is small enough (:data:`NOISE_REPLAY_LIMIT`) to record
     for other designs to replay."""
-    size = batch.size * scenario.n_steps * (scenario.substeps + len(batch.paths))
+    size = batch.size * scenario.noise_record_width(len(batch.paths))
     return size <= NOISE_REPLAY_LIMIT
 
 

@@ -331,7 +331,7 @@ def _span_size(case: Case, scenario: Scenario, n: int, jobs: int, replay: bool) 
     then replays the disturbance instead of simulating it again (its noise, paths and
     transmitters): the pasteuriser's feedforward arm 303 -> 126 us per plant."""
     size = max(64, math.ceil(n / max(jobs, 1)))
-    per_sample = scenario.n_steps * (scenario.substeps + len(case.disturbance_inputs))
+    per_sample = scenario.noise_record_width(len(case.disturbance_inputs))
     if replay and per_sample * n <= TUNE_REPLAY_LIMIT:
         size = min(size, max(1, NOISE_REPLAY_LIMIT // per_sample))
     return size
