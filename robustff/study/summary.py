@@ -122,10 +122,16 @@ def _column_stats(metrics: Mapping[str, np.ndarray], name: str, arm: int | None,
                 summarize(metric_column(metrics, name, arm), percentiles).to_dict())
 
 
+def _summary_jobs(samples: int) -> int:
+    """Threads for the summary's column statistics: two for a large study on two cores or
+    more (the sorts release the GIL), else one."""
+    return 2 if samples >= PARALLEL_SAMPLES and (os.cpu_count() or 1) >= 2 else 1
+
+
 def _summaries(work: list[Callable[[], MetricStats]], samples: int) -> list[MetricStats]:
     """The results of ``work`` in order; in two threads for a large study (the partial sorts
     release the GIL; each call is independent, so the numbers do not depend on it)."""
-    if samples < PARALLEL_SAMPLES or (os.cpu_count() or 1) < 2:
+    if _summary_jobs(samples) == 1:
         return [job() for job in work]
     with ThreadPoolExecutor(2, thread_name_prefix="summary") as pool:
         return list(pool.map(lambda job: job(), work))
@@ -372,7 +378,8 @@ def summarize_study(
     if result.names and result.samples > 3:
         sensitivity = [
             cast(SensitivityRow, row.to_dict())
-            for row in rank_sensitivity(result.parameters, result.names, iae_ratio, harmful)
+            for row in rank_sensitivity(result.parameters, result.names, iae_ratio, harmful,
+                                        jobs=_summary_jobs(result.samples))
         ]
     frequencies = study_frequencies(result)
     summary: Summary = {

@@ -27,6 +27,19 @@ def test_ranks_without_ties_equal_scipy_rankdata(seed: int) -> None:
     np.testing.assert_array_equal(average_ranks(values), sps.rankdata(values))
 
 
+def test_ranks_of_a_large_column_with_ties_equal_scipy_rankdata() -> None:
+    # A study-sized column (the unstable SIMD sort of large arrays orders tied values any
+    # way; their mean rank must not change), with -0.0 beside +0.0 and a 0/1 harm indicator.
+    rng = np.random.default_rng(5)
+    values = np.round(rng.normal(size=200_000), 2)
+    values[::97] = -0.0
+    values[1::89] = 0.0
+    # Reference: scipy.stats.rankdata, method "average".
+    np.testing.assert_array_equal(average_ranks(values), sps.rankdata(values))
+    flags = (rng.uniform(size=200_000) < 0.3).astype(float)
+    np.testing.assert_array_equal(average_ranks(flags), sps.rankdata(flags))
+
+
 def test_ranks_of_edge_inputs() -> None:
     assert average_ranks(np.array([])).shape == (0,)
     np.testing.assert_array_equal(average_ranks(np.array([3.0])), [1.0])

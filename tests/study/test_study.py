@@ -278,3 +278,16 @@ def test_peak_memory_is_bounded_by_chunk_size_not_chunk_count() -> None:
     assert result.samples == 1000
     # Per-sample results of 1000 samples are ~0.2 MB; a few histograms in flight are fine.
     assert peak < 8 * histogram, f"peak {peak / 1e6:.1f} MB, histogram {histogram / 1e6:.1f} MB"
+
+
+def test_chunk_noise_seeds_are_the_spawned_children_of_the_study_seed() -> None:
+    # Reference: numpy's SeedSequence.spawn (child i of SeedSequence(seed)), the definition
+    # the runner's per-sample seeds were written with; each chunk now works out its own.
+    from robustff.study.runner import chunk_noise_seeds, noise_seeds
+
+    for seed in (0, 7, 2**70):
+        children = np.random.SeedSequence(seed).spawn(4)
+        expected = np.concatenate([c.generate_state(n, dtype=np.uint64)
+                                   for c, n in zip(children, (300, 300, 300, 100), strict=True)])
+        np.testing.assert_array_equal(noise_seeds(seed, 1000, 300), expected)
+        np.testing.assert_array_equal(chunk_noise_seeds(seed, 2, 300), expected[600:900])
