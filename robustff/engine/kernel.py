@@ -363,17 +363,40 @@ def _valve_scan(vs: ValveState, u: float, vp: ValveParams) -> ValveState:
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _valve_step(vs: ValveState, vp: ValveParams, table: np.ndarray) -> tuple:
-    """Rate limit and actuator lag over one internal step; returns ``(state, w)`` with ``w``
-    the process input (deviation, output units) the stem position gives."""
+def _valve_motion(vs: ValveState, vp: ValveParams) -> tuple:
+    """Rate limit and actuator lag over one internal step; returns ``(state, position)``,
+    the stem position in % of travel."""
     stem = vs.stem + min(max(vs.held - vs.stem, -vp.max_step), vp.max_step)
     position = vp.lag_pole * vs.position + (1.0 - vp.lag_pole) * stem
-    if vp.kind == 1:
-        w = vp.span * (position - vp.nominal) / 100.0
-    else:
-        w = vp.span * (_flow_fraction(vp, table, position) - vp.flow0) / vp.slope0
     return ValveState(vs.previous_command, vs.stuck, vs.stuck_at, vs.stop_direction,
-                      vs.direction, vs.held, stem, position), w
+                      vs.direction, vs.held, stem, position), position
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _valve_input(vp: ValveParams, position: float) -> float:
+    """The process input (deviation, output units) a stem position gives, for the linear and
+    the equal-percentage characteristic (codes 1 and 2; :func:`_installed_input` for 3)."""
+    if vp.kind == 1:
+        return vp.span * (position - vp.nominal) / 100.0
+    x = min(max(position / 100.0, 0.0), 1.0)
+    return vp.span * (math.exp(vp.log_rangeability * (x - 1.0)) - vp.flow0) / vp.slope0
+
+
+@njit(cache=True, nogil=True)
+def _installed_input(vp: ValveParams, table: np.ndarray, position: float) -> float:
+    """:func:`_valve_input` for the installed characteristic (code 3) from its table."""
+    return vp.span * (_flow_fraction(vp, table, position) - vp.flow0) / vp.slope0
+
+
+@njit(cache=True, nogil=True)
+def _valve_step(vs: ValveState, vp: ValveParams, table: np.ndarray) -> tuple:
+    """One internal step of the valve element alone: ``(state, w)``, ``w`` the process input
+    (deviation, output units) the stem position gives (what the kernel does in
+    :func:`_actuate` and, for the installed characteristic, its caller)."""
+    vs, position = _valve_motion(vs, vp)
+    if vp.kind == 3:
+        return vs, _installed_input(vp, table, position)
+    return vs, _valve_input(vp, position)
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -386,57 +409,55 @@ def _secondary_control(state: tuple, e: float, sec: SecondaryParams) -> tuple:
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _actuate(u: float, q: int, vs: ValveState, ss: tuple, xs: tuple, ring: np.ndarray,
-             row: int, size: int, mask: int, m_s: int, cs: PathCoefficients, vp: ValveParams,
-             table: np.ndarray, valve_kind: int, sec: SecondaryParams,
+def _actuate(u: float, vs: ValveState, ss: tuple, xs: tuple, cs: PathCoefficients,
+             vp: ValveParams, valve_kind: int, sec: SecondaryParams,
              secondary_scan: bool) -> tuple:
-    """The process input over internal step ``q`` from the primary output ``u``; returns
-    ``(w, valve state, secondary state, secondary path state)``. ``secondary_scan``: the
-    secondary controller scans at this step (``q % sec.every == 0``, counted once per step by
-    the caller: an integer division per arm and step took about a tenth of the run).
+    """What the primary output ``u`` drives over one internal step; returns ``(drive,
+    position, flow, valve state, secondary state)``. ``secondary_scan``: the secondary
+    controller scans at this step (``q % sec.every == 0``, counted once per step by the
+    caller: an integer division per arm and step took about a tenth of the run).
 
-    Without a secondary loop ``u`` goes through the valve (if any) to the process. With one,
-    ``u`` is the flow setpoint of the secondary controller, whose output goes through the valve
-    to the secondary path (ring row ``row``); the process input is the flow.
+    Without a secondary loop ``drive`` is ``u`` through the valve (if any), the process input.
+    With one, ``u`` is the flow setpoint of the secondary controller, whose output goes through
+    the valve: ``drive`` is the secondary path's new input and ``flow`` its output (the
+    secondary path's state ``xs`` before this step), the process input. The caller writes
+    ``drive`` into the ring and steps the path. With the installed characteristic (code 3)
+    ``drive`` is left to the caller, from the stem ``position`` (% of travel) and the table
+    (:func:`_installed_input`). No array passes through here: each array bound in an inlined
+    function cost an atomic reference count at every step (27 % of the steam heater's run).
     """
-    if not sec.present:
-        w = u
-        if valve_kind > 0:
-            vs, w = _valve_step(vs, vp, table)
-        return w, vs, ss, xs
-    flow = _output(xs, cs)
-    if secondary_scan:
-        ss = _secondary_control(ss, u - flow, sec)
-        if valve_kind > 0:
-            vs = _valve_scan(vs, ss[1], vp)
-    a = ss[1]
+    flow = 0.0
+    drive = u
+    if sec.present:
+        flow = _output(xs, cs)
+        if secondary_scan:
+            ss = _secondary_control(ss, u - flow, sec)
+            if valve_kind > 0:
+                vs = _valve_scan(vs, ss[1], vp)
+        drive = ss[1]
+    position = 0.0
     if valve_kind > 0:
-        vs, a = _valve_step(vs, vp, table)
-    ring[row * size + (q & mask)] = a
-    xs = _path_step(xs, cs, ring[row * size + ((q - m_s) & mask)],
-                    ring[row * size + ((q - m_s - 1) & mask)])
-    return flow, vs, ss, xs
+        vs, position = _valve_motion(vs, vp)
+        if valve_kind < 3:
+            drive = _valve_input(vp, position)
+    return drive, position, flow, vs, ss
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _probe_actuate(u: float, q: int, lag: float, ss: tuple, xs: tuple, ring: np.ndarray,
-                   row: int, size: int, mask: int, m_s: int, cs: PathCoefficients,
+def _probe_actuate(u: float, lag: float, ss: tuple, xs: tuple, cs: PathCoefficients,
                    pole: float, sec: SecondaryParams, secondary_scan: bool) -> tuple:
-    """The stability probe's process input over internal step ``q``: the loop linearised at the
-    nominal position (valve slope 1, the actuator lag with pole ``pole`` per internal step, no
-    stiction, deadband, rate limit or limits); returns ``(w, lag state, secondary state,
-    secondary path state)``. With a secondary loop as in :func:`_actuate`."""
+    """The stability probe's drive over one internal step: the loop linearised at the nominal
+    position (valve slope 1, the actuator lag with pole ``pole`` per internal step, no
+    stiction, deadband, rate limit or limits); returns ``(drive, flow, lag state, secondary
+    state)`` as :func:`_actuate`."""
     if not sec.present:
         lag = pole * lag + (1.0 - pole) * u
-        return lag, lag, ss, xs
+        return lag, 0.0, lag, ss
     flow = _output(xs, cs)
     if secondary_scan:
         ss = _secondary_control(ss, u - flow, sec)
     lag = pole * lag + (1.0 - pole) * ss[1]
-    ring[row * size + (q & mask)] = lag
-    xs = _path_step(xs, cs, ring[row * size + ((q - m_s) & mask)],
-                    ring[row * size + ((q - m_s - 1) & mask)])
-    return flow, lag, ss, xs
+    return lag, flow, lag, ss
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -737,24 +758,43 @@ def _simulate_sample(
                     env_buf[1, envelope_index[k]] = _envelope_bin(y1, grid) if alive1 else -1
             if feedback_arm and alive0:
                 acc0, last0 = _arm_metrics(acc0, last0, sp - y0, t, weight, mpk)
-                w0, v0, ss0, xs0 = _actuate(u0, q, v0, ss0, xs0, ring, row_s, size, mask, m_s,
-                                            cs, vp, valve_table, valve_kind, sec,
-                                            secondary_scan)
+                w0, at0, flow0, v0, ss0 = _actuate(u0, v0, ss0, xs0, cs, vp,
+                                                        valve_kind, sec, secondary_scan)
+                if valve_kind == 3:
+                    w0 = _installed_input(vp, valve_table, at0)
+                if sec.present:  # the secondary path, its input delayed through the ring
+                    at = row_s * size
+                    ring[at + (q & mask)] = w0
+                    xs0 = _path_step(xs0, cs, ring[at + ((q - m_s) & mask)],
+                                     ring[at + ((q - m_s - 1) & mask)])
+                    w0 = flow0
                 ring[q & mask] = w0
                 x0 = _path_step(x0, cp, ring[(q - m_p) & mask], ring[(q - m_p - 1) & mask])
             if alive1:
                 acc1, last1 = _arm_metrics(acc1, last1, sp - y1, t, weight, mpk)
-                w1, v1, ss1, xs1 = _actuate(u1, q, v1, ss1, xs1, ring, row_s + 1, size, mask,
-                                            m_s, cs, vp, valve_table, valve_kind, sec,
-                                            secondary_scan)
+                w1, at1, flow1, v1, ss1 = _actuate(u1, v1, ss1, xs1, cs, vp,
+                                                        valve_kind, sec, secondary_scan)
+                if valve_kind == 3:
+                    w1 = _installed_input(vp, valve_table, at1)
+                if sec.present:
+                    at = (row_s + 1) * size
+                    ring[at + (q & mask)] = w1
+                    xs1 = _path_step(xs1, cs, ring[at + ((q - m_s) & mask)],
+                                     ring[at + ((q - m_s - 1) & mask)])
+                    w1 = flow1
                 ring[size + (q & mask)] = w1
                 x1 = _path_step(x1, cp, ring[size + ((q - m_p) & mask)],
                                 ring[size + ((q - m_p - 1) & mask)])
             if feedback_arm and fine_q:  # the probe with its (linear) secondary loop and lag
-                flow, lag_q, ssq, xsq = _probe_actuate(uq + 1.0, q, lag_q, ssq, xsq, ring,
-                                                       row_s + 2, size, mask, m_s, cs, pole_q,
+                wq, flowq, lag_q, ssq = _probe_actuate(uq + 1.0, lag_q, ssq, xsq, cs, pole_q,
                                                        secq, secondary_scan)
-                ring[2 * size + (q & mask)] = flow
+                if sec.present:
+                    at = (row_s + 2) * size
+                    ring[at + (q & mask)] = wq
+                    xsq = _path_step(xsq, cs, ring[at + ((q - m_s) & mask)],
+                                     ring[at + ((q - m_s - 1) & mask)])
+                    wq = flowq
+                ring[2 * size + (q & mask)] = wq
                 xq = _path_step(xq, cp, ring[2 * size + ((q - m_p) & mask)],
                                 ring[2 * size + ((q - m_p - 1) & mask)])
     # Unstable only when the probe's error grows from the third to the last quarter of the

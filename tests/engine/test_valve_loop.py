@@ -29,6 +29,37 @@ def test_a_linear_valve_without_stem_effects_gives_the_ideal_actuators_results()
                                    atol=1e-9, err_msg=name)
 
 
+@pytest.mark.parametrize("case_file", ["wash-water-heater.toml", "steam-heater-sticky-valve.toml"])
+def test_an_installed_characteristic_that_is_a_straight_line_gives_the_linear_valve(
+        case_file: str) -> None:
+    # Flow fraction = travel fraction at every point of the table (two points, or more on
+    # the same straight line): the installed characteristic is the linear one, so the loop
+    # gives the linear valve's numbers (to rounding: the table's interpolation and the
+    # linear formula are different operations). On the loop alone and with a secondary loop
+    # (the steam heater, without its stiction and rate limit: stick-slip events and the
+    # rate-limited cycling they cause turn rounding differences into different phases).
+    case = load_case(ROOT / "cases" / case_file)
+    case = dataclasses.replace(case, uncertainty=tuple(
+        p for p in case.uncertainty if not p.key.startswith("valve.")))
+    valve = case.valve or ValveModel("linear")
+    linear = dataclasses.replace(valve, characteristic="linear", rangeability=50.0,
+                                 stiction_s=0.0, stiction_j=0.0, rate_limit=0.0)
+    runs = {}
+    for name, model in (
+            ("linear", linear),
+            ("two points", dataclasses.replace(linear, characteristic="installed",
+                                               installed=((0.0, 0.0), (100.0, 1.0)))),
+            ("five points", dataclasses.replace(linear, characteristic="installed",
+                                                installed=tuple((p, p / 100.0) for p in
+                                                                (0.0, 20.0, 45.0, 80.0, 100.0))))):
+        runs[name] = run_study(dataclasses.replace(case, valve=model), samples=60, jobs=1,
+                               margins=False)
+    for name in ("two points", "five points"):
+        for metric in runs["linear"].metrics:
+            np.testing.assert_allclose(runs[name].metrics[metric], runs["linear"].metrics[metric],
+                                       rtol=1e-6, atol=1e-9, err_msg=f"{name}: {metric}")
+
+
 def test_equal_percentage_valve_obeys_the_pi_final_value():
     # Final-value argument for a static nonlinearity in the loop: with an ideal PI
     # (u = Kc e + I, I accumulating Kc h / Ti e per scan), once the loop has settled e = 0 and
