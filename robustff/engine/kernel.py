@@ -144,11 +144,12 @@ ValveParams = namedtuple(
 
 #: Valve state of one arm (all in % of travel): the previous command; whether the stem is
 #: stuck, the command where it stuck and the direction it moved before; its direction of
-#: motion; the position after stiction or deadband, after the rate limit and after the lag.
+#: motion; the position after stiction or deadband, after the rate limit and after the lag;
+#: and the process input that position gave (output units, see _actuate).
 ValveState = namedtuple(
     "ValveState",
     ("previous_command", "stuck", "stuck_at", "stop_direction", "direction", "held", "stem",
-     "position"),
+     "position", "drive"),
 )
 
 #: Secondary (flow) controller: whether there is one, gain, integral gain per secondary scan
@@ -327,7 +328,7 @@ def _valve_params(kind: int, plant: np.ndarray, i: int, hi: float, u_low: float,
 @njit(cache=True, nogil=True, inline="always")
 def _valve_at_rest(vp: ValveParams) -> ValveState:
     x0 = vp.nominal
-    return ValveState(x0, True, x0, 0.0, 0.0, x0, x0, x0)
+    return ValveState(x0, True, x0, 0.0, 0.0, x0, x0, x0, 0.0)
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -359,7 +360,7 @@ def _valve_scan(vs: ValveState, u: float, vp: ValveParams) -> ValveState:
     else:
         held = x
     return ValveState(x, stuck, stuck_at, stop_direction, direction, held, vs.stem,
-                      vs.position)
+                      vs.position, vs.drive)
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -369,7 +370,7 @@ def _valve_motion(vs: ValveState, vp: ValveParams) -> tuple:
     stem = vs.stem + min(max(vs.held - vs.stem, -vp.max_step), vp.max_step)
     position = vp.lag_pole * vs.position + (1.0 - vp.lag_pole) * stem
     return ValveState(vs.previous_command, vs.stuck, vs.stuck_at, vs.stop_direction,
-                      vs.direction, vs.held, stem, position), position
+                      vs.direction, vs.held, stem, position, vs.drive), position
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -437,9 +438,15 @@ def _actuate(u: float, vs: ValveState, ss: tuple, xs: tuple, cs: PathCoefficient
         drive = ss[1]
     position = 0.0
     if valve_kind > 0:
+        moved_from = vs.position
         vs, position = _valve_motion(vs, vp)
         if valve_kind < 3:
-            drive = _valve_input(vp, position)
+            # A stem that has not moved gives the input it gave (a stuck valve, most steps:
+            # the equal-percentage curve's exp was a quarter of the run). At rest the input
+            # is exactly 0.0, what the characteristic gives at the nominal position.
+            drive = vs.drive if position == moved_from else _valve_input(vp, position)
+            vs = ValveState(vs.previous_command, vs.stuck, vs.stuck_at, vs.stop_direction,
+                            vs.direction, vs.held, vs.stem, position, drive)
     return drive, position, flow, vs, ss
 
 

@@ -89,3 +89,34 @@ def test_actuator_lag_is_first_order():
     # Stepped exactly with its input held: 10 (1 - e^{-k h / tau}) after k steps.
     k = np.arange(1, 61)
     np.testing.assert_allclose(stem[2:], 10.0 * (1.0 - np.exp(-k / 5.0)), rtol=1e-12)
+
+
+@pytest.mark.parametrize("kind", [1, 2])
+def test_the_kernels_valve_input_is_the_characteristic_of_the_stem_position_at_every_step(
+        kind: int) -> None:
+    # The kernel reuses the input a stuck stem gave instead of evaluating the characteristic
+    # again; at every step it must equal the characteristic evaluated afresh (the element's
+    # own _valve_step), through stuck stretches, slips and rate-limited travel alike.
+    from robustff.engine.kernel import PathCoefficients, SecondaryParams, _actuate, _valve_input
+
+    plant = np.zeros((1, 14))
+    plant[0, 4:10] = (30.0, 4.0, 0.0, 3.0, 1.0, 0.0)  # rangeability 30, 4 %/s, S 3 %, J 1 %
+    vp = _valve_params(kind, plant, 0, 0.25, -50.0, 50.0, NO_TABLE)
+    path = PathCoefficients(0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, False)
+    no_secondary = SecondaryParams(False, 0.0, 0.0, 0.0, -np.inf, np.inf, 1)
+    rng = np.random.default_rng(4)
+    command = np.cumsum(rng.normal(0.0, 1.5, 300))
+    state = reference = _valve_at_rest(vp)
+    stuck_steps = 0
+    for u in command:
+        state = _valve_scan(state, float(u), vp)
+        reference = _valve_scan(reference, float(u), vp)
+        for _ in range(4):
+            before = state.position
+            drive, position, _, state, _ = _actuate(float(u), state, (0.0, 0.0), (0.0, 0.0),
+                                                    path, vp, 1, no_secondary, False)
+            reference, expected = _valve_step(reference, vp, NO_TABLE)
+            stuck_steps += position == before
+            assert position == reference.position
+            assert drive == expected == _valve_input(vp, position)
+    assert 100 < stuck_steps < 1100  # both stuck and moving stretches were exercised
