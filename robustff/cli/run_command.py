@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import os
 import sys
 import threading
 import time
@@ -325,34 +324,13 @@ def execute(args: argparse.Namespace) -> int:
             if result is None or result.samples == 0:
                 print(NOTHING_KEPT, file=sys.stderr)
                 return EXIT_INTERRUPTED
-            _fixed_mmap_threshold()
+            from robustff.cli.memory_reuse import return_large_blocks
+
+            return_large_blocks()
             return _report(args, case, result, out, percentiles, stream)
     finally:
         if stream is not None:
             stream.discard()  # a table moved into the result folder is not touched
-
-
-def _fixed_mmap_threshold() -> None:
-    """Large freed blocks go back to the system from here on (Linux, glibc).
-
-    glibc's malloc raises its mmap threshold each time a large block is freed, so later blocks
-    of that size come from arenas that keep the memory after use, one arena per thread: the
-    summary of a 10^6-plant study (whole columns, in two threads) peaked 40 to 80 MB higher,
-    by an amount that varied from run to run. A threshold set once (glibc's default, 128 KiB)
-    stays fixed, and what the arenas keep free goes back at once. Set only after the
-    simulation, which allocates and frees its chunk arrays often and ran about 5 % slower with
-    it. Left alone where the user set ``MALLOC_MMAP_THRESHOLD_`` and on other systems.
-    """
-    if sys.platform != "linux" or "MALLOC_MMAP_THRESHOLD_" in os.environ:
-        return
-    try:
-        import ctypes
-
-        libc = ctypes.CDLL("libc.so.6")
-        libc.mallopt(-3, 128 * 1024)  # -3: M_MMAP_THRESHOLD
-        libc.malloc_trim(0)  # and what the arenas already keep free goes back too
-    except (OSError, AttributeError):
-        pass
 
 
 def _report(args: argparse.Namespace, case, result, out: Path, percentiles,

@@ -197,6 +197,7 @@ def _progress(done: int, budget: int) -> None:
 
 def execute(args: argparse.Namespace) -> int:
     from robustff.case import load_case, save_case
+    from robustff.cli.memory_reuse import keep_large_blocks
     from robustff.tune.search import robust_search, sobol_sensitivity
 
     started = time.perf_counter()
@@ -209,6 +210,7 @@ def execute(args: argparse.Namespace) -> int:
     out = Path(args.out) if args.out else Path("results") / f"{case.name}-tune"
     if out.exists() and not out.is_dir():
         raise CaseError(f"--out {out}: exists and is not a folder")
+    keep_large_blocks()  # the search simulates the same chunks over and over
     result = robust_search(case, objective=args.objective, samples=args.samples, seed=args.seed,
                            jobs=args.jobs, progress=None if args.json else _progress)
     sobol = None
