@@ -212,6 +212,15 @@ def _path_step(x: tuple, c: PathCoefficients, u_new: float,
 
 
 @njit(cache=True, nogil=True, inline="always")
+def _delayed_step(ring: np.ndarray, at: int, q: int, mask: int, m: int, x: tuple,
+                  c: PathCoefficients, u: float) -> tuple[float, float]:
+    """Write a path's input at internal step ``q`` into its ring row (from offset ``at``) and
+    step the path on its input ``m`` steps ago: :func:`_path_step` with the dead time."""
+    ring[at + (q & mask)] = u
+    return _path_step(x, c, ring[at + ((q - m) & mask)], ring[at + ((q - m - 1) & mask)])
+
+
+@njit(cache=True, nogil=True, inline="always")
 def step_metric_params(mp: MetricParams, q: int, direction_profile: np.ndarray,
                        segment_profile: np.ndarray) -> MetricParams:
     """The metric conventions at internal step ``q``: the sign of an opposite excursion and
@@ -754,10 +763,8 @@ def _simulate_sample(
                         v1 = _valve_scan(v1, u1, vp)
                 if feedback_arm:
                     uq, sq = _probe_control(sq, _output(xq, cq), k, p, q2, q3)
-                    if not fine_q:
-                        ring[2 * size + (k & mask)] = uq + 1.0
-                        xq = _path_step(xq, cq, ring[2 * size + ((k - m_q) & mask)],
-                                        ring[2 * size + ((k - m_q - 1) & mask)])
+                    if not fine_q:  # at the scan
+                        xq = _delayed_step(ring, 2 * size, k, mask, m_q, xq, cq, uq + 1.0)
                 if slot >= 0:
                     _record(trajectories, slot, k, alive0, alive1, y0, y1, u0, u1)
                 if envelope_index[k] >= 0:
@@ -770,13 +777,9 @@ def _simulate_sample(
                 if valve_kind == 3:
                     w0 = _installed_input(vp, valve_table, at0)
                 if sec.present:  # the secondary path, its input delayed through the ring
-                    at = row_s * size
-                    ring[at + (q & mask)] = w0
-                    xs0 = _path_step(xs0, cs, ring[at + ((q - m_s) & mask)],
-                                     ring[at + ((q - m_s - 1) & mask)])
+                    xs0 = _delayed_step(ring, row_s * size, q, mask, m_s, xs0, cs, w0)
                     w0 = flow0
-                ring[q & mask] = w0
-                x0 = _path_step(x0, cp, ring[(q - m_p) & mask], ring[(q - m_p - 1) & mask])
+                x0 = _delayed_step(ring, 0, q, mask, m_p, x0, cp, w0)
             if alive1:
                 acc1, last1 = _arm_metrics(acc1, last1, sp - y1, t, weight, mpk)
                 w1, at1, flow1, v1, ss1 = _actuate(u1, v1, ss1, xs1, cs, vp,
@@ -784,26 +787,16 @@ def _simulate_sample(
                 if valve_kind == 3:
                     w1 = _installed_input(vp, valve_table, at1)
                 if sec.present:
-                    at = (row_s + 1) * size
-                    ring[at + (q & mask)] = w1
-                    xs1 = _path_step(xs1, cs, ring[at + ((q - m_s) & mask)],
-                                     ring[at + ((q - m_s - 1) & mask)])
+                    xs1 = _delayed_step(ring, (row_s + 1) * size, q, mask, m_s, xs1, cs, w1)
                     w1 = flow1
-                ring[size + (q & mask)] = w1
-                x1 = _path_step(x1, cp, ring[size + ((q - m_p) & mask)],
-                                ring[size + ((q - m_p - 1) & mask)])
+                x1 = _delayed_step(ring, size, q, mask, m_p, x1, cp, w1)
             if feedback_arm and fine_q:  # the probe with its (linear) secondary loop and lag
                 wq, flowq, lag_q, ssq = _probe_actuate(uq + 1.0, lag_q, ssq, xsq, cs, pole_q,
                                                        secq, secondary_scan)
                 if sec.present:
-                    at = (row_s + 2) * size
-                    ring[at + (q & mask)] = wq
-                    xsq = _path_step(xsq, cs, ring[at + ((q - m_s) & mask)],
-                                     ring[at + ((q - m_s - 1) & mask)])
+                    xsq = _delayed_step(ring, (row_s + 2) * size, q, mask, m_s, xsq, cs, wq)
                     wq = flowq
-                ring[2 * size + (q & mask)] = wq
-                xq = _path_step(xq, cp, ring[2 * size + ((q - m_p) & mask)],
-                                ring[2 * size + ((q - m_p - 1) & mask)])
+                xq = _delayed_step(ring, 2 * size, q, mask, m_p, xq, cp, wq)
     # Unstable only when the probe's error grows from the third to the last quarter of the
     # window: a stable loop that recovers slowly (a very long integral time) decays, however
     # little, and is not flagged; not settling within the window is the settling time's finding.
