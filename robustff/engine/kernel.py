@@ -433,8 +433,10 @@ def _actuate(u: float, vs: ValveState, ss: tuple, xs: tuple, cs: PathCoefficient
     secondary path's state ``xs`` before this step), the process input. The caller writes
     ``drive`` into the ring and steps the path. With the installed characteristic (code 3)
     ``drive`` is left to the caller, from the stem ``position`` (% of travel) and the table
-    (:func:`_installed_input`). No array passes through here: each array bound in an inlined
-    function cost an atomic reference count at every step (27 % of the steam heater's run).
+    (:func:`_installed_input`). No array passes through here: with the ring and the table
+    passed in, every call took and released references to them, atomic updates at every
+    internal step (27 % of the steam heater's run; numba's pruning removes the pairs in
+    straight-line helpers such as :func:`_delayed_step`, not across this one's branches).
     """
     flow = 0.0
     drive = u
