@@ -14,9 +14,11 @@ and per-sample constant of a block lives in one flat buffer, field ``f`` of lane
 lane loops without run-time alias checks. Each lane's delayed process input is copied from the
 ring (its own dead time) into the buffer before the loop that steps the path. Lanes of a block
 beyond its last sample repeat its first sample and are never written out. The passes of a
-step (measure, scan, record, advance) are inlined into the time loop: as calls, each took
-and released a reference to every array it was passed, atomic updates at every step (8 %
-of the kernel's time).
+step (measure, control, probe, record, advance) are inlined into the time loop, each arm's
+called there without a branch around its arrays: as calls, or inside helpers that chose the
+arms themselves, each took and released a reference to every array it was passed, atomic
+updates at every step (8 % of the kernel's time, each time; numba's pruning pairs the counts
+away only in code without such branches).
 
 The open-loop signals (the disturbances' effect on the CV and the feedforward) advance across
 the lanes too, from each sample's own inputs and noise (:mod:`robustff.engine.lane_open_loop`).
@@ -106,23 +108,12 @@ def _load_lane(w: np.ndarray, lane: int, kind: int, plant_row: np.ndarray, h: fl
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _scan(w: np.ndarray, ring: np.ndarray, ff: np.ndarray, k: int, sp: float, first: bool,
-          p: tuple, h: float, second_order: bool, feedback_arm: bool, size: int, runs_q: np.ndarray,
-          q2: int, q3: int) -> None:
-    """The controllers and the stability probe of every lane at scan ``k`` (the general
-    kernel's ``_arm_control`` and ``_probe_control``, the same operations per lane)."""
-    if feedback_arm:
-        _control_arm(w, ff, False, _S0, _A0, _Y0, _U0, k, sp, first, p, h)
-    _control_arm(w, ff, True, _S1, _A1, _Y1, _U1, k, sp, first, p, h)
-    if feedback_arm:
-        _probe(w, ring, k, p, second_order, size, runs_q, q2, q3)
-
-
-@njit(cache=True, nogil=True, inline="always")
 def _control_arm(w: np.ndarray, ff: np.ndarray, with_ff: bool, s: int, a: int, yf: int,
                  uf: int, k: int, sp: float, first: bool, p: tuple,
                  h: float) -> None:
-    # One arm of _scan, inlined with constant field offsets (see _advance_arm).
+    """The controller of one arm in every lane at scan ``k`` (the general kernel's
+    ``_arm_control``, the same operations per lane), inlined with constant field offsets (see
+    :func:`_advance_arm`)."""
     L = LANES
     # offsets, not slices (a slice is a new array view, reference-counted), unsigned (see
     # _store_and_fetch)
@@ -204,8 +195,9 @@ def _delay_runs(delays: np.ndarray, segments: np.ndarray) -> None:
 @njit(cache=True, nogil=True, inline="always")
 def _probe(w: np.ndarray, ring: np.ndarray, k: int, p: tuple, second_order: bool, size: int,
            runs_q: np.ndarray, q2: int, q3: int) -> None:
-    # The stability probe of _scan: the controller, then (after the ring is written in a loop
-    # of its own) the process step at the scan.
+    # The stability probe of every lane at scan k (the general kernel's _probe_control, the
+    # same operations per lane): the controller, then (after the ring is written in a loop of
+    # its own) the process step at the scan.
     L = LANES
     # Which peak this scan counts for (the window's third and last quarter), decided once.
     late, early = k >= q3, k < q3 and k >= q2
@@ -234,18 +226,9 @@ def _probe(w: np.ndarray, ring: np.ndarray, k: int, p: tuple, second_order: bool
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _measure(w: np.ndarray, effect: np.ndarray, q: int, limit: float,
-             second_order: bool, feedback_arm: bool) -> None:
-    """Every lane's CV at internal step ``q`` and whether each arm is still alive (the
-    feedforward arm's alone without ``feedback_arm``: the other is taken from the reference)."""
-    if feedback_arm:
-        _measure_arm(w, effect, _X0, _Y0, _ALIVE0, q, limit, second_order)
-    _measure_arm(w, effect, _X1, _Y1, _ALIVE1, q, limit, second_order)
-
-
-@njit(cache=True, nogil=True, inline="always")
 def _measure_arm(w: np.ndarray, effect: np.ndarray, x: int, yf: int, af: int, q: int,
                  limit: float, second_order: bool) -> None:
+    # One arm's CV in every lane at internal step q and whether the arm is still alive.
     L = LANES
     now = np.uint64(q * L)  # an unsigned offset, not a slice (see _store_and_fetch)
     for lane in range(L):
@@ -257,25 +240,13 @@ def _measure_arm(w: np.ndarray, effect: np.ndarray, x: int, yf: int, af: int, q:
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _advance(w: np.ndarray, ring: np.ndarray, q: int, sp: float, t: float, weight: float,
-             mp: tuple, second_order: bool, feedback_arm: bool, size: int,
-             runs_p: np.ndarray) -> None:
-    """Error metrics and the process step of every live lane over internal step ``q`` (the
-    general kernel's ``_arm_metrics`` and ``_path_step``, the same operations per lane)."""
-    if feedback_arm:
-        _advance_arm(w, ring, _X0, _A0, _Y0, _U0, _LAST0, 0, q, sp, t, weight, mp,
-                     second_order, size, runs_p)
-    _advance_arm(w, ring, _X1, _A1, _Y1, _U1, _LAST1, size, q, sp, t, weight, mp,
-                 second_order, size, runs_p)
-
-
-@njit(cache=True, nogil=True, inline="always")
 def _advance_arm(w: np.ndarray, ring: np.ndarray, x: int, a: int, yf: int, uf: int, lf: int,
                  base: int, q: int, sp: float, t: float, weight: float, mp: tuple,
                  second_order: bool, size: int, runs_p: np.ndarray) -> None:
-    # One arm of _advance. Inlined with constant field offsets, so the compiler knows how far
-    # apart the fields are; the ring is written in a loop of its own, so the loop that reads
-    # it does not write it.
+    # Error metrics and the process step of one arm in every lane over internal step q (the
+    # general kernel's _arm_metrics and _path_step, the same operations per lane). Inlined with
+    # constant field offsets, so the compiler knows how far apart the fields are; the ring is
+    # written in a loop of its own, so the loop that reads it does not write it.
     L = LANES
     h = mp.h
     new_event = mp.segment != mp.previous_segment
@@ -495,14 +466,26 @@ def simulate_lanes(
                 weight = max(t - mp.t_start, 0.0)
                 mpk = step_metric_params(mp, q, direction_profile, segment_profile)
                 sp = setpoint_profile[q]
-                _measure(w, effect_lanes, q, limit, second_order, feedback_arm)
+                # The arms' passes are called here, each without a branch around its arrays:
+                # a helper choosing the arms itself took and released a reference to every
+                # array it was passed at each call (atomic updates at every step).
+                if feedback_arm:
+                    _measure_arm(w, effect_lanes, _X0, _Y0, _ALIVE0, q, limit, second_order)
+                _measure_arm(w, effect_lanes, _X1, _Y1, _ALIVE1, q, limit, second_order)
                 if sub == 0:
-                    _scan(w, ring, ff_lanes, k, sp, k == 0, p, h, second_order,
-                          feedback_arm, size, runs_q, q2, q3)
+                    if feedback_arm:
+                        _control_arm(w, ff_lanes, False, _S0, _A0, _Y0, _U0, k, sp, k == 0, p,
+                                     h)
+                    _control_arm(w, ff_lanes, True, _S1, _A1, _Y1, _U1, k, sp, k == 0, p, h)
+                    if feedback_arm:
+                        _probe(w, ring, k, p, second_order, size, runs_q, q2, q3)
                     if keep or envelope_index[k] >= 0:
                         _record_scan(w, k, lanes, count, trajectory_slot, trajectories, env,
                                      envelope_index[k], grid, keep)
-                _advance(w, ring, q, sp, t, weight, mpk, second_order, feedback_arm, size,
-                         runs_p)
+                if feedback_arm:
+                    _advance_arm(w, ring, _X0, _A0, _Y0, _U0, _LAST0, 0, q, sp, t, weight, mpk,
+                                 second_order, size, runs_p)
+                _advance_arm(w, ring, _X1, _A1, _Y1, _U1, _LAST1, size, q, sp, t, weight, mpk,
+                             second_order, size, runs_p)
         _write_out(w, env, lanes, count, feedback_arm, n_steps * h, last_segment, mp.h,
                    accumulators, unstable, loop_unstable, envelope_counts)
