@@ -466,16 +466,14 @@ def _probe_actuate(u: float, lag: float, ss: tuple, xs: tuple, cs: PathCoefficie
                    pole: float, sec: SecondaryParams, secondary_scan: bool) -> tuple:
     """The stability probe's drive over one internal step: the loop linearised at the nominal
     position (valve slope 1, the actuator lag with pole ``pole`` per internal step, no
-    stiction, deadband, rate limit or limits); returns ``(drive, flow, lag state, secondary
-    state)`` as :func:`_actuate`."""
+    stiction, deadband, rate limit or limits); returns ``(lag, flow, secondary state)``: the
+    lag's output is the drive, and ``flow`` as in :func:`_actuate`."""
     if not sec.present:
-        lag = pole * lag + (1.0 - pole) * u
-        return lag, 0.0, lag, ss
+        return pole * lag + (1.0 - pole) * u, 0.0, ss
     flow = _output(xs, cs)
     if secondary_scan:
         ss = _secondary_control(ss, u - flow, sec)
-    lag = pole * lag + (1.0 - pole) * ss[1]
-    return lag, flow, lag, ss
+    return pole * lag + (1.0 - pole) * ss[1], flow, ss
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -793,8 +791,9 @@ def _simulate_sample(
                     w1 = flow1
                 x1 = _delayed_step(ring, size, q, mask, m_p, x1, cp, w1)
             if feedback_arm and fine_q:  # the probe with its (linear) secondary loop and lag
-                wq, flowq, lag_q, ssq = _probe_actuate(uq + 1.0, lag_q, ssq, xsq, cs, pole_q,
-                                                       secq, secondary_scan)
+                lag_q, flowq, ssq = _probe_actuate(uq + 1.0, lag_q, ssq, xsq, cs, pole_q, secq,
+                                                   secondary_scan)
+                wq = lag_q
                 if sec.present:
                     xsq = _delayed_step(ring, (row_s + 2) * size, q, mask, m_s, xsq, cs, wq)
                     wq = flowq

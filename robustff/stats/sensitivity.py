@@ -210,9 +210,9 @@ def rank_sensitivity(
     # of its rows (the usual case: every sample finite); a subset is ranked on its own. The
     # response's and the indicator's are kept for every parameter, a parameter's only while
     # its own correlations are worked out (memory: a few columns, whatever the parameters).
-    shared = [(resp, finite_response.all())] + ([(flag, True)] if flag is not None else [])
-    whole = _mapped(lambda item: average_ranks(item[0]) if item[1] else None, shared, jobs)
-    response_ranks, harm_ranks = whole[0], whole[1] if flag is not None else None
+    shared = [resp if finite_response.all() else None, flag]  # None: not ranked whole
+    response_ranks, harm_ranks = _mapped(
+        lambda values: None if values is None else average_ranks(values), shared, jobs)
 
     def row(j: int) -> SensitivityRow:
         col = par[:, j]

@@ -258,11 +258,12 @@ def _run_chunk(
     grid: EnvelopeGrid,
     names: list[str],
     values: np.ndarray,
-    seeds: tuple[int, int],
+    seed: int,
+    index: int,
     keep: int,
 ):
-    # (study seed, chunk index): the chunk's noise seeds, worked out here (chunk_noise_seeds)
-    seeds = chunk_noise_seeds(seeds[0], seeds[1], values.shape[0])
+    # The chunk's noise seeds are worked out here, in its own task (chunk_noise_seeds).
+    seeds = chunk_noise_seeds(seed, index, values.shape[0])
     batch = plant_batch(case, names, values)
     # With other designs to run, keep this chunk's disturbance (its effect on the CV and its
     # measurement, noise included) so that they replay it instead of simulating it again,
@@ -387,7 +388,7 @@ def run_study(
     chunks = _chunks(n, chunk_size)
     tasks = [
         (_run_chunk, (case, design, scenario, grid, names, values[c.start : c.stop],
-                      (seed, c.index), KEPT_TRAJECTORIES if c.index == 0 else 0), {})
+                      seed, c.index, KEPT_TRAJECTORIES if c.index == 0 else 0), {})
         for c in chunks
     ]
     collected = _Collected(design, n, scenario.n_steps, spill_folder)
